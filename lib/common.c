@@ -1,0 +1,100 @@
+/*
+ * common.c - status text, error buffers and small string helpers.
+ */
+#include "common_int.h"
+#include "plyledger/version.h"
+
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+PL_EXPORT const char *pl_strerror(int code)
+{
+    switch (code) {
+    case PL_OK: return "success";
+    case PL_EINVAL: return "invalid argument";
+    case PL_ENOMEM: return "out of memory";
+    case PL_EIO: return "input/output error";
+    case PL_EFORMAT: return "malformed input";
+    case PL_ENOTFOUND: return "not found";
+    case PL_EEXISTS: return "already exists";
+    case PL_EDB: return "database error";
+    case PL_ENOMATCH: return "inputs do not match";
+    case PL_EVERSION: return "store is newer than this plyledger";
+    case PL_ENOTSTORE: return "not a plyledger store";
+    case PL_ERANGE: return "value out of range";
+    case PL_EREFUSED: return "refused by a quality limit";
+    case PL_ECANCELED: return "canceled";
+    case PL_EREADONLY: return "record is append-only";
+    default: return "unknown error";
+    }
+}
+
+PL_EXPORT const char *pl_err_message(const pl_err *err, int code)
+{
+    if (err && err->msg[0])
+        return err->msg;
+    return pl_strerror(code);
+}
+
+PL_EXPORT const char *pl_version(void)
+{
+    return PL_VERSION_STRING;
+}
+
+int pl__err(pl_err *err, int code, const char *fmt, ...)
+{
+    if (err) {
+        va_list ap;
+        err->code = code;
+        va_start(ap, fmt);
+        vsnprintf(err->msg, sizeof err->msg, fmt, ap);
+        va_end(ap);
+        /* one line only */
+        for (char *p = err->msg; *p; p++)
+            if (*p == '\n' || *p == '\r')
+                *p = ' ';
+    }
+    return code;
+}
+
+void pl__err_clear(pl_err *err)
+{
+    if (err) {
+        err->code = PL_OK;
+        err->msg[0] = '\0';
+    }
+}
+
+const char *pl__basename(const char *path)
+{
+    if (!path)
+        return "(null)";
+    const char *slash = strrchr(path, '/');
+    return slash && slash[1] ? slash + 1 : path;
+}
+
+char *pl__strdup(const char *s)
+{
+    if (!s)
+        return NULL;
+    size_t n = strlen(s) + 1;
+    char *d = malloc(n);
+    if (d)
+        memcpy(d, s, n);
+    return d;
+}
+
+int pl__copy_text(char *dst, size_t cap, const char *src, const char *what,
+                  pl_err *err)
+{
+    if (!src)
+        src = "";
+    size_t n = strlen(src);
+    if (n >= cap)
+        return pl__err(err, PL_EINVAL, "%s is too long (%zu characters, at most %zu)",
+                       what, n, cap - 1);
+    memcpy(dst, src, n + 1);
+    return PL_OK;
+}

@@ -1,0 +1,35 @@
+/*
+ * common_int.h - helpers shared inside the library; never installed.
+ */
+#ifndef PLYLEDGER_COMMON_INT_H
+#define PLYLEDGER_COMMON_INT_H
+
+#include "plyledger/common.h"
+
+#if defined(__GNUC__)
+#define PL_PRINTF(a, b) __attribute__((format(printf, a, b)))
+#else
+#define PL_PRINTF(a, b)
+#endif
+
+/*
+ * Fill `err` (when not NULL) with `code` and a formatted one-line message and
+ * return `code`, so that a failure reads `return pl__err(err, PL_EIO, ...)`.
+ */
+int pl__err(pl_err *err, int code, const char *fmt, ...) PL_PRINTF(3, 4);
+
+/* Clear `err` (when not NULL) to PL_OK and an empty message. */
+void pl__err_clear(pl_err *err);
+
+/* The base name of a path, for messages ("dir/x.png" -> "x.png"). */
+const char *pl__basename(const char *path);
+
+/* strdup that returns NULL for NULL. */
+char *pl__strdup(const char *s);
+
+/* Copy src into a fixed buffer; PL_EINVAL (with a message naming `what`)
+ * when it does not fit. NULL src gives an empty string. */
+int pl__copy_text(char *dst, size_t cap, const char *src, const char *what,
+                  pl_err *err);
+
+#endif

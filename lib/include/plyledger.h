@@ -1,0 +1,21 @@
+/*
+ * plyledger.h - the whole public API of libplyledger.
+ *
+ * plyledger keeps the non-destructive inspection record of composite
+ * airframes: reduced inspection maps keyed by airframe serial, site and
+ * part coordinates, in one SQLite store. Include this header, or the
+ * module headers it lists, and link with `pkg-config --libs plyledger`.
+ */
+#ifndef PLYLEDGER_H
+#define PLYLEDGER_H
+
+#include "plyledger/common.h"
+#include "plyledger/version.h"
+#include "plyledger/hash.h"
+#include "plyledger/npy.h"
+#include "plyledger/map.h"
+#include "plyledger/render.h"
+#include "plyledger/store.h"
+#include "plyledger/plan.h"
+
+#endif

@@ -1,0 +1,259 @@
+/*
+ * plyledger/map.h - one reduced inspection map: a raster placed on the part.
+ *
+ * A pl_map is a grid of `width` x `height` pixels holding one or more
+ * channels of float32 values, NaN where there is no data. Each channel has a
+ * quantity and a unit. Quantities come from a documented vocabulary (see
+ * pl_quantity_at()); a name outside it is accepted as a free quantity as long
+ * as a unit is given.
+ *
+ * Geometry. Pixel (col i, row j) has its centre at the part point
+ *
+ *     P(i, j) = origin + (i * pitch_u) * u + (j * pitch_v) * v
+ *
+ * where origin, u and v are the placement: the origin in the airframe's
+ * reference system (for example "STA/BL/WL", station / butt line / water
+ * line) and two in-plane unit vectors in that system. Pitches are in mm per
+ * pixel along u (columns) and v (rows). The placement's `unit` names the
+ * unit of the origin's coordinates ("mm").
+ *
+ * Storage. Data is channel-major, then row-major: value (channel c, row j,
+ * col i) lives at data[(c * height + j) * width + i]. pl_map_new() allocates
+ * it zeroed; pl_map_free() releases the map, its channels and its data.
+ *
+ * Files. Import reads 8- or 16-bit grayscale PNG (value = offset + scale *
+ * code, from text chunks below), NumPy .npy (float32, float64, uint16; C
+ * order; 2-D or 3-D as channels x rows x cols) and CSV grids. Export writes
+ * 16-bit PNG with those text chunks, float32 .npy, and (plyledger/render.h)
+ * a colour rendering.
+ *
+ * PNG text chunk keys written and read by plyledger:
+ *   plyledger.scale     value per code step (default 1)
+ *   plyledger.offset    value of code 0 (default 0)
+ *   plyledger.nodata    the code that means "no data" (absent: none)
+ *   plyledger.quantity  the channel's quantity
+ *   plyledger.unit      the channel's unit
+ *   plyledger.pitch     "PU PV" in mm per pixel (or one number for both)
+ */
+#ifndef PLYLEDGER_MAP_H
+#define PLYLEDGER_MAP_H
+
+#include "plyledger/common.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define PL_QUANTITY_SIZE 48  /**< buffer for a quantity name, NUL included */
+#define PL_UNIT_SIZE 24      /**< buffer for a unit, NUL included */
+#define PL_SYSTEM_SIZE 32    /**< buffer for a coordinate system name */
+
+/** The PNG text keys (see the introduction). */
+#define PL_PNG_KEY_SCALE "plyledger.scale"
+#define PL_PNG_KEY_OFFSET "plyledger.offset"
+#define PL_PNG_KEY_NODATA "plyledger.nodata"
+#define PL_PNG_KEY_QUANTITY "plyledger.quantity"
+#define PL_PNG_KEY_UNIT "plyledger.unit"
+#define PL_PNG_KEY_PITCH "plyledger.pitch"
+
+/** Where a map lies on the part. */
+typedef struct pl_placement {
+    double origin[3];             /**< centre of pixel (0,0), airframe coordinates */
+    double u[3];                  /**< unit vector along increasing column */
+    double v[3];                  /**< unit vector along increasing row */
+    char system[PL_SYSTEM_SIZE];  /**< reference system, e.g. "STA/BL/WL" */
+    char unit[PL_UNIT_SIZE];      /**< unit of `origin`, e.g. "mm" */
+} pl_placement;
+
+/** What one channel holds. */
+typedef struct pl_channel {
+    char quantity[PL_QUANTITY_SIZE];  /**< e.g. "temperature-contrast" */
+    char unit[PL_UNIT_SIZE];          /**< e.g. "K" */
+} pl_channel;
+
+/** A map. Fields may be read and written directly; keep them consistent. */
+typedef struct pl_map {
+    uint32_t width;          /**< columns */
+    uint32_t height;         /**< rows */
+    uint32_t nchannels;      /**< at least 1 */
+    double pitch_u;          /**< mm per pixel along u (columns); > 0 */
+    double pitch_v;          /**< mm per pixel along v (rows); > 0 */
+    pl_placement placement;  /**< where pixel (0,0) is and how the axes run */
+    pl_channel *channels;    /**< nchannels entries, owned by the map */
+    float *data;             /**< nchannels * height * width values, owned */
+} pl_map;
+
+/** A quantity of the vocabulary. */
+typedef struct pl_quantity_info {
+    const char *name;         /**< e.g. "depth" */
+    const char *units;        /**< accepted units, space separated; first is default */
+    const char *description;  /**< one line for help text */
+} pl_quantity_info;
+
+/** Largest width or height accepted for a map (pixels). */
+#define PL_MAP_MAX_SIDE 65536u
+/** Largest number of channels in one map. */
+#define PL_MAP_MAX_CHANNELS 256u
+
+/**
+ * Allocate a map with zeroed data, pitch 1 mm, identity placement (origin 0,
+ * u = (1,0,0), v = (0,1,0), system "local", unit "mm") and channels with
+ * empty quantity and unit.
+ * @param[out] out  the new map; free with pl_map_free()
+ * @return PL_OK, PL_EINVAL (a zero or too large dimension), PL_ENOMEM.
+ */
+PL_EXPORT int pl_map_new(pl_map **out, uint32_t width, uint32_t height,
+                         uint32_t nchannels, pl_err *err);
+
+/** Release a map; NULL is accepted. */
+PL_EXPORT void pl_map_free(pl_map *map);
+
+/** Deep copy. @param[out] out  free with pl_map_free(). */
+PL_EXPORT int pl_map_clone(pl_map **out, const pl_map *map, pl_err *err);
+
+/** Pointer to channel `c`'s height*width values (c < nchannels). */
+PL_EXPORT float *pl_map_channel(const pl_map *map, uint32_t c);
+
+/**
+ * Index of the first channel whose quantity is `quantity`.
+ * @return the index (>= 0), or PL_ENOTFOUND.
+ */
+PL_EXPORT int pl_map_find_channel(const pl_map *map, const char *quantity);
+
+/**
+ * Set channel `c`'s quantity and unit after checking them with
+ * pl_quantity_check().
+ * @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_map_set_channel(pl_map *map, uint32_t c, const char *quantity,
+                                 const char *unit, pl_err *err);
+
+/**
+ * Set both pitches (mm per pixel); each must be finite and > 0.
+ * @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_map_set_pitch(pl_map *map, double pitch_u, double pitch_v, pl_err *err);
+
+/**
+ * Check a placement: finite numbers, u and v of unit length (within 1e-3)
+ * and perpendicular (|u.v| < 1e-3), a non-empty system and unit.
+ * @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_placement_check(const pl_placement *p, pl_err *err);
+
+/**
+ * Part coordinates ([out] xyz) of the point at fractional pixel position
+ * (col, row); pixel centres are at integers.
+ */
+PL_EXPORT void pl_map_pixel_to_part(const pl_map *map, double col, double row,
+                                    double xyz[3]);
+
+/** Number of quantities in the vocabulary. */
+PL_EXPORT size_t pl_quantity_count(void);
+/** The i-th quantity (i < pl_quantity_count()); static storage. */
+PL_EXPORT const pl_quantity_info *pl_quantity_at(size_t i);
+/** The vocabulary entry named `name`, or NULL for a free quantity. */
+PL_EXPORT const pl_quantity_info *pl_quantity_lookup(const char *name);
+
+/**
+ * Check a channel description. A vocabulary quantity must use one of its
+ * listed units (pl_quantity_default_unit() gives the usual one); a free
+ * quantity needs a non-empty unit. Names are 1-47 characters of
+ * [a-z0-9-_.]; units are 1-23 printable characters without spaces.
+ * @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_quantity_check(const char *quantity, const char *unit, pl_err *err);
+
+/** Default unit of a vocabulary quantity, or NULL for a free one. */
+PL_EXPORT const char *pl_quantity_default_unit(const char *quantity);
+
+/* ---- store encoding ---------------------------------------------------- */
+
+/**
+ * Encode all channels' data as zlib-compressed little-endian float32, in the
+ * layout of pl_map.data, every NaN written as the quiet NaN 0x7fc00000.
+ * @param[out] blob     malloc'd bytes; the caller frees with free()
+ * @param[out] blob_len their count
+ * @param[out] sha256   SHA-256 of the decoded (uncompressed) bytes
+ * @return PL_OK, PL_ENOMEM, PL_EFORMAT (zlib failure).
+ */
+PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len,
+                            unsigned char sha256[32], const pl_map *map, pl_err *err);
+
+/**
+ * Decode a blob from pl_map_encode() into `map`'s data, whose width, height
+ * and nchannels must already be set and data allocated (pl_map_new()).
+ * When `sha256` is not NULL the decoded bytes must hash to it.
+ * @return PL_OK, PL_EFORMAT (corrupt, wrong length), PL_ENOMATCH (digest).
+ */
+PL_EXPORT int pl_map_decode(pl_map *map, const void *blob, size_t blob_len,
+                            const unsigned char sha256[32], pl_err *err);
+
+/** SHA-256 of a map's content as pl_map_encode() would hash it. */
+PL_EXPORT void pl_map_digest(unsigned char sha256[32], const pl_map *map);
+
+/* ---- files ------------------------------------------------------------- */
+
+/**
+ * Read an 8- or 16-bit grayscale PNG (no alpha, no palette). Values are
+ * offset + scale * code from the plyledger.* text chunks (1 and 0 when
+ * absent); the nodata code becomes NaN. Quantity, unit and pitch come from
+ * their chunks when present (else empty quantity, pitch 1).
+ * @param[out] out  free with pl_map_free()
+ * @return PL_OK, PL_EIO (cannot open), PL_EFORMAT (not PNG, truncated, not
+ *         grayscale, bad chunk value), PL_ENOMEM.
+ */
+PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err);
+
+/**
+ * Write channel `c` as a 16-bit grayscale PNG. Finite values are quantised
+ * to codes 0..65534 with offset = min and scale = (max - min) / 65534 (scale
+ * 1 for a constant map); NaN is written as code 65535, the nodata code. The
+ * round trip through pl_map_load_png() is exact to scale / 2.
+ * @return PL_OK, PL_EINVAL (c out of range), PL_EIO.
+ */
+PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err);
+
+/**
+ * Read a NumPy .npy file (format 1.0, 2.0 or 3.0): dtype float32, float64 or
+ * uint16 of either byte order, C order, 2-D (rows x cols) or 3-D
+ * (channels x rows x cols). Quantity, unit and pitch are left for the
+ * caller (empty, 1 mm).
+ * @return PL_OK, PL_EIO, PL_EFORMAT (bad magic, header, dtype, order, rank,
+ *         truncated data), PL_ENOMEM.
+ */
+PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err);
+
+/**
+ * Write the map as little-endian float32 .npy (format 1.0): 2-D when it has
+ * one channel, else 3-D channels x rows x cols.
+ * @return PL_OK, PL_EIO.
+ */
+PL_EXPORT int pl_map_save_npy(const pl_map *map, const char *path, pl_err *err);
+
+/**
+ * Read a CSV grid: one row of the map per line, comma separated numbers; an
+ * empty field, "nan" or "NaN" is no data. Every line must have the same
+ * number of fields. Lines starting with '#' are skipped.
+ * @return PL_OK, PL_EIO, PL_EFORMAT (ragged rows, a field that is not a
+ *         number, empty file), PL_ENOMEM.
+ */
+PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err);
+
+/**
+ * Read a map, choosing the format by the file name's ending (.png, .npy,
+ * .csv, case-insensitive).
+ * @return as the format's loader, or PL_EFORMAT for an unknown ending.
+ */
+PL_EXPORT int pl_map_load(pl_map **out, const char *path, pl_err *err);
+
+/**
+ * Finite statistics of channel c: [out] min, max (NaN when there is no
+ * finite value) and the count of finite values.
+ */
+PL_EXPORT size_t pl_map_range(const pl_map *map, uint32_t c, double *min, double *max);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

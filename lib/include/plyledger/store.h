@@ -1,0 +1,361 @@
+/*
+ * plyledger/store.h - the inspection record: one SQLite file per fleet.
+ *
+ * A store holds airframes (by serial), their inspection sites (by code,
+ * unique per airframe), the inspections of each site and the maps each
+ * inspection produced; the schema also holds the tables that indication,
+ * comparison and disposition work fills (see schema/*.sql).
+ *
+ * Append-only. Recorded rows are never updated or deleted; SQLite triggers
+ * refuse it. A correction is a new row that supersedes the current version
+ * and gives a reason. Every correctable record therefore has two ids:
+ * `id`, the row of this version, and `key`, the id of its first version,
+ * which never changes and which child records refer to. Reads return the
+ * current version of each record unless they say otherwise.
+ *
+ * Life. pl_store_create() makes a new store, pl_store_open() opens one and
+ * migrates it forward to the library's schema (refusing a store written by a
+ * newer plyledger); pl_store_close() closes it. A pl_store is used from one
+ * thread at a time.
+ *
+ * Transactions. Every writing call is atomic on its own (a savepoint). A
+ * caller that makes several calls wraps them in pl_store_begin() and
+ * pl_store_commit(), or pl_store_rollback() on failure, so that either all of
+ * them land or the store is left exactly as it was.
+ *
+ * Records are plain structs with fixed text buffers, filled by the caller
+ * for writes and by the store for reads. Text that does not fit its buffer
+ * is refused with PL_EINVAL. Numbers that are unknown are NaN (doubles) or
+ * -1 (counts). Listing calls hand each record to a callback; the record is
+ * borrowed for the callback's duration only. A callback returns 0 to go on
+ * or non-zero to stop the listing (which then returns PL_OK).
+ */
+#ifndef PLYLEDGER_STORE_H
+#define PLYLEDGER_STORE_H
+
+#include "plyledger/common.h"
+#include "plyledger/map.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** The schema version this library writes (PRAGMA user_version). */
+#define PL_STORE_SCHEMA_VERSION 1
+/** PRAGMA application_id of a plyledger store: "PlyL". */
+#define PL_STORE_APPLICATION_ID 0x506c794c
+
+#define PL_NAME_SIZE 64   /**< serials, codes, names, references */
+#define PL_TEXT_SIZE 256  /**< descriptions, notes */
+#define PL_DATE_SIZE 32   /**< ISO 8601 dates and timestamps */
+#define PL_WORD_SIZE 24   /**< kinds, levels, revisions, versions */
+
+typedef int64_t pl_id;
+typedef struct pl_store pl_store;
+
+/** pl_store_open() flags. */
+enum {
+    PL_STORE_READONLY = 1 /**< open without writing (no migration; an older
+                               schema is refused with PL_EVERSION) */
+};
+
+/* ---- life ---------------------------------------------------------------- */
+
+/**
+ * Create a new, empty store at `path` (WAL journal, foreign keys on, busy
+ * timeout 5 s). `path` must not exist.
+ * @param[out] out  close with pl_store_close()
+ * @return PL_OK, PL_EEXISTS, PL_EIO, PL_EDB, PL_ENOMEM.
+ */
+PL_EXPORT int pl_store_create(pl_store **out, const char *path, pl_err *err);
+
+/**
+ * Open an existing store and migrate it forward to PL_STORE_SCHEMA_VERSION.
+ * @param[out] out  close with pl_store_close()
+ * @return PL_OK, PL_ENOTFOUND (no such file), PL_ENOTSTORE (not SQLite, or
+ *         another application's database), PL_EVERSION (newer schema, or an
+ *         older one with PL_STORE_READONLY), PL_EDB, PL_ENOMEM.
+ */
+PL_EXPORT int pl_store_open(pl_store **out, const char *path, unsigned flags, pl_err *err);
+
+/** Close; rolls back an open transaction. NULL is accepted. */
+PL_EXPORT void pl_store_close(pl_store *store);
+
+/** Schema version of the open store. */
+PL_EXPORT int pl_store_schema_version(const pl_store *store);
+
+/** Begin a transaction spanning several calls. @return PL_OK, PL_EDB. */
+PL_EXPORT int pl_store_begin(pl_store *store, pl_err *err);
+/** Commit it. @return PL_OK, PL_EDB. */
+PL_EXPORT int pl_store_commit(pl_store *store, pl_err *err);
+/** Roll it back; harmless when none is open. */
+PL_EXPORT void pl_store_rollback(pl_store *store);
+
+/**
+ * The underlying SQLite handle (sqlite3 *), borrowed, for modules that add
+ * their own records in later schema versions. Valid until pl_store_close().
+ */
+PL_EXPORT void *pl_store_db(pl_store *store);
+
+/* ---- airframes ------------------------------------------------------------ */
+
+typedef struct pl_airframe {
+    pl_id id;                            /**< (read) row of this version */
+    pl_id key;                           /**< (read) stable identity */
+    char serial[PL_NAME_SIZE];           /**< manufacturer serial number; required */
+    char aircraft_type[PL_NAME_SIZE];    /**< type designation; required */
+    char manufactured[PL_DATE_SIZE];     /**< date of manufacture, YYYY-MM-DD; optional */
+    char operator_name[PL_TEXT_SIZE];    /**< current operator (on add: the first) */
+    char operator_since[PL_DATE_SIZE];   /**< date the current operator took it over */
+    char notes[PL_TEXT_SIZE];
+    char recorded_at[PL_DATE_SIZE];      /**< (read) UTC timestamp of this version */
+} pl_airframe;
+
+/**
+ * Register an airframe; when operator_name is set it starts the operator
+ * history from operator_since (or the date of manufacture).
+ * @param[out] id  the new row (may be NULL)
+ * @return PL_OK, PL_EINVAL (missing serial or type, bad date), PL_EEXISTS
+ *         (serial already registered), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_airframe(pl_store *store, const pl_airframe *af, pl_id *id, pl_err *err);
+
+/**
+ * Current version of the airframe with this serial into [out] af.
+ * @return PL_OK, PL_ENOTFOUND, PL_EDB.
+ */
+PL_EXPORT int pl_store_get_airframe(pl_store *store, const char *serial, pl_airframe *af, pl_err *err);
+
+/**
+ * Record that `operator_name` operates the airframe from `since`
+ * (YYYY-MM-DD). Dates must not go backwards.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
+ */
+PL_EXPORT int pl_store_add_operator(pl_store *store, const char *serial, const char *operator_name,
+                                    const char *since, pl_err *err);
+
+typedef int (*pl_operator_fn)(void *ud, const char *operator_name, const char *since,
+                              const char *recorded_at);
+/** The operator history of an airframe, oldest first. */
+PL_EXPORT int pl_store_list_operators(pl_store *store, const char *serial, pl_operator_fn fn,
+                                      void *ud, pl_err *err);
+
+/** Filter for pl_store_list_airframes(); NULL or "" fields match all. */
+typedef struct pl_airframe_filter {
+    const char *aircraft_type;
+    const char *operator_name;
+} pl_airframe_filter;
+
+typedef int (*pl_airframe_fn)(void *ud, const pl_airframe *af);
+/** Current airframes ordered by serial. `filter` may be NULL. */
+PL_EXPORT int pl_store_list_airframes(pl_store *store, const pl_airframe_filter *filter,
+                                      pl_airframe_fn fn, void *ud, pl_err *err);
+
+/**
+ * Correct an airframe: `af` holds the full corrected record (serial names
+ * the airframe and cannot itself change). `reason` is required.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
+ */
+PL_EXPORT int pl_store_correct_airframe(pl_store *store, const pl_airframe *af, const char *reason,
+                                        pl_id *id, pl_err *err);
+
+/* ---- sites --------------------------------------------------------------- */
+
+typedef struct pl_site {
+    pl_id id;                          /**< (read) row of this version */
+    pl_id key;                         /**< (read) stable identity */
+    char airframe_serial[PL_NAME_SIZE];/**< the airframe; required */
+    char code[PL_NAME_SIZE];           /**< site code, unique per airframe; required */
+    char zone[PL_NAME_SIZE];           /**< zone of the airframe */
+    char description[PL_TEXT_SIZE];
+    char frame[PL_NAME_SIZE];          /**< structural frame, e.g. "FR 41" */
+    char stringer[PL_NAME_SIZE];       /**< stringer, e.g. "STR 12L" */
+    char method[PL_NAME_SIZE];         /**< see pl_method_check(); required */
+    char material[PL_NAME_SIZE];       /**< laminate or material name */
+    double thickness_mm;               /**< nominal thickness; NaN unknown */
+    double diffusivity_mm2_s;          /**< through-thickness thermal diffusivity; NaN unknown */
+    pl_placement map_frame;            /**< where the site's maps lie on the part */
+    uint32_t width_px;                 /**< expected map width; 0 any */
+    uint32_t height_px;                /**< expected map height; 0 any */
+    double pitch_u;                    /**< expected mm per pixel along u; > 0 */
+    double pitch_v;                    /**< expected mm per pixel along v; > 0 */
+    char recorded_at[PL_DATE_SIZE];    /**< (read) */
+} pl_site;
+
+/**
+ * Check a site record: code, method and placement valid, pitches finite and
+ * positive, thickness and diffusivity NaN or positive.
+ * @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_site_check(const pl_site *site, pl_err *err);
+
+/**
+ * Check an inspection method name: "flash-thermography",
+ * "ultrasound-pulse-echo", "ultrasound-through-transmission" or
+ * "eddy-current". @return PL_OK, PL_EINVAL.
+ */
+PL_EXPORT int pl_method_check(const char *method, pl_err *err);
+
+/**
+ * Add a site to an airframe.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (airframe), PL_EEXISTS (code), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_site(pl_store *store, const pl_site *site, pl_id *id, pl_err *err);
+
+/** Current version of a site into [out] site. @return PL_OK, PL_ENOTFOUND, PL_EDB. */
+PL_EXPORT int pl_store_get_site(pl_store *store, const char *serial, const char *code,
+                                pl_site *site, pl_err *err);
+
+/** Correct a site (airframe_serial and code name it). @return as add. */
+PL_EXPORT int pl_store_correct_site(pl_store *store, const pl_site *site, const char *reason,
+                                    pl_id *id, pl_err *err);
+
+typedef struct pl_site_filter {
+    const char *airframe_serial;
+    const char *zone;
+    const char *method;
+} pl_site_filter;
+
+typedef int (*pl_site_fn)(void *ud, const pl_site *site);
+/** Current sites ordered by airframe serial, then code. */
+PL_EXPORT int pl_store_list_sites(pl_store *store, const pl_site_filter *filter, pl_site_fn fn,
+                                  void *ud, pl_err *err);
+
+/* ---- inspections ---------------------------------------------------------- */
+
+typedef struct pl_inspection {
+    pl_id id;                             /**< (read) row of this version */
+    pl_id key;                            /**< (read) stable identity */
+    char airframe_serial[PL_NAME_SIZE];   /**< required */
+    char site_code[PL_NAME_SIZE];         /**< required */
+    char kind[PL_WORD_SIZE];              /**< baseline | scheduled | unscheduled | post-repair */
+    char task_ref[PL_NAME_SIZE];          /**< maintenance task or check reference */
+    char performed_on[PL_DATE_SIZE];      /**< YYYY-MM-DD; required */
+    double aircraft_hours;                /**< flight hours at inspection; NaN unknown */
+    int64_t aircraft_cycles;              /**< flight cycles; -1 unknown */
+    char procedure[PL_NAME_SIZE];         /**< approved procedure reference; required */
+    char procedure_rev[PL_WORD_SIZE];     /**< its revision; required */
+    char equipment[PL_TEXT_SIZE];         /**< equipment used; required */
+    char calibration_ref[PL_NAME_SIZE];   /**< calibration / reference standard; required */
+    char inspector[PL_NAME_SIZE];         /**< who performed it; required */
+    char inspector_level[PL_WORD_SIZE];   /**< qualification level; required */
+    char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
+    char notes[PL_TEXT_SIZE];
+    char *parameters_json;                /**< processing parameters (JSON object) or NULL;
+                                               on read owned by the record: see
+                                               pl_inspection_clear() */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_inspection;
+
+/** Free what a read put in `insp` (parameters_json) and zero it. */
+PL_EXPORT void pl_inspection_clear(pl_inspection *insp);
+
+/** Check an inspection kind word. @return PL_OK, PL_EINVAL. */
+PL_EXPORT int pl_inspection_kind_check(const char *kind, pl_err *err);
+
+/**
+ * Record an inspection of a site. parameters_json, when given, must parse as
+ * a JSON object. A site has at most one baseline that is not superseded.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (airframe or site), PL_EEXISTS
+ *         (a second baseline), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_inspection(pl_store *store, const pl_inspection *insp, pl_id *id,
+                                      pl_err *err);
+
+/**
+ * Current version of the inspection with key `key` into [out] insp (free
+ * with pl_inspection_clear()). @return PL_OK, PL_ENOTFOUND, PL_EDB.
+ */
+PL_EXPORT int pl_store_get_inspection(pl_store *store, pl_id key, pl_inspection *insp,
+                                      pl_err *err);
+
+/**
+ * Correct the inspection whose key is `key`; `insp` is the full corrected
+ * record (its airframe and site must stay the same).
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
+ */
+PL_EXPORT int pl_store_correct_inspection(pl_store *store, pl_id key, const pl_inspection *insp,
+                                          const char *reason, pl_id *id, pl_err *err);
+
+typedef struct pl_inspection_filter {
+    const char *airframe_serial;
+    const char *site_code;
+    const char *kind;
+    const char *from;  /**< performed_on >= from */
+    const char *to;    /**< performed_on <= to */
+} pl_inspection_filter;
+
+typedef int (*pl_inspection_fn)(void *ud, const pl_inspection *insp);
+/** Current inspections, oldest first (performed_on, then key). */
+PL_EXPORT int pl_store_list_inspections(pl_store *store, const pl_inspection_filter *filter,
+                                        pl_inspection_fn fn, void *ud, pl_err *err);
+
+/* ---- maps ------------------------------------------------------------------ */
+
+/** What the store knows about a stored map besides its data. */
+typedef struct pl_map_record {
+    pl_id id;                             /**< (read) */
+    pl_id inspection_key;                 /**< the inspection it belongs to */
+    char source[PL_TEXT_SIZE];            /**< file it came from (name only) */
+    char origin[PL_NAME_SIZE];            /**< how it was made: "import-png",
+                                               "import-npy", "import-csv", "reduce" ... */
+    char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
+    char *parameters_json;                /**< parameters of its making, or NULL */
+    uint32_t width, height, nchannels;    /**< (read) */
+    double pitch_u, pitch_v;              /**< (read) */
+    pl_placement placement;               /**< (read) */
+    const pl_channel *channels;           /**< (read) nchannels, borrowed */
+    char sha256[65];                      /**< (read) digest of the decoded content */
+    size_t stored_bytes;                  /**< (read) compressed size */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_map_record;
+
+/**
+ * Store a map for an inspection. The map's size must equal the site's
+ * expected size (when set), its pitches the site's within 0.1 %, every
+ * channel must have a valid quantity and unit, and no other map of the
+ * inspection may have the same content.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (inspection), PL_ENOMATCH (size or
+ *         pitch differs from the site's), PL_EEXISTS (same content), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_map(pl_store *store, const pl_map_record *rec, const pl_map *map,
+                               pl_id *id, pl_err *err);
+
+/**
+ * Load map `id` with its data, checking the stored digest.
+ * @param[out] map  free with pl_map_free()
+ * @param[out] rec  when not NULL: its record; parameters_json is owned by
+ *                  the caller (free()), channels points into `map`.
+ * @return PL_OK, PL_ENOTFOUND, PL_ENOMATCH (digest mismatch), PL_EFORMAT, PL_EDB.
+ */
+PL_EXPORT int pl_store_load_map(pl_store *store, pl_id id, pl_map **map, pl_map_record *rec,
+                                pl_err *err);
+
+typedef int (*pl_map_fn)(void *ud, const pl_map_record *rec);
+/** Maps of one inspection (by key), in the order they were recorded. */
+PL_EXPORT int pl_store_list_maps(pl_store *store, pl_id inspection_key, pl_map_fn fn, void *ud,
+                                 pl_err *err);
+
+/* ---- summary ------------------------------------------------------------- */
+
+typedef struct pl_store_summary {
+    int schema_version;
+    char store_id[40];                 /**< random id given at creation */
+    char created_at[PL_DATE_SIZE];
+    char created_by[PL_WORD_SIZE];     /**< plyledger version that created it */
+    int64_t airframes, sites, inspections, maps;
+    int64_t inspections_by_kind[4];    /**< baseline, scheduled, unscheduled, post-repair */
+    int64_t corrections;               /**< rows that supersede another */
+    int64_t indications, comparisons, dispositions, ledger_links;
+    int64_t map_bytes;                 /**< compressed map data */
+    char first_inspection[PL_DATE_SIZE];
+    char last_inspection[PL_DATE_SIZE];
+} pl_store_summary;
+
+/** Counts and dates of the whole store into [out] sum. @return PL_OK, PL_EDB. */
+PL_EXPORT int pl_store_summarize(pl_store *store, pl_store_summary *sum, pl_err *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

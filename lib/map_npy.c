@@ -1,0 +1,2 @@
+/* map_npy.c - placeholder until the module lands. */
+typedef int pl__placeholder_map_npy;

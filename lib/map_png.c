@@ -1,0 +1,2 @@
+/* map_png.c - placeholder until the module lands. */
+typedef int pl__placeholder_map_png;

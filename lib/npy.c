@@ -1,0 +1,2 @@
+/* npy.c - placeholder until the module lands. */
+typedef int pl__placeholder_npy;

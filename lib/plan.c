@@ -1,0 +1,2 @@
+/* plan.c - placeholder until the module lands. */
+typedef int pl__placeholder_plan;

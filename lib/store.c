@@ -1,0 +1,2 @@
+/* store.c - placeholder until the module lands. */
+typedef int pl__placeholder_store;
