@@ -1,9 +1,11 @@
 /*
- * store_int.h - store internals shared by store.c and the generated
+ * store_int.h - store internals shared by store.c, plan.c and the generated
  * schema_sql.c; never installed.
  */
 #ifndef PLYLEDGER_STORE_INT_H
 #define PLYLEDGER_STORE_INT_H
+
+#include "plyledger/store.h"
 
 /* One numbered schema migration, compiled in from schema/NNNN_*.sql. */
 typedef struct pl_migration {
@@ -14,5 +16,26 @@ typedef struct pl_migration {
 
 extern const pl_migration pl__migrations[];
 extern const int pl__migration_count;
+
+/*
+ * Open the savepoint that makes one writing call atomic. Outside a caller's
+ * transaction it first begins one (BEGIN IMMEDIATE) and sets *owned, so the
+ * matching pl_store__write_end() commits it.
+ * Returns PL_OK or PL_EDB (read-only store, SQLite refused).
+ */
+int pl_store__write_begin(pl_store *store, int *owned, pl_err *err);
+
+/*
+ * Close the savepoint of pl_store__write_begin(): release (and commit when
+ * owned) when rc is PL_OK, else roll back to it. Returns rc, or PL_EDB when
+ * the release or commit itself fails (everything is then rolled back).
+ */
+int pl_store__write_end(pl_store *store, int owned, int rc, pl_err *err);
+
+/*
+ * 1 when `s` is a real calendar date written YYYY-MM-DD (proleptic
+ * Gregorian, years 0001-9999), else 0.
+ */
+int pl_store__valid_date(const char *s);
 
 #endif

@@ -10,7 +10,9 @@
 --    with `key` filled in.
 --  * Children refer to a parent's key (the id of its first version), which
 --    never changes.
---  * Times are ISO 8601 UTC text; dates YYYY-MM-DD.
+--  * Times are ISO 8601 UTC text; dates YYYY-MM-DD. A date column checks
+--    date(x, '+0 days') IS x: SQLite normalises an impossible day such as
+--    2021-02-30 to another date, so only a real calendar date passes.
 
 CREATE TABLE store_info (
     name  TEXT PRIMARY KEY,
@@ -24,7 +26,7 @@ CREATE TABLE airframe (
     reason        TEXT,
     serial        TEXT NOT NULL CHECK (length(serial) > 0),
     aircraft_type TEXT NOT NULL CHECK (length(aircraft_type) > 0),
-    manufactured  TEXT,
+    manufactured  TEXT CHECK (manufactured IS NULL OR date(manufactured, '+0 days') IS manufactured),
     notes         TEXT,
     recorded_at   TEXT NOT NULL,
     CHECK ((supersedes IS NULL) = (key IS NULL)),
@@ -36,7 +38,7 @@ CREATE TABLE airframe_operator (
     id            INTEGER PRIMARY KEY,
     airframe_key  INTEGER NOT NULL REFERENCES airframe(id),
     operator_name TEXT NOT NULL CHECK (length(operator_name) > 0),
-    since         TEXT NOT NULL,
+    since         TEXT NOT NULL CHECK (date(since, '+0 days') IS since),
     recorded_at   TEXT NOT NULL
 );
 CREATE INDEX airframe_operator_airframe ON airframe_operator(airframe_key, since);
@@ -80,7 +82,7 @@ CREATE TABLE inspection (
     kind             TEXT NOT NULL
                      CHECK (kind IN ('baseline', 'scheduled', 'unscheduled', 'post-repair')),
     task_ref         TEXT,
-    performed_on     TEXT NOT NULL,
+    performed_on     TEXT NOT NULL CHECK (date(performed_on, '+0 days') IS performed_on),
     aircraft_hours   REAL CHECK (aircraft_hours IS NULL OR aircraft_hours >= 0),
     aircraft_cycles  INTEGER CHECK (aircraft_cycles IS NULL OR aircraft_cycles >= 0),
     procedure        TEXT NOT NULL CHECK (length(procedure) > 0),
@@ -122,7 +124,7 @@ CREATE TABLE map (
     v_x REAL NOT NULL, v_y REAL NOT NULL, v_z REAL NOT NULL,
     encoding         TEXT NOT NULL CHECK (encoding = 'zlib-f32le'),
     data             BLOB NOT NULL,
-    sha256           TEXT NOT NULL CHECK (length(sha256) = 64),
+    sha256           TEXT NOT NULL CHECK (length(sha256) = 64 AND sha256 NOT GLOB '*[^0-9a-f]*'),
     recorded_at      TEXT NOT NULL,
     CHECK (supersedes IS NULL OR length(reason) > 0)
 );
@@ -298,11 +300,13 @@ CREATE VIEW map_current AS
 
 -- ---- integrity of corrections ---------------------------------------------
 
--- A correction must carry the key of the row it supersedes.
+-- A correction must carry the key of the row it supersedes (and what names
+-- the record: an airframe's serial, a site's airframe and code).
 CREATE TRIGGER airframe_correction_key BEFORE INSERT ON airframe
 WHEN NEW.supersedes IS NOT NULL
- AND NEW.key IS NOT (SELECT coalesce(key, id) FROM airframe WHERE id = NEW.supersedes)
-BEGIN SELECT RAISE(ABORT, 'airframe correction must keep the key of the row it supersedes'); END;
+ AND (NEW.key IS NOT (SELECT coalesce(key, id) FROM airframe WHERE id = NEW.supersedes)
+      OR NEW.serial IS NOT (SELECT serial FROM airframe WHERE id = NEW.supersedes))
+BEGIN SELECT RAISE(ABORT, 'airframe correction must keep the key and serial of the row it supersedes'); END;
 
 CREATE TRIGGER site_correction_key BEFORE INSERT ON site
 WHEN NEW.supersedes IS NOT NULL

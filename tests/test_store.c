@@ -1,2 +1,1469 @@
-/* placeholder */
-int main(void) { return 1; }
+/*
+ * test_store.c - the inspection record: life and migrations, the append-only
+ * triggers, corrections, maps, transactions, listings and the summary.
+ *
+ * External references: SQLite's own PRAGMA integrity_check and PRAGMA
+ * foreign_key_check after the writes (https://www.sqlite.org/pragma.html),
+ * SQLite's date() as the calendar for date validation
+ * (https://www.sqlite.org/lang_datefunc.html), and the stored map blobs
+ * read back by Python's sqlite3, zlib, hashlib and NumPy
+ * (tests/ref/store_map_ref.py).
+ */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "store_int.h"
+#include "plyledger/hash.h"
+#include "plyledger/map.h"
+#include "plyledger/store.h"
+#include "testutil.h"
+
+/* ---- fixture --------------------------------------------------------------- */
+
+typedef struct fixture {
+    char *dir;
+    char *path;     /* dir/fleet.db */
+    pl_store *st;   /* open on path */
+} fixture;
+
+static int setup(void **state)
+{
+    fixture *f = calloc(1, sizeof *f);
+    assert_non_null(f);
+    f->dir = tu_tmpdir();
+    f->path = tu_path(f->dir, "fleet.db");
+    pl_err err = { 0 };
+    int rc = pl_store_create(&f->st, f->path, &err);
+    if (rc)
+        fail_msg("create: %s", err.msg);
+    *state = f;
+    return 0;
+}
+
+static int teardown(void **state)
+{
+    fixture *f = *state;
+    pl_store_close(f->st);
+    free(f->path);
+    tu_rmtree(f->dir);
+    free(f);
+    return 0;
+}
+
+/* Fail the test with the message in `err` (which every test names so) when
+ * a call does not return PL_OK. */
+#define OK(call)                                                                 \
+    do {                                                                         \
+        int ok_rc_ = (call);                                                     \
+        if (ok_rc_ != PL_OK)                                                     \
+            fail_msg("%s -> %d: %s", #call, ok_rc_, err.msg);                    \
+    } while (0)
+
+static void expect_fail(int rc, int code, const pl_err *err, const char *needle)
+{
+    if (rc != code)
+        fail_msg("expected %d, got %d (%s)", code, rc, err->msg);
+    assert_int_equal(err->code, code);
+    if (!strstr(err->msg, needle))
+        fail_msg("message '%s' lacks '%s'", err->msg, needle);
+    assert_null(strchr(err->msg, '\n'));
+}
+
+static sqlite3 *raw_open(const char *path)
+{
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE,
+                                     NULL), SQLITE_OK);
+    sqlite3_extended_result_codes(db, 1);
+    sqlite3_busy_timeout(db, 5000);
+    return db;
+}
+
+static void raw_exec(sqlite3 *db, const char *sql)
+{
+    char *msg = NULL;
+    if (sqlite3_exec(db, sql, NULL, NULL, &msg) != SQLITE_OK)
+        fail_msg("%s: %s", sql, msg ? msg : "?");
+}
+
+static int64_t raw_int(sqlite3 *db, const char *sql)
+{
+    sqlite3_stmt *st;
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &st, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+    int64_t v = sqlite3_column_int64(st, 0);
+    sqlite3_finalize(st);
+    return v;
+}
+
+/* The first column of the first row as a malloc'd string. */
+static char *raw_text(sqlite3 *db, const char *sql)
+{
+    sqlite3_stmt *st;
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &st, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+    const unsigned char *t = sqlite3_column_text(st, 0);
+    char *s = strdup(t ? (const char *)t : "");
+    sqlite3_finalize(st);
+    return s;
+}
+
+/* A growing string. */
+typedef struct sbuf {
+    char *s;
+    size_t n, cap;
+} sbuf;
+
+static void sb_add(sbuf *b, const char *s, size_t n)
+{
+    if (b->n + n + 1 > b->cap) {
+        b->cap = 2 * (b->n + n + 1);
+        b->s = realloc(b->s, b->cap);
+        assert_non_null(b->s);
+    }
+    memcpy(b->s + b->n, s, n);
+    b->n += n;
+    b->s[b->n] = '\0';
+}
+
+static void sb_str(sbuf *b, const char *s)
+{
+    sb_add(b, s, strlen(s));
+}
+
+/*
+ * Everything a store holds, as text: user_version, the schema and every row
+ * of every table (quote() renders each value exactly, blobs as hex).
+ */
+static char *dump(const char *path)
+{
+    sqlite3 *db = raw_open(path);
+    sbuf b = { 0 };
+    char line[64];
+    snprintf(line, sizeof line, "user_version %lld\n",
+             (long long)raw_int(db, "PRAGMA user_version"));
+    sb_str(&b, line);
+    sqlite3_stmt *tables;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT name, sql FROM sqlite_master WHERE type = "
+                                        "'table' ORDER BY name", -1, &tables, NULL), SQLITE_OK);
+    while (sqlite3_step(tables) == SQLITE_ROW) {
+        const char *name = (const char *)sqlite3_column_text(tables, 0);
+        sb_str(&b, (const char *)sqlite3_column_text(tables, 1));
+        sb_str(&b, "\n");
+        char *sql = sqlite3_mprintf("SELECT * FROM \"%w\"", name);
+        sqlite3_stmt *rows;
+        assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &rows, NULL), SQLITE_OK);
+        sqlite3_free(sql);
+        int ncol = sqlite3_column_count(rows);
+        sqlite3_stmt *q;
+        assert_int_equal(sqlite3_prepare_v2(db, "SELECT quote(?1)", -1, &q, NULL), SQLITE_OK);
+        while (sqlite3_step(rows) == SQLITE_ROW) {
+            for (int c = 0; c < ncol; c++) {
+                sqlite3_reset(q);
+                sqlite3_bind_value(q, 1, sqlite3_column_value(rows, c));
+                assert_int_equal(sqlite3_step(q), SQLITE_ROW);
+                sb_str(&b, (const char *)sqlite3_column_text(q, 0));
+                sb_str(&b, "|");
+            }
+            sb_str(&b, "\n");
+        }
+        sqlite3_finalize(q);
+        sqlite3_finalize(rows);
+    }
+    sqlite3_finalize(tables);
+    sqlite3_close(db);
+    return b.s;
+}
+
+/*
+ * SQLite's own consistency checks: PRAGMA integrity_check answers the single
+ * row "ok" on a sound database and PRAGMA foreign_key_check returns no rows
+ * when every foreign key resolves (https://www.sqlite.org/pragma.html).
+ */
+static void check_integrity(const char *path)
+{
+    sqlite3 *db = raw_open(path);
+    char *ok = raw_text(db, "PRAGMA integrity_check");
+    assert_string_equal(ok, "ok");
+    free(ok);
+    sqlite3_stmt *st;
+    assert_int_equal(sqlite3_prepare_v2(db, "PRAGMA foreign_key_check", -1, &st, NULL),
+                     SQLITE_OK);
+    assert_int_equal(sqlite3_step(st), SQLITE_DONE);
+    sqlite3_finalize(st);
+    sqlite3_close(db);
+}
+
+/* ---- records ------------------------------------------------------------------- */
+
+static pl_airframe airframe(const char *serial, const char *type)
+{
+    pl_airframe af;
+    memset(&af, 0, sizeof af);
+    snprintf(af.serial, sizeof af.serial, "%s", serial);
+    snprintf(af.aircraft_type, sizeof af.aircraft_type, "%s", type);
+    snprintf(af.manufactured, sizeof af.manufactured, "2015-06-30");
+    return af;
+}
+
+static void add_airframe(pl_store *st, const char *serial, const char *type)
+{
+    pl_airframe af = airframe(serial, type);
+    pl_err err = { 0 };
+    if (pl_store_add_airframe(st, &af, NULL, &err))
+        fail_msg("add airframe: %s", err.msg);
+}
+
+static pl_site site(const char *serial, const char *code)
+{
+    pl_site s;
+    memset(&s, 0, sizeof s);
+    snprintf(s.airframe_serial, sizeof s.airframe_serial, "%s", serial);
+    snprintf(s.code, sizeof s.code, "%s", code);
+    snprintf(s.zone, sizeof s.zone, "231");
+    snprintf(s.description, sizeof s.description, "crown skin, %s", code);
+    snprintf(s.method, sizeof s.method, "flash-thermography");
+    snprintf(s.material, sizeof s.material, "CFRP");
+    s.thickness_mm = 3.2;
+    s.diffusivity_mm2_s = NAN;
+    s.map_frame.origin[0] = 5200;
+    s.map_frame.origin[1] = -48;
+    s.map_frame.origin[2] = 3480;
+    s.map_frame.u[0] = 1;
+    s.map_frame.v[1] = 1;
+    snprintf(s.map_frame.system, sizeof s.map_frame.system, "STA/BL/WL");
+    snprintf(s.map_frame.unit, sizeof s.map_frame.unit, "mm");
+    s.width_px = 8;
+    s.height_px = 6;
+    s.pitch_u = 0.5;
+    s.pitch_v = 0.5;
+    return s;
+}
+
+static void add_site(pl_store *st, const char *serial, const char *code)
+{
+    pl_site s = site(serial, code);
+    pl_err err = { 0 };
+    if (pl_store_add_site(st, &s, NULL, &err))
+        fail_msg("add site: %s", err.msg);
+}
+
+static pl_inspection inspection(const char *serial, const char *code, const char *kind,
+                                const char *date)
+{
+    pl_inspection in;
+    memset(&in, 0, sizeof in);
+    snprintf(in.airframe_serial, sizeof in.airframe_serial, "%s", serial);
+    snprintf(in.site_code, sizeof in.site_code, "%s", code);
+    snprintf(in.kind, sizeof in.kind, "%s", kind);
+    snprintf(in.performed_on, sizeof in.performed_on, "%s", date);
+    in.aircraft_hours = NAN;
+    in.aircraft_cycles = -1;
+    snprintf(in.procedure, sizeof in.procedure, "NDT-51-10-01");
+    snprintf(in.procedure_rev, sizeof in.procedure_rev, "C");
+    snprintf(in.equipment, sizeof in.equipment, "flash lamp pair, LWIR camera 640x512");
+    snprintf(in.calibration_ref, sizeof in.calibration_ref, "REF-STD-07");
+    snprintf(in.inspector, sizeof in.inspector, "J. Smith");
+    snprintf(in.inspector_level, sizeof in.inspector_level, "2");
+    return in;
+}
+
+static pl_id add_inspection(pl_store *st, const char *serial, const char *code,
+                            const char *kind, const char *date)
+{
+    pl_inspection in = inspection(serial, code, kind, date);
+    pl_err err = { 0 };
+    pl_id id = 0;
+    if (pl_store_add_inspection(st, &in, &id, &err))
+        fail_msg("add inspection: %s", err.msg);
+    return id;
+}
+
+/* A w x h map of n channels with distinct values, a NaN hole and pitch 0.5. */
+static pl_map *test_map(uint32_t w, uint32_t h, uint32_t n, float seed)
+{
+    pl_map *m = NULL;
+    pl_err err = { 0 };
+    if (pl_map_new(&m, w, h, n, &err))
+        fail_msg("map: %s", err.msg);
+    for (size_t i = 0; i < (size_t)w * h * n; i++)
+        m->data[i] = seed + 0.001f * (float)i - 0.25f * (float)(i % 7);
+    /* a NaN with a payload: the store keeps it as NaN (map.h) */
+    uint32_t bits = 0xffc00123u;
+    memcpy(&m->data[3], &bits, sizeof bits);
+    m->data[(size_t)w * h * n - 1] = NAN;
+    for (uint32_t c = 0; c < n; c++)
+        if (pl_map_set_channel(m, c, c == 0 ? "temperature-contrast" : "log-derivative-2",
+                               c == 0 ? "K" : "1", &err))
+            fail_msg("channel: %s", err.msg);
+    m->pitch_u = 0.5;
+    m->pitch_v = 0.5;
+    m->placement.origin[0] = 5200;
+    m->placement.origin[1] = -48;
+    m->placement.origin[2] = 3480;
+    snprintf(m->placement.system, sizeof m->placement.system, "STA/BL/WL");
+    return m;
+}
+
+static pl_map_record map_record(pl_id inspection_key)
+{
+    pl_map_record r;
+    memset(&r, 0, sizeof r);
+    r.inspection_key = inspection_key;
+    snprintf(r.source, sizeof r.source, "scans/2021/F01.npy");
+    snprintf(r.origin, sizeof r.origin, "import-npy");
+    return r;
+}
+
+/* ---- life --------------------------------------------------------------------------- */
+
+/* A created store is stamped as ours, in WAL mode, and reopens with its records. */
+static void test_store__create_and_reopen(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    assert_int_equal(pl_store_schema_version(f->st), PL_STORE_SCHEMA_VERSION);
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    pl_store_summary sum;
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(strlen(sum.store_id), 32);
+    assert_int_equal(strspn(sum.store_id, "0123456789abcdef"), 32);
+    assert_string_equal(sum.created_by, pl_version());
+    assert_int_equal(strlen(sum.created_at), 24);
+    pl_store_close(f->st);
+    f->st = NULL;
+
+    sqlite3 *db = raw_open(f->path);
+    assert_int_equal(raw_int(db, "PRAGMA application_id"), PL_STORE_APPLICATION_ID);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
+    char *mode = raw_text(db, "PRAGMA journal_mode");
+    assert_string_equal(mode, "wal");
+    free(mode);
+    sqlite3_close(db);
+
+    /* creating over an existing file is refused and leaves it alone */
+    char *before = dump(f->path);
+    pl_store *other = NULL;
+    expect_fail(pl_store_create(&other, f->path, &err), PL_EEXISTS, &err, f->path);
+    assert_null(other);
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+
+    OK(pl_store_open(&f->st, f->path, 0, &err));
+    pl_airframe af;
+    OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
+    assert_string_equal(af.aircraft_type, "PLX-T1");
+    pl_store_summary again;
+    OK(pl_store_summarize(f->st, &again, &err));
+    assert_string_equal(again.store_id, sum.store_id);
+    assert_int_equal(again.airframes, 1);
+    pl_store_close(f->st);
+
+    /* read-only: reads work, writes are refused and change nothing */
+    OK(pl_store_open(&f->st, f->path, PL_STORE_READONLY, &err));
+    OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
+    pl_airframe b = airframe("PLX-0002", "PLX-T1");
+    expect_fail(pl_store_add_airframe(f->st, &b, NULL, &err), PL_EDB, &err, "read-only");
+    pl_store_close(f->st);
+    f->st = NULL;
+    after = dump(f->path);
+    assert_string_equal(before, after);
+    free(before);
+    free(after);
+    check_integrity(f->path);
+}
+
+static void test_store__open_missing_path(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_store *st = (pl_store *)&err; /* must be reset to NULL */
+    char *missing = tu_path(f->dir, "nothing.db");
+    expect_fail(pl_store_open(&st, missing, 0, &err), PL_ENOTFOUND, &err, missing);
+    assert_null(st);
+    assert_int_equal(access(missing, F_OK), -1); /* not created */
+    expect_fail(pl_store_open(&st, f->dir, 0, &err), PL_ENOTFOUND, &err, f->dir);
+    free(missing);
+}
+
+/* A text file is not SQLite: refused, named, and not touched. */
+static void test_store__open_refuses_a_file_that_is_not_sqlite(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    char *path = tu_path(f->dir, "notes.db");
+    const char text[] = "site,method\nF01,flash-thermography\n"
+                        "this is not a database, but it is long enough to look like one....";
+    assert_int_equal(tu_write_file(path, text, sizeof text - 1), 0);
+    pl_store *st = NULL;
+    expect_fail(pl_store_open(&st, path, 0, &err), PL_ENOTSTORE, &err, path);
+    assert_null(st);
+    size_t len = 0;
+    unsigned char *back = tu_read_file(path, &len);
+    assert_int_equal(len, sizeof text - 1);
+    assert_memory_equal(back, text, len);
+    free(back);
+
+    /* an empty file is an empty SQLite database, not a store */
+    char *empty = tu_path(f->dir, "empty.db");
+    assert_int_equal(tu_write_file(empty, "", 0), 0);
+    expect_fail(pl_store_open(&st, empty, 0, &err), PL_ENOTSTORE, &err, empty);
+    free(empty);
+    free(path);
+}
+
+/* Another application's SQLite database is refused, named, and not touched. */
+static void test_store__open_refuses_a_foreign_database(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    const char *ids[2] = { "PRAGMA application_id = 305419896", "PRAGMA application_id = 0" };
+    for (int i = 0; i < 2; i++) {
+        char name[32];
+        snprintf(name, sizeof name, "other%d.db", i);
+        char *path = tu_path(f->dir, name);
+        sqlite3 *db = raw_open(path);
+        raw_exec(db, ids[i]);
+        raw_exec(db, "CREATE TABLE customer (id INTEGER PRIMARY KEY, name TEXT);"
+                     "INSERT INTO customer (name) VALUES ('someone')");
+        sqlite3_close(db);
+        char *before = dump(path);
+        pl_store *st = NULL;
+        expect_fail(pl_store_open(&st, path, 0, &err), PL_ENOTSTORE, &err, path);
+        assert_non_null(strstr(err.msg, "another application"));
+        if (i == 0)
+            assert_non_null(strstr(err.msg, "0x12345678"));
+        assert_null(st);
+        char *after = dump(path);
+        assert_string_equal(before, after);
+        free(before);
+        free(after);
+        free(path);
+    }
+}
+
+/* A store written by a newer plyledger is refused with the exact advice. */
+static void test_store__open_refuses_a_newer_schema(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_store_close(f->st);
+    f->st = NULL;
+    sqlite3 *db = raw_open(f->path);
+    raw_exec(db, "PRAGMA user_version = 7");
+    sqlite3_close(db);
+    pl_store *st = NULL;
+    char want[1024];
+    snprintf(want, sizeof want,
+             "%s: store schema version 7 is newer than this plyledger (%s, schema %d); "
+             "use a newer plyledger", f->path, pl_version(), PL_STORE_SCHEMA_VERSION);
+    for (unsigned flags = 0; flags <= PL_STORE_READONLY; flags++) {
+        assert_int_equal(pl_store_open(&st, f->path, flags, &err), PL_EVERSION);
+        assert_null(st);
+        assert_string_equal(err.msg, want);
+    }
+    db = raw_open(f->path);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), 7);
+    sqlite3_close(db);
+}
+
+/*
+ * The migrations are numbered 1..PL_STORE_SCHEMA_VERSION, a fresh store is
+ * made by running them from version 0 and records each one, and a stamped
+ * store at version 0 is migrated on open to the same schema (refused when
+ * read-only).
+ */
+static void test_store__migrates_from_version_zero(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    assert_int_equal(pl__migration_count, PL_STORE_SCHEMA_VERSION);
+    for (int i = 0; i < pl__migration_count; i++) {
+        assert_int_equal(pl__migrations[i].version, i + 1);
+        char prefix[16];
+        snprintf(prefix, sizeof prefix, "%04d_", i + 1);
+        assert_memory_equal(pl__migrations[i].name, prefix, 5);
+    }
+    pl_store_close(f->st);
+    f->st = NULL;
+    sqlite3 *db = raw_open(f->path);
+    char *history = raw_text(db, "SELECT value FROM store_info WHERE name = 'schema.0001'");
+    assert_non_null(strstr(history, pl__migrations[0].name));
+    assert_non_null(strstr(history, pl_version()));
+    free(history);
+    sqlite3_close(db);
+
+    char *zero = tu_path(f->dir, "zero.db");
+    db = raw_open(zero);
+    char stamp[64];
+    snprintf(stamp, sizeof stamp, "PRAGMA application_id = %d", PL_STORE_APPLICATION_ID);
+    raw_exec(db, stamp);
+    sqlite3_close(db);
+    pl_store *st = NULL;
+    expect_fail(pl_store_open(&st, zero, PL_STORE_READONLY, &err), PL_EVERSION, &err,
+                "older");
+    assert_null(st);
+    OK(pl_store_open(&st, zero, 0, &err));
+    assert_int_equal(pl_store_schema_version(st), PL_STORE_SCHEMA_VERSION);
+    pl_store_summary sum;
+    OK(pl_store_summarize(st, &sum, &err));
+    assert_int_equal(strlen(sum.store_id), 32);
+    add_airframe(st, "PLX-0001", "PLX-T1");
+    pl_store_close(st);
+
+    sqlite3 *a = raw_open(f->path), *b = raw_open(zero);
+    const char *schema = "SELECT group_concat(type || ' ' || name || ' ' || coalesce(sql, ''), "
+                         "char(10)) FROM (SELECT * FROM sqlite_master ORDER BY name)";
+    char *sa = raw_text(a, schema), *sb = raw_text(b, schema);
+    assert_true(strlen(sa) > 1000);
+    assert_string_equal(sa, sb);
+    free(sa);
+    free(sb);
+    assert_int_equal(raw_int(b, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
+    history = raw_text(b, "SELECT value FROM store_info WHERE name = 'schema.0001'");
+    assert_non_null(strstr(history, pl__migrations[0].name));
+    free(history);
+    sqlite3_close(a);
+    sqlite3_close(b);
+    check_integrity(zero);
+    free(zero);
+}
+
+/* ---- append-only --------------------------------------------------------------------- */
+
+/* One row in every table: through the API where it has a call, raw otherwise. */
+static void fill_every_table(fixture *f)
+{
+    pl_err err = { 0 };
+    pl_airframe af = airframe("PLX-0001", "PLX-T1");
+    snprintf(af.operator_name, sizeof af.operator_name, "Operator A");
+    OK(pl_store_add_airframe(f->st, &af, NULL, &err));
+    add_site(f->st, "PLX-0001", "F01");
+    pl_id base = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_id next = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
+    pl_map *m = test_map(8, 6, 1, 1.0f);
+    pl_map_record r = map_record(base);
+    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = next;
+    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    pl_map_free(m);
+    pl_store_close(f->st);
+    f->st = NULL;
+
+    sqlite3 *db = raw_open(f->path);
+    raw_exec(db, "PRAGMA foreign_keys = ON;"
+             "INSERT INTO criteria (name, revision, recorded_at) VALUES ('growth', 'A', 'now');"
+             "INSERT INTO indication (map_id, channel, label, area_px, area_mm2, centroid_col,"
+             " centroid_row, recorded_at) VALUES (1, 0, 1, 4, 1.0, 2.0, 3.0, 'now');"
+             "INSERT INTO registration (baseline_map_id, current_map_id, method, status,"
+             " software_version, recorded_at) VALUES (1, 2, 'phase', 'aligned', '0', 'now');"
+             "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, status,"
+             " software_version, recorded_at) VALUES (1, 1, 2, 'done', '0', 'now');"
+             "INSERT INTO indication_change (comparison_id, class, current_indication,"
+             " recorded_at) VALUES (1, 'new', 1, 'now');"
+             "INSERT INTO disposition (comparison_id, decision, engineer, recorded_at)"
+             " VALUES (1, 'accept', 'A. Engineer', 'now');"
+             "INSERT INTO disposition_change (disposition_id, change_id) VALUES (1, 1);"
+             "INSERT INTO ledger (airframe_key, seq, table_name, row_id, row_sha256,"
+             " prev_link, link, recorded_at) VALUES (1, 1, 'airframe', 1, 'x', 'y', 'z', 'now')");
+    sqlite3_close(db);
+}
+
+/*
+ * Every table of the schema refuses UPDATE and DELETE through a trigger.
+ * The table list comes from sqlite_master, so a table added without its
+ * triggers (or without a row here to prove them) fails this test.
+ */
+static void test_store__every_table_refuses_update_and_delete(void **state)
+{
+    fixture *f = *state;
+    fill_every_table(f);
+    char *before = dump(f->path);
+    sqlite3 *db = raw_open(f->path);
+    sqlite3_stmt *tables;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT name FROM sqlite_master WHERE type = 'table'"
+                                        " AND name NOT LIKE 'sqlite_%' ORDER BY name", -1,
+                                        &tables, NULL), SQLITE_OK);
+    int ntables = 0;
+    while (sqlite3_step(tables) == SQLITE_ROW) {
+        char *name = strdup((const char *)sqlite3_column_text(tables, 0));
+        ntables++;
+        char *sql = sqlite3_mprintf("SELECT count(*) FROM \"%w\"", name);
+        if (raw_int(db, sql) == 0)
+            fail_msg("table %s has no row: add one in fill_every_table()", name);
+        sqlite3_free(sql);
+        /* first column of the table, to write it back unchanged */
+        sql = sqlite3_mprintf("SELECT name FROM pragma_table_info('%q') ORDER BY cid", name);
+        char *col = raw_text(db, sql);
+        sqlite3_free(sql);
+        char *update = sqlite3_mprintf("UPDATE \"%w\" SET \"%w\" = \"%w\"", name, col, col);
+        char *delete = sqlite3_mprintf("DELETE FROM \"%w\"", name);
+        const char *what[2] = { update, delete };
+        for (int k = 0; k < 2; k++) {
+            int rc = sqlite3_exec(db, what[k], NULL, NULL, NULL);
+            if (rc == SQLITE_OK)
+                fail_msg("%s was allowed", what[k]);
+            assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+            assert_non_null(strstr(sqlite3_errmsg(db), "append-only"));
+        }
+        sqlite3_free(update);
+        sqlite3_free(delete);
+        free(col);
+        free(name);
+    }
+    sqlite3_finalize(tables);
+    sqlite3_close(db);
+    assert_true(ntables >= 15);
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(before);
+    free(after);
+    check_integrity(f->path);
+}
+
+/* ---- corrections ----------------------------------------------------------------------- */
+
+static void test_store__corrections_supersede_and_keep_history(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    add_site(f->st, "PLX-0001", "F02");
+    pl_site first;
+    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &first, &err));
+    assert_int_equal(first.id, first.key);
+
+    /* a site */
+    pl_site s = first;
+    snprintf(s.description, sizeof s.description, "crown skin, antenna doubler");
+    s.pitch_u = 0.25;
+    s.pitch_v = 0.25;
+    s.width_px = 16;
+    s.height_px = 12;
+    for (int k = 0; k < 2; k++) {
+        const char *reason = k ? "" : NULL;
+        expect_fail(pl_store_correct_site(f->st, &s, reason, NULL, &err), PL_EINVAL, &err,
+                    "reason");
+    }
+    pl_id sid = 0;
+    OK(pl_store_correct_site(f->st, &s, "wrong description and pitch in the plan", &sid, &err));
+    pl_site now;
+    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
+    assert_int_equal(now.id, sid);
+    assert_int_equal(now.key, first.key);
+    assert_string_equal(now.description, "crown skin, antenna doubler");
+    assert_true(now.pitch_u == 0.25 && now.width_px == 16);
+    int nsites = 0;
+    /* a correction of a correction keeps the key */
+    s.thickness_mm = 3.0;
+    OK(pl_store_correct_site(f->st, &s, "thickness from the drawing", &sid, &err));
+    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
+    assert_int_equal(now.key, first.key);
+    assert_true(now.thickness_mm == 3.0);
+    /* an unknown site cannot be corrected */
+    pl_site ghost = site("PLX-0001", "F99");
+    expect_fail(pl_store_correct_site(f->st, &ghost, "x", NULL, &err), PL_ENOTFOUND, &err,
+                "F99");
+
+    /* an inspection */
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
+    pl_inspection in = inspection("PLX-0001", "F01", "scheduled", "2022-03-02");
+    in.aircraft_cycles = 4100;
+    in.aircraft_hours = 20512.5;
+    char params[] = "{\"frames\": 400}";
+    in.parameters_json = params;
+    expect_fail(pl_store_correct_inspection(f->st, key, &in, "", NULL, &err), PL_EINVAL, &err,
+                "reason");
+    pl_id iid = 0;
+    OK(pl_store_correct_inspection(f->st, key, &in, "date misread from the work card", &iid,
+                                   &err));
+    assert_true(iid != key);
+    pl_inspection got;
+    OK(pl_store_get_inspection(f->st, key, &got, &err));
+    assert_int_equal(got.id, iid);
+    assert_int_equal(got.key, key);
+    assert_string_equal(got.performed_on, "2022-03-02");
+    assert_int_equal(got.aircraft_cycles, 4100);
+    assert_true(got.aircraft_hours == 20512.5);
+    assert_string_equal(got.parameters_json, "{\"frames\": 400}");
+    assert_string_equal(got.software_version, pl_version());
+    pl_inspection_clear(&got);
+    assert_null(got.parameters_json);
+    /* it may not move to another site */
+    pl_inspection moved = inspection("PLX-0001", "F02", "scheduled", "2022-03-02");
+    expect_fail(pl_store_correct_inspection(f->st, key, &moved, "wrong site", NULL, &err),
+                PL_EINVAL, &err, "another site");
+    expect_fail(pl_store_correct_inspection(f->st, 9999, &in, "x", NULL, &err), PL_ENOTFOUND,
+                &err, "9999");
+
+    /* an airframe */
+    pl_airframe af = airframe("PLX-0001", "PLX-T1B");
+    OK(pl_store_correct_airframe(f->st, &af, "type designation corrected", NULL, &err));
+    pl_airframe a;
+    OK(pl_store_get_airframe(f->st, "PLX-0001", &a, &err));
+    assert_string_equal(a.aircraft_type, "PLX-T1B");
+    assert_true(a.id != a.key);
+
+    pl_store_summary sum;
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.corrections, 4);
+    assert_int_equal(sum.sites, 2);
+    assert_int_equal(sum.airframes, 1);
+    assert_int_equal(sum.inspections, 1);
+    pl_store_close(f->st);
+    f->st = NULL;
+
+    /* history keeps every version, each correction with its reason */
+    sqlite3 *db = raw_open(f->path);
+    char sql[1024];
+    snprintf(sql, sizeof sql, "SELECT count(*) FROM site WHERE coalesce(key, id) = %lld",
+             (long long)first.key);
+    nsites = (int)raw_int(db, sql);
+    assert_int_equal(nsites, 3);
+    snprintf(sql, sizeof sql, "SELECT description FROM site WHERE id = %lld",
+             (long long)first.id);
+    char *old = raw_text(db, sql);
+    assert_string_equal(old, "crown skin, F01");
+    free(old);
+    snprintf(sql, sizeof sql, "SELECT performed_on || ' ' || coalesce(reason, '-') FROM "
+             "inspection WHERE coalesce(key, id) = %lld ORDER BY id", (long long)key);
+    sqlite3_stmt *st;
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &st, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+    assert_string_equal((const char *)sqlite3_column_text(st, 0), "2022-03-01 -");
+    assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+    assert_string_equal((const char *)sqlite3_column_text(st, 0),
+                        "2022-03-02 date misread from the work card");
+    assert_int_equal(sqlite3_step(st), SQLITE_DONE);
+    sqlite3_finalize(st);
+    /* the schema itself refuses a correction that changes a site's code */
+    snprintf(sql, sizeof sql,
+             "INSERT INTO site (key, supersedes, reason, airframe_key, code, method, "
+             "coord_system, coord_unit, origin_x, origin_y, origin_z, u_x, u_y, u_z, v_x, v_y, "
+             "v_z, width_px, height_px, pitch_u_mm, pitch_v_mm, recorded_at) SELECT key, id, "
+             "'rename', airframe_key, 'F77', method, coord_system, coord_unit, 0, 0, 0, 1, 0, "
+             "0, 0, 1, 0, 0, 0, 1, 1, 'now' FROM site_current WHERE stable_key = %lld",
+             (long long)first.key);
+    assert_int_not_equal(sqlite3_exec(db, sql, NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+    sqlite3_close(db);
+    check_integrity(f->path);
+}
+
+/* ---- uniqueness and validation ----------------------------------------------------------- */
+
+static void test_store__refuses_duplicates(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    pl_airframe af = airframe("PLX-0001", "PLX-T2");
+    char *before = dump(f->path);
+    int rc = pl_store_add_airframe(f->st, &af, NULL, &err);
+    assert_int_equal(rc, PL_EEXISTS);
+    assert_string_equal(err.msg, "airframe PLX-0001: serial already registered");
+
+    add_site(f->st, "PLX-0001", "F01");
+    pl_site s = site("PLX-0001", "F01");
+    rc = pl_store_add_site(f->st, &s, NULL, &err);
+    assert_int_equal(rc, PL_EEXISTS);
+    assert_string_equal(err.msg, "site F01 on PLX-0001: code already exists on this airframe");
+    /* the same code on another airframe is a different site */
+    add_airframe(f->st, "PLX-0002", "PLX-T1");
+    add_site(f->st, "PLX-0002", "F01");
+
+    pl_id base = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_inspection in = inspection("PLX-0001", "F01", "baseline", "2017-01-10");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EEXISTS, &err,
+                "already has a baseline");
+    /* a scheduled inspection cannot be corrected into a second baseline... */
+    pl_id sched = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2020-01-10");
+    expect_fail(pl_store_correct_inspection(f->st, sched, &in, "x", NULL, &err), PL_EEXISTS,
+                &err, "already has a baseline");
+    /* ...but the baseline itself can be corrected */
+    OK(pl_store_correct_inspection(f->st, base, &in, "year typed wrong", NULL, &err));
+    /* and a baseline on the other airframe's F01 is its own */
+    add_inspection(f->st, "PLX-0002", "F01", "baseline", "2016-02-10");
+    free(before);
+
+    /* the triggers back the checks up for writers that bypass the library */
+    pl_store_close(f->st);
+    f->st = NULL;
+    sqlite3 *db = raw_open(f->path);
+    assert_int_not_equal(sqlite3_exec(db, "INSERT INTO airframe (serial, aircraft_type, "
+                                      "recorded_at) VALUES ('PLX-0001', 'X', 'now')", NULL,
+                                      NULL, NULL), SQLITE_OK);
+    assert_non_null(strstr(sqlite3_errmsg(db), "already registered"));
+    sqlite3_close(db);
+    check_integrity(f->path);
+}
+
+static void test_store__validates_records_with_clear_messages(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    char *before = dump(f->path);
+    pl_airframe af = airframe("PLX-0001", "PLX-T1");
+    snprintf(af.manufactured, sizeof af.manufactured, "2021-02-29");
+    int rc = pl_store_add_airframe(f->st, &af, NULL, &err);
+    assert_int_equal(rc, PL_EINVAL);
+    assert_string_equal(err.msg, "airframe PLX-0001: manufactured '2021-02-29' is not a calendar "
+                        "date YYYY-MM-DD");
+    af = airframe("", "PLX-T1");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "serial is required");
+    af = airframe(" PLX-0001", "PLX-T1");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err, "spaces");
+    af = airframe("PLX-0001", "PLX-T1");
+    memset(af.notes, 'n', sizeof af.notes); /* not terminated */
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err, "notes");
+    af = airframe("PLX-0001", "PLX-T1");
+    snprintf(af.operator_name, sizeof af.operator_name, "Operator A");
+    snprintf(af.operator_since, sizeof af.operator_since, "2014-01-01");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "before the date of manufacture");
+    af.manufactured[0] = '\0';
+    af.operator_since[0] = '\0';
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "needs operator_since");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+
+    pl_site s = site("PLX-0001", "S07");
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_ENOTFOUND, &err, "PLX-0001");
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    s.pitch_u = 0;
+    rc = pl_store_add_site(f->st, &s, NULL, &err);
+    assert_int_equal(rc, PL_EINVAL);
+    assert_string_equal(err.msg, "site S07 on PLX-0001: pitch_u must be > 0 (got 0)");
+    s = site("PLX-0001", "S07");
+    s.pitch_v = NAN;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "pitch_v");
+    s = site("PLX-0001", "S07");
+    snprintf(s.method, sizeof s.method, "x-ray");
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "x-ray");
+    s = site("PLX-0001", "S07");
+    s.map_frame.u[1] = 0.5; /* not a unit vector */
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "site S07 on PLX-0001");
+    s = site("PLX-0001", "S07");
+    s.thickness_mm = -1;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "thickness_mm");
+    s = site("", "S07");
+    OK(pl_site_check(&s, &err)); /* a plan's site has no airframe yet */
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "airframe_serial");
+    OK(pl_method_check("eddy-current", &err));
+    expect_fail(pl_method_check("thermography", &err), PL_EINVAL, &err, "thermography");
+    OK(pl_inspection_kind_check("post-repair", &err));
+    expect_fail(pl_inspection_kind_check("annual", &err), PL_EINVAL, &err, "annual");
+
+    add_site(f->st, "PLX-0001", "S07");
+    pl_inspection in = inspection("PLX-0001", "S07", "scheduled", "2022-13-01");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "inspection of site S07 on PLX-0001: performed_on '2022-13-01'");
+    in = inspection("PLX-0001", "S07", "scheduled", "2022-03-01");
+    in.inspector[0] = '\0';
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "inspector is required");
+    in = inspection("PLX-0001", "S07", "annual", "2022-03-01");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err, "annual");
+    in = inspection("PLX-0001", "S07", "scheduled", "2022-03-01");
+    char array[] = "[1, 2]", broken[] = "{\"a\": ";
+    in.parameters_json = array;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "parameters_json is not a JSON object");
+    in.parameters_json = broken;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err, "JSON");
+    in = inspection("PLX-0001", "S07", "scheduled", "2022-03-01");
+    in.aircraft_hours = -3;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "aircraft_hours");
+    in = inspection("PLX-0001", "S09", "scheduled", "2022-03-01");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_ENOTFOUND, &err, "S09");
+    free(before);
+    check_integrity(f->path);
+}
+
+/*
+ * Calendar dates: the library's check agrees with SQLite's date() calendar,
+ * where date(d, '+0 days') gives d back only for a real date
+ * (https://www.sqlite.org/lang_datefunc.html), across leap-year rules.
+ */
+static void test_store__dates_agree_with_sqlite_calendar(void **state)
+{
+    (void)state;
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
+    sqlite3_stmt *st;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT date(?1, '+0 days') IS ?1", -1, &st, NULL),
+                     SQLITE_OK);
+    static const int years[] = { 1, 1600, 1700, 1899, 1900, 1999, 2000, 2001, 2004, 2023,
+                                 2024, 2100, 2400, 9999 };
+    int valid = 0;
+    for (size_t y = 0; y < sizeof years / sizeof years[0]; y++)
+        for (int m = 0; m <= 13; m++)
+            for (int d = 0; d <= 32; d++) {
+                char s[16];
+                snprintf(s, sizeof s, "%04d-%02d-%02d", years[y], m, d);
+                sqlite3_reset(st);
+                sqlite3_bind_text(st, 1, s, -1, SQLITE_TRANSIENT);
+                assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+                int ref = sqlite3_column_int(st, 0);
+                if (pl_store__valid_date(s) != ref)
+                    fail_msg("%s: library %d, SQLite %d", s, pl_store__valid_date(s), ref);
+                valid += ref;
+            }
+    /* 14 years, 5 of them leap (1600, 2000, 2004, 2024, 2400) */
+    assert_int_equal(valid, 14 * 365 + 5);
+    sqlite3_finalize(st);
+    sqlite3_close(db);
+    const char *bad[] = { "2021-1-01", "2021-01-1", "20210101", "2021/01/01", " 2021-01-01",
+                          "2021-01-01 ", "0000-01-01", "", "2021-01-0a" };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++)
+        assert_false(pl_store__valid_date(bad[i]));
+    assert_false(pl_store__valid_date(NULL));
+}
+
+/* ---- maps ------------------------------------------------------------------------------ */
+
+static void write_f32le(const char *path, const pl_map *m)
+{
+    size_t n = (size_t)m->width * m->height * m->nchannels;
+    unsigned char *b = malloc(4 * n);
+    assert_non_null(b);
+    for (size_t i = 0; i < n; i++) {
+        uint32_t u;
+        memcpy(&u, &m->data[i], 4);
+        for (int k = 0; k < 4; k++)
+            b[4 * i + k] = (unsigned char)(u >> (8 * k));
+    }
+    assert_int_equal(tu_write_file(path, b, 4 * n), 0);
+    free(b);
+}
+
+static void test_store__map_round_trip_is_bit_exact(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_map *m = test_map(8, 6, 2, -3.5f);
+    pl_map_record r = map_record(key);
+    char params[] = "{\"order\": 7}";
+    r.parameters_json = params;
+    pl_id id = 0;
+    OK(pl_store_add_map(f->st, &r, m, &id, &err));
+    assert_true(id > 0);
+
+    /* the same content again is refused, even under another name */
+    snprintf(r.source, sizeof r.source, "copy.npy");
+    char *before = dump(f->path);
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_EEXISTS, &err,
+                "already stored as map");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(before);
+    free(after);
+
+    pl_map *back = NULL;
+    pl_map_record rec;
+    OK(pl_store_load_map(f->st, id, &back, &rec, &err));
+    assert_int_equal(back->width, 8);
+    assert_int_equal(back->height, 6);
+    assert_int_equal(back->nchannels, 2);
+    size_t n = 8 * 6 * 2;
+    for (size_t i = 0; i < n; i++) {
+        if (isnan(m->data[i]))
+            assert_true(isnan(back->data[i]));
+        else
+            assert_memory_equal(&back->data[i], &m->data[i], 4);
+    }
+    unsigned char digest[PL_SHA256_SIZE];
+    char hex[PL_SHA256_HEX_SIZE];
+    pl_map_digest(digest, back);
+    pl_sha256_hex(hex, digest);
+    assert_string_equal(rec.sha256, hex);
+    assert_true(rec.pitch_u == 0.5 && rec.pitch_v == 0.5);
+    assert_true(back->pitch_u == 0.5);
+    assert_true(rec.placement.origin[0] == 5200 && rec.placement.u[0] == 1);
+    assert_string_equal(rec.placement.system, "STA/BL/WL");
+    assert_string_equal(rec.source, "F01.npy"); /* base name only */
+    assert_string_equal(rec.origin, "import-npy");
+    assert_string_equal(rec.software_version, pl_version());
+    assert_string_equal(rec.parameters_json, "{\"order\": 7}");
+    assert_ptr_equal(rec.channels, back->channels);
+    assert_string_equal(rec.channels[1].quantity, "log-derivative-2");
+    assert_string_equal(rec.channels[0].unit, "K");
+    assert_true(rec.stored_bytes > 0);
+    assert_int_equal(rec.inspection_key, key);
+    free(rec.parameters_json);
+    pl_map_free(back);
+
+    expect_fail(pl_store_load_map(f->st, 4242, &back, NULL, &err), PL_ENOTFOUND, &err, "4242");
+    assert_null(back);
+
+    /* a second, different map of the same inspection; listing keeps order */
+    m->data[10] = 99.0f;
+    pl_id id2 = 0;
+    OK(pl_store_add_map(f->st, &r, m, &id2, &err));
+    assert_true(id2 > id);
+    pl_store_close(f->st);
+    f->st = NULL;
+
+    /* Python's sqlite3, zlib, hashlib and NumPy read the stored blob: it is
+     * zlib of little-endian float32, its SHA-256 is the recorded one, the
+     * values are the map's and NaN is the quiet NaN 0x7fc00000 (map.h). */
+    char *raw = tu_path(f->dir, "map.f32");
+    pl_store *st = NULL;
+    OK(pl_store_open(&st, f->path, PL_STORE_READONLY, &err));
+    OK(pl_store_load_map(st, id2, &back, NULL, &err));
+    assert_true(back->data[10] == 99.0f);
+    pl_store_close(st);
+    write_f32le(raw, m);
+    char ids[32];
+    snprintf(ids, sizeof ids, "%lld", (long long)id2);
+    assert_int_equal(tu_python("store_map_ref.py", f->path, ids, raw, "8", "6", "2", NULL), 0);
+    pl_map_free(back);
+    pl_map_free(m);
+    free(raw);
+    check_integrity(f->path);
+}
+
+static int count_maps(void *ud, const pl_map_record *rec)
+{
+    int *n = ud;
+    assert_non_null(rec->channels);
+    assert_int_equal(rec->nchannels, 1);
+    assert_string_equal(rec->channels[0].quantity, "temperature-contrast");
+    assert_int_equal(strlen(rec->sha256), 64);
+    (*n)++;
+    return 0;
+}
+
+/*
+ * A stored blob whose content no longer matches its digest is reported, not
+ * returned. The triggers forbid altering a map, so the damage is done to a
+ * copy of the store with the map trigger dropped.
+ */
+static void test_store__load_map_detects_tampering(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_map *m = test_map(8, 6, 1, 2.0f);
+    pl_map_record r = map_record(key);
+    pl_id id = 0;
+    OK(pl_store_add_map(f->st, &r, m, &id, &err));
+    int nmaps = 0;
+    OK(pl_store_list_maps(f->st, key, count_maps, &nmaps, &err));
+    assert_int_equal(nmaps, 1);
+    pl_store_close(f->st);
+    f->st = NULL;
+
+    /* another valid zlib stream of the same size: decodes, digest differs */
+    m->data[0] += 1.0f;
+    unsigned char *other = NULL;
+    size_t other_len = 0;
+    unsigned char digest[PL_SHA256_SIZE];
+    OK(pl_map_encode(&other, &other_len, digest, m, &err));
+
+    const char *damage[3] = { "sha256", "data", "corrupt" };
+    const int expect[3] = { PL_ENOMATCH, PL_ENOMATCH, PL_EFORMAT };
+    for (int k = 0; k < 3; k++) {
+        char name[32];
+        snprintf(name, sizeof name, "copy%d.db", k);
+        char *copy = tu_path(f->dir, name);
+        size_t len = 0;
+        unsigned char *bytes = tu_read_file(f->path, &len);
+        assert_non_null(bytes);
+        assert_int_equal(tu_write_file(copy, bytes, len), 0);
+        free(bytes);
+        sqlite3 *db = raw_open(copy);
+        /* the copy is still protected */
+        assert_int_not_equal(sqlite3_exec(db, "UPDATE map SET sha256 = sha256", NULL, NULL,
+                                          NULL), SQLITE_OK);
+        raw_exec(db, "DROP TRIGGER map_no_update");
+        sqlite3_stmt *st;
+        if (k == 0) {
+            raw_exec(db, "UPDATE map SET sha256 = 'e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b9"
+                         "34ca495991b7852b855'");
+        } else if (k == 1) {
+            assert_int_equal(sqlite3_prepare_v2(db, "UPDATE map SET data = ?1", -1, &st, NULL),
+                             SQLITE_OK);
+            sqlite3_bind_blob(st, 1, other, (int)other_len, SQLITE_STATIC);
+            assert_int_equal(sqlite3_step(st), SQLITE_DONE);
+            sqlite3_finalize(st);
+        } else {
+            /* flip bytes inside the deflate stream */
+            assert_int_equal(sqlite3_prepare_v2(db, "SELECT data FROM map", -1, &st, NULL),
+                             SQLITE_OK);
+            assert_int_equal(sqlite3_step(st), SQLITE_ROW);
+            int n = sqlite3_column_bytes(st, 0);
+            assert_true(n > 16);
+            unsigned char *bad = malloc((size_t)n);
+            assert_non_null(bad);
+            memcpy(bad, sqlite3_column_blob(st, 0), (size_t)n);
+            sqlite3_finalize(st);
+            for (int i = 6; i < 14; i++)
+                bad[i] ^= 0x5a;
+            assert_int_equal(sqlite3_prepare_v2(db, "UPDATE map SET data = ?1", -1, &st, NULL),
+                             SQLITE_OK);
+            sqlite3_bind_blob(st, 1, bad, n, SQLITE_TRANSIENT);
+            assert_int_equal(sqlite3_step(st), SQLITE_DONE);
+            sqlite3_finalize(st);
+            free(bad);
+        }
+        sqlite3_close(db);
+        pl_store *cs = NULL;
+        pl_map *back = (pl_map *)&err;
+        OK(pl_store_open(&cs, copy, PL_STORE_READONLY, &err));
+        int rc = pl_store_load_map(cs, id, &back, NULL, &err);
+        if (rc != expect[k])
+            fail_msg("%s: expected %d, got %d (%s)", damage[k], expect[k], rc, err.msg);
+        assert_null(back);
+        assert_non_null(strstr(err.msg, copy));
+        pl_store_close(cs);
+        free(copy);
+    }
+    free(other);
+    pl_map_free(m);
+}
+
+/* A map that does not fit its site is refused with nothing written. */
+static void test_store__map_must_fit_its_site(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01"); /* 8 x 6 px, 0.5 mm */
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_map_record r = map_record(key);
+    char *before = dump(f->path);
+
+    pl_map *wide = test_map(9, 6, 1, 0.0f);
+    expect_fail(pl_store_add_map(f->st, &r, wide, NULL, &err), PL_ENOMATCH, &err,
+                "width 9 px differs from the site's 8 px");
+    pl_map_free(wide);
+    pl_map *tall = test_map(8, 5, 1, 0.0f);
+    expect_fail(pl_store_add_map(f->st, &r, tall, NULL, &err), PL_ENOMATCH, &err, "height 5");
+    pl_map_free(tall);
+    pl_map *m = test_map(8, 6, 1, 0.0f);
+    m->pitch_u = 0.5 * 1.002; /* 0.2 % off */
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ENOMATCH, &err, "pitch_u");
+    m->pitch_u = 0.5;
+    m->pitch_v = 0.5 * 0.998;
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ENOMATCH, &err, "pitch_v");
+    m->pitch_v = 0.5;
+    snprintf(m->channels[0].unit, sizeof m->channels[0].unit, "mm");
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_EINVAL, &err, "channel 0");
+    snprintf(m->channels[0].unit, sizeof m->channels[0].unit, "K");
+    r.origin[0] = '\0';
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_EINVAL, &err, "origin");
+    r = map_record(key + 100);
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ENOTFOUND, &err, "inspection");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    /* within 0.1 % is the same pitch */
+    r = map_record(key);
+    m->pitch_u = 0.5 * 1.0005;
+    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    pl_map_free(m);
+    check_integrity(f->path);
+}
+
+/* ---- transactions ---------------------------------------------------------------------- */
+
+static void test_store__rollback_leaves_the_store_as_it_was(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    char *before = dump(f->path);
+
+    OK(pl_store_begin(f->st, &err));
+    add_airframe(f->st, "PLX-0002", "PLX-T1");
+    add_site(f->st, "PLX-0002", "F01");
+    add_site(f->st, "PLX-0001", "F02");
+    pl_id key = add_inspection(f->st, "PLX-0002", "F01", "baseline", "2016-01-10");
+    pl_map *m = test_map(8, 6, 1, 0.0f);
+    pl_map_record r = map_record(key);
+    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2020-01-01", &err));
+    pl_site s = site("PLX-0001", "F01");
+    OK(pl_store_correct_site(f->st, &s, "checking rollback", NULL, &err));
+    pl_store_rollback(f->st);
+    pl_store_rollback(f->st); /* harmless when none is open */
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+
+    /* a failing call inside a transaction undoes only itself */
+    OK(pl_store_begin(f->st, &err));
+    add_airframe(f->st, "PLX-0003", "PLX-T1");
+    pl_site bad = site("PLX-0003", "F01");
+    bad.pitch_u = 0.7;
+    OK(pl_store_add_site(f->st, &bad, NULL, &err));
+    pl_id k3 = add_inspection(f->st, "PLX-0003", "F01", "baseline", "2016-01-10");
+    r = map_record(k3);
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ENOMATCH, &err, "pitch_u");
+    OK(pl_store_commit(f->st, &err));
+    pl_store_summary sum;
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.airframes, 2);
+    assert_int_equal(sum.inspections, 1);
+    assert_int_equal(sum.maps, 0);
+
+    /* a transaction cannot be opened twice */
+    OK(pl_store_begin(f->st, &err));
+    expect_fail(pl_store_begin(f->st, &err), PL_EDB, &err, f->path);
+    pl_store_rollback(f->st);
+    pl_map_free(m);
+    free(before);
+    check_integrity(f->path);
+}
+
+/* ---- listings ---------------------------------------------------------------------------- */
+
+typedef struct collect {
+    char out[1024];
+    int stop_after;
+    int seen;
+} collect;
+
+static void collect_add(collect *c, const char *s)
+{
+    size_t n = strlen(c->out);
+    snprintf(c->out + n, sizeof c->out - n, "%s%s", n ? " " : "", s);
+}
+
+static int on_airframe(void *ud, const pl_airframe *af)
+{
+    collect *c = ud;
+    char s[400];
+    snprintf(s, sizeof s, "%s/%s", af->serial, af->operator_name[0] ? af->operator_name : "-");
+    collect_add(c, s);
+    return ++c->seen == c->stop_after;
+}
+
+static int on_site(void *ud, const pl_site *site)
+{
+    collect *c = ud;
+    char s[200];
+    snprintf(s, sizeof s, "%s:%s", site->airframe_serial, site->code);
+    collect_add(c, s);
+    return ++c->seen == c->stop_after;
+}
+
+static int on_inspection(void *ud, const pl_inspection *in)
+{
+    collect *c = ud;
+    char s[200];
+    snprintf(s, sizeof s, "%s:%s@%s", in->airframe_serial, in->site_code, in->performed_on);
+    collect_add(c, s);
+    return ++c->seen == c->stop_after;
+}
+
+static int on_operator(void *ud, const char *name, const char *since, const char *recorded_at)
+{
+    collect *c = ud;
+    char s[300];
+    assert_int_equal(strlen(recorded_at), 24);
+    snprintf(s, sizeof s, "%s@%s", name, since);
+    collect_add(c, s);
+    return 0;
+}
+
+static void test_store__listings_filter_and_order(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    collect c;
+    /* registered out of order on purpose */
+    add_airframe(f->st, "PLX-0003", "PLX-T2");
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_airframe(f->st, "PLX-0002", "PLX-T1");
+    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator A", "2016-01-01", &err));
+    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2019-05-01", &err));
+    OK(pl_store_add_operator(f->st, "PLX-0002", "Operator A", "2017-01-01", &err));
+    expect_fail(pl_store_add_operator(f->st, "PLX-0001", "Operator C", "2018-01-01", &err),
+                PL_EINVAL, &err, "goes back");
+    expect_fail(pl_store_add_operator(f->st, "PLX-0003", "Operator C", "2015-01-01", &err),
+                PL_EINVAL, &err, "goes back");
+    expect_fail(pl_store_add_operator(f->st, "PLX-0009", "Operator C", "2019-01-01", &err),
+                PL_ENOTFOUND, &err, "PLX-0009");
+
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_operators(f->st, "PLX-0001", on_operator, &c, &err));
+    assert_string_equal(c.out, "Operator A@2016-01-01 Operator B@2019-05-01");
+
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_airframes(f->st, NULL, on_airframe, &c, &err));
+    assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A PLX-0003/-");
+    memset(&c, 0, sizeof c);
+    pl_airframe_filter af = { .aircraft_type = "PLX-T1" };
+    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A");
+    /* operator filter: the current operator only */
+    memset(&c, 0, sizeof c);
+    af = (pl_airframe_filter){ .operator_name = "Operator A" };
+    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    assert_string_equal(c.out, "PLX-0002/Operator A");
+    memset(&c, 0, sizeof c);
+    af = (pl_airframe_filter){ .aircraft_type = "", .operator_name = "" };
+    c.stop_after = 2;
+    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A");
+
+    add_site(f->st, "PLX-0002", "F02");
+    add_site(f->st, "PLX-0001", "F02");
+    add_site(f->st, "PLX-0001", "F01");
+    pl_site s = site("PLX-0001", "W01");
+    snprintf(s.zone, sizeof s.zone, "571");
+    snprintf(s.method, sizeof s.method, "ultrasound-pulse-echo");
+    OK(pl_store_add_site(f->st, &s, NULL, &err));
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_sites(f->st, NULL, on_site, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:F01 PLX-0001:F02 PLX-0001:W01 PLX-0002:F02");
+    pl_site_filter sf = { .airframe_serial = "PLX-0001", .zone = "231" };
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:F01 PLX-0001:F02");
+    sf = (pl_site_filter){ .method = "ultrasound-pulse-echo" };
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:W01");
+
+    add_inspection(f->st, "PLX-0001", "F02", "scheduled", "2022-03-01");
+    add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    add_inspection(f->st, "PLX-0002", "F02", "baseline", "2016-01-10");
+    add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2019-07-15");
+    add_inspection(f->st, "PLX-0001", "F01", "post-repair", "2019-08-01");
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_inspections(f->st, NULL, on_inspection, &c, &err));
+    /* same date: in key order (PLX-0001:F01 was recorded before PLX-0002:F02) */
+    assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10 "
+                        "PLX-0001:F01@2019-07-15 PLX-0001:F01@2019-08-01 "
+                        "PLX-0001:F02@2022-03-01");
+    pl_inspection_filter inf = { .airframe_serial = "PLX-0001", .site_code = "F01",
+                                 .from = "2019-01-01", .to = "2019-07-31" };
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:F01@2019-07-15");
+    inf = (pl_inspection_filter){ .kind = "baseline" };
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10");
+    inf = (pl_inspection_filter){ .to = "2016-01-10" };
+    memset(&c, 0, sizeof c);
+    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10");
+    inf = (pl_inspection_filter){ .from = "2019-02-30" };
+    expect_fail(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err), PL_EINVAL,
+                &err, "2019-02-30");
+    expect_fail(pl_store_list_operators(f->st, "PLX-0404", on_operator, &c, &err),
+                PL_ENOTFOUND, &err, "PLX-0404");
+    check_integrity(f->path);
+}
+
+/* ---- summary ----------------------------------------------------------------------------- */
+
+static void test_store__summary_counts_the_record(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_store_summary sum;
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.schema_version, PL_STORE_SCHEMA_VERSION);
+    assert_int_equal(sum.airframes + sum.sites + sum.inspections + sum.maps, 0);
+    assert_string_equal(sum.first_inspection, "");
+
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_airframe(f->st, "PLX-0002", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    add_site(f->st, "PLX-0001", "F02");
+    add_site(f->st, "PLX-0002", "F01");
+    pl_id b1 = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    add_inspection(f->st, "PLX-0001", "F02", "baseline", "2016-01-11");
+    pl_id s1 = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2021-06-01");
+    add_inspection(f->st, "PLX-0002", "F01", "post-repair", "2023-02-03");
+    pl_map *m = test_map(8, 6, 1, 0.0f);
+    pl_map_record r = map_record(b1);
+    pl_map_record out1, out2;
+    pl_id id1 = 0, id2 = 0;
+    OK(pl_store_add_map(f->st, &r, m, &id1, &err));
+    r.inspection_key = s1;
+    OK(pl_store_add_map(f->st, &r, m, &id2, &err));
+    pl_map *tmp = NULL;
+    OK(pl_store_load_map(f->st, id1, &tmp, &out1, &err));
+    pl_map_free(tmp);
+    OK(pl_store_load_map(f->st, id2, &tmp, &out2, &err));
+    pl_map_free(tmp);
+    free(out1.parameters_json);
+    free(out2.parameters_json);
+    pl_inspection in = inspection("PLX-0001", "F01", "unscheduled", "2021-06-02");
+    OK(pl_store_correct_inspection(f->st, s1, &in, "it was an unscheduled check", NULL, &err));
+
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.airframes, 2);
+    assert_int_equal(sum.sites, 3);
+    assert_int_equal(sum.inspections, 4);
+    assert_int_equal(sum.maps, 2);
+    assert_int_equal(sum.inspections_by_kind[0], 2);
+    assert_int_equal(sum.inspections_by_kind[1], 0);
+    assert_int_equal(sum.inspections_by_kind[2], 1);
+    assert_int_equal(sum.inspections_by_kind[3], 1);
+    assert_int_equal(sum.corrections, 1);
+    assert_int_equal(sum.indications + sum.comparisons + sum.dispositions + sum.ledger_links, 0);
+    assert_int_equal(sum.map_bytes, (int64_t)(out1.stored_bytes + out2.stored_bytes));
+    assert_string_equal(sum.first_inspection, "2016-01-10");
+    assert_string_equal(sum.last_inspection, "2023-02-03");
+    pl_map_free(m);
+    check_integrity(f->path);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+#define T(name) cmocka_unit_test_setup_teardown(name, setup, teardown)
+        T(test_store__create_and_reopen),
+        T(test_store__open_missing_path),
+        T(test_store__open_refuses_a_file_that_is_not_sqlite),
+        T(test_store__open_refuses_a_foreign_database),
+        T(test_store__open_refuses_a_newer_schema),
+        T(test_store__migrates_from_version_zero),
+        T(test_store__every_table_refuses_update_and_delete),
+        T(test_store__corrections_supersede_and_keep_history),
+        T(test_store__refuses_duplicates),
+        T(test_store__validates_records_with_clear_messages),
+        T(test_store__dates_agree_with_sqlite_calendar),
+        T(test_store__map_round_trip_is_bit_exact),
+        T(test_store__load_map_detects_tampering),
+        T(test_store__map_must_fit_its_site),
+        T(test_store__rollback_leaves_the_store_as_it_was),
+        T(test_store__listings_filter_and_order),
+        T(test_store__summary_counts_the_record),
+#undef T
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}

@@ -17,5 +17,6 @@
 #include "plyledger/render.h"
 #include "plyledger/store.h"
 #include "plyledger/plan.h"
+#include "plyledger/record.h"
 
 #endif

@@ -1,2 +1,328 @@
 #!/bin/sh
-echo "placeholder"; exit 1
+# run_cli_tests.sh - end-to-end tests of the plyledger command line.
+#
+# Usage: run_cli_tests.sh PLYLEDGER_BINARY TESTS_CLI_DIR
+# Environment: PL_PYTHON (Debian's python3 with numpy and pypng), PL_WRAP
+# (optional command prefix, e.g. valgrind), TMPDIR.
+#
+# Every bad input must give exit 1 (or 2 for a bad command line), exactly one
+# line on stderr that names the file or record and the fault, and leave the
+# store's content exactly as it was (compared by a full SQL dump).
+set -u
+PLY_BIN=$1
+HERE=$2
+PY=${PL_PYTHON:-/usr/bin/python3}
+WRAP=${PL_WRAP:-}
+WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-cli-XXXXXX")
+trap 'rm -rf "$WORK"' EXIT
+STORE="$WORK/fleet.plyledger"
+FAILS=0
+COUNT=0
+
+ply() { $WRAP "$PLY_BIN" "$@"; }
+
+fail() {
+    FAILS=$((FAILS + 1))
+    echo "FAIL: $*" >&2
+}
+
+# run NAME EXPECTED_EXIT command...   (stdout -> $WORK/out, stderr -> $WORK/err)
+run() {
+    name=$1; want=$2; shift 2
+    COUNT=$((COUNT + 1))
+    "$@" >"$WORK/out" 2>"$WORK/err"
+    got=$?
+    if [ "$got" -ne "$want" ]; then
+        fail "$name: exit $got, expected $want"
+        sed 's/^/    stderr: /' "$WORK/err" >&2
+        sed 's/^/    stdout: /' "$WORK/out" | head -20 >&2
+        return 1
+    fi
+    return 0
+}
+
+# expect_out NAME TEXT: stdout contains TEXT
+expect_out() {
+    grep -qF -- "$2" "$WORK/out" || { fail "$1: stdout lacks '$2'"; sed 's/^/    /' "$WORK/out" | head -30 >&2; }
+}
+
+# expect_one_line_err NAME TEXT...: stderr is one line containing every TEXT
+expect_one_line_err() {
+    name=$1; shift
+    lines=$(grep -c '' "$WORK/err")
+    [ "$lines" -eq 1 ] || { fail "$name: $lines lines on stderr, expected 1"; sed 's/^/    /' "$WORK/err" >&2; }
+    for t in "$@"; do
+        grep -qF -- "$t" "$WORK/err" || { fail "$name: stderr lacks '$t'"; sed 's/^/    /' "$WORK/err" >&2; }
+    done
+}
+
+dump() { sqlite3 "$STORE" .dump 2>&1 | grep -v '^PRAGMA\|^BEGIN\|^COMMIT'; }
+
+# bad NAME EXIT TEXT COMMAND...: a refused command leaves the store as it was
+bad() {
+    name=$1; want=$2; text=$3; shift 3
+    dump >"$WORK/before.sql"
+    if run "$name" "$want" "$@"; then
+        if [ "$want" -eq 2 ]; then
+            # misuse: the problem on the first line, then the short usage
+            head -1 "$WORK/err" | grep -qF -- "$text" || { fail "$name: first stderr line lacks '$text'"; sed 's/^/    /' "$WORK/err" >&2; }
+        else
+            expect_one_line_err "$name" "$text"
+        fi
+    fi
+    dump >"$WORK/after.sql"
+    cmp -s "$WORK/before.sql" "$WORK/after.sql" || fail "$name: the store changed"
+}
+
+# ---- fixtures ---------------------------------------------------------------
+
+cat >"$WORK/plan.csv" <<'CSV'
+site,zone,description,frame,stringer,method,material,thickness_mm,diffusivity_mm2_s,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,width_px,height_px,pitch_mm
+T01,253,"Window belt, left, frames 20-21",FR 20,STR 14L,flash-thermography,CFRP-QI-4,4.0,0.42,10250,-1850,2100,1,0,0,0,0,-1,40,30,0.5
+T02,253,Keel beam splice,FR 22,STR 40,flash-thermography,CFRP-QI-4,4.0,0.42,10900,0,-300,1,0,0,0,1,0,40,30,0.5
+T03,254,Door surround aft corner,FR 31,STR 12R,flash-thermography,CFRP-QI-6,6.0,0.42,14100,1900,1950,1,0,0,0,0,-1,0,0,0.5
+CSV
+
+# numpy writes the maps: a float32 40x30 map, a float64 one, a 2-channel one,
+# and bad ones (int64 dtype, 4-D rank, wrong size).
+"$PY" - "$WORK" <<'PY' || { echo "FAIL: numpy fixtures" >&2; exit 1; }
+import sys, numpy as np
+d = sys.argv[1]
+rng = np.random.default_rng(7)
+m = rng.normal(0.0, 0.05, (30, 40)).astype(np.float32)
+m[10:16, 12:20] += 0.8
+m[0, 0] = np.nan
+np.save(d + "/t01_base.npy", m)
+np.save(d + "/t01_f64.npy", (m.astype(np.float64) * 1.5))
+np.save(d + "/t02_two.npy", np.stack([m, m * 2]).astype(np.float32))
+np.save(d + "/bad_int64.npy", np.zeros((30, 40), dtype=np.int64))
+np.save(d + "/bad_rank.npy", np.zeros((1, 2, 30, 40), dtype=np.float32))
+np.save(d + "/bad_size.npy", np.zeros((31, 40), dtype=np.float32))
+m.astype("<f4").tofile(d + "/t01_base.raw")
+PY
+
+# pypng writes an RGB PNG (not grayscale) and a good 16-bit grey one; a
+# truncated PNG is a good one cut short.
+"$PY" - "$WORK" <<'PY' || { echo "FAIL: png fixtures" >&2; exit 1; }
+import sys, png
+d = sys.argv[1]
+rows = [[(x * 7 + y * 3) % 256 for x in range(40 * 3)] for y in range(30)]
+with open(d + "/rgb.png", "wb") as f:
+    png.Writer(40, 30, greyscale=False, bitdepth=8).write(f, rows)
+grey = [[(x * 1000 + y * 13) % 65535 for x in range(40)] for y in range(30)]
+with open(d + "/grey16.png", "wb") as f:
+    png.Writer(40, 30, greyscale=True, bitdepth=16).write(f, grey)
+data = open(d + "/grey16.png", "rb").read()
+open(d + "/truncated.png", "wb").write(data[: len(data) // 2])
+PY
+
+printf 'this is not a database, just text\n' >"$WORK/not-a-store.plyledger"
+sqlite3 "$WORK/foreign.db" "CREATE TABLE t(x); INSERT INTO t VALUES(1);"
+
+TRACE="--procedure NDT-TEST-01 --procedure-rev A --equipment test-rig --calibration RS-T1 --inspector tester --level 2"
+
+# ---- help and usage ---------------------------------------------------------
+
+run "help" 0 ply --help && expect_out "help" "Commands:"
+for c in create add-airframe set-operator import-plan record correct airframes sites \
+         inspections history export-map summary quantities version help; do
+    run "$c --help" 0 ply "$c" --help && expect_out "$c --help" "usage: plyledger"
+done
+run "version" 0 ply --version && expect_out "version" "plyledger "
+run "unknown command" 2 ply frobnicate && expect_one_line_err "unknown command" "unknown command 'frobnicate'" "plyledger help"
+run "unknown option" 2 ply summary --frob --store "$STORE"
+grep -qF "unknown option '--frob'" "$WORK/err" || fail "unknown option: message"
+run "no store" 2 env -u PLYLEDGER_STORE "$PLY_BIN" summary
+grep -qF -- "--store" "$WORK/err" || fail "no store: message"
+
+# ---- building a store ---------------------------------------------------------
+
+run "create" 0 ply create "$STORE" && expect_out "create" "created store"
+run "create again" 1 ply create "$STORE"
+run "add airframe" 0 ply add-airframe --store "$STORE" --serial TST-0001 --type TX-1 \
+    --manufactured 2030-01-15 --operator "Test Operator One" && expect_out "add airframe" "TST-0001"
+run "add airframe 2" 0 ply add-airframe --store "$STORE" --serial TST-0002 --type TX-1
+run "import plan" 0 ply import-plan --store "$STORE" --airframe TST-0001 "$WORK/plan.csv" \
+    && expect_out "import plan" "added 3 sites"
+run "import plan 2" 0 ply import-plan --store "$STORE" --airframe TST-0002 "$WORK/plan.csv"
+run "set operator" 0 ply set-operator --store "$STORE" --serial TST-0001 --operator "Test Operator Two" --since 2034-06-01 \
+    && expect_out "set operator" "Test Operator Two"
+
+export PLYLEDGER_STORE="$STORE"
+run "record baseline" 0 ply record --airframe TST-0001 --site T01 --kind baseline --date 2030-02-01 \
+    --hours 0 --cycles 0 $TRACE --map "$WORK/t01_base.npy" --quantity temperature-contrast \
+    && expect_out "record baseline" "recorded 1 inspection(s) with 1 map(s)"
+run "record png" 0 ply record --airframe TST-0001 --site T01 --kind scheduled --date 2035-03-01 \
+    --task "HC-1" --hours 9000 --cycles 6100 $TRACE --map "$WORK/grey16.png" --quantity phase --unit rad
+run "record two channels" 0 ply record --airframe TST-0001 --site T02 --kind baseline --date 2030-02-01 \
+    $TRACE --map "$WORK/t02_two.npy" --quantity temperature-contrast,amplitude --unit K,K --json
+grep -q '"inspection"' "$WORK/out" || fail "record --json: no inspection id"
+
+# A sidecar records two sites at once.
+cat >"$WORK/check.json" <<JSON
+{ "airframe": "TST-0002", "kind": "baseline", "date": "2030-03-10",
+  "procedure": "NDT-TEST-01", "procedure_revision": "A", "equipment": "test-rig",
+  "calibration": "RS-T1", "inspector": "tester", "inspector_level": "2",
+  "parameters": { "note": "sidecar" },
+  "sites": [
+    { "site": "T01", "maps": [ { "file": "t01_f64.npy",
+        "channels": [ { "quantity": "temperature-contrast", "unit": "K" } ] } ] },
+    { "site": "T03", "maps": [ { "file": "t01_base.npy", "pitch_mm": 0.5,
+        "channels": [ { "quantity": "depth" } ] } ] } ] }
+JSON
+run "record sidecar" 0 ply record --sidecar "$WORK/check.json" && expect_out "record sidecar" "recorded 2 inspection(s) with 2 map(s)"
+
+# ---- listings -----------------------------------------------------------------------
+
+run "airframes" 0 ply airframes && expect_out "airframes" "TST-0002"
+expect_out "airframes" "Test Operator Two"
+run "airframes --json" 0 ply airframes --json --type TX-1
+"$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert [x["serial"] for x in a]==["TST-0001","TST-0002"], a' "$WORK/out" \
+    || fail "airframes --json content"
+run "sites filter" 0 ply sites --airframe TST-0001 --zone 254 && expect_out "sites filter" "T03"
+grep -q "T01" "$WORK/out" && fail "sites filter: T01 should not match zone 254"
+run "sites unknown airframe" 1 ply sites --airframe NOPE-9 && expect_one_line_err "sites unknown airframe" "NOPE-9"
+run "inspections" 0 ply inspections --airframe TST-0001 --site T01 && expect_out "inspections" "2035-03-01"
+run "inspections kind" 0 ply inspections --kind scheduled --json
+"$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert len(a)==1 and a[0]["kind"]=="scheduled" and a[0]["cycles"]==6100, a' "$WORK/out" \
+    || fail "inspections --kind --json content"
+run "inspections dates" 0 ply inspections --from 2030-02-02 --to 2030-12-31 --json
+"$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert {x["site"] for x in a}=={"T01","T03"} and all(x["airframe"]=="TST-0002" for x in a), a' "$WORK/out" \
+    || fail "inspections --from/--to content"
+run "history" 0 ply history --airframe TST-0001 --site T01 && expect_out "history" "baseline"
+expect_out "history" "phase [rad]"
+head -1 "$WORK/out" | grep -qF "site T01 on airframe TST-0001" || fail "history: header"
+# oldest first
+awk '/2030-02-01/{a=NR} /2035-03-01/{b=NR} END{exit !(a && b && a<b)}' "$WORK/out" || fail "history: order"
+run "history --json" 0 ply history --airframe TST-0001 --site T01 --json
+"$PY" -c '
+import json,sys
+h=json.load(open(sys.argv[1]))
+ins=h["inspections"]
+assert [i["date"] for i in ins]==["2030-02-01","2035-03-01"], ins
+assert ins[0]["maps"][0]["channels"]==[{"quantity":"temperature-contrast","unit":"K"}]
+assert ins[0]["maps"][0]["width"]==40 and ins[0]["maps"][0]["height"]==30
+assert ins[0]["maps"][0]["pitch_u_mm"]==0.5
+assert h["site"]["map_frame"]["origin"]==[10250,-1850,2100]
+' "$WORK/out" || fail "history --json content"
+BASE_MAP=$("$PY" -c 'import json,sys; print(json.load(open(sys.argv[1]))["inspections"][0]["maps"][0]["map"])' "$WORK/out")
+PNG_MAP=$("$PY" -c 'import json,sys; print(json.load(open(sys.argv[1]))["inspections"][1]["maps"][0]["map"])' "$WORK/out")
+run "summary" 0 ply summary && expect_out "summary" "airframes    2"
+expect_out "summary" "inspections  5 (baseline 4, scheduled 1"
+run "summary --json" 0 ply summary --json
+"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["maps"]==5 and s["sites"]==6, s' "$WORK/out" \
+    || fail "summary --json content"
+run "quantities" 0 ply quantities && expect_out "quantities" "temperature-contrast"
+
+# ---- export: numpy reads what plyledger writes (outside reference: numpy.load) ----
+
+run "export npy" 0 ply export-map --map "$BASE_MAP" --output "$WORK/out.npy"
+"$PY" - "$WORK" <<'PY' || fail "export npy: numpy.load disagrees with the recorded values"
+import sys, numpy as np
+d = sys.argv[1]
+got = np.load(d + "/out.npy")
+want = np.fromfile(d + "/t01_base.raw", dtype="<f4").reshape(30, 40)
+assert got.dtype == np.float32 and got.shape == (30, 40), (got.dtype, got.shape)
+assert np.array_equal(np.isnan(got), np.isnan(want))
+assert np.array_equal(got[~np.isnan(got)], want[~np.isnan(want)])
+PY
+run "export png" 0 ply export-map --map "$PNG_MAP" --output "$WORK/out16.png"
+"$PY" - "$WORK" <<'PY' || fail "export png: pypng reads different codes"
+import sys, png
+d = sys.argv[1]
+w, h, rows, info = png.Reader(filename=d + "/out16.png").read()
+got = [list(r) for r in rows]
+assert (w, h, info["bitdepth"], info["greyscale"]) == (40, 30, 16, True), info
+want = [[(x * 1000 + y * 13) % 65535 for x in range(40)] for y in range(30)]
+# values were imported as raw codes (scale 1, offset 0); re-export quantises
+# min..max onto 0..65534, so compare after undoing the affine map
+lo = min(min(r) for r in want); hi = max(max(r) for r in want)
+for y in range(h):
+    for x in range(w):
+        v = lo + (hi - lo) * got[y][x] / 65534.0
+        assert abs(v - want[y][x]) <= (hi - lo) / 65534.0, (x, y, v, want[y][x])
+PY
+run "export render" 0 ply export-map --map "$BASE_MAP" --format render --output "$WORK/render.png"
+"$PY" -c 'import png,sys; w,h,_,i=png.Reader(filename=sys.argv[1]).read(); assert i["bitdepth"]==8 and not i["greyscale"] and w>40 and h>30, (w,h,i)' "$WORK/render.png" \
+    || fail "export render: not an RGB PNG larger than the map"
+run "export bad channel" 1 ply export-map --map "$BASE_MAP" --channel 3 --output "$WORK/x.png"
+run "export no map" 1 ply export-map --map 9999 --output "$WORK/x.npy"
+run "export bad format" 2 ply export-map --map "$BASE_MAP" --output "$WORK/x.tif"
+
+# ---- corrections -------------------------------------------------------------------
+
+run "correct inspection" 0 ply correct --inspection 1 --hours 0.5 --reason "hours misread from the log"
+run "correct inspection json" 0 ply inspections --airframe TST-0001 --site T01 --kind baseline --json
+"$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert a[0]["hours"]==0.5 and a[0]["inspection"]==1 and a[0]["version_id"]!=1, a' "$WORK/out" \
+    || fail "correct inspection: listing does not show the corrected version"
+bad "correct without reason" 2 "--reason" ply correct --inspection 1 --hours 3
+run "correct site" 0 ply correct --airframe TST-0001 --site T02 --description "Keel beam splice, corrected" --reason "plan typo"
+run "summary corrections" 0 ply summary --json
+"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["corrections"]==2, s' "$WORK/out" || fail "summary counts corrections"
+
+# ---- bad inputs: one line, names the file, store unchanged ---------------------------
+
+rec() { ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-01-01 $TRACE "$@"; }
+bad "truncated png" 1 "truncated.png" rec --map "$WORK/truncated.png" --quantity phase --unit rad
+bad "rgb png" 1 "rgb.png" rec --map "$WORK/rgb.png" --quantity phase --unit rad
+bad "npy int64" 1 "bad_int64.npy" rec --map "$WORK/bad_int64.npy" --quantity depth
+bad "npy rank" 1 "bad_rank.npy" rec --map "$WORK/bad_rank.npy" --quantity depth
+bad "map size differs" 1 "bad_size.npy" rec --map "$WORK/bad_size.npy" --quantity depth
+bad "missing map file" 1 "no-such.npy" rec --map "$WORK/no-such.npy" --quantity depth
+bad "good then bad map" 1 "bad_int64.npy" rec --map "$WORK/t01_base.npy" --quantity depth --map "$WORK/bad_int64.npy"
+bad "unknown airframe" 1 "NOPE-1" ply record --airframe NOPE-1 --site T01 --kind scheduled --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "unknown site" 1 "T99" ply record --airframe TST-0001 --site T99 --kind scheduled --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "second baseline" 1 "baseline" ply record --airframe TST-0001 --site T01 --kind baseline --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "bad date" 1 "2036-02-30" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-02-30 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "bad kind" 1 "routine" ply record --airframe TST-0001 --site T01 --kind routine --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "missing traceability" 1 "inspector" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-01-01 --procedure P --procedure-rev A --equipment E --calibration C --level 2 --map "$WORK/t01_base.npy" --quantity depth
+bad "bad quantity unit" 1 "depth" rec --map "$WORK/t01_base.npy" --quantity depth --unit K
+bad "npy without quantity" 1 "t01_base.npy" rec --map "$WORK/t01_base.npy"
+bad "negative pitch option" 2 "--pitch" rec --map "$WORK/t01_base.npy" --quantity depth --pitch -1
+bad "nan pitch option" 2 "--pitch" rec --map "$WORK/t01_base.npy" --quantity depth --pitch nan
+bad "pitch differs from site" 1 "pitch" rec --map "$WORK/t01_base.npy" --quantity depth --pitch 0.7
+bad "duplicate serial" 1 "TST-0001" ply add-airframe --serial TST-0001 --type TX-1
+
+printf 'site,zone,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z\nS1,1,flash-thermography,0,0,0,1,0,0,0,1,0\n' >"$WORK/plan_missing.csv"
+bad "plan missing column" 1 "pitch_mm" ply import-plan --airframe TST-0002 "$WORK/plan_missing.csv"
+grep -qF "plan_missing.csv" "$WORK/err" || fail "plan missing column: file not named"
+{ head -1 "$WORK/plan.csv"; sed -n 2p "$WORK/plan.csv" | sed 's/^T01/N01/'; sed -n 2p "$WORK/plan.csv" | sed 's/^T01/N01/'; } >"$WORK/plan_dup.csv"
+bad "plan duplicate code" 1 "N01" ply import-plan --airframe TST-0002 "$WORK/plan_dup.csv"
+grep -qF "plan_dup.csv" "$WORK/err" || fail "plan duplicate code: file not named"
+{ head -1 "$WORK/plan.csv"; sed -n 2p "$WORK/plan.csv" | sed 's/^T01/N02/; s/,0\.5$/,nan/'; } >"$WORK/plan_nan.csv"
+bad "plan nan pitch" 1 "plan_nan.csv" ply import-plan --airframe TST-0002 "$WORK/plan_nan.csv"
+{ head -1 "$WORK/plan.csv"; sed -n 2p "$WORK/plan.csv" | sed 's/^T01/N03/; s/,0\.5$/,-0.5/'; } >"$WORK/plan_neg.csv"
+bad "plan negative pitch" 1 "plan_neg.csv" ply import-plan --airframe TST-0002 "$WORK/plan_neg.csv"
+{ head -1 "$WORK/plan.csv"; sed -n 2p "$WORK/plan.csv" | sed 's/^T01/N04/'; sed -n 2p "$WORK/plan.csv"; } >"$WORK/plan_exists.csv"
+bad "plan site already on airframe" 1 "T01" ply import-plan --airframe TST-0002 "$WORK/plan_exists.csv"
+
+cat >"$WORK/bad_sidecar.json" <<'JSON'
+{ "airframe": "TST-0002", "kind": "scheduled", "date": "2036-01-01", "inspecter": "typo",
+  "sites": [ { "site": "T01" } ] }
+JSON
+bad "sidecar unknown key" 1 "inspecter" ply record --sidecar "$WORK/bad_sidecar.json"
+printf '{ "airframe": ' >"$WORK/broken.json"
+bad "sidecar not json" 1 "broken.json" ply record --sidecar "$WORK/broken.json"
+
+# Stores that are not plyledger stores, or newer ones.
+run "text file as store" 1 ply summary --store "$WORK/not-a-store.plyledger" \
+    && expect_one_line_err "text file as store" "not-a-store.plyledger"
+run "foreign sqlite as store" 1 ply summary --store "$WORK/foreign.db" \
+    && expect_one_line_err "foreign sqlite as store" "foreign.db"
+sqlite3 "$WORK/foreign.db" "SELECT count(*) FROM t" >/dev/null || fail "foreign.db was damaged"
+[ "$(sqlite3 "$WORK/foreign.db" 'PRAGMA user_version')" = 0 ] || fail "foreign.db was migrated"
+cp "$STORE" "$WORK/newer.plyledger"
+sqlite3 "$WORK/newer.plyledger" "PRAGMA user_version = 99"
+run "newer store" 1 ply summary --store "$WORK/newer.plyledger" \
+    && expect_one_line_err "newer store" "newer.plyledger" "newer"
+run "missing store" 1 ply summary --store "$WORK/nope.plyledger" && expect_one_line_err "missing store" "nope.plyledger"
+[ -e "$WORK/nope.plyledger" ] && fail "missing store: a file was created"
+
+# The record itself refuses changes in place.
+sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"
+grep -q "append-only" "$WORK/err" || fail "UPDATE refusal message"
+
+sqlite3 "$STORE" "PRAGMA integrity_check" | grep -qx ok || fail "integrity_check"
+
+echo "$COUNT commands run, $FAILS failure(s)"
+[ "$FAILS" -eq 0 ]

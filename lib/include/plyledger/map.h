@@ -116,14 +116,14 @@ PL_EXPORT float *pl_map_channel(const pl_map *map, uint32_t c);
 
 /**
  * Index of the first channel whose quantity is `quantity`.
- * @return the index (>= 0), or PL_ENOTFOUND.
+ * @return the index (>= 0), or PL_ENOTFOUND (also for NULL).
  */
 PL_EXPORT int pl_map_find_channel(const pl_map *map, const char *quantity);
 
 /**
  * Set channel `c`'s quantity and unit after checking them with
- * pl_quantity_check().
- * @return PL_OK, PL_EINVAL.
+ * pl_quantity_check(); on failure the channel is unchanged.
+ * @return PL_OK, PL_EINVAL (also for c >= nchannels).
  */
 PL_EXPORT int pl_map_set_channel(pl_map *map, uint32_t c, const char *quantity,
                                  const char *unit, pl_err *err);
@@ -175,7 +175,8 @@ PL_EXPORT const char *pl_quantity_default_unit(const char *quantity);
  * @param[out] blob     malloc'd bytes; the caller frees with free()
  * @param[out] blob_len their count
  * @param[out] sha256   SHA-256 of the decoded (uncompressed) bytes
- * @return PL_OK, PL_ENOMEM, PL_EFORMAT (zlib failure).
+ * @return PL_OK, PL_ENOMEM, PL_EFORMAT (zlib failure), PL_EINVAL (the
+ *         map's size fields are zero or out of range).
  */
 PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len,
                             unsigned char sha256[32], const pl_map *map, pl_err *err);
@@ -183,8 +184,11 @@ PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len,
 /**
  * Decode a blob from pl_map_encode() into `map`'s data, whose width, height
  * and nchannels must already be set and data allocated (pl_map_new()).
- * When `sha256` is not NULL the decoded bytes must hash to it.
- * @return PL_OK, PL_EFORMAT (corrupt, wrong length), PL_ENOMATCH (digest).
+ * When `sha256` is not NULL the decoded bytes must hash to it. On failure
+ * every value of the map is set to NaN.
+ * @return PL_OK, PL_EFORMAT (corrupt, truncated, wrong length, bytes after
+ *         the stream), PL_ENOMATCH (digest), PL_ENOMEM, PL_EINVAL (the
+ *         map's size fields are zero or out of range).
  */
 PL_EXPORT int pl_map_decode(pl_map *map, const void *blob, size_t blob_len,
                             const unsigned char sha256[32], pl_err *err);
@@ -195,22 +199,32 @@ PL_EXPORT void pl_map_digest(unsigned char sha256[32], const pl_map *map);
 /* ---- files ------------------------------------------------------------- */
 
 /**
- * Read an 8- or 16-bit grayscale PNG (no alpha, no palette). Values are
- * offset + scale * code from the plyledger.* text chunks (1 and 0 when
- * absent); the nodata code becomes NaN. Quantity, unit and pitch come from
- * their chunks when present (else empty quantity, pitch 1).
+ * Read an 8- or 16-bit grayscale PNG (no alpha, no palette; interlaced
+ * or not). Values are offset + scale * code from the plyledger.* text
+ * chunks (1 and 0 when absent), computed in double and rounded to float;
+ * the nodata code becomes NaN. Quantity, unit and pitch come from their
+ * chunks when present (else empty quantity, pitch NaN: not known); a vocabulary
+ * quantity without a unit chunk gets its default unit. Text chunks before
+ * and after the image data count; other keys are ignored.
  * @param[out] out  free with pl_map_free()
- * @return PL_OK, PL_EIO (cannot open), PL_EFORMAT (not PNG, truncated, not
- *         grayscale, bad chunk value), PL_ENOMEM.
+ * @return PL_OK, PL_EIO (cannot open), PL_EFORMAT (not PNG, truncated or
+ *         corrupt, not grayscale, bit depth other than 8 or 16, larger than
+ *         PL_MAP_MAX_SIDE, a chunk value that is not a number (scale must
+ *         also be non-zero, nodata a code of the bit depth, pitch > 0), a
+ *         quantity/unit pair pl_quantity_check() refuses), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err);
 
 /**
  * Write channel `c` as a 16-bit grayscale PNG. Finite values are quantised
  * to codes 0..65534 with offset = min and scale = (max - min) / 65534 (scale
- * 1 for a constant map); NaN is written as code 65535, the nodata code. The
- * round trip through pl_map_load_png() is exact to scale / 2.
- * @return PL_OK, PL_EINVAL (c out of range), PL_EIO.
+ * 1 for a constant map); NaN is written as code 65535, the nodata code and
+ * an infinity as the nearest end code. The round trip through
+ * pl_map_load_png() is exact to scale / 2 (plus the float rounding of the
+ * decoded value). All six plyledger.* chunks are written as tEXt before
+ * the image data (quantity and unit may be empty). A failed write removes
+ * the file.
+ * @return PL_OK, PL_EINVAL (c out of range), PL_EIO, PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err);
 
@@ -218,25 +232,32 @@ PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, p
  * Read a NumPy .npy file (format 1.0, 2.0 or 3.0): dtype float32, float64 or
  * uint16 of either byte order, C order, 2-D (rows x cols) or 3-D
  * (channels x rows x cols). Quantity, unit and pitch are left for the
- * caller (empty, 1 mm).
+ * caller (empty quantity and unit, pitch NaN: not known). A file shorter than its header promises is refused
+ * before the map is allocated; bytes after the data are ignored.
  * @return PL_OK, PL_EIO, PL_EFORMAT (bad magic, header, dtype, order, rank,
- *         truncated data), PL_ENOMEM.
+ *         an empty or too large shape, truncated data), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err);
 
 /**
  * Write the map as little-endian float32 .npy (format 1.0): 2-D when it has
- * one channel, else 3-D channels x rows x cols.
- * @return PL_OK, PL_EIO.
+ * one channel, else 3-D channels x rows x cols. Values are written bit for
+ * bit. A failed write removes the file.
+ * @return PL_OK, PL_EIO, PL_EINVAL (the map's size fields are invalid).
  */
 PL_EXPORT int pl_map_save_npy(const pl_map *map, const char *path, pl_err *err);
 
 /**
- * Read a CSV grid: one row of the map per line, comma separated numbers; an
- * empty field, "nan" or "NaN" is no data. Every line must have the same
- * number of fields. Lines starting with '#' are skipped.
+ * Read a CSV grid: one row of the map per line, comma separated decimal
+ * numbers (sign, digits, fraction, exponent; blanks around a field are
+ * allowed); an empty field or "nan" in any case is no data. Every line must
+ * have the same number of fields. Lines starting with '#' and blank lines
+ * are skipped (so a one-column grid writes "nan" for no data); LF or CRLF
+ * line ends and a leading UTF-8 byte order mark are accepted. Quantity and
+ * unit are left empty and the pitch NaN (not known) for the caller.
  * @return PL_OK, PL_EIO, PL_EFORMAT (ragged rows, a field that is not a
- *         number, empty file), PL_ENOMEM.
+ *         number or lies outside the float32 range, "inf", no data rows,
+ *         more than PL_MAP_MAX_SIDE rows or columns), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err);
 

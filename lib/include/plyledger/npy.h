@@ -48,24 +48,34 @@ typedef struct pl_npy_header {
 /**
  * Parse the header at the start of `f` (positioned at offset 0). On success
  * `f` is left at data_offset. `name` is used in messages only.
+ * The dict may list its keys in any order with any spacing; a key other
+ * than the three, a repeated key, more than PL_NPY_MAX_DIMS dimensions, a
+ * shape whose element count overflows 64 bits and a header longer than
+ * 1 MiB are refused. A structured dtype (a list) parses with descr
+ * "structured".
  * @param[out] hdr  the header
  * @return PL_OK, PL_EIO (read error), PL_EFORMAT (bad magic or version,
- *         malformed dict, missing key, unsupported descr string syntax).
- *         An unknown dtype is PL_OK with dtype PL_NPY_UNSUPPORTED.
+ *         truncated or malformed header, missing key, unsupported descr
+ *         string syntax). An unknown dtype is PL_OK with dtype
+ *         PL_NPY_UNSUPPORTED.
  */
 PL_EXPORT int pl_npy_read_header(pl_npy_header *hdr, FILE *f, const char *name, pl_err *err);
 
 /**
  * Write a version 1.0 header for a C-order array of `descr` ("<f4", "<u2"...)
- * and `shape`, padded so the data starts on a 64-byte boundary.
- * @return PL_OK, PL_EINVAL (ndim out of range), PL_EIO.
+ * and `shape`, laid out as numpy writes it: padded with spaces (including
+ * numpy's spare room for a growing first axis) and a newline so the data
+ * starts on a 64-byte boundary.
+ * @return PL_OK, PL_EINVAL (ndim out of range, descr empty, longer than 15
+ *         characters or holding a quote), PL_EIO.
  */
 PL_EXPORT int pl_npy_write_header(FILE *f, const char *descr, int ndim,
                                   const uint64_t *shape, const char *name, pl_err *err);
 
 /**
  * Convert `n` elements of `hdr`'s dtype and byte order at `src` to float
- * ([out] dst). Supported dtypes only.
+ * ([out] dst), whatever the host's byte order. Supported dtypes only; an
+ * unsupported one gives NaN.
  */
 PL_EXPORT void pl_npy_to_float(float *dst, const void *src, size_t n, const pl_npy_header *hdr);
 

@@ -4,7 +4,7 @@
  * A store holds airframes (by serial), their inspection sites (by code,
  * unique per airframe), the inspections of each site and the maps each
  * inspection produced; the schema also holds the tables that indication,
- * comparison and disposition work fills (see schema/*.sql).
+ * comparison and disposition work fills (see the schema folder).
  *
  * Append-only. Recorded rows are never updated or deleted; SQLite triggers
  * refuse it. A correction is a new row that supersedes the current version
@@ -25,7 +25,10 @@
  *
  * Records are plain structs with fixed text buffers, filled by the caller
  * for writes and by the store for reads. Text that does not fit its buffer
- * is refused with PL_EINVAL. Numbers that are unknown are NaN (doubles) or
+ * is refused with PL_EINVAL. Names (serials, codes, references, people) are
+ * one line without leading or trailing spaces; dates are real calendar
+ * dates written YYYY-MM-DD. A writing call on a store opened with
+ * PL_STORE_READONLY returns PL_EDB. Numbers that are unknown are NaN (doubles) or
  * -1 (counts). Listing calls hand each record to a callback; the record is
  * borrowed for the callback's duration only. A callback returns 0 to go on
  * or non-zero to stop the listing (which then returns PL_OK).
@@ -113,10 +116,11 @@ typedef struct pl_airframe {
 
 /**
  * Register an airframe; when operator_name is set it starts the operator
- * history from operator_since (or the date of manufacture).
+ * history from operator_since (or the date of manufacture; one of the two
+ * is then required, and operator_since may not precede manufacture).
  * @param[out] id  the new row (may be NULL)
- * @return PL_OK, PL_EINVAL (missing serial or type, bad date), PL_EEXISTS
- *         (serial already registered), PL_EDB.
+ * @return PL_OK, PL_EINVAL (missing serial or type, bad date, operator
+ *         without a date), PL_EEXISTS (serial already registered), PL_EDB.
  */
 PL_EXPORT int pl_store_add_airframe(pl_store *store, const pl_airframe *af, pl_id *id, pl_err *err);
 
@@ -128,7 +132,8 @@ PL_EXPORT int pl_store_get_airframe(pl_store *store, const char *serial, pl_airf
 
 /**
  * Record that `operator_name` operates the airframe from `since`
- * (YYYY-MM-DD). Dates must not go backwards.
+ * (YYYY-MM-DD). Dates must not go backwards: `since` may not precede the
+ * current operator's start or the date of manufacture.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
  */
 PL_EXPORT int pl_store_add_operator(pl_store *store, const char *serial, const char *operator_name,
@@ -136,7 +141,8 @@ PL_EXPORT int pl_store_add_operator(pl_store *store, const char *serial, const c
 
 typedef int (*pl_operator_fn)(void *ud, const char *operator_name, const char *since,
                               const char *recorded_at);
-/** The operator history of an airframe, oldest first. */
+/** The operator history of an airframe, oldest first (by since, then as
+ * recorded). @return PL_OK, PL_ENOTFOUND, PL_EDB. */
 PL_EXPORT int pl_store_list_operators(pl_store *store, const char *serial, pl_operator_fn fn,
                                       void *ud, pl_err *err);
 
@@ -154,6 +160,8 @@ PL_EXPORT int pl_store_list_airframes(pl_store *store, const pl_airframe_filter 
 /**
  * Correct an airframe: `af` holds the full corrected record (serial names
  * the airframe and cannot itself change). `reason` is required.
+ * operator_name and operator_since are ignored: the operator history only
+ * grows, through pl_store_add_operator().
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
  */
 PL_EXPORT int pl_store_correct_airframe(pl_store *store, const pl_airframe *af, const char *reason,
@@ -184,7 +192,8 @@ typedef struct pl_site {
 
 /**
  * Check a site record: code, method and placement valid, pitches finite and
- * positive, thickness and diffusivity NaN or positive.
+ * positive, thickness and diffusivity NaN or positive, expected size at most
+ * PL_MAP_MAX_SIDE. airframe_serial may be empty (a site of a plan).
  * @return PL_OK, PL_EINVAL.
  */
 PL_EXPORT int pl_site_check(const pl_site *site, pl_err *err);
@@ -271,8 +280,9 @@ PL_EXPORT int pl_store_get_inspection(pl_store *store, pl_id key, pl_inspection 
 
 /**
  * Correct the inspection whose key is `key`; `insp` is the full corrected
- * record (its airframe and site must stay the same).
- * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
+ * record (its airframe and site must stay the same). `reason` is required.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EEXISTS (it would become a
+ *         second baseline), PL_EDB.
  */
 PL_EXPORT int pl_store_correct_inspection(pl_store *store, pl_id key, const pl_inspection *insp,
                                           const char *reason, pl_id *id, pl_err *err);
@@ -286,7 +296,8 @@ typedef struct pl_inspection_filter {
 } pl_inspection_filter;
 
 typedef int (*pl_inspection_fn)(void *ud, const pl_inspection *insp);
-/** Current inspections, oldest first (performed_on, then key). */
+/** Current inspections, oldest first (performed_on, then key).
+ * @return PL_OK, PL_EINVAL (a filter date or kind that is not valid), PL_EDB. */
 PL_EXPORT int pl_store_list_inspections(pl_store *store, const pl_inspection_filter *filter,
                                         pl_inspection_fn fn, void *ud, pl_err *err);
 
@@ -296,9 +307,11 @@ PL_EXPORT int pl_store_list_inspections(pl_store *store, const pl_inspection_fil
 typedef struct pl_map_record {
     pl_id id;                             /**< (read) */
     pl_id inspection_key;                 /**< the inspection it belongs to */
-    char source[PL_TEXT_SIZE];            /**< file it came from (name only) */
+    char source[PL_TEXT_SIZE];            /**< file it came from (only its base name
+                                               is stored); optional */
     char origin[PL_NAME_SIZE];            /**< how it was made: "import-png",
-                                               "import-npy", "import-csv", "reduce" ... */
+                                               "import-npy", "import-csv", "reduce" ...;
+                                               required */
     char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
     char *parameters_json;                /**< parameters of its making, or NULL */
     uint32_t width, height, nchannels;    /**< (read) */
@@ -313,8 +326,11 @@ typedef struct pl_map_record {
 /**
  * Store a map for an inspection. The map's size must equal the site's
  * expected size (when set), its pitches the site's within 0.1 %, every
- * channel must have a valid quantity and unit, and no other map of the
- * inspection may have the same content.
+ * channel must have a valid quantity and unit (pl_quantity_check()), its
+ * placement must pass pl_placement_check() and is stored as the map's own,
+ * and no other map of the inspection may have the same content (SHA-256 of
+ * the decoded data). Only inspection_key, source, origin, software_version
+ * and parameters_json are read from `rec`.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (inspection), PL_ENOMATCH (size or
  *         pitch differs from the site's), PL_EEXISTS (same content), PL_EDB.
  */

@@ -1,0 +1,271 @@
+/*
+ * cli.c - shared helpers of the subcommands: messages, option parsing,
+ * opening the store, progress and tables.
+ */
+#include "cli.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+const char *cli_current = "plyledger";
+
+int cli_fail(const char *fmt, ...)
+{
+    va_list ap;
+    fputs("plyledger: ", stderr);
+    va_start(ap, fmt);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
+    fputc('\n', stderr);
+    return CLI_ERROR;
+}
+
+int cli_fail_err(int code, const pl_err *err)
+{
+    return cli_fail("%s", pl_err_message(err, code));
+}
+
+int cli_usage_error(const char *usage, const char *fmt, ...)
+{
+    va_list ap;
+    fputs("plyledger: ", stderr);
+    va_start(ap, fmt);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
+    fputc('\n', stderr);
+    if (usage)
+        fprintf(stderr, "usage: plyledger %s %s\n", cli_current, usage);
+    fprintf(stderr, "Try 'plyledger %s --help' for more.\n", cli_current);
+    return CLI_USAGE;
+}
+
+int cli_help(const char *text)
+{
+    fputs(text, stdout);
+    return CLI_OK;
+}
+
+/* The options every command takes, appended after the command's own. */
+enum { OPT_JSON = 0x1001, OPT_HELP_LONG };
+static const struct option common_options[] = {
+    { "store", required_argument, NULL, 's' },
+    { "json", no_argument, NULL, OPT_JSON },
+    { "quiet", no_argument, NULL, 'q' },
+    { "help", no_argument, NULL, 'h' },
+};
+
+int cli_parse(int argc, char **argv, const char *shortopts, const struct option *longopts,
+              cli_common *common, cli_opt_fn on_opt, void *ctx, const char *usage,
+              const char *help, int *first_arg)
+{
+    size_t nown = 0;
+    while (longopts && longopts[nown].name)
+        nown++;
+    size_t ncommon = sizeof common_options / sizeof common_options[0];
+    struct option *all = calloc(nown + ncommon + 1, sizeof *all);
+    char shorts[128];
+    if (!all)
+        return cli_fail("out of memory");
+    memcpy(all, longopts, nown * sizeof *all);
+    memcpy(all + nown, common_options, sizeof common_options);
+    snprintf(shorts, sizeof shorts, ":s:qh%s", shortopts ? shortopts : "");
+
+    memset(common, 0, sizeof *common);
+    common->store = getenv("PLYLEDGER_STORE");
+    if (common->store && !*common->store)
+        common->store = NULL;
+    optind = 1;
+    opterr = 0;
+    int rc = -1, opt;
+    while (rc < 0 && (opt = getopt_long(argc, argv, shorts, all, NULL)) != -1) {
+        switch (opt) {
+        case 's': common->store = optarg; break;
+        case 'q': common->quiet = 1; break;
+        case OPT_JSON: common->json = 1; break;
+        case 'h': rc = cli_help(help); break;
+        case ':':
+            rc = cli_usage_error(usage, "option '%s' needs a value", argv[optind - 1]);
+            break;
+        case '?':
+            if (optopt)
+                rc = cli_usage_error(usage, "unknown option '-%c'", optopt);
+            else
+                rc = cli_usage_error(usage, "unknown option '%s'", argv[optind - 1]);
+            break;
+        default:
+            if (on_opt) {
+                int r = on_opt(ctx, opt, optarg);
+                if (r)
+                    rc = r;
+            }
+        }
+    }
+    free(all);
+    *first_arg = optind;
+    return rc;
+}
+
+int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
+{
+    if (!common->store)
+        return cli_usage_error(NULL, "no store given: use --store PATH or set PLYLEDGER_STORE");
+    pl_err err = { 0 };
+    int rc = pl_store_open(out, common->store, flags, &err);
+    if (rc)
+        return cli_fail_err(rc, &err);
+    return CLI_OK;
+}
+
+int cli_text(char *dst, size_t cap, const char *src, const char *opt)
+{
+    if (!src)
+        return 0;
+    size_t n = strlen(src);
+    if (n >= cap)
+        return cli_usage_error(NULL, "%s: too long (at most %zu characters)", opt, cap - 1);
+    memcpy(dst, src, n + 1);
+    return 0;
+}
+
+int cli_number(const char *opt, const char *arg, double *out, const char *usage)
+{
+    char *end;
+    errno = 0;
+    double v = strtod(arg, &end);
+    if (end == arg || *end || errno || !isfinite(v))
+        return cli_usage_error(usage, "%s: '%s' is not a number", opt, arg);
+    *out = v;
+    return 0;
+}
+
+int cli_count(const char *opt, const char *arg, long long *out, const char *usage)
+{
+    char *end;
+    errno = 0;
+    long long v = strtoll(arg, &end, 10);
+    if (end == arg || *end || errno || v < 0)
+        return cli_usage_error(usage, "%s: '%s' is not a whole number >= 0", opt, arg);
+    *out = v;
+    return 0;
+}
+
+void cli_progress_init(cli_progress *p, const char *label, const cli_common *common)
+{
+    p->label = label;
+    p->enabled = !common->quiet && isatty(STDERR_FILENO);
+    p->last_percent = -1;
+}
+
+int cli_progress_fn(void *ud, double fraction)
+{
+    cli_progress *p = ud;
+    if (!p->enabled)
+        return 0;
+    int pct = (int)(fraction * 100.0 + 0.5);
+    if (pct != p->last_percent) {
+        fprintf(stderr, "\r%s %3d%%", p->label, pct);
+        fflush(stderr);
+        p->last_percent = pct;
+    }
+    return 0;
+}
+
+void cli_progress_done(cli_progress *p)
+{
+    if (p->enabled && p->last_percent >= 0)
+        fprintf(stderr, "\r%*s\r", (int)strlen(p->label) + 6, "");
+}
+
+/* ---- tables ------------------------------------------------------------ */
+
+struct cli_table {
+    int ncols;
+    size_t nrows, cap;
+    char **cells;  /* (nrows + 1) * ncols, header first */
+};
+
+static char *dup_cell(const char *s)
+{
+    if (!s)
+        s = "";
+    size_t n = strlen(s) + 1;
+    char *d = malloc(n);
+    if (d)
+        memcpy(d, s, n);
+    return d;
+}
+
+cli_table *cli_table_new(int ncols, const char *const *headers)
+{
+    cli_table *t = calloc(1, sizeof *t);
+    if (!t)
+        return NULL;
+    t->ncols = ncols;
+    cli_table_row(t, headers);
+    return t;
+}
+
+void cli_table_row(cli_table *t, const char *const *cells)
+{
+    if (!t)
+        return;
+    if (t->nrows == t->cap) {
+        size_t cap = t->cap ? t->cap * 2 : 16;
+        char **grown = realloc(t->cells, cap * (size_t)t->ncols * sizeof *grown);
+        if (!grown)
+            return;
+        t->cells = grown;
+        t->cap = cap;
+    }
+    for (int c = 0; c < t->ncols; c++)
+        t->cells[t->nrows * (size_t)t->ncols + (size_t)c] = dup_cell(cells[c]);
+    t->nrows++;
+}
+
+void cli_table_print(cli_table *t, FILE *out)
+{
+    if (!t)
+        return;
+    size_t width[64] = { 0 };
+    int ncols = t->ncols < 64 ? t->ncols : 64;
+    for (size_t r = 0; r < t->nrows; r++)
+        for (int c = 0; c < ncols; c++) {
+            const char *s = t->cells[r * (size_t)t->ncols + (size_t)c];
+            size_t n = s ? strlen(s) : 0;
+            if (n > width[c])
+                width[c] = n;
+        }
+    for (size_t r = 0; r < t->nrows; r++) {
+        for (int c = 0; c < ncols; c++) {
+            const char *s = t->cells[r * (size_t)t->ncols + (size_t)c];
+            if (c == ncols - 1)
+                fprintf(out, "%s", s ? s : "");
+            else
+                fprintf(out, "%-*s  ", (int)width[c], s ? s : "");
+        }
+        fputc('\n', out);
+    }
+}
+
+void cli_table_free(cli_table *t)
+{
+    if (!t)
+        return;
+    for (size_t i = 0; i < t->nrows * (size_t)t->ncols; i++)
+        free(t->cells[i]);
+    free(t->cells);
+    free(t);
+}
+
+const char *cli_fmt_num(char *buf, size_t size, double v)
+{
+    if (isnan(v))
+        snprintf(buf, size, "-");
+    else
+        snprintf(buf, size, "%g", v);
+    return buf;
+}

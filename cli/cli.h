@@ -1,0 +1,132 @@
+/*
+ * cli.h - what every plyledger subcommand shares: exit codes, failure and
+ * usage helpers, opening the store, progress, tables and JSON output.
+ *
+ * The CLI is thin: it parses options, calls the library and prints. No
+ * computation lives here.
+ */
+#ifndef PLYLEDGER_CLI_H
+#define PLYLEDGER_CLI_H
+
+#include <plyledger.h>
+
+#include <cjson/cJSON.h>
+#include <getopt.h>
+#include <stdio.h>
+
+/* Exit codes. */
+enum {
+    CLI_OK = 0,     /* success */
+    CLI_ERROR = 1,  /* the work failed: bad input, missing record, I/O */
+    CLI_USAGE = 2,  /* the command line itself is wrong */
+};
+
+/* One subcommand: its name, entry point, one-line summary and usage text
+ * (the part after "plyledger NAME"). */
+typedef struct cli_command {
+    const char *name;
+    int (*run)(int argc, char **argv);
+    const char *summary;
+} cli_command;
+
+/* The table of subcommands (main.c). */
+extern const cli_command cli_commands[];
+extern const size_t cli_command_count;
+
+/* Options every command understands, filled by cli_parse(). */
+typedef struct cli_common {
+    const char *store;  /* --store, else $PLYLEDGER_STORE */
+    int json;           /* --json */
+    int quiet;          /* -q / --quiet */
+} cli_common;
+
+/* The command being run, for messages ("plyledger record: ..."). */
+extern const char *cli_current;
+
+/* Print "plyledger: <message>" to stderr; returns CLI_ERROR. */
+int cli_fail(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+
+/* Print the library's message for a failed call; returns CLI_ERROR. */
+int cli_fail_err(int code, const pl_err *err);
+
+/* Print "plyledger: <problem>" and the command's short usage to stderr;
+ * returns CLI_USAGE. */
+int cli_usage_error(const char *usage, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+
+/* Print help text to stdout; returns CLI_OK. */
+int cli_help(const char *text);
+
+/*
+ * getopt_long over argv with the command's options plus --store/-s,
+ * --json, --quiet/-q and --help/-h. Calls `on_opt` for the command's own
+ * options; it returns 0, or CLI_USAGE after printing a problem. Returns -1
+ * to go on, or an exit code (help printed, usage error). On return
+ * *first_arg is the index of the first operand.
+ */
+typedef int (*cli_opt_fn)(void *ctx, int opt, const char *arg);
+int cli_parse(int argc, char **argv, const char *shortopts, const struct option *longopts,
+              cli_common *common, cli_opt_fn on_opt, void *ctx, const char *usage,
+              const char *help, int *first_arg);
+
+/* Open the store named by common->store; prints the failure itself.
+ * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */
+int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
+
+/* Copy an option's text into a fixed record field; NULL leaves it alone.
+ * Returns 0, or CLI_USAGE (printed) when it does not fit. */
+int cli_text(char *dst, size_t cap, const char *src, const char *opt);
+
+/* Parse a number option strictly; prints a usage error naming `opt`. */
+int cli_number(const char *opt, const char *arg, double *out, const char *usage);
+int cli_count(const char *opt, const char *arg, long long *out, const char *usage);
+
+/* Progress on stderr when it is a terminal and not quiet. A pl_progress_fn. */
+typedef struct cli_progress {
+    const char *label;
+    int enabled;
+    int last_percent;
+} cli_progress;
+void cli_progress_init(cli_progress *p, const char *label, const cli_common *common);
+int cli_progress_fn(void *ud, double fraction);
+void cli_progress_done(cli_progress *p);
+
+/* A simple text table: add a header, then rows; printed with aligned
+ * columns. Cells are copied. */
+typedef struct cli_table cli_table;
+cli_table *cli_table_new(int ncols, const char *const *headers);
+void cli_table_row(cli_table *t, const char *const *cells);
+void cli_table_print(cli_table *t, FILE *out);
+void cli_table_free(cli_table *t);
+
+/* Print a cJSON value (formatted) to stdout and delete it. Returns CLI_OK,
+ * or CLI_ERROR when it is NULL (out of memory). */
+int cli_print_json(cJSON *value);
+
+/* JSON forms of the records (NaN / unknown become null). */
+cJSON *cli_json_airframe(const pl_airframe *af);
+cJSON *cli_json_site(const pl_site *s);
+cJSON *cli_json_inspection(const pl_inspection *in);
+cJSON *cli_json_map(const pl_map_record *m);
+cJSON *cli_json_placement(const pl_placement *p);
+
+/* "%g" of a double, or "-" when NaN; returns buf. */
+const char *cli_fmt_num(char *buf, size_t size, double v);
+
+/* Subcommands. */
+int cmd_create(int argc, char **argv);
+int cmd_add_airframe(int argc, char **argv);
+int cmd_set_operator(int argc, char **argv);
+int cmd_import_plan(int argc, char **argv);
+int cmd_record(int argc, char **argv);
+int cmd_correct(int argc, char **argv);
+int cmd_airframes(int argc, char **argv);
+int cmd_sites(int argc, char **argv);
+int cmd_inspections(int argc, char **argv);
+int cmd_history(int argc, char **argv);
+int cmd_export_map(int argc, char **argv);
+int cmd_summary(int argc, char **argv);
+int cmd_quantities(int argc, char **argv);
+int cmd_version(int argc, char **argv);
+int cmd_help(int argc, char **argv);
+
+#endif

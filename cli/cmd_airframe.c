@@ -1,0 +1,187 @@
+/*
+ * cmd_airframe.c - plyledger add-airframe and set-operator.
+ */
+#include "cli.h"
+
+#include <string.h>
+
+/* ---- add-airframe ------------------------------------------------------- */
+
+static const char add_usage[] = "--serial SERIAL --type TYPE [options]";
+static const char add_help[] =
+    "usage: plyledger add-airframe --serial SERIAL --type TYPE [options]\n"
+    "\n"
+    "Register an airframe in the store by its manufacturer serial number.\n"
+    "\n"
+    "Options:\n"
+    "      --serial SERIAL      manufacturer serial number (required)\n"
+    "      --type TYPE          aircraft type designation (required)\n"
+    "      --manufactured DATE  date of manufacture, YYYY-MM-DD\n"
+    "      --operator NAME      first operator\n"
+    "      --since DATE         date the operator took it over (default: manufacture)\n"
+    "      --notes TEXT         free notes\n"
+    "  -s, --store PATH         the store (default $PLYLEDGER_STORE)\n"
+    "      --json               print the registered airframe as JSON\n"
+    "  -q, --quiet              print nothing on success\n"
+    "  -h, --help               show this help\n";
+
+enum { O_SERIAL = 0x100, O_TYPE, O_MANUFACTURED, O_OPERATOR, O_SINCE, O_NOTES };
+
+static const struct option add_opts[] = {
+    { "serial", required_argument, NULL, O_SERIAL },
+    { "type", required_argument, NULL, O_TYPE },
+    { "manufactured", required_argument, NULL, O_MANUFACTURED },
+    { "operator", required_argument, NULL, O_OPERATOR },
+    { "since", required_argument, NULL, O_SINCE },
+    { "notes", required_argument, NULL, O_NOTES },
+    { NULL, 0, NULL, 0 },
+};
+
+typedef struct airframe_args {
+    const char *serial, *type, *manufactured, *operator_name, *since, *notes;
+} airframe_args;
+
+static int take_airframe_opt(void *ctx, int opt, const char *arg)
+{
+    airframe_args *a = ctx;
+    switch (opt) {
+    case O_SERIAL: a->serial = arg; break;
+    case O_TYPE: a->type = arg; break;
+    case O_MANUFACTURED: a->manufactured = arg; break;
+    case O_OPERATOR: a->operator_name = arg; break;
+    case O_SINCE: a->since = arg; break;
+    case O_NOTES: a->notes = arg; break;
+    default: return cli_usage_error(add_usage, "unexpected option");
+    }
+    return 0;
+}
+
+int cmd_add_airframe(int argc, char **argv)
+{
+    cli_common common;
+    airframe_args a = { 0 };
+    int first;
+    int rc = cli_parse(argc, argv, "", add_opts, &common, take_airframe_opt, &a, add_usage,
+                       add_help, &first);
+    if (rc >= 0)
+        return rc;
+    if (first < argc)
+        return cli_usage_error(add_usage, "unexpected operand '%s'", argv[first]);
+    if (!a.serial || !a.type)
+        return cli_usage_error(add_usage, "--serial and --type are required");
+    if (a.since && !a.operator_name)
+        return cli_usage_error(add_usage, "--since goes with --operator");
+    pl_airframe af;
+    memset(&af, 0, sizeof af);
+    if ((rc = cli_text(af.serial, sizeof af.serial, a.serial, "--serial"))
+        || (rc = cli_text(af.aircraft_type, sizeof af.aircraft_type, a.type, "--type"))
+        || (rc = cli_text(af.manufactured, sizeof af.manufactured, a.manufactured, "--manufactured"))
+        || (rc = cli_text(af.operator_name, sizeof af.operator_name, a.operator_name, "--operator"))
+        || (rc = cli_text(af.operator_since, sizeof af.operator_since, a.since, "--since"))
+        || (rc = cli_text(af.notes, sizeof af.notes, a.notes, "--notes")))
+        return rc;
+    pl_store *store;
+    if ((rc = cli_open_store(&store, &common, 0)))
+        return rc;
+    pl_err err = { 0 };
+    int st = pl_store_add_airframe(store, &af, NULL, &err);
+    if (!st)
+        st = pl_store_get_airframe(store, af.serial, &af, &err);
+    pl_store_close(store);
+    if (st)
+        return cli_fail_err(st, &err);
+    if (common.json)
+        return cli_print_json(cli_json_airframe(&af));
+    if (!common.quiet)
+        printf("registered airframe %s (%s)\n", af.serial, af.aircraft_type);
+    return CLI_OK;
+}
+
+/* ---- set-operator ------------------------------------------------------- */
+
+static const char op_usage[] = "--serial SERIAL --operator NAME --since DATE";
+static const char op_help[] =
+    "usage: plyledger set-operator --serial SERIAL --operator NAME --since DATE\n"
+    "\n"
+    "Record that an airframe passed to another operator on DATE. The operator\n"
+    "history is kept; dates must not go backwards.\n"
+    "\n"
+    "Options:\n"
+    "      --serial SERIAL   the airframe (required)\n"
+    "      --operator NAME   the new operator (required)\n"
+    "      --since DATE      YYYY-MM-DD (required)\n"
+    "  -s, --store PATH      the store (default $PLYLEDGER_STORE)\n"
+    "      --json            print the operator history as JSON\n"
+    "  -q, --quiet           print nothing on success\n"
+    "  -h, --help            show this help\n";
+
+typedef struct history_out {
+    cJSON *array;
+    cli_table *table;
+} history_out;
+
+static int on_operator(void *ud, const char *name, const char *since, const char *recorded_at)
+{
+    history_out *h = ud;
+    if (h->array) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "operator", name);
+        cJSON_AddStringToObject(o, "since", since);
+        cJSON_AddStringToObject(o, "recorded_at", recorded_at);
+        cJSON_AddItemToArray(h->array, o);
+    }
+    if (h->table) {
+        const char *row[] = { since, name };
+        cli_table_row(h->table, row);
+    }
+    return 0;
+}
+
+int cmd_set_operator(int argc, char **argv)
+{
+    cli_common common;
+    airframe_args a = { 0 };
+    int first;
+    int rc = cli_parse(argc, argv, "", add_opts, &common, take_airframe_opt, &a, op_usage,
+                       op_help, &first);
+    if (rc >= 0)
+        return rc;
+    if (first < argc)
+        return cli_usage_error(op_usage, "unexpected operand '%s'", argv[first]);
+    if (a.type || a.manufactured || a.notes)
+        return cli_usage_error(op_usage, "only --serial, --operator and --since apply here");
+    if (!a.serial || !a.operator_name || !a.since)
+        return cli_usage_error(op_usage, "--serial, --operator and --since are required");
+    pl_store *store;
+    if ((rc = cli_open_store(&store, &common, 0)))
+        return rc;
+    pl_err err = { 0 };
+    int st = pl_store_add_operator(store, a.serial, a.operator_name, a.since, &err);
+    history_out h = { 0 };
+    if (!st && common.json)
+        h.array = cJSON_CreateArray();
+    else if (!st && !common.quiet) {
+        const char *hdr[] = { "SINCE", "OPERATOR" };
+        h.table = cli_table_new(2, hdr);
+    }
+    if (!st)
+        st = pl_store_list_operators(store, a.serial, on_operator, &h, &err);
+    pl_store_close(store);
+    if (st) {
+        cJSON_Delete(h.array);
+        cli_table_free(h.table);
+        return cli_fail_err(st, &err);
+    }
+    if (h.array) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "airframe", a.serial);
+        cJSON_AddItemToObject(o, "operators", h.array);
+        return cli_print_json(o);
+    }
+    if (h.table) {
+        printf("operator history of %s:\n", a.serial);
+        cli_table_print(h.table, stdout);
+        cli_table_free(h.table);
+    }
+    return CLI_OK;
+}

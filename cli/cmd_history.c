@@ -1,0 +1,190 @@
+/*
+ * cmd_history.c - plyledger history: every inspection of one site, oldest
+ * first, with its traceability and maps.
+ */
+#include "cli.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+static const char usage[] = "--airframe SERIAL --site CODE [--json]";
+static const char help[] =
+    "usage: plyledger history --airframe SERIAL --site CODE [--json]\n"
+    "\n"
+    "Show a site's whole record: where it is on the airframe, then every\n"
+    "inspection of it, oldest first, with who did it, how, and the maps it\n"
+    "produced (size, pitch, quantities and content digest).\n"
+    "\n"
+    "Options:\n"
+    "      --airframe SERIAL  the airframe (required)\n"
+    "      --site CODE        the site (required)\n"
+    "  -s, --store PATH       the store (default $PLYLEDGER_STORE)\n"
+    "      --json             print JSON\n"
+    "  -h, --help             show this help\n";
+
+enum { O_AIRFRAME = 0x100, O_SITE };
+static const struct option opts[] = {
+    { "airframe", required_argument, NULL, O_AIRFRAME },
+    { "site", required_argument, NULL, O_SITE },
+    { NULL, 0, NULL, 0 },
+};
+
+typedef struct hist_args {
+    const char *airframe, *site;
+} hist_args;
+
+static int take_opt(void *ctx, int opt, const char *arg)
+{
+    hist_args *a = ctx;
+    if (opt == O_AIRFRAME)
+        a->airframe = arg;
+    else
+        a->site = arg;
+    return 0;
+}
+
+typedef struct insp_list {
+    pl_inspection *items;
+    size_t n, cap;
+    int oom;
+} insp_list;
+
+static int collect(void *ud, const pl_inspection *in)
+{
+    insp_list *l = ud;
+    if (l->n == l->cap) {
+        size_t cap = l->cap ? l->cap * 2 : 8;
+        pl_inspection *grown = realloc(l->items, cap * sizeof *grown);
+        if (!grown) {
+            l->oom = 1;
+            return 1;
+        }
+        l->items = grown;
+        l->cap = cap;
+    }
+    pl_inspection *copy = &l->items[l->n++];
+    *copy = *in;
+    copy->parameters_json = in->parameters_json ? strdup(in->parameters_json) : NULL;
+    return 0;
+}
+
+typedef struct map_out {
+    cJSON *array;  /* JSON mode */
+    int printed;   /* text mode */
+} map_out;
+
+static int on_map(void *ud, const pl_map_record *m)
+{
+    map_out *o = ud;
+    if (o->array) {
+        cJSON_AddItemToArray(o->array, cli_json_map(m));
+        return 0;
+    }
+    char quantities[512] = "";
+    for (uint32_t c = 0; c < m->nchannels; c++) {
+        size_t len = strlen(quantities);
+        snprintf(quantities + len, sizeof quantities - len, "%s%s [%s]", c ? ", " : "",
+                 m->channels[c].quantity, m->channels[c].unit);
+    }
+    printf("      map %lld: %s, %ux%u px at %g x %g mm, from %s (%s), sha256 %.16s...\n",
+           (long long)m->id, quantities, m->width, m->height, m->pitch_u, m->pitch_v,
+           m->source[0] ? m->source : "-", m->origin, m->sha256);
+    o->printed++;
+    return 0;
+}
+
+static void print_site(const pl_site *s)
+{
+    printf("site %s on airframe %s\n", s->code, s->airframe_serial);
+    printf("  zone %s, frame %s, stringer %s; %s\n", s->zone[0] ? s->zone : "-",
+           s->frame[0] ? s->frame : "-", s->stringer[0] ? s->stringer : "-",
+           s->description[0] ? s->description : "(no description)");
+    printf("  method %s; material %s", s->method, s->material[0] ? s->material : "-");
+    if (s->thickness_mm == s->thickness_mm)
+        printf(", %g mm thick", s->thickness_mm);
+    printf("\n  map frame: origin %g, %g, %g %s (%s); u (%g, %g, %g); v (%g, %g, %g)\n",
+           s->map_frame.origin[0], s->map_frame.origin[1], s->map_frame.origin[2],
+           s->map_frame.unit, s->map_frame.system, s->map_frame.u[0], s->map_frame.u[1],
+           s->map_frame.u[2], s->map_frame.v[0], s->map_frame.v[1], s->map_frame.v[2]);
+}
+
+static void print_inspection(const pl_inspection *in)
+{
+    char hours[32], cycles[32];
+    cli_fmt_num(hours, sizeof hours, in->aircraft_hours);
+    if (in->aircraft_cycles >= 0)
+        snprintf(cycles, sizeof cycles, "%lld", (long long)in->aircraft_cycles);
+    else
+        snprintf(cycles, sizeof cycles, "-");
+    printf("\n  %s  %-11s inspection %lld  task %s  FH %s  FC %s\n", in->performed_on, in->kind,
+           (long long)in->key, in->task_ref[0] ? in->task_ref : "-", hours, cycles);
+    printf("      procedure %s rev %s; inspector %s (level %s)\n", in->procedure,
+           in->procedure_rev, in->inspector, in->inspector_level);
+    printf("      equipment %s; calibration %s; software %s\n", in->equipment,
+           in->calibration_ref, in->software_version);
+    if (in->id != in->key)
+        printf("      (corrected record: version %lld)\n", (long long)in->id);
+    if (in->notes[0])
+        printf("      notes: %s\n", in->notes);
+}
+
+int cmd_history(int argc, char **argv)
+{
+    cli_common common;
+    hist_args a = { 0 };
+    int first;
+    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, &first);
+    if (rc >= 0)
+        return rc;
+    if (first < argc)
+        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if (!a.airframe || !a.site)
+        return cli_usage_error(usage, "--airframe and --site are required");
+    pl_store *store;
+    if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
+        return rc;
+    pl_err err = { 0 };
+    pl_site site;
+    insp_list list = { 0 };
+    int st = pl_store_get_site(store, a.airframe, a.site, &site, &err);
+    if (!st) {
+        pl_inspection_filter f = { a.airframe, a.site, NULL, NULL, NULL };
+        st = pl_store_list_inspections(store, &f, collect, &list, &err);
+        if (!st && list.oom)
+            st = PL_ENOMEM;
+    }
+    cJSON *root = NULL, *jinsp = NULL;
+    if (!st && common.json) {
+        root = cJSON_CreateObject();
+        cJSON_AddItemToObject(root, "site", cli_json_site(&site));
+        jinsp = cJSON_AddArrayToObject(root, "inspections");
+    } else if (!st) {
+        print_site(&site);
+        if (!list.n)
+            printf("\n  no inspections recorded\n");
+    }
+    for (size_t i = 0; !st && i < list.n; i++) {
+        map_out mo = { 0 };
+        if (jinsp) {
+            cJSON *o = cli_json_inspection(&list.items[i]);
+            mo.array = cJSON_AddArrayToObject(o, "maps");
+            cJSON_AddItemToArray(jinsp, o);
+        } else {
+            print_inspection(&list.items[i]);
+        }
+        st = pl_store_list_maps(store, list.items[i].key, on_map, &mo, &err);
+        if (!st && !jinsp && !mo.printed)
+            printf("      no maps\n");
+    }
+    pl_store_close(store);
+    for (size_t i = 0; i < list.n; i++)
+        free(list.items[i].parameters_json);
+    free(list.items);
+    if (st) {
+        cJSON_Delete(root);
+        return cli_fail_err(st, &err);
+    }
+    if (root)
+        return cli_print_json(root);
+    return CLI_OK;
+}

@@ -1,0 +1,136 @@
+/*
+ * cmd_summary.c - plyledger summary and plyledger quantities.
+ */
+#include "cli.h"
+
+#include <string.h>
+
+static const char usage[] = "[--json]";
+static const char help[] =
+    "usage: plyledger summary [--json]\n"
+    "\n"
+    "Show what the store holds: its identity and schema, how many airframes,\n"
+    "sites, inspections (by kind) and maps, the span of inspection dates, and how\n"
+    "many records were corrected.\n"
+    "\n"
+    "Options:\n"
+    "  -s, --store PATH   the store (default $PLYLEDGER_STORE)\n"
+    "      --json         print JSON\n"
+    "  -h, --help         show this help\n";
+
+static const char *const kinds[4] = { "baseline", "scheduled", "unscheduled", "post-repair" };
+
+int cmd_summary(int argc, char **argv)
+{
+    cli_common common;
+    int first;
+    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, help, &first);
+    if (rc >= 0)
+        return rc;
+    if (first < argc)
+        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    pl_store *store;
+    if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
+        return rc;
+    pl_store_summary s;
+    pl_err err = { 0 };
+    int st = pl_store_summarize(store, &s, &err);
+    pl_store_close(store);
+    if (st)
+        return cli_fail_err(st, &err);
+    if (common.json) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "store", common.store);
+        cJSON_AddStringToObject(o, "store_id", s.store_id);
+        cJSON_AddNumberToObject(o, "schema_version", s.schema_version);
+        cJSON_AddStringToObject(o, "created_at", s.created_at);
+        cJSON_AddStringToObject(o, "created_by", s.created_by);
+        cJSON_AddNumberToObject(o, "airframes", (double)s.airframes);
+        cJSON_AddNumberToObject(o, "sites", (double)s.sites);
+        cJSON_AddNumberToObject(o, "inspections", (double)s.inspections);
+        cJSON *by = cJSON_AddObjectToObject(o, "inspections_by_kind");
+        for (int i = 0; i < 4; i++)
+            cJSON_AddNumberToObject(by, kinds[i], (double)s.inspections_by_kind[i]);
+        cJSON_AddNumberToObject(o, "maps", (double)s.maps);
+        cJSON_AddNumberToObject(o, "map_bytes", (double)s.map_bytes);
+        cJSON_AddNumberToObject(o, "corrections", (double)s.corrections);
+        cJSON_AddNumberToObject(o, "indications", (double)s.indications);
+        cJSON_AddNumberToObject(o, "comparisons", (double)s.comparisons);
+        cJSON_AddNumberToObject(o, "dispositions", (double)s.dispositions);
+        cJSON_AddNumberToObject(o, "ledger_links", (double)s.ledger_links);
+        if (s.first_inspection[0]) {
+            cJSON_AddStringToObject(o, "first_inspection", s.first_inspection);
+            cJSON_AddStringToObject(o, "last_inspection", s.last_inspection);
+        } else {
+            cJSON_AddNullToObject(o, "first_inspection");
+            cJSON_AddNullToObject(o, "last_inspection");
+        }
+        return cli_print_json(o);
+    }
+    printf("store        %s\n", common.store);
+    printf("store id     %s (schema %d, created %s by plyledger %s)\n", s.store_id,
+           s.schema_version, s.created_at, s.created_by);
+    printf("airframes    %lld\n", (long long)s.airframes);
+    printf("sites        %lld\n", (long long)s.sites);
+    printf("inspections  %lld (baseline %lld, scheduled %lld, unscheduled %lld, post-repair %lld)\n",
+           (long long)s.inspections, (long long)s.inspections_by_kind[0],
+           (long long)s.inspections_by_kind[1], (long long)s.inspections_by_kind[2],
+           (long long)s.inspections_by_kind[3]);
+    if (s.first_inspection[0])
+        printf("performed    %s to %s\n", s.first_inspection, s.last_inspection);
+    printf("maps         %lld (%.1f MiB stored)\n", (long long)s.maps,
+           (double)s.map_bytes / (1024.0 * 1024.0));
+    printf("corrections  %lld\n", (long long)s.corrections);
+    printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
+           (long long)s.comparisons, (long long)s.dispositions);
+    return CLI_OK;
+}
+
+static const char q_help[] =
+    "usage: plyledger quantities [--json]\n"
+    "\n"
+    "List the map quantities plyledger knows, with their accepted units (the\n"
+    "first is the default). Other quantity names are accepted as free quantities\n"
+    "when a unit is given.\n"
+    "\n"
+    "Options:\n"
+    "      --json    print JSON\n"
+    "  -h, --help    show this help\n";
+
+int cmd_quantities(int argc, char **argv)
+{
+    cli_common common;
+    int first;
+    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, q_help, &first);
+    if (rc >= 0)
+        return rc;
+    if (first < argc)
+        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    size_t n = pl_quantity_count();
+    if (common.json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (size_t i = 0; i < n; i++) {
+            const pl_quantity_info *q = pl_quantity_at(i);
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddStringToObject(o, "quantity", q->name);
+            cJSON *units = cJSON_AddArrayToObject(o, "units");
+            char buf[256];
+            snprintf(buf, sizeof buf, "%s", q->units);
+            for (char *save = NULL, *u = strtok_r(buf, " ", &save); u; u = strtok_r(NULL, " ", &save))
+                cJSON_AddItemToArray(units, cJSON_CreateString(u));
+            cJSON_AddStringToObject(o, "description", q->description);
+            cJSON_AddItemToArray(arr, o);
+        }
+        return cli_print_json(arr);
+    }
+    const char *hdr[] = { "QUANTITY", "UNITS", "DESCRIPTION" };
+    cli_table *t = cli_table_new(3, hdr);
+    for (size_t i = 0; i < n; i++) {
+        const pl_quantity_info *q = pl_quantity_at(i);
+        const char *row[] = { q->name, q->units, q->description };
+        cli_table_row(t, row);
+    }
+    cli_table_print(t, stdout);
+    cli_table_free(t);
+    return CLI_OK;
+}

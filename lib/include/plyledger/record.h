@@ -1,0 +1,123 @@
+/*
+ * plyledger/record.h - recording inspections: one or many sites of an
+ * airframe, each with its traceability and the map files it produced.
+ *
+ * A pl_record is a batch to be written into the store as one unit. It is
+ * built either from a JSON sidecar file (pl_record_load_sidecar()) or call by
+ * call (pl_record_add_site(), pl_record_add_map()), then written by
+ * pl_record_apply(), which loads each map file, completes what the file does
+ * not say (quantity, unit, pitch, placement) from the request or the site,
+ * and adds the inspections and maps, all or nothing. After a successful
+ * apply, each site's `inspection_key` and each map's `map_id` say what was
+ * recorded.
+ *
+ * Sidecar format (a JSON object; every key of the top level may be repeated
+ * inside a site entry to override it there):
+ *
+ *   {
+ *     "airframe": "serial",            "kind": "baseline",
+ *     "date": "YYYY-MM-DD",            "task": "task or check reference",
+ *     "hours": 1234.5,                 "cycles": 789,
+ *     "procedure": "reference",        "procedure_revision": "B",
+ *     "equipment": "equipment used",   "calibration": "reference standard",
+ *     "inspector": "name",             "inspector_level": "level",
+ *     "software_version": "x.y.z",     "notes": "text",
+ *     "parameters": { ...processing parameters... },
+ *     "sites": [
+ *       { "site": "code",
+ *         "maps": [ { "file": "relative/to/sidecar.npy",
+ *                     "channels": [ {"quantity": "...", "unit": "..."} ],
+ *                     "pitch_mm": 0.5  or  [0.5, 0.5],
+ *                     "placement": { "origin": [x,y,z], "u": [..], "v": [..],
+ *                                    "system": "STA/BL/WL", "unit": "mm" } } ] }
+ *     ]
+ *   }
+ *
+ * Unknown keys are refused, so a misspelt field is never silently lost.
+ * pl_record_new() / pl_record_load_sidecar() allocate; pl_record_free()
+ * releases everything, including the strings the record owns.
+ */
+#ifndef PLYLEDGER_RECORD_H
+#define PLYLEDGER_RECORD_H
+
+#include "plyledger/common.h"
+#include "plyledger/map.h"
+#include "plyledger/store.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/** One map file to record. */
+typedef struct pl_record_map {
+    char *path;               /**< file to import (.png, .npy, .csv); owned */
+    uint32_t nchannels;       /**< channel descriptions given (0: from the file) */
+    pl_channel *channels;     /**< nchannels entries; owned */
+    double pitch_u, pitch_v;  /**< mm per pixel; NaN: from the file, else the site */
+    int has_placement;        /**< 1: use `placement`, else the site's map frame */
+    pl_placement placement;
+    pl_id map_id;             /**< (after apply) the stored map */
+} pl_record_map;
+
+/** One site's inspection. */
+typedef struct pl_record_site {
+    pl_inspection insp;       /**< airframe, site and traceability; parameters_json owned */
+    size_t nmaps;
+    pl_record_map *maps;      /**< owned */
+    pl_id inspection_key;     /**< (after apply) the recorded inspection */
+} pl_record_site;
+
+typedef struct pl_record {
+    size_t nsites;
+    pl_record_site *sites;    /**< owned */
+} pl_record;
+
+/** An empty batch. @param[out] out  free with pl_record_free(). */
+PL_EXPORT int pl_record_new(pl_record **out, pl_err *err);
+
+/** Release a batch; NULL is accepted. */
+PL_EXPORT void pl_record_free(pl_record *rec);
+
+/**
+ * Append a site's inspection (copied, parameters_json included).
+ * @param[out] index  its position (may be NULL)
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_record_add_site(pl_record *rec, const pl_inspection *insp, size_t *index,
+                                 pl_err *err);
+
+/**
+ * Append a map file to site `site`. `quantities` and `units` are comma
+ * separated lists, one entry per channel (or NULL / "" to take them from the
+ * file); pitches NaN to take them from the file or the site.
+ * @return PL_OK, PL_EINVAL (site out of range, lists of different lengths,
+ *         bad quantity or unit), PL_ENOMEM.
+ */
+PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
+                                const char *quantities, const char *units,
+                                double pitch_u, double pitch_v, pl_err *err);
+
+/**
+ * Read a JSON sidecar (see the introduction). Map paths are taken relative
+ * to the sidecar's folder.
+ * @param[out] out  free with pl_record_free()
+ * @return PL_OK, PL_EIO, PL_EFORMAT (not JSON, wrong type, unknown key,
+ *         naming the key), PL_EINVAL (a value that fails its check), PL_ENOMEM.
+ */
+PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *err);
+
+/**
+ * Write the batch into the store: every inspection and map, or nothing.
+ * Each map file is loaded and checked against its site (size, pitch).
+ * `progress` (may be NULL) is told after each map.
+ * @return PL_OK, or the first failure (PL_EIO, PL_EFORMAT, PL_ENOTFOUND,
+ *         PL_ENOMATCH, PL_EEXISTS, PL_EINVAL, PL_EDB, PL_ECANCELED), with a
+ *         message naming the site and file.
+ */
+PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
+                              void *userdata, pl_err *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,580 @@
+/*
+ * record.c - batches of inspections with their map files, from a JSON
+ * sidecar or from calls, written into the store all or nothing.
+ */
+#include "plyledger/record.h"
+
+#include "common_int.h"
+
+#include <cjson/cJSON.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+PL_EXPORT int pl_record_new(pl_record **out, pl_err *err)
+{
+    *out = calloc(1, sizeof **out);
+    if (!*out)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    return PL_OK;
+}
+
+static void free_map_entry(pl_record_map *m)
+{
+    free(m->path);
+    free(m->channels);
+}
+
+PL_EXPORT void pl_record_free(pl_record *rec)
+{
+    if (!rec)
+        return;
+    for (size_t i = 0; i < rec->nsites; i++) {
+        pl_record_site *s = &rec->sites[i];
+        for (size_t j = 0; j < s->nmaps; j++)
+            free_map_entry(&s->maps[j]);
+        free(s->maps);
+        free(s->insp.parameters_json);
+    }
+    free(rec->sites);
+    free(rec);
+}
+
+PL_EXPORT int pl_record_add_site(pl_record *rec, const pl_inspection *insp, size_t *index,
+                                 pl_err *err)
+{
+    pl_record_site *grown = realloc(rec->sites, (rec->nsites + 1) * sizeof *grown);
+    if (!grown)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    rec->sites = grown;
+    pl_record_site *s = &rec->sites[rec->nsites];
+    memset(s, 0, sizeof *s);
+    s->insp = *insp;
+    s->insp.parameters_json = NULL;
+    if (insp->parameters_json && !(s->insp.parameters_json = pl__strdup(insp->parameters_json)))
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    if (index)
+        *index = rec->nsites;
+    rec->nsites++;
+    return PL_OK;
+}
+
+/* Split a comma separated list into at most `cap` trimmed items written
+ * into fixed buffers of `size` bytes each; returns the count or -1. */
+static int split_list(const char *list, char *items, size_t size, int cap)
+{
+    int n = 0;
+    const char *p = list;
+    while (*p) {
+        const char *end = strchr(p, ',');
+        size_t len = end ? (size_t)(end - p) : strlen(p);
+        while (len && (*p == ' ' || *p == '\t')) {
+            p++;
+            len--;
+        }
+        while (len && (p[len - 1] == ' ' || p[len - 1] == '\t'))
+            len--;
+        if (n >= cap || len >= size)
+            return -1;
+        memcpy(items + (size_t)n * size, p, len);
+        items[(size_t)n * size + len] = '\0';
+        n++;
+        if (!end)
+            break;
+        p = end + 1;
+    }
+    return n;
+}
+
+static int append_map(pl_record_site *s, pl_record_map **out, pl_err *err)
+{
+    pl_record_map *grown = realloc(s->maps, (s->nmaps + 1) * sizeof *grown);
+    if (!grown)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    s->maps = grown;
+    pl_record_map *m = &s->maps[s->nmaps++];
+    memset(m, 0, sizeof *m);
+    m->pitch_u = m->pitch_v = NAN;
+    *out = m;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
+                                const char *quantities, const char *units,
+                                double pitch_u, double pitch_v, pl_err *err)
+{
+    if (site >= rec->nsites)
+        return pl__err(err, PL_EINVAL, "site index %zu out of range", site);
+    if (!path || !*path)
+        return pl__err(err, PL_EINVAL, "map file name is empty");
+    enum { MAXCH = 32 };
+    char q[MAXCH][PL_QUANTITY_SIZE], u[MAXCH][PL_UNIT_SIZE];
+    int nq = quantities && *quantities ? split_list(quantities, q[0], PL_QUANTITY_SIZE, MAXCH) : 0;
+    int nu = units && *units ? split_list(units, u[0], PL_UNIT_SIZE, MAXCH) : 0;
+    if (nq < 0 || nu < 0)
+        return pl__err(err, PL_EINVAL, "%s: too many or too long quantities or units", path);
+    if (nu && nq != nu)
+        return pl__err(err, PL_EINVAL, "%s: %d quantities but %d units", path, nq, nu);
+    for (int i = 0; i < nq; i++) {
+        const char *unit = nu ? u[i] : pl_quantity_default_unit(q[i]);
+        if (!unit)
+            return pl__err(err, PL_EINVAL, "%s: quantity %s needs a unit", path, q[i]);
+        int rc = pl_quantity_check(q[i], unit, err);
+        if (rc)
+            return rc;
+        if (!nu && strlen(unit) < sizeof u[i])
+            memcpy(u[i], unit, strlen(unit) + 1);
+    }
+    if ((!isnan(pitch_u) && !(pitch_u > 0 && isfinite(pitch_u)))
+        || (!isnan(pitch_v) && !(pitch_v > 0 && isfinite(pitch_v))))
+        return pl__err(err, PL_EINVAL, "%s: pitch must be a positive number of mm", path);
+    pl_record_map *m = NULL;
+    int rc = append_map(&rec->sites[site], &m, err);
+    if (rc)
+        return rc;
+    m->pitch_u = pitch_u;
+    m->pitch_v = pitch_v;
+    if (!(m->path = pl__strdup(path)))
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    if (nq) {
+        if (!(m->channels = calloc((size_t)nq, sizeof *m->channels)))
+            return pl__err(err, PL_ENOMEM, "out of memory");
+        m->nchannels = (uint32_t)nq;
+        for (int i = 0; i < nq; i++) {
+            memcpy(m->channels[i].quantity, q[i], sizeof q[i]);
+            memcpy(m->channels[i].unit, u[i], sizeof u[i]);
+        }
+    }
+    return PL_OK;
+}
+
+/* ---- sidecar ----------------------------------------------------------- */
+
+/* The inspection fields a sidecar may give, at the top or per site. */
+typedef struct text_field {
+    const char *key;
+    size_t offset;
+    size_t size;
+} text_field;
+
+#define TEXT_FIELD(k, member) { k, offsetof(pl_inspection, member), sizeof(((pl_inspection *)0)->member) }
+static const text_field text_fields[] = {
+    TEXT_FIELD("airframe", airframe_serial),
+    TEXT_FIELD("site", site_code),
+    TEXT_FIELD("kind", kind),
+    TEXT_FIELD("task", task_ref),
+    TEXT_FIELD("date", performed_on),
+    TEXT_FIELD("procedure", procedure),
+    TEXT_FIELD("procedure_revision", procedure_rev),
+    TEXT_FIELD("equipment", equipment),
+    TEXT_FIELD("calibration", calibration_ref),
+    TEXT_FIELD("inspector", inspector),
+    TEXT_FIELD("inspector_level", inspector_level),
+    TEXT_FIELD("software_version", software_version),
+    TEXT_FIELD("notes", notes),
+};
+
+/* Apply the inspection keys of JSON object `obj` onto `insp`; `where`
+ * names the object in messages. Keys in `extra` are allowed and skipped. */
+static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const char *file,
+                                  const char *where, const char *const *extra, pl_err *err)
+{
+    for (const cJSON *it = obj->child; it; it = it->next) {
+        const char *k = it->string;
+        int known = 0;
+        for (size_t i = 0; i < sizeof text_fields / sizeof text_fields[0]; i++) {
+            if (strcmp(k, text_fields[i].key) != 0)
+                continue;
+            known = 1;
+            if (!cJSON_IsString(it))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"%s\" must be a string", file, where, k);
+            char what[128];
+            snprintf(what, sizeof what, "%s: %s: \"%s\"", file, where, k);
+            int rc = pl__copy_text((char *)insp + text_fields[i].offset, text_fields[i].size,
+                                   it->valuestring, what, err);
+            if (rc)
+                return rc;
+        }
+        if (known)
+            continue;
+        if (strcmp(k, "hours") == 0) {
+            if (!cJSON_IsNumber(it) || !(it->valuedouble >= 0))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"hours\" must be a number >= 0", file, where);
+            insp->aircraft_hours = it->valuedouble;
+        } else if (strcmp(k, "cycles") == 0) {
+            if (!cJSON_IsNumber(it) || !(it->valuedouble >= 0) || it->valuedouble != floor(it->valuedouble))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"cycles\" must be a whole number >= 0", file, where);
+            insp->aircraft_cycles = (int64_t)it->valuedouble;
+        } else if (strcmp(k, "parameters") == 0) {
+            if (!cJSON_IsObject(it))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"parameters\" must be an object", file, where);
+            char *txt = cJSON_PrintUnformatted(it);
+            if (!txt)
+                return pl__err(err, PL_ENOMEM, "out of memory");
+            free(insp->parameters_json);
+            insp->parameters_json = pl__strdup(txt);
+            cJSON_free(txt);
+            if (!insp->parameters_json)
+                return pl__err(err, PL_ENOMEM, "out of memory");
+        } else {
+            int allowed = 0;
+            for (const char *const *e = extra; e && *e; e++)
+                if (strcmp(k, *e) == 0)
+                    allowed = 1;
+            if (!allowed)
+                return pl__err(err, PL_EFORMAT, "%s: %s: unknown key \"%s\"", file, where, k);
+        }
+    }
+    return PL_OK;
+}
+
+static int take_vec3(double out[3], const cJSON *arr, const char *file, const char *what, pl_err *err)
+{
+    if (!cJSON_IsArray(arr) || cJSON_GetArraySize(arr) != 3)
+        return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+    for (int i = 0; i < 3; i++) {
+        const cJSON *v = cJSON_GetArrayItem(arr, i);
+        if (!cJSON_IsNumber(v))
+            return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+        out[i] = v->valuedouble;
+    }
+    return PL_OK;
+}
+
+static int take_placement(pl_placement *p, const cJSON *obj, const char *file, pl_err *err)
+{
+    if (!cJSON_IsObject(obj))
+        return pl__err(err, PL_EFORMAT, "%s: \"placement\" must be an object", file);
+    snprintf(p->system, sizeof p->system, "STA/BL/WL");
+    snprintf(p->unit, sizeof p->unit, "mm");
+    int have = 0;
+    for (const cJSON *it = obj->child; it; it = it->next) {
+        int rc = PL_OK;
+        if (strcmp(it->string, "origin") == 0)
+            rc = take_vec3(p->origin, it, file, "placement origin", err), have |= 1;
+        else if (strcmp(it->string, "u") == 0)
+            rc = take_vec3(p->u, it, file, "placement u", err), have |= 2;
+        else if (strcmp(it->string, "v") == 0)
+            rc = take_vec3(p->v, it, file, "placement v", err), have |= 4;
+        else if (strcmp(it->string, "system") == 0 && cJSON_IsString(it))
+            rc = pl__copy_text(p->system, sizeof p->system, it->valuestring, "placement system", err);
+        else if (strcmp(it->string, "unit") == 0 && cJSON_IsString(it))
+            rc = pl__copy_text(p->unit, sizeof p->unit, it->valuestring, "placement unit", err);
+        else
+            return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", file,
+                           it->string);
+        if (rc)
+            return rc;
+    }
+    if (have != 7)
+        return pl__err(err, PL_EFORMAT, "%s: placement needs \"origin\", \"u\" and \"v\"", file);
+    return pl_placement_check(p, err);
+}
+
+static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *file,
+                    const char *dir, pl_err *err)
+{
+    if (!cJSON_IsObject(obj))
+        return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", file);
+    const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL;
+    for (const cJSON *it = obj->child; it; it = it->next) {
+        if (strcmp(it->string, "file") == 0) jfile = it;
+        else if (strcmp(it->string, "channels") == 0) jch = it;
+        else if (strcmp(it->string, "pitch_mm") == 0) jpitch = it;
+        else if (strcmp(it->string, "placement") == 0) jplace = it;
+        else
+            return pl__err(err, PL_EFORMAT, "%s: map entry: unknown key \"%s\"", file, it->string);
+    }
+    if (!cJSON_IsString(jfile) || !*jfile->valuestring)
+        return pl__err(err, PL_EFORMAT, "%s: map entry needs \"file\" (a string)", file);
+    double pu = NAN, pv = NAN;
+    if (jpitch) {
+        if (cJSON_IsNumber(jpitch)) {
+            pu = pv = jpitch->valuedouble;
+        } else if (cJSON_IsArray(jpitch) && cJSON_GetArraySize(jpitch) == 2
+                   && cJSON_IsNumber(cJSON_GetArrayItem(jpitch, 0))
+                   && cJSON_IsNumber(cJSON_GetArrayItem(jpitch, 1))) {
+            pu = cJSON_GetArrayItem(jpitch, 0)->valuedouble;
+            pv = cJSON_GetArrayItem(jpitch, 1)->valuedouble;
+        } else {
+            return pl__err(err, PL_EFORMAT, "%s: \"pitch_mm\" must be a number or [u, v]", file);
+        }
+        if (!(pu > 0) || !(pv > 0))
+            return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
+    }
+    /* Build the comma lists pl_record_add_map() takes. */
+    char qlist[1024] = "", ulist[1024] = "";
+    if (jch) {
+        if (!cJSON_IsArray(jch))
+            return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", file);
+        int first = 1;
+        for (const cJSON *c = jch->child; c; c = c->next) {
+            const cJSON *q = cJSON_GetObjectItemCaseSensitive(c, "quantity");
+            const cJSON *u = cJSON_GetObjectItemCaseSensitive(c, "unit");
+            if (!cJSON_IsString(q) || (u && !cJSON_IsString(u)) || cJSON_GetArraySize(c) != (u ? 2 : 1))
+                return pl__err(err, PL_EFORMAT,
+                               "%s: each channel is {\"quantity\": text, \"unit\": text}", file);
+            const char *unit = u ? u->valuestring : pl_quantity_default_unit(q->valuestring);
+            if (!unit)
+                return pl__err(err, PL_EINVAL, "%s: quantity %s needs a unit", file, q->valuestring);
+            if (strchr(q->valuestring, ',') || strchr(unit, ','))
+                return pl__err(err, PL_EINVAL, "%s: a quantity or unit cannot contain ','", file);
+            size_t ql = strlen(qlist), ul = strlen(ulist);
+            if (ql + strlen(q->valuestring) + 2 >= sizeof qlist || ul + strlen(unit) + 2 >= sizeof ulist)
+                return pl__err(err, PL_EINVAL, "%s: too many channels", file);
+            snprintf(qlist + ql, sizeof qlist - ql, "%s%s", first ? "" : ",", q->valuestring);
+            snprintf(ulist + ul, sizeof ulist - ul, "%s%s", first ? "" : ",", unit);
+            first = 0;
+        }
+    }
+    const char *name = jfile->valuestring;
+    char path[4096];
+    if (name[0] == '/' || !dir[0])
+        snprintf(path, sizeof path, "%s", name);
+    else
+        snprintf(path, sizeof path, "%s/%s", dir, name);
+    int rc = pl_record_add_map(rec, site, path, qlist, ulist, pu, pv, err);
+    if (rc)
+        return rc;
+    if (jplace) {
+        pl_record_site *s = &rec->sites[site];
+        pl_record_map *m = &s->maps[s->nmaps - 1];
+        if ((rc = take_placement(&m->placement, jplace, file, err)))
+            return rc;
+        m->has_placement = 1;
+    }
+    return PL_OK;
+}
+
+static void blank_inspection(pl_inspection *insp)
+{
+    memset(insp, 0, sizeof *insp);
+    insp->aircraft_hours = NAN;
+    insp->aircraft_cycles = -1;
+}
+
+static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, const char *dir,
+                         pl_err *err)
+{
+    if (!cJSON_IsObject(root))
+        return pl__err(err, PL_EFORMAT, "%s: the sidecar must be a JSON object", file);
+    pl_inspection top;
+    blank_inspection(&top);
+    static const char *const top_extra[] = { "sites", NULL };
+    int rc = take_inspection_fields(&top, root, file, "top level", top_extra, err);
+    const cJSON *sites = cJSON_GetObjectItemCaseSensitive(root, "sites");
+    if (!rc && (!cJSON_IsArray(sites) || cJSON_GetArraySize(sites) == 0))
+        rc = pl__err(err, PL_EFORMAT, "%s: \"sites\" must be a non-empty array", file);
+    for (const cJSON *s = sites ? sites->child : NULL; !rc && s; s = s->next) {
+        if (!cJSON_IsObject(s)) {
+            rc = pl__err(err, PL_EFORMAT, "%s: each entry of \"sites\" must be an object", file);
+            break;
+        }
+        pl_inspection insp = top;
+        insp.parameters_json = top.parameters_json ? pl__strdup(top.parameters_json) : NULL;
+        if (top.parameters_json && !insp.parameters_json) {
+            rc = pl__err(err, PL_ENOMEM, "out of memory");
+            break;
+        }
+        const cJSON *code = cJSON_GetObjectItemCaseSensitive(s, "site");
+        char where[96];
+        snprintf(where, sizeof where, "site %s", cJSON_IsString(code) ? code->valuestring : "?");
+        static const char *const site_extra[] = { "maps", NULL };
+        rc = take_inspection_fields(&insp, s, file, where, site_extra, err);
+        if (!rc && !insp.site_code[0])
+            rc = pl__err(err, PL_EFORMAT, "%s: a site entry has no \"site\" code", file);
+        size_t idx = 0;
+        if (!rc)
+            rc = pl_record_add_site(rec, &insp, &idx, err);
+        free(insp.parameters_json);
+        const cJSON *maps = cJSON_GetObjectItemCaseSensitive(s, "maps");
+        if (!rc && maps && !cJSON_IsArray(maps))
+            rc = pl__err(err, PL_EFORMAT, "%s: %s: \"maps\" must be an array", file, where);
+        for (const cJSON *m = maps ? maps->child : NULL; !rc && m; m = m->next)
+            rc = take_map(rec, idx, m, file, dir, err);
+    }
+    free(top.parameters_json);
+    return rc;
+}
+
+PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *err)
+{
+    *out = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return pl__err(err, PL_EIO, "%s: cannot open", path);
+    size_t cap = 4096, n = 0;
+    char *buf = malloc(cap);
+    size_t got;
+    while (buf && (got = fread(buf + n, 1, cap - n - 1, f)) > 0) {
+        n += got;
+        if (n + 1 == cap) {
+            char *nb = cap < (64u << 20) ? realloc(buf, cap * 2) : NULL;
+            if (!nb) {
+                free(buf);
+                buf = NULL;
+                break;
+            }
+            buf = nb;
+            cap *= 2;
+        }
+    }
+    int rd_err = ferror(f);
+    fclose(f);
+    if (!buf)
+        return pl__err(err, PL_ENOMEM, "%s: too large or out of memory", path);
+    if (rd_err) {
+        free(buf);
+        return pl__err(err, PL_EIO, "%s: read error", path);
+    }
+    buf[n] = '\0';
+    const char *end = NULL;
+    cJSON *root = cJSON_ParseWithOpts(buf, &end, 1);
+    if (!root) {
+        size_t at = end && end >= buf ? (size_t)(end - buf) : 0;
+        size_t line = 1;
+        for (size_t i = 0; i < at && i < n; i++)
+            line += buf[i] == '\n';
+        free(buf);
+        return pl__err(err, PL_EFORMAT, "%s line %zu: not valid JSON", path, line);
+    }
+    free(buf);
+    char dir[4096];
+    snprintf(dir, sizeof dir, "%s", path);
+    char *slash = strrchr(dir, '/');
+    if (slash)
+        *slash = '\0';
+    else
+        dir[0] = '\0';
+    pl_record *rec;
+    int rc = pl_record_new(&rec, err);
+    if (!rc)
+        rc = parse_sidecar(rec, root, path, dir, err);
+    cJSON_Delete(root);
+    if (rc) {
+        pl_record_free(rec);
+        return rc;
+    }
+    *out = rec;
+    return PL_OK;
+}
+
+/* ---- apply ------------------------------------------------------------- */
+
+/* Make sure a failure names the airframe and site it happened at. */
+static int name_site(int rc, const pl_inspection *insp, pl_err *err)
+{
+    if (rc && err && !strstr(err->msg, insp->site_code)) {
+        char msg[PL_ERR_MSG_SIZE];
+        snprintf(msg, sizeof msg, "%s", err->msg);
+        pl__err(err, rc, "%s site %s: %s", insp->airframe_serial, insp->site_code, msg);
+    }
+    return rc;
+}
+
+static const char *made_by_for(const char *path)
+{
+    const char *dot = strrchr(path, '.');
+    if (dot && strcasecmp(dot, ".png") == 0) return "import-png";
+    if (dot && strcasecmp(dot, ".npy") == 0) return "import-npy";
+    if (dot && strcasecmp(dot, ".csv") == 0) return "import-csv";
+    return "import";
+}
+
+/* Complete a loaded map from the request and the site, refusing a request
+ * that contradicts what the file itself says. */
+static int complete_map(pl_map *map, const pl_record_map *req, const pl_site *site, pl_err *err)
+{
+    if (req->nchannels && req->nchannels != map->nchannels)
+        return pl__err(err, PL_ENOMATCH, "%s: the file has %u channel(s) but %u quantities were given",
+                       req->path, map->nchannels, req->nchannels);
+    for (uint32_t c = 0; c < map->nchannels; c++) {
+        pl_channel *ch = &map->channels[c];
+        if (req->nchannels) {
+            const pl_channel *want = &req->channels[c];
+            if (ch->quantity[0] && (strcmp(ch->quantity, want->quantity) != 0
+                                    || strcmp(ch->unit, want->unit) != 0))
+                return pl__err(err, PL_ENOMATCH,
+                               "%s: the file says channel %u is %s [%s] but %s [%s] was given",
+                               req->path, c, ch->quantity, ch->unit, want->quantity, want->unit);
+            int rc = pl_map_set_channel(map, c, want->quantity, want->unit, err);
+            if (rc)
+                return rc;
+        } else if (!ch->quantity[0]) {
+            return pl__err(err, PL_EINVAL,
+                           "%s: the file does not say what channel %u holds; give its quantity and unit",
+                           req->path, c);
+        }
+    }
+    double pu = req->pitch_u, pv = req->pitch_v;
+    if (isnan(pu) && isnan(pv)) {
+        /* Loaders leave the pitch NaN when the file does not carry one
+         * (npy, csv, a PNG without the chunk); the site's is then the truth. */
+        pu = isnan(map->pitch_u) ? site->pitch_u : map->pitch_u;
+        pv = isnan(map->pitch_v) ? site->pitch_v : map->pitch_v;
+    }
+    if (isnan(pu)) pu = pv;
+    if (isnan(pv)) pv = pu;
+    int rc = pl_map_set_pitch(map, pu, pv, err);
+    if (rc)
+        return rc;
+    map->placement = req->has_placement ? req->placement : site->map_frame;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
+                              void *userdata, pl_err *err)
+{
+    size_t total = 0, done = 0;
+    for (size_t i = 0; i < rec->nsites; i++)
+        total += rec->sites[i].nmaps;
+    int rc = pl_store_begin(store, err);
+    if (rc)
+        return rc;
+    for (size_t i = 0; i < rec->nsites && !rc; i++) {
+        pl_record_site *s = &rec->sites[i];
+        pl_site site;
+        rc = pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code, &site, err);
+        if (rc)
+            break;
+        pl_id id;
+        rc = name_site(pl_store_add_inspection(store, &s->insp, &id, err), &s->insp, err);
+        if (rc)
+            break;
+        /* The key of a first version is its own id. */
+        s->inspection_key = id;
+        for (size_t j = 0; j < s->nmaps && !rc; j++) {
+            pl_record_map *req = &s->maps[j];
+            pl_map *map = NULL;
+            rc = pl_map_load(&map, req->path, err);
+            if (!rc)
+                rc = complete_map(map, req, &site, err);
+            if (!rc) {
+                pl_map_record mr;
+                memset(&mr, 0, sizeof mr);
+                mr.inspection_key = s->inspection_key;
+                snprintf(mr.source, sizeof mr.source, "%s", pl__basename(req->path));
+                snprintf(mr.origin, sizeof mr.origin, "%s", made_by_for(req->path));
+                mr.parameters_json = NULL;
+                rc = pl_store_add_map(store, &mr, map, &req->map_id, err);
+            }
+            pl_map_free(map);
+            name_site(rc, &s->insp, err);
+            done++;
+            if (!rc && progress && progress(userdata, total ? (double)done / (double)total : 1.0))
+                rc = pl__err(err, PL_ECANCELED, "recording canceled");
+        }
+    }
+    if (rc) {
+        pl_store_rollback(store);
+        for (size_t i = 0; i < rec->nsites; i++) {
+            rec->sites[i].inspection_key = 0;
+            for (size_t j = 0; j < rec->sites[i].nmaps; j++)
+                rec->sites[i].maps[j].map_id = 0;
+        }
+        return rc;
+    }
+    return pl_store_commit(store, err);
+}
