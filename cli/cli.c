@@ -70,7 +70,8 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
     char shorts[128];
     if (!all)
         return cli_fail("out of memory");
-    memcpy(all, longopts, nown * sizeof *all);
+    if (nown)
+        memcpy(all, longopts, nown * sizeof *all);
     memcpy(all + nown, common_options, sizeof common_options);
     snprintf(shorts, sizeof shorts, ":s:qh%s", shortopts ? shortopts : "");
 

@@ -157,10 +157,11 @@ int cmd_export_map(int argc, char **argv)
         channel = c;
     }
     if (channel >= (long long)map->nchannels) {
+        uint32_t have = map->nchannels;
         free(rec.parameters_json);
         pl_map_free(map);
         return cli_fail("map %lld has %u channel(s); --channel %lld does not exist", a.map_id,
-                        map->nchannels, channel);
+                        have, channel);
     }
     if (strcmp(format, "npy") == 0) {
         st = pl_map_save_npy(map, a.output, &err);

@@ -83,8 +83,9 @@ static int on_map(void *ud, const pl_map_record *m)
     char quantities[512] = "";
     for (uint32_t c = 0; c < m->nchannels; c++) {
         size_t len = strlen(quantities);
-        snprintf(quantities + len, sizeof quantities - len, "%s%s [%s]", c ? ", " : "",
-                 m->channels[c].quantity, m->channels[c].unit);
+        snprintf(quantities + len, sizeof quantities - len, "%s%s%s%s [%s]", c ? ", " : "",
+                 m->channels[c].quantity, m->channels[c].label[0] ? " " : "",
+                 m->channels[c].label, m->channels[c].unit);
     }
     printf("      map %lld: %s, %ux%u px at %g x %g mm, from %s (%s), sha256 %.16s...\n",
            (long long)m->id, quantities, m->width, m->height, m->pitch_u, m->pitch_v,
@@ -120,8 +121,8 @@ static void print_inspection(const pl_inspection *in)
            (long long)in->key, in->task_ref[0] ? in->task_ref : "-", hours, cycles);
     printf("      procedure %s rev %s; inspector %s (level %s)\n", in->procedure,
            in->procedure_rev, in->inspector, in->inspector_level);
-    printf("      equipment %s; calibration %s; software %s\n", in->equipment,
-           in->calibration_ref, in->software_version);
+    printf("      equipment: %s\n", in->equipment);
+    printf("      calibration: %s; software %s\n", in->calibration_ref, in->software_version);
     if (in->id != in->key)
         printf("      (corrected record: version %lld)\n", (long long)in->id);
     if (in->notes[0])

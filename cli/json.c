@@ -146,6 +146,7 @@ cJSON *cli_json_map(const pl_map_record *m)
         cJSON *ch = cJSON_CreateObject();
         cJSON_AddStringToObject(ch, "quantity", m->channels[c].quantity);
         cJSON_AddStringToObject(ch, "unit", m->channels[c].unit);
+        add_text(ch, "label", m->channels[c].label);
         cJSON_AddItemToArray(chs, ch);
     }
     cJSON_AddItemToObject(o, "placement", cli_json_placement(&m->placement));

@@ -463,13 +463,24 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
 
 /* ---- apply ------------------------------------------------------------- */
 
+/* Make sure a failure names the map file it happened with. */
+static int name_file(int rc, const char *path, pl_err *err)
+{
+    if (rc && err && !strstr(err->msg, path)) {
+        char msg[PL_ERR_MSG_SIZE];
+        snprintf(msg, sizeof msg, "%s", err->msg);
+        pl__err(err, rc, "%s: %.400s", path, msg);
+    }
+    return rc;
+}
+
 /* Make sure a failure names the airframe and site it happened at. */
 static int name_site(int rc, const pl_inspection *insp, pl_err *err)
 {
     if (rc && err && !strstr(err->msg, insp->site_code)) {
         char msg[PL_ERR_MSG_SIZE];
         snprintf(msg, sizeof msg, "%s", err->msg);
-        pl__err(err, rc, "%s site %s: %s", insp->airframe_serial, insp->site_code, msg);
+        pl__err(err, rc, "%s site %s: %.400s", insp->airframe_serial, insp->site_code, msg);
     }
     return rc;
 }
@@ -561,7 +572,7 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
                 rc = pl_store_add_map(store, &mr, map, &req->map_id, err);
             }
             pl_map_free(map);
-            name_site(rc, &s->insp, err);
+            name_site(name_file(rc, req->path, err), &s->insp, err);
             done++;
             if (!rc && progress && progress(userdata, total ? (double)done / (double)total : 1.0))
                 rc = pl__err(err, PL_ECANCELED, "recording canceled");

@@ -7,7 +7,7 @@
  * at all, alone or inside a caller's transaction. Inputs are checked here
  * first, for messages that name the record and the field; the schema's
  * CHECK constraints and triggers stay behind as the last word, and their
- * refusals are mapped to status codes by code_of().
+ * refusals are mapped to status codes by pl_store__status().
  */
 #include "store_int.h"
 
@@ -60,7 +60,7 @@ static const char *const methods[] = {
  * say "append-only", the uniqueness triggers "already"; the rest are broken
  * correction rules, i.e. invalid input.
  */
-static int code_of(int xrc, const char *msg)
+int pl_store__status(int xrc, const char *msg)
 {
     switch (xrc) {
     case SQLITE_CONSTRAINT_UNIQUE:
@@ -93,7 +93,7 @@ static int code_of(int xrc, const char *msg)
 static int db_fail(pl_store *s, pl_err *err, const char *label)
 {
     const char *msg = sqlite3_errmsg(s->db);
-    return pl__err(err, code_of(sqlite3_extended_errcode(s->db), msg), "%s: %s",
+    return pl__err(err, pl_store__status(sqlite3_extended_errcode(s->db), msg), "%s: %s",
                    label ? label : s->path, msg);
 }
 
@@ -1308,7 +1308,7 @@ static int check_inspection(pl_store *s, const pl_inspection *in, const char *la
         { "task_ref", offsetof(pl_inspection, task_ref), PL_NAME_SIZE, 0 },
         { "procedure", offsetof(pl_inspection, procedure), PL_NAME_SIZE, 1 },
         { "procedure_rev", offsetof(pl_inspection, procedure_rev), PL_WORD_SIZE, 1 },
-        { "calibration_ref", offsetof(pl_inspection, calibration_ref), PL_NAME_SIZE, 1 },
+        { "calibration_ref", offsetof(pl_inspection, calibration_ref), PL_TEXT_SIZE, 1 },
         { "inspector", offsetof(pl_inspection, inspector), PL_NAME_SIZE, 1 },
         { "inspector_level", offsetof(pl_inspection, inspector_level), PL_WORD_SIZE, 1 },
         { "software_version", offsetof(pl_inspection, software_version), PL_WORD_SIZE, 0 },
@@ -1710,8 +1710,8 @@ static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
     sqlite3_finalize(st);
     if (rc)
         return rc;
-    rc = prepare(s, &st, "INSERT INTO map_channel (map_id, idx, quantity, unit) "
-                 "VALUES (?1, ?2, ?3, ?4)", err);
+    rc = prepare(s, &st, "INSERT INTO map_channel (map_id, idx, quantity, unit, label) "
+                 "VALUES (?1, ?2, ?3, ?4, ?5)", err);
     if (rc)
         return rc;
     for (uint32_t c = 0; c < map->nchannels && !rc; c++) {
@@ -1720,6 +1720,7 @@ static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
         sqlite3_bind_int64(st, 2, c);
         sqlite3_bind_text(st, 3, map->channels[c].quantity, -1, SQLITE_STATIC);
         sqlite3_bind_text(st, 4, map->channels[c].unit, -1, SQLITE_STATIC);
+        sqlite3_bind_text(st, 5, map->channels[c].label, -1, SQLITE_STATIC);
         rc = step_insert(s, st, NULL, err, label);
     }
     sqlite3_finalize(st);
@@ -1819,7 +1820,7 @@ static int read_channels(pl_store *s, pl_id id, pl_channel *ch, uint32_t n, pl_e
                          const char *label)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT idx, quantity, unit FROM map_channel WHERE map_id = ?1 "
+    int rc = prepare(s, &st, "SELECT idx, quantity, unit, label FROM map_channel WHERE map_id = ?1 "
                      "ORDER BY idx", err);
     if (rc)
         return rc;
@@ -1835,6 +1836,7 @@ static int read_channels(pl_store *s, pl_id id, pl_channel *ch, uint32_t n, pl_e
         }
         col_text(st, 1, ch[got].quantity, sizeof ch[got].quantity);
         col_text(st, 2, ch[got].unit, sizeof ch[got].unit);
+        col_text(st, 3, ch[got].label, sizeof ch[got].label);
         got++;
     }
     if (!rc && r != SQLITE_DONE)

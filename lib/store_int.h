@@ -33,6 +33,15 @@ int pl_store__write_begin(pl_store *store, int *owned, pl_err *err);
 int pl_store__write_end(pl_store *store, int owned, int rc, pl_err *err);
 
 /*
+ * The plyledger status for an SQLite extended result code and its message:
+ * a trigger's "append-only" refusal is PL_EREADONLY, its "already" refusal
+ * and UNIQUE / PRIMARY KEY violations PL_EEXISTS, a foreign key PL_ENOTFOUND,
+ * other constraints PL_EINVAL, SQLITE_NOTADB PL_ENOTSTORE, I/O PL_EIO, out
+ * of memory PL_ENOMEM, everything else PL_EDB.
+ */
+int pl_store__status(int sqlite_extended_code, const char *msg);
+
+/*
  * 1 when `s` is a real calendar date written YYYY-MM-DD (proleptic
  * Gregorian, years 0001-9999), else 0.
  */

@@ -10,6 +10,8 @@
 --    with `key` filled in.
 --  * Children refer to a parent's key (the id of its first version), which
 --    never changes.
+--  * A CHECK passes when its expression is NULL, so checks on columns that
+--    may be NULL say what NULL means (reason: coalesce to '').
 --  * Times are ISO 8601 UTC text; dates YYYY-MM-DD. A date column checks
 --    date(x, '+0 days') IS x: SQLite normalises an impossible day such as
 --    2021-02-30 to another date, so only a real calendar date passes.
@@ -30,7 +32,7 @@ CREATE TABLE airframe (
     notes         TEXT,
     recorded_at   TEXT NOT NULL,
     CHECK ((supersedes IS NULL) = (key IS NULL)),
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 CREATE INDEX airframe_serial ON airframe(serial);
 
@@ -69,7 +71,7 @@ CREATE TABLE site (
     pitch_v_mm        REAL NOT NULL CHECK (pitch_v_mm > 0),
     recorded_at       TEXT NOT NULL,
     CHECK ((supersedes IS NULL) = (key IS NULL)),
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 CREATE INDEX site_airframe_code ON site(airframe_key, code);
 
@@ -96,7 +98,7 @@ CREATE TABLE inspection (
     notes            TEXT,
     recorded_at      TEXT NOT NULL,
     CHECK ((supersedes IS NULL) = (key IS NULL)),
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 CREATE INDEX inspection_site ON inspection(site_key, performed_on);
 
@@ -126,7 +128,7 @@ CREATE TABLE map (
     data             BLOB NOT NULL,
     sha256           TEXT NOT NULL CHECK (length(sha256) = 64 AND sha256 NOT GLOB '*[^0-9a-f]*'),
     recorded_at      TEXT NOT NULL,
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 CREATE INDEX map_inspection ON map(inspection_key);
 
@@ -135,6 +137,7 @@ CREATE TABLE map_channel (
     idx      INTEGER NOT NULL CHECK (idx >= 0),
     quantity TEXT NOT NULL CHECK (length(quantity) > 0),
     unit     TEXT NOT NULL CHECK (length(unit) > 0),
+    label    TEXT NOT NULL DEFAULT '',
     PRIMARY KEY (map_id, idx)
 ) WITHOUT ROWID;
 
@@ -159,7 +162,7 @@ CREATE TABLE criteria (
     recorded_at        TEXT NOT NULL,
     UNIQUE (name, revision),
     CHECK ((supersedes IS NULL) = (key IS NULL)),
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 
 -- One indication found in one map channel.
@@ -260,7 +263,7 @@ CREATE TABLE disposition (
     signature         BLOB,
     public_key        BLOB,
     recorded_at       TEXT NOT NULL,
-    CHECK (supersedes IS NULL OR length(reason) > 0)
+    CHECK (supersedes IS NULL OR length(coalesce(reason, '')) > 0)
 );
 
 CREATE TABLE disposition_change (

@@ -84,10 +84,11 @@ static void test_plan__loads_sites_with_exact_values(void **state)
 {
     fixture *f = *state;
     pl_err err = { 0 };
-    /* columns in another order, a comment, CRLF on one line, spaces around
-     * unquoted fields, quoted commas, doubled quotes and a line break */
+    /* a byte order mark, columns in another order, a comment, CRLF on one
+     * line, spaces around unquoted fields, quoted commas, doubled quotes and
+     * a line break */
     char *path = plan_file(f, "plan.csv",
-        "# plan of the test type, revision A\n"
+        "\xef\xbb\xbf# plan of the test type, revision A\n"
         "zone,site,description,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,"
         "pitch_mm,pitch_v_mm,thickness_mm,width_px,height_px,coord_system,coord_unit,"
         "frame,stringer,material,diffusivity_mm2_s\n"

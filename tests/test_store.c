@@ -307,6 +307,8 @@ static pl_map *test_map(uint32_t w, uint32_t h, uint32_t n, float seed)
         if (pl_map_set_channel(m, c, c == 0 ? "temperature-contrast" : "log-derivative-2",
                                c == 0 ? "K" : "1", &err))
             fail_msg("channel: %s", err.msg);
+    if (n > 1)
+        snprintf(m->channels[1].label, sizeof m->channels[1].label, "t=0.50 s");
     m->pitch_u = 0.5;
     m->pitch_v = 0.5;
     m->placement.origin[0] = 5200;
@@ -938,6 +940,62 @@ static void test_store__dates_agree_with_sqlite_calendar(void **state)
     assert_false(pl_store__valid_date(NULL));
 }
 
+/*
+ * SQLite's refusals become the right status codes. Each case is a real
+ * failure of a raw statement on a store, so the schema's CHECKs and
+ * triggers are exercised at the same time.
+ */
+static void test_store__sqlite_refusals_map_to_status_codes(void **state)
+{
+    fixture *f = *state;
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    pl_store_close(f->st);
+    f->st = NULL;
+    sqlite3 *db = raw_open(f->path);
+    raw_exec(db, "PRAGMA foreign_keys = ON");
+    const struct {
+        const char *sql;
+        int xcode;
+        int status;
+    } cases[] = {
+        { "UPDATE airframe SET notes = 'x'", SQLITE_CONSTRAINT_TRIGGER, PL_EREADONLY },
+        { "DELETE FROM store_info", SQLITE_CONSTRAINT_TRIGGER, PL_EREADONLY },
+        { "INSERT INTO airframe (serial, aircraft_type, recorded_at) "
+          "VALUES ('PLX-0001', 'X', 'now')", SQLITE_CONSTRAINT_TRIGGER, PL_EEXISTS },
+        { "INSERT INTO store_info (name, value) VALUES ('store_id', 'x')",
+          SQLITE_CONSTRAINT_PRIMARYKEY, PL_EEXISTS },
+        { "INSERT INTO airframe (key, supersedes, reason, serial, aircraft_type, recorded_at) "
+          "VALUES (1, 1, 'rename', 'PLX-0009', 'PLX-T1', 'now')",
+          SQLITE_CONSTRAINT_TRIGGER, PL_EINVAL },
+        { "INSERT INTO airframe (key, supersedes, serial, aircraft_type, recorded_at) "
+          "VALUES (1, 1, 'PLX-0001', 'PLX-T1', 'now')", SQLITE_CONSTRAINT_CHECK, PL_EINVAL },
+        { "INSERT INTO airframe_operator (airframe_key, operator_name, since, recorded_at) "
+          "VALUES (1, 'Operator A', '2021-02-30', 'now')", SQLITE_CONSTRAINT_CHECK, PL_EINVAL },
+        { "INSERT INTO airframe_operator (airframe_key, operator_name, since, recorded_at) "
+          "VALUES (999, 'Operator A', '2021-02-28', 'now')",
+          SQLITE_CONSTRAINT_FOREIGNKEY, PL_ENOTFOUND },
+        { "INSERT INTO airframe (serial, recorded_at) VALUES ('PLX-0002', 'now')",
+          SQLITE_CONSTRAINT_NOTNULL, PL_EINVAL },
+        { "SELECT * FROM no_such_table", SQLITE_ERROR, PL_EDB },
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        if (sqlite3_exec(db, cases[i].sql, NULL, NULL, NULL) == SQLITE_OK)
+            fail_msg("%s was allowed", cases[i].sql);
+        int x = sqlite3_extended_errcode(db);
+        if (x != cases[i].xcode)
+            fail_msg("%s: SQLite code %d (%s), expected %d", cases[i].sql, x,
+                     sqlite3_errmsg(db), cases[i].xcode);
+        assert_int_equal(pl_store__status(x, sqlite3_errmsg(db)), cases[i].status);
+    }
+    sqlite3_close(db);
+    assert_int_equal(pl_store__status(SQLITE_NOTADB, "file is not a database"), PL_ENOTSTORE);
+    assert_int_equal(pl_store__status(SQLITE_IOERR_READ, "disk I/O error"), PL_EIO);
+    assert_int_equal(pl_store__status(SQLITE_NOMEM, "out of memory"), PL_ENOMEM);
+    assert_int_equal(pl_store__status(SQLITE_BUSY, "database is locked"), PL_EDB);
+    check_integrity(f->path);
+}
+
 /* ---- maps ------------------------------------------------------------------------------ */
 
 static void write_f32le(const char *path, const pl_map *m)
@@ -986,6 +1044,9 @@ static void test_store__map_round_trip_is_bit_exact(void **state)
     assert_int_equal(back->width, 8);
     assert_int_equal(back->height, 6);
     assert_int_equal(back->nchannels, 2);
+    assert_string_equal(back->channels[0].label, "");
+    assert_string_equal(back->channels[1].label, "t=0.50 s");
+    assert_string_equal(back->channels[1].quantity, "log-derivative-2");
     size_t n = 8 * 6 * 2;
     for (size_t i = 0; i < n; i++) {
         if (isnan(m->data[i]))
@@ -1457,6 +1518,7 @@ int main(void)
         T(test_store__refuses_duplicates),
         T(test_store__validates_records_with_clear_messages),
         T(test_store__dates_agree_with_sqlite_calendar),
+        T(test_store__sqlite_refusals_map_to_status_codes),
         T(test_store__map_round_trip_is_bit_exact),
         T(test_store__load_map_detects_tampering),
         T(test_store__map_must_fit_its_site),

@@ -200,7 +200,7 @@ import json,sys
 h=json.load(open(sys.argv[1]))
 ins=h["inspections"]
 assert [i["date"] for i in ins]==["2030-02-01","2035-03-01"], ins
-assert ins[0]["maps"][0]["channels"]==[{"quantity":"temperature-contrast","unit":"K"}]
+assert [(c["quantity"],c["unit"]) for c in ins[0]["maps"][0]["channels"]]==[("temperature-contrast","K")]
 assert ins[0]["maps"][0]["width"]==40 and ins[0]["maps"][0]["height"]==30
 assert ins[0]["maps"][0]["pitch_u_mm"]==0.5
 assert h["site"]["map_frame"]["origin"]==[10250,-1850,2100]

@@ -47,6 +47,7 @@ extern "C" {
 #define PL_QUANTITY_SIZE 48  /**< buffer for a quantity name, NUL included */
 #define PL_UNIT_SIZE 24      /**< buffer for a unit, NUL included */
 #define PL_SYSTEM_SIZE 32    /**< buffer for a coordinate system name */
+#define PL_LABEL_SIZE 40     /**< buffer for a channel label, NUL included */
 
 /** The PNG text keys (see the introduction). */
 #define PL_PNG_KEY_SCALE "plyledger.scale"
@@ -69,6 +70,8 @@ typedef struct pl_placement {
 typedef struct pl_channel {
     char quantity[PL_QUANTITY_SIZE];  /**< e.g. "temperature-contrast" */
     char unit[PL_UNIT_SIZE];          /**< e.g. "K" */
+    char label[PL_LABEL_SIZE];        /**< optional: what tells apart channels of
+                                           one quantity, e.g. "t=0.50 s", "f=0.10 Hz" */
 } pl_channel;
 
 /** A map. Fields may be read and written directly; keep them consistent. */

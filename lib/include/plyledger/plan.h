@@ -13,8 +13,16 @@
  *             coord_system (default "STA/BL/WL"), coord_unit (default "mm")
  *
  * pitch_mm is the pitch along u, and along v too unless pitch_v_mm is given.
- * Every row is checked with pl_site_check(); site codes must be unique.
- * Lines whose first field starts with '#' are comments.
+ * An empty optional field takes its default: no text, thickness and
+ * diffusivity unknown (NaN), width and height 0 (any). Numbers are decimal
+ * as strtod() reads them, filling the whole field (no hexadecimal, no
+ * blanks inside quotes); width_px and height_px are whole numbers. Every
+ * row is checked with pl_site_check(); site codes must be unique.
+ * Lines whose first field starts with '#' are comments; blank lines and rows
+ * of empty fields are skipped; LF or CRLF line ends and a leading UTF-8 byte
+ * order mark are accepted. Messages name the file as given and the line a
+ * record starts on ("plan.csv line 7: column pitch_mm: 'abc' is not a
+ * number").
  *
  * pl_plan_load() allocates a pl_plan; pl_plan_free() releases it.
  */
@@ -36,10 +44,13 @@ typedef struct pl_plan {
 /**
  * Read a site plan.
  * @param[out] out  free with pl_plan_free()
- * @return PL_OK, PL_EIO (cannot read), PL_EFORMAT (not CSV, missing or
- *         unknown column, a value that is not a number, "line N"), PL_EINVAL
- *         (a site that fails pl_site_check(), NaN or negative pitch),
- *         PL_EEXISTS (duplicate site code), PL_ENOMEM.
+ * @return PL_OK, PL_EIO (cannot read), PL_EFORMAT (not CSV, empty, no
+ *         sites, missing, unknown or repeated column, a row with another
+ *         number of fields than the header, a required value missing, a
+ *         value that is not a number), PL_EINVAL (a site that fails
+ *         pl_site_check(), a pitch that is NaN or not > 0, a number that is
+ *         not finite, text too long for its field), PL_EEXISTS (duplicate
+ *         site code), PL_ENOMEM.
  */
 PL_EXPORT int pl_plan_load(pl_plan **out, const char *path, pl_err *err);
 
@@ -47,8 +58,9 @@ PL_EXPORT int pl_plan_load(pl_plan **out, const char *path, pl_err *err);
 PL_EXPORT void pl_plan_free(pl_plan *plan);
 
 /**
- * Add every site of the plan to the airframe `serial`, all or none.
- * @param[out] added  sites added (may be NULL)
+ * Add every site of the plan to the airframe `serial`, all or none (one
+ * savepoint: inside a caller's transaction it rolls back with it).
+ * @param[out] added  sites added (may be NULL); 0 on failure
  * @return as pl_store_add_site(), naming the failing site.
  */
 PL_EXPORT int pl_plan_apply(pl_store *store, const pl_plan *plan, const char *serial,

@@ -11,10 +11,20 @@
  * hue turns from blue through teal and green to yellow, with chroma reduced
  * where needed to stay inside the sRGB gamut, so equal steps in value give
  * nearly equal perceived steps (CIE 1976 colour difference). A grey map is
- * also offered.
+ * also offered, with the same lightness ramp (CIELAB L* 20 to 95).
+ *
+ * Layout of a rendering, on a white background with dark text: the
+ * quantity's name on top; below it the map in a thin frame, each map pixel
+ * drawn as a square of `zoom` x `zoom` image pixels (column 0 on the left,
+ * row 0 at the top); under the map a scale bar whose length in mm along the
+ * map's columns is written beneath it; right of the map the channel's unit,
+ * then the colour bar with the values at its top (vmax), middle and bottom
+ * (vmin). Values outside vmin..vmax are drawn in the end colours.
  *
  * Images (pl_image) are allocated by the render calls and freed with
- * pl_image_free().
+ * pl_image_free(). The colour tables are built once, on first use, and
+ * every function here may be called from several threads at once (on
+ * different images).
  */
 #ifndef PLYLEDGER_RENDER_H
 #define PLYLEDGER_RENDER_H
@@ -33,6 +43,11 @@ typedef enum pl_colormap {
     PL_COLORMAP_LEDGER = 0, /**< perceptually uniform, dark blue to light yellow */
     PL_COLORMAP_GREY = 1,   /**< linear grey in CIELAB lightness */
 } pl_colormap;
+
+/** Largest width or height of an image (pixels). */
+#define PL_IMAGE_MAX_SIDE 65536u
+/** Largest number of pixels in an image. */
+#define PL_IMAGE_MAX_PIXELS (1u << 26)
 
 /** An 8-bit RGB image, row-major, 3 bytes a pixel. */
 typedef struct pl_image {
@@ -58,33 +73,62 @@ typedef struct pl_render_options {
     { PL_RENDER_OPTIONS_VERSION, PL_COLORMAP_LEDGER, NAN, NAN, 0, 1, 1 }
 
 /**
- * Colour of `t` in [0, 1] (clamped; NaN gives the no-data grey) into
- * [out] rgb.
+ * Colour of `t` in [0, 1] (clamped; NaN gives the map's no-data grey) into
+ * [out] rgb: table entry round(255 t) of the map's 256 colours.
+ * @param cmap  PL_COLORMAP_LEDGER or PL_COLORMAP_GREY
  */
 PL_EXPORT void pl_colormap_rgb(pl_colormap cmap, double t, unsigned char rgb[3]);
 
 /**
- * Render channel `c` of `map`.
- * @param[out] out  free with pl_image_free()
- * @return PL_OK, PL_EINVAL (c out of range, vmin >= vmax, bad options
- *         version), PL_ENOMEM.
+ * Render channel `c` of `map` (see the introduction for the layout).
+ * The map is read, never changed. Automatic limits (NaN in opts) are the
+ * 1st and 99th percentiles of the channel's finite values, interpolated
+ * linearly between order statistics; a constant channel gets a range of
+ * +-1 % around its value (+-0.5 around 0); a channel without finite values
+ * is drawn all no-data. Automatic zoom is the smallest making the map at
+ * least 256 px wide, but no more than makes its longer side 4096 px, and at
+ * least 1. Output is deterministic: the same input gives the same pixels.
+ * @param[out] out  the image; free with pl_image_free()
+ * @param map   the map (not NULL)
+ * @param c     channel index
+ * @param opts  options, or NULL for PL_RENDER_OPTIONS_INIT
+ * @return PL_OK; PL_EINVAL (c out of range, vmin >= vmax, an infinite
+ *         limit, bad options version or colour map, a map without data, a
+ *         pitch that is not positive while the scale bar is on, a rendering
+ *         larger than PL_IMAGE_MAX_SIDE / PL_IMAGE_MAX_PIXELS); PL_ENOMEM.
  */
 PL_EXPORT int pl_render_map(pl_image **out, const pl_map *map, uint32_t c,
                             const pl_render_options *opts, pl_err *err);
 
-/** Write an image as an 8-bit RGB PNG. @return PL_OK, PL_EIO. */
+/**
+ * Write an image as an 8-bit RGB PNG (non-interlaced, with a "Software"
+ * text chunk naming plyledger and its version). After a failure the file
+ * may be left incomplete.
+ * @param img   the image (not NULL)
+ * @param path  the file to create or replace
+ * @return PL_OK, PL_EIO (cannot create or write; the message names `path`).
+ */
 PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *err);
 
-/** Allocate a black image. @param[out] out  free with pl_image_free(). */
+/**
+ * Allocate a black image.
+ * @param[out] out  the image; free with pl_image_free()
+ * @return PL_OK, PL_EINVAL (a side of 0 or above PL_IMAGE_MAX_SIDE, more
+ *         than PL_IMAGE_MAX_PIXELS pixels), PL_ENOMEM.
+ */
 PL_EXPORT int pl_image_new(pl_image **out, uint32_t width, uint32_t height, pl_err *err);
 
 /** Release an image; NULL is accepted. */
 PL_EXPORT void pl_image_free(pl_image *img);
 
 /**
- * Draw `text` (printable ASCII) with plyledger's built-in 5x7 pixel font at
- * (x, y) top-left, each font pixel `scale` image pixels, in colour rgb.
- * Clipped to the image. Returns the width drawn in pixels.
+ * Draw `text` (printable ASCII; any other byte is drawn as '?') with
+ * plyledger's built-in 5x7 pixel font at (x, y) top-left, each font pixel a
+ * square of `scale` image pixels, in colour rgb. Characters advance by 6
+ * font pixels. Clipped to the image; x and y may be negative.
+ * @return the width of the text in image pixels, (6 n - 1) * scale for n
+ *         characters (0 for an empty text or scale 0), whether or not it
+ *         was clipped.
  */
 PL_EXPORT uint32_t pl_image_text(pl_image *img, int x, int y, const char *text,
                                  unsigned scale, const unsigned char rgb[3]);

@@ -75,9 +75,11 @@ PL_EXPORT int pl_store_create(pl_store **out, const char *path, pl_err *err);
 /**
  * Open an existing store and migrate it forward to PL_STORE_SCHEMA_VERSION.
  * @param[out] out  close with pl_store_close()
- * @return PL_OK, PL_ENOTFOUND (no such file), PL_ENOTSTORE (not SQLite, or
- *         another application's database), PL_EVERSION (newer schema, or an
- *         older one with PL_STORE_READONLY), PL_EDB, PL_ENOMEM.
+ * @return PL_OK, PL_ENOTFOUND (no such file, or not a regular file),
+ *         PL_ENOTSTORE (not SQLite, an empty database, or another
+ *         application's database), PL_EVERSION (newer schema, or an older one
+ *         with PL_STORE_READONLY), PL_EIO (cannot be opened or read), PL_EDB,
+ *         PL_ENOMEM.
  */
 PL_EXPORT int pl_store_open(pl_store **out, const char *path, unsigned flags, pl_err *err);
 
@@ -245,7 +247,7 @@ typedef struct pl_inspection {
     char procedure[PL_NAME_SIZE];         /**< approved procedure reference; required */
     char procedure_rev[PL_WORD_SIZE];     /**< its revision; required */
     char equipment[PL_TEXT_SIZE];         /**< equipment used; required */
-    char calibration_ref[PL_NAME_SIZE];   /**< calibration / reference standard; required */
+    char calibration_ref[PL_TEXT_SIZE];   /**< calibration / reference standard; required */
     char inspector[PL_NAME_SIZE];         /**< who performed it; required */
     char inspector_level[PL_WORD_SIZE];   /**< qualification level; required */
     char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
