@@ -1,0 +1,170 @@
+/*
+ * plyledger/seq.h - raw flash-thermography sequences: reading them frame by
+ * frame, and writing them (the simulator and tests do).
+ *
+ * A sequence is a stack of infrared frames of one site after a flash,
+ * described by a JSON manifest (keys of plyledger's own):
+ *
+ *   {
+ *     "format": "plyledger-sequence-1",
+ *     "data": "cube.npy"                      a NumPy cube, frames x rows x cols,
+ *                                             uint16 or float32, C order
+ *        or { "folder": "frames",             16-bit grayscale PNG frames,
+ *             "pattern": "frame-%05d.png",    numbered from "first" (default 0)
+ *             "first": 0 },
+ *     "width": 640, "height": 512,            optional; checked against the data
+ *     "frame_count": 2000,                    optional; checked against the data
+ *     "frame_rate_hz": 100.0,                 uniform frames, the first at t = 0 ...
+ *     "frame_times_s": [0.0, 0.01, ...],      ... or every frame's time (increasing)
+ *     "flash_time_s": 0.05,                   when the flash fired (same clock)
+ *     "preflash_frames": 5,                   frames before the flash, for the
+ *                                             cold reference (default: every frame
+ *                                             with time < flash_time_s)
+ *     "calibration": { "kind": "linear",      temperature = offset_k + gain_k * count
+ *                      "gain_k": 0.002, "offset_k": 293.15 }
+ *                 or { "kind": "table",       piecewise linear counts -> kelvin,
+ *                      "counts": [...], "kelvin": [...] }   counts increasing
+ *                 or { "kind": "kelvin" },    float32 data already in kelvin
+ *     "pitch_mm": 0.5  or  [0.5, 0.5],        optional: the pixel footprint on the
+ *                                             part along columns and rows, mm
+ *     "saturation_count": 16383,              counts at or above are saturated
+ *                                             (uint16 data; default 65535)
+ *     "acquisition": { ... }                  free object: camera, lens, flash
+ *                                             energy, ambient ...; recorded with
+ *                                             the inspection
+ *   }
+ *
+ * The data path is relative to the manifest's folder. Unknown top-level keys
+ * are refused. pl_seq_open() validates everything it can without reading
+ * every frame: manifest, shapes, times, file sizes, that every PNG frame
+ * exists. Frames are then read one at a time (pl_seq_read_frame()), so a
+ * sequence of any length is reduced in bounded memory. Times are returned
+ * relative to the flash.
+ */
+#ifndef PLYLEDGER_SEQ_H
+#define PLYLEDGER_SEQ_H
+
+#include "plyledger/common.h"
+
+#include <math.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct pl_seq pl_seq;
+
+/**
+ * Open a sequence by its manifest.
+ * @param[out] out  close with pl_seq_close()
+ * @return PL_OK, PL_EIO (cannot read), PL_EFORMAT (manifest not JSON, a key
+ *         missing, unknown or of the wrong type; data not a uint16/float32
+ *         3-D C-order cube; a missing or non-grayscale PNG frame; shape or
+ *         frame count disagreeing with the manifest; times not increasing;
+ *         truncated data; no frame before or after the flash), PL_ENOMEM.
+ *         Messages name the file and the field or frame.
+ */
+PL_EXPORT int pl_seq_open(pl_seq **out, const char *manifest_path, pl_err *err);
+
+/** Close; NULL is accepted. */
+PL_EXPORT void pl_seq_close(pl_seq *seq);
+
+PL_EXPORT uint32_t pl_seq_width(const pl_seq *seq);
+PL_EXPORT uint32_t pl_seq_height(const pl_seq *seq);
+PL_EXPORT uint32_t pl_seq_frame_count(const pl_seq *seq);
+
+/**
+ * Frame times in seconds relative to the flash (negative before it);
+ * frame_count entries, increasing. Lives until pl_seq_close().
+ */
+PL_EXPORT const double *pl_seq_times(const pl_seq *seq);
+
+/**
+ * The pixel footprint on the part from the manifest's "pitch_mm" into
+ * [out] pitch_u, pitch_v (mm per pixel along columns, rows); both NaN when
+ * the manifest does not say.
+ */
+PL_EXPORT void pl_seq_pitch(const pl_seq *seq, double *pitch_u, double *pitch_v);
+
+/** Number of frames before the flash used as the cold reference. */
+PL_EXPORT uint32_t pl_seq_preflash_frames(const pl_seq *seq);
+
+/**
+ * The manifest's "acquisition" object as compact JSON ("{}" when absent).
+ * Lives until pl_seq_close().
+ */
+PL_EXPORT const char *pl_seq_acquisition_json(const pl_seq *seq);
+
+/**
+ * Read frame `index` as temperatures in kelvin into `dst` (width * height
+ * floats, row-major). Saturated pixels are NaN; their count goes to
+ * [out] nsaturated (may be NULL). Reading frames in increasing order is
+ * the fast path.
+ * @return PL_OK, PL_EINVAL (index out of range), PL_EIO, PL_EFORMAT (a
+ *         frame that changed or broke since open).
+ */
+PL_EXPORT int pl_seq_read_frame(pl_seq *seq, uint32_t index, float *dst, uint32_t *nsaturated,
+                                pl_err *err);
+
+/* ---- writing ------------------------------------------------------------ */
+
+/** How a written sequence stores its frames. */
+typedef enum pl_seq_storage {
+    PL_SEQ_NPY_FLOAT32 = 0, /**< cube.npy of kelvin; calibration "kelvin" */
+    PL_SEQ_NPY_UINT16 = 1,  /**< cube.npy of counts; linear calibration */
+    PL_SEQ_PNG16 = 2,       /**< a folder of 16-bit PNG counts; linear calibration */
+} pl_seq_storage;
+
+/** What to write. Initialise with PL_SEQ_INFO_INIT. */
+typedef struct pl_seq_info {
+    unsigned version;         /**< PL_SEQ_INFO_VERSION */
+    uint32_t width, height;
+    uint32_t frame_count;
+    double frame_rate_hz;     /**< uniform frames from t = 0 */
+    double flash_time_s;
+    uint32_t preflash_frames;
+    pl_seq_storage storage;
+    double gain_k;            /**< kelvin per count (counts storage) */
+    double offset_k;          /**< kelvin at count 0 (counts storage) */
+    uint16_t saturation_count;/**< counts storage: clamp here and mark saturated */
+    double pitch_u, pitch_v;  /**< pixel footprint in mm; NaN: not written */
+    const char *acquisition_json; /**< a JSON object, or NULL */
+} pl_seq_info;
+
+#define PL_SEQ_INFO_VERSION 1
+#define PL_SEQ_INFO_INIT \
+    { PL_SEQ_INFO_VERSION, 0, 0, 0, 0.0, 0.0, 0, PL_SEQ_NPY_FLOAT32, 0.001, 273.15, 65535, \
+      NAN, NAN, NULL }
+
+typedef struct pl_seq_writer pl_seq_writer;
+
+/**
+ * Start writing a sequence whose manifest will be `manifest_path`; the
+ * data goes beside it (<name>.npy, or the folder <name>-frames/).
+ * @param[out] out  finish with pl_seq_writer_close()
+ * @return PL_OK, PL_EINVAL (bad info), PL_EIO, PL_ENOMEM.
+ */
+PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
+                                 const pl_seq_info *info, pl_err *err);
+
+/**
+ * Append the next frame, width * height temperatures in kelvin. Counts
+ * storage rounds to the nearest count and clamps to 0..saturation_count.
+ * @return PL_OK, PL_EINVAL (more frames than frame_count), PL_EIO.
+ */
+PL_EXPORT int pl_seq_writer_frame(pl_seq_writer *w, const float *kelvin, pl_err *err);
+
+/**
+ * Finish: check every frame was written, write the manifest, free `w`
+ * (also on failure; a failed sequence's files are removed). NULL accepted.
+ * @return PL_OK, PL_EINVAL (frames missing), PL_EIO.
+ */
+PL_EXPORT int pl_seq_writer_close(pl_seq_writer *w, pl_err *err);
+
+/** Abandon a sequence being written: remove its files and free `w`. NULL accepted. */
+PL_EXPORT void pl_seq_writer_discard(pl_seq_writer *w);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

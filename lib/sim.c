@@ -1,0 +1,2 @@
+/* sim.c - placeholder until the module lands. */
+typedef int pl__placeholder_sim;
