@@ -132,6 +132,24 @@ int cli_text(char *dst, size_t cap, const char *src, const char *opt)
     return 0;
 }
 
+int cli_pitch(const char *opt, const char *arg, double *pu, double *pv, const char *usage)
+{
+    char buf[64];
+    if (cli_text(buf, sizeof buf, arg, opt))
+        return CLI_USAGE;
+    char *comma = strchr(buf, ',');
+    if (comma)
+        *comma = '\0';
+    if (cli_number(opt, buf, pu, usage))
+        return CLI_USAGE;
+    *pv = *pu;
+    if (comma && cli_number(opt, comma + 1, pv, usage))
+        return CLI_USAGE;
+    if (!(*pu > 0) || !(*pv > 0))
+        return cli_usage_error(usage, "%s must be positive", opt);
+    return 0;
+}
+
 int cli_number(const char *opt, const char *arg, double *out, const char *usage)
 {
     char *end;

@@ -112,6 +112,59 @@ cJSON *cli_json_placement(const pl_placement *p);
 /* "%g" of a double, or "-" when NaN; returns buf. */
 const char *cli_fmt_num(char *buf, size_t size, double v);
 
+/* Parse "MM" or "MM,MM" (a pitch along u[,v]) strictly; both > 0. */
+int cli_pitch(const char *opt, const char *arg, double *pu, double *pv, const char *usage);
+
+/* Read a file holding one JSON object; returns it compact in *out
+ * (malloc'd). Prints the failure itself. */
+int cli_read_json_object(const char *path, char **out);
+
+/* ---- the options that describe an inspection (record, reduce) ------------ */
+
+enum {
+    CLI_O_AIRFRAME = 0x300, CLI_O_SITE, CLI_O_KIND, CLI_O_DATE, CLI_O_TASK, CLI_O_HOURS,
+    CLI_O_CYCLES, CLI_O_PROCEDURE, CLI_O_PROCEDURE_REV, CLI_O_EQUIPMENT, CLI_O_CALIBRATION,
+    CLI_O_INSPECTOR, CLI_O_LEVEL, CLI_O_NOTES, CLI_O_PARAMETERS, CLI_O_INSPECTION_END,
+};
+
+/* The entries to put in a command's struct option table. */
+#define CLI_INSPECTION_OPTIONS \
+    { "airframe", required_argument, NULL, CLI_O_AIRFRAME }, \
+    { "site", required_argument, NULL, CLI_O_SITE }, \
+    { "kind", required_argument, NULL, CLI_O_KIND }, \
+    { "date", required_argument, NULL, CLI_O_DATE }, \
+    { "task", required_argument, NULL, CLI_O_TASK }, \
+    { "hours", required_argument, NULL, CLI_O_HOURS }, \
+    { "cycles", required_argument, NULL, CLI_O_CYCLES }, \
+    { "procedure", required_argument, NULL, CLI_O_PROCEDURE }, \
+    { "procedure-rev", required_argument, NULL, CLI_O_PROCEDURE_REV }, \
+    { "equipment", required_argument, NULL, CLI_O_EQUIPMENT }, \
+    { "calibration", required_argument, NULL, CLI_O_CALIBRATION }, \
+    { "inspector", required_argument, NULL, CLI_O_INSPECTOR }, \
+    { "level", required_argument, NULL, CLI_O_LEVEL }, \
+    { "notes", required_argument, NULL, CLI_O_NOTES }, \
+    { "parameters", required_argument, NULL, CLI_O_PARAMETERS }
+
+typedef struct cli_inspection_args {
+    const char *airframe, *site, *kind, *date, *task, *procedure, *procedure_rev, *equipment,
+        *calibration, *inspector, *level, *notes, *parameters;
+    double hours;
+    long long cycles;
+    int has_hours, has_cycles;
+} cli_inspection_args;
+
+/* Help text for those options. */
+extern const char cli_inspection_help[];
+
+void cli_inspection_init(cli_inspection_args *a);
+/* Take option `opt` (one of CLI_O_...); 0 or CLI_USAGE (printed). */
+int cli_inspection_take(cli_inspection_args *a, int opt, const char *arg, const char *usage);
+/* Whether any inspection option was given. */
+int cli_inspection_given(const cli_inspection_args *a);
+/* Write the given options over `in`; params (may be NULL) replaces the
+ * parameters. 0, or CLI_USAGE / CLI_ERROR (printed). */
+int cli_inspection_apply(const cli_inspection_args *a, pl_inspection *in, const char *params);
+
 /* Subcommands. */
 int cmd_create(int argc, char **argv);
 int cmd_add_airframe(int argc, char **argv);

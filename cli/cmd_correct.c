@@ -196,19 +196,8 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
             return rc;
         s.height_px = (uint32_t)n;
     }
-    if (V(a, O_PITCH)) {
-        char buf[64];
-        if ((rc = cli_text(buf, sizeof buf, V(a, O_PITCH), "--pitch")))
-            return rc;
-        char *comma = strchr(buf, ',');
-        if (comma)
-            *comma = '\0';
-        if ((rc = cli_number("--pitch", buf, &s.pitch_u, usage)))
-            return rc;
-        s.pitch_v = s.pitch_u;
-        if (comma && (rc = cli_number("--pitch", comma + 1, &s.pitch_v, usage)))
-            return rc;
-    }
+    if (V(a, O_PITCH) && (rc = cli_pitch("--pitch", V(a, O_PITCH), &s.pitch_u, &s.pitch_v, usage)))
+        return rc;
     st = pl_store_correct_site(store, &s, V(a, O_REASON), NULL, &err);
     if (!st)
         st = pl_store_get_site(store, V(a, O_AIRFRAME), V(a, O_SITE), &s, &err);
