@@ -17,6 +17,7 @@ const cli_command cli_commands[] = {
     { "inspections", cmd_inspections, "list inspections" },
     { "history", cmd_history, "show every inspection of one site, oldest first" },
     { "export-map", cmd_export_map, "write a stored map as PNG, .npy or a colour rendering" },
+    { "simulate", cmd_simulate, "simulate a flash-thermography sequence of a described site" },
     { "summary", cmd_summary, "show what the store holds" },
     { "quantities", cmd_quantities, "list the map quantities and their units" },
     { "version", cmd_version, "print the program and library versions" },

@@ -18,5 +18,7 @@
 #include "plyledger/store.h"
 #include "plyledger/plan.h"
 #include "plyledger/record.h"
+#include "plyledger/seq.h"
+#include "plyledger/sim.h"
 
 #endif

@@ -34,12 +34,33 @@
  *                                             the inspection
  *   }
  *
- * The data path is relative to the manifest's folder. Unknown top-level keys
- * are refused. pl_seq_open() validates everything it can without reading
- * every frame: manifest, shapes, times, file sizes, that every PNG frame
- * exists. Frames are then read one at a time (pl_seq_read_frame()), so a
- * sequence of any length is reduced in bounded memory. Times are returned
- * relative to the flash.
+ * The data path is relative to the manifest's folder. Unknown keys (at the
+ * top level and inside "data" and "calibration") and repeated keys are
+ * refused. pl_seq_open() validates everything it can without reading every
+ * frame: manifest, shapes, times, file sizes, that every PNG frame exists.
+ * Frames are then read one at a time (pl_seq_read_frame()), so a sequence
+ * of any length is reduced in bounded memory. Times are returned relative
+ * to the flash.
+ *
+ * Details of the rules:
+ * - A cube must hold exactly frames x rows x cols elements after its
+ *   header: a shorter file is "truncated", a longer one refused too. Either
+ *   byte order is read.
+ * - A PNG folder needs "frame_count" (or "frame_times_s"); frame i is
+ *   folder/pattern % (first + i). The pattern holds exactly one "%d" or
+ *   "%0Nd" (N from 1 to 20), "%%" for a literal '%', and no '/'. Every
+ *   frame is 16-bit grayscale (interlaced or not) of frame 0's size.
+ * - Linear and table calibrations need uint16 data (cube or PNG); "kelvin"
+ *   needs a float32 cube. gain_k must be > 0. A table has at least 2
+ *   points, counts strictly increasing; between points it interpolates
+ *   linearly and outside it takes the end values, the rule of
+ *   numpy.interp (results agree to the bit after rounding to float).
+ * - Saturation applies to counts only: a count >= saturation_count reads
+ *   as NaN and is counted. A float32 cube's values are passed as they are
+ *   (a NaN in it is not counted as saturated).
+ * - A frame at exactly flash_time_s is neither before nor after the flash.
+ *   At least one frame must come before and one after; "preflash_frames"
+ *   may not exceed the frames before the flash.
  */
 #ifndef PLYLEDGER_SEQ_H
 #define PLYLEDGER_SEQ_H
@@ -56,13 +77,15 @@ typedef struct pl_seq pl_seq;
 
 /**
  * Open a sequence by its manifest.
- * @param[out] out  close with pl_seq_close()
- * @return PL_OK, PL_EIO (cannot read), PL_EFORMAT (manifest not JSON, a key
- *         missing, unknown or of the wrong type; data not a uint16/float32
- *         3-D C-order cube; a missing or non-grayscale PNG frame; shape or
+ * @param[out] out  close with pl_seq_close(); NULL on failure
+ * @return PL_OK, PL_EIO (the manifest, the cube or a frame cannot be opened
+ *         or read), PL_EFORMAT (manifest not JSON, a key missing, unknown,
+ *         repeated or of the wrong type; data not a uint16/float32 3-D
+ *         C-order cube; a missing or non-grayscale PNG frame; shape or
  *         frame count disagreeing with the manifest; times not increasing;
  *         truncated data; no frame before or after the flash), PL_ENOMEM.
- *         Messages name the file and the field or frame.
+ *         Messages name the file (the manifest, the cube or the frame as
+ *         the manifest path and "data" make it) and the key or frame.
  */
 PL_EXPORT int pl_seq_open(pl_seq **out, const char *manifest_path, pl_err *err);
 
@@ -98,10 +121,12 @@ PL_EXPORT const char *pl_seq_acquisition_json(const pl_seq *seq);
 /**
  * Read frame `index` as temperatures in kelvin into `dst` (width * height
  * floats, row-major). Saturated pixels are NaN; their count goes to
- * [out] nsaturated (may be NULL). Reading frames in increasing order is
- * the fast path.
+ * [out] nsaturated (may be NULL; 0 for a float32 cube). Reading frames in
+ * increasing order is the fast path; any order works. The pl_seq keeps one
+ * frame's buffer: use one pl_seq from one thread at a time.
  * @return PL_OK, PL_EINVAL (index out of range), PL_EIO, PL_EFORMAT (a
- *         frame that changed or broke since open).
+ *         frame that changed or broke since open), PL_ENOMEM (PNG reader).
+ *         On failure `dst` may be partly written.
  */
 PL_EXPORT int pl_seq_read_frame(pl_seq *seq, uint32_t index, float *dst, uint32_t *nsaturated,
                                 pl_err *err);
@@ -139,25 +164,43 @@ typedef struct pl_seq_info {
 typedef struct pl_seq_writer pl_seq_writer;
 
 /**
- * Start writing a sequence whose manifest will be `manifest_path`; the
- * data goes beside it (<name>.npy, or the folder <name>-frames/).
- * @param[out] out  finish with pl_seq_writer_close()
- * @return PL_OK, PL_EINVAL (bad info), PL_EIO, PL_ENOMEM.
+ * Start writing a sequence whose manifest will be `manifest_path`
+ * (<name>.json); the data goes beside it (<name>.npy, or the folder
+ * <name>-frames/ of frame-00000.png, frame-00001.png ...). Everything is
+ * written under temporary names in the same folder and renamed into place
+ * by pl_seq_writer_close(), the manifest last, so a failed or discarded
+ * sequence leaves nothing behind. An existing sequence of the same name is
+ * replaced; an existing <name>-frames that holds anything but frame files
+ * is not touched (PL_EEXISTS).
+ * info: at least 2 frames, a frame before and one after the flash (as the
+ * reader counts them); preflash_frames 0 means every frame before the
+ * flash; counts storage needs gain_k > 0 and saturation_count >= 1; pitch
+ * both > 0 or both NaN; acquisition_json a JSON object or NULL.
+ * @param[out] out  finish with pl_seq_writer_close(); NULL on failure
+ * @return PL_OK, PL_EINVAL (bad info; a manifest named <name>.npy),
+ *         PL_EEXISTS, PL_EIO, PL_ENOMEM.
  */
 PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
                                  const pl_seq_info *info, pl_err *err);
 
 /**
  * Append the next frame, width * height temperatures in kelvin. Counts
- * storage rounds to the nearest count and clamps to 0..saturation_count.
- * @return PL_OK, PL_EINVAL (more frames than frame_count), PL_EIO.
+ * storage writes floor((K - offset_k) / gain_k + 0.5) clamped to
+ * 0..saturation_count; NaN and +inf become saturation_count, so they read
+ * back as saturated (NaN). float32 storage keeps the values bit for bit.
+ * @return PL_OK, PL_EINVAL (more frames than frame_count, which the
+ *         sequence survives; or an earlier frame failed), PL_EIO,
+ *         PL_ENOMEM. After PL_EIO or PL_ENOMEM the sequence can only be
+ *         closed (which fails) or discarded.
  */
 PL_EXPORT int pl_seq_writer_frame(pl_seq_writer *w, const float *kelvin, pl_err *err);
 
 /**
  * Finish: check every frame was written, write the manifest, free `w`
  * (also on failure; a failed sequence's files are removed). NULL accepted.
- * @return PL_OK, PL_EINVAL (frames missing), PL_EIO.
+ * @return PL_OK, PL_EINVAL (frames missing), PL_EIO (also after a frame
+ *         failed), PL_EEXISTS (a foreign folder took the frames' name),
+ *         PL_ENOMEM.
  */
 PL_EXPORT int pl_seq_writer_close(pl_seq_writer *w, pl_err *err);
 
