@@ -10,6 +10,8 @@ const cli_command cli_commands[] = {
     { "add-airframe", cmd_add_airframe, "register an airframe by its serial" },
     { "set-operator", cmd_set_operator, "record that an airframe changed operator" },
     { "import-plan", cmd_import_plan, "add a site plan (CSV) to an airframe" },
+    { "simulate", cmd_simulate, "simulate a flash-thermography sequence of a described site" },
+    { "reduce", cmd_reduce, "reduce a thermal sequence to maps, or record them as an inspection" },
     { "record", cmd_record, "record inspections of one or many sites with their maps" },
     { "correct", cmd_correct, "correct a recorded inspection or site, with a reason" },
     { "airframes", cmd_airframes, "list airframes" },
@@ -17,7 +19,6 @@ const cli_command cli_commands[] = {
     { "inspections", cmd_inspections, "list inspections" },
     { "history", cmd_history, "show every inspection of one site, oldest first" },
     { "export-map", cmd_export_map, "write a stored map as PNG, .npy or a colour rendering" },
-    { "simulate", cmd_simulate, "simulate a flash-thermography sequence of a described site" },
     { "summary", cmd_summary, "show what the store holds" },
     { "quantities", cmd_quantities, "list the map quantities and their units" },
     { "version", cmd_version, "print the program and library versions" },
@@ -36,7 +37,7 @@ static void print_overview(FILE *out)
             "\n"
             "Commands:\n");
     for (size_t i = 0; i < cli_command_count; i++)
-        fprintf(out, "  %-14s %s\n", cli_commands[i].name, cli_commands[i].summary);
+        fprintf(out, "  %-13s %s\n", cli_commands[i].name, cli_commands[i].summary);
     fprintf(out,
             "\n"
             "Every command takes --help. Listing commands take --json.\n"

@@ -589,3 +589,48 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
     }
     return pl_store_commit(store, err);
 }
+
+PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,
+                                       const char *made_by, const char *source,
+                                       const char *parameters_json, pl_id *inspection_key,
+                                       pl_id *map_id, pl_err *err)
+{
+    pl_site site;
+    int rc = pl_store_get_site(store, insp->airframe_serial, insp->site_code, &site, err);
+    if (rc)
+        return rc;
+    double pu = isnan(map->pitch_u) ? site.pitch_u : map->pitch_u;
+    double pv = isnan(map->pitch_v) ? site.pitch_v : map->pitch_v;
+    if ((rc = pl_map_set_pitch(map, pu, pv, err)))
+        return rc;
+    map->placement = site.map_frame;
+    if ((rc = pl_store_begin(store, err)))
+        return rc;
+    pl_id key = 0, id = 0;
+    rc = name_site(pl_store_add_inspection(store, insp, &key, err), insp, err);
+    if (!rc) {
+        pl_map_record mr;
+        memset(&mr, 0, sizeof mr);
+        mr.inspection_key = key;
+        snprintf(mr.source, sizeof mr.source, "%s", source ? pl__basename(source) : "");
+        snprintf(mr.origin, sizeof mr.origin, "%s", made_by ? made_by : "import");
+        /* the record holds a writable pointer (reads hand out owned text) */
+        mr.parameters_json = parameters_json ? pl__strdup(parameters_json) : NULL;
+        if (parameters_json && !mr.parameters_json)
+            rc = pl__err(err, PL_ENOMEM, "out of memory");
+        else
+            rc = name_site(pl_store_add_map(store, &mr, map, &id, err), insp, err);
+        free(mr.parameters_json);
+    }
+    if (rc) {
+        pl_store_rollback(store);
+        return rc;
+    }
+    if ((rc = pl_store_commit(store, err)))
+        return rc;
+    if (inspection_key)
+        *inspection_key = key;
+    if (map_id)
+        *map_id = id;
+    return PL_OK;
+}

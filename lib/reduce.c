@@ -1,2 +1,2101 @@
-/* reduce.c - placeholder until the module lands. */
-typedef int pl__placeholder_reduce;
+/*
+ * reduce.c - flash-thermography sequences into maps: log-spaced sampling,
+ * log-log polynomial reconstruction, derivative, peak-time, depth,
+ * contrast and pulse-phase maps (see plyledger/reduce.h for the methods and
+ * their sources).
+ *
+ * Layout in memory. Per pixel the reducer keeps the cold (pre-flash) mean,
+ * a running sum for the current segment (the run of frames that share one
+ * log-spaced and one uniform bin), one for the log-spaced bin and one for
+ * the uniform (pulse-phase) bin being filled, and the finished bins: ln of
+ * the mean rise of each log-spaced bin and the mean rise of each uniform
+ * bin. Bins are stored bin-major (all pixels of bin 0, then bin 1...) so
+ * that closing a bin writes one contiguous row of floats. Frames arrive in
+ * batches of BATCH_FRAMES; worker threads accumulate one batch while the
+ * caller fills the other batch buffer, walking the pixels in blocks so that
+ * the running sums stay in cache across the batch's frames.
+ *
+ * The per-pixel stage works on blocks of PB neighbouring pixels, whose
+ * samples are then PB contiguous floats per bin: the fit, the third
+ * derivative on the peak-search grid and the fit at the sample times are
+ * small matrix products over the block (combine_rows()), each pixel's
+ * values summed in a fixed order so that blocks and threads do not change
+ * any result.
+ */
+#include "reduce_int.h"
+
+#include "common_int.h"
+
+#include <assert.h>
+#include <cjson/cJSON.h>
+#include <float.h>
+#include <inttypes.h>
+#include <kiss_fftr.h>
+#include <math.h>
+#include <pthread.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#ifndef M_PI
+#define M_PI 3.14159265358979323846
+#endif
+
+#define BATCH_FRAMES 2u
+#define BLOCK_PIXELS 2048u
+#define REF_MAX_PIXELS 16384u
+#define PEAK_GRID 64
+#define SLAB_GRID 64
+#define SLAB_GOLDEN_STEPS 30
+#define FINISH_CHUNKS 32u
+#define MAX_THREADS 256u
+#define STREAM_SHARE 0.8 /* share of the progress fraction taken by the frames */
+
+/* ---- the finite slab ---------------------------------------------------- */
+
+void pl_reduce__slab(double v, double out[3])
+{
+    double u = exp(v);
+    double s0 = 1.0, s1 = 0.0, s2 = 0.0, tail = 0.0;
+    if (u < 1.0 / M_PI) {
+        /* Image form: F = (pi u)^-1/2 S, S = 1 + 2 sum exp(-m^2 w), w = 1/u;
+         * dS/dv = 2 sum a e, d2S/dv2 = 2 sum (a^2 - a) e with a = m^2 w. */
+        double w = 1.0 / u;
+        for (int m = 1; m < 64; m++) {
+            double a = (double)m * m * w, e = exp(-a);
+            if (e == 0.0)
+                break;
+            tail += 2.0 * e;
+            s1 += 2.0 * a * e;
+            s2 += 2.0 * (a * a - a) * e;
+        }
+        s0 = 1.0 + tail;
+        double r1 = s1 / s0;
+        out[0] = -0.5 * (log(M_PI) + v) + log1p(tail);
+        out[1] = -0.5 + r1;
+        out[2] = s2 / s0 - r1 * r1;
+    } else {
+        /* Fourier form: F = 1 + 2 sum exp(-a), a = n^2 pi^2 u; dF/dv =
+         * -2 sum a e, d2F/dv2 = 2 sum (a^2 - a) e. */
+        for (int n = 1; n < 64; n++) {
+            double a = (double)n * n * M_PI * M_PI * u, e = exp(-a);
+            if (e == 0.0)
+                break;
+            tail += 2.0 * e;
+            s1 -= 2.0 * a * e;
+            s2 += 2.0 * (a * a - a) * e;
+        }
+        s0 = 1.0 + tail;
+        double r1 = s1 / s0;
+        out[0] = log1p(tail);
+        out[1] = r1;
+        out[2] = s2 / s0 - r1 * r1;
+    }
+}
+
+/* ln F tabulated on v in [SLAB_V0, SLAB_V1] with its exact slope, read by
+ * cubic Hermite interpolation (error about 1e-8). Beyond the table the
+ * leading terms are exact in double precision: at v = -10 the first image
+ * term is exp(-e^10), at v = 3 the first Fourier term exp(-20 pi^2). */
+#define SLAB_V0 (-10.0)
+#define SLAB_V1 3.0
+#define SLAB_PER_UNIT 32
+#define SLAB_N (13 * SLAB_PER_UNIT + 1) /* (SLAB_V1 - SLAB_V0) * SLAB_PER_UNIT + 1 */
+
+static double slab_g[SLAB_N], slab_dg[SLAB_N];
+static pthread_once_t slab_once = PTHREAD_ONCE_INIT;
+
+static void slab_build(void)
+{
+    for (int i = 0; i < SLAB_N; i++) {
+        double o[3];
+        pl_reduce__slab(SLAB_V0 + (double)i / SLAB_PER_UNIT, o);
+        slab_g[i] = o[0];
+        slab_dg[i] = o[1];
+    }
+}
+
+static double slab_lnf(double v)
+{
+    if (v <= SLAB_V0)
+        return -0.5 * (log(M_PI) + v);
+    if (v >= SLAB_V1)
+        return log1p(2.0 * exp(-M_PI * M_PI * exp(v)));
+    double s = (v - SLAB_V0) * SLAB_PER_UNIT;
+    int i = (int)s;
+    if (i > SLAB_N - 2)
+        i = SLAB_N - 2;
+    double t = s - i, t2 = t * t, t3 = t2 * t, h = 1.0 / SLAB_PER_UNIT;
+    return (2 * t3 - 3 * t2 + 1) * slab_g[i] + (t3 - 2 * t2 + t) * h * slab_dg[i] +
+           (-2 * t3 + 3 * t2) * slab_g[i + 1] + (t3 - t2) * h * slab_dg[i + 1];
+}
+
+/* ---- polynomials and least squares -------------------------------------- */
+
+static double poly(const double *c, uint32_t deg, double x)
+{
+    double y = c[deg];
+    for (uint32_t i = deg; i-- > 0;)
+        y = y * x + c[i];
+    return y;
+}
+
+/* Coefficients of the first derivative of a degree-`deg` polynomial. */
+static void poly_deriv(double *out, const double *c, uint32_t deg)
+{
+    for (uint32_t i = 0; i < deg; i++)
+        out[i] = (double)(i + 1) * c[i + 1];
+}
+
+/*
+ * A root of the third derivative (coefficients c3, degree d3; c4 its
+ * derivative) known to lie in (lo, hi], positive at lo and not at hi:
+ * Newton steps from the secant guess, with a bisection whenever a step
+ * would leave the bracket, until the step falls below 1e-14 relative.
+ */
+static double refine_root(const double *c3, const double *c4, uint32_t d3, double lo, double hi,
+                          double glo, double ghi)
+{
+    double x = glo > ghi ? lo + glo * (hi - lo) / (glo - ghi) : 0.5 * (lo + hi);
+    if (!(x > lo && x <= hi))
+        x = 0.5 * (lo + hi);
+    for (int it = 0; it < 60; it++) {
+        double f = poly(c3, d3, x);
+        if (f == 0.0)
+            break;
+        if (f > 0.0)
+            lo = x;
+        else
+            hi = x;
+        double fp = d3 ? poly(c4, d3 - 1, x) : 0.0;
+        double xn = fp < 0.0 ? x - f / fp : 0.5 * (lo + hi);
+        if (!(xn > lo && xn < hi))
+            xn = 0.5 * (lo + hi);
+        int done = fabs(xn - x) <= 1e-14 * (1.0 + fabs(x));
+        x = xn;
+        if (done)
+            break;
+    }
+    return x;
+}
+
+/*
+ * Least squares min |A c - z| for `nrhs` right-hand sides by Householder
+ * QR (Golub and Van Loan 2013, "Matrix computations", 4th ed., 5.3). A is
+ * m x k row-major and Z m x nrhs row-major, both overwritten; the solutions
+ * end in Z's first k rows. `v` is m doubles of scratch. Returns -1 when a
+ * column's remaining norm falls below 1e-12 of the largest column norm
+ * (rank deficient), else 0.
+ */
+static int lsq(double *A, uint32_t m, uint32_t k, double *Z, uint32_t nrhs, double *v)
+{
+    double scale = 0.0;
+    for (uint32_t j = 0; j < k; j++) {
+        double s = 0.0;
+        for (uint32_t i = 0; i < m; i++)
+            s += A[i * k + j] * A[i * k + j];
+        if (s > scale)
+            scale = s;
+    }
+    scale = sqrt(scale);
+    if (m < k || !(scale > 0.0))
+        return -1;
+    for (uint32_t j = 0; j < k; j++) {
+        double norm = 0.0;
+        for (uint32_t i = j; i < m; i++)
+            norm += A[i * k + j] * A[i * k + j];
+        norm = sqrt(norm);
+        if (!(norm > 1e-12 * scale))
+            return -1;
+        double alpha = A[j * k + j] > 0.0 ? -norm : norm;
+        double vv = 0.0;
+        for (uint32_t i = j; i < m; i++) {
+            v[i] = A[i * k + j];
+            if (i == j)
+                v[i] -= alpha;
+            vv += v[i] * v[i];
+        }
+        for (uint32_t c = j + 1; c < k; c++) {
+            double dot = 0.0;
+            for (uint32_t i = j; i < m; i++)
+                dot += v[i] * A[i * k + c];
+            double f = 2.0 * dot / vv;
+            for (uint32_t i = j; i < m; i++)
+                A[i * k + c] -= f * v[i];
+        }
+        for (uint32_t c = 0; c < nrhs; c++) {
+            double dot = 0.0;
+            for (uint32_t i = j; i < m; i++)
+                dot += v[i] * Z[i * nrhs + c];
+            double f = 2.0 * dot / vv;
+            for (uint32_t i = j; i < m; i++)
+                Z[i * nrhs + c] -= f * v[i];
+        }
+        A[j * k + j] = alpha;
+    }
+    for (uint32_t c = 0; c < nrhs; c++)
+        for (uint32_t j = k; j-- > 0;) {
+            double s = Z[j * nrhs + c];
+            for (uint32_t l = j + 1; l < k; l++)
+                s -= A[j * k + l] * Z[l * nrhs + c];
+            Z[j * nrhs + c] = s / A[j * k + j];
+        }
+    return 0;
+}
+
+/* The kth smallest of a[0..n-1] (kth < n), reordering a so that no value
+ * before position kth exceeds it: Hoare's selection (Hoare 1961,
+ * "Algorithm 65: FIND", CACM 4(7)). */
+static double select_kth(double *a, size_t n, size_t kth)
+{
+    size_t lo = 0, hi = n - 1;
+    while (lo < hi) {
+        double pivot = a[lo + (hi - lo) / 2];
+        size_t i = lo, j = hi;
+        while (i <= j) {
+            while (a[i] < pivot)
+                i++;
+            while (a[j] > pivot)
+                j--;
+            if (i <= j) {
+                double t = a[i];
+                a[i] = a[j];
+                a[j] = t;
+                i++;
+                if (j == 0)
+                    break;
+                j--;
+            }
+        }
+        if (kth <= j)
+            hi = j;
+        else if (kth >= i)
+            lo = i;
+        else
+            break;
+    }
+    return a[kth];
+}
+
+/* The median of a[0..n-1] (n > 0), reordering a; for an even count the
+ * mean of the two middle values, the lower being the largest value left
+ * before the upper one by select_kth(). */
+static double median(double *a, size_t n)
+{
+    double hi = select_kth(a, n, n / 2);
+    if (n % 2)
+        return hi;
+    double lo = a[0];
+    for (size_t i = 1; i < n / 2; i++)
+        if (a[i] > lo)
+            lo = a[i];
+    return 0.5 * (lo + hi);
+}
+
+/* ---- the reducer ------------------------------------------------------- */
+
+typedef struct frame_role {
+    int32_t lbin;      /* used log-spaced bin, or -1 */
+    int32_t pbin;      /* uniform bin, or -1 */
+    uint8_t pre;       /* a cold-reference frame */
+    uint8_t last_pre;  /* the last one: the cold mean is final after it */
+    uint8_t close_l;   /* the last frame of its log-spaced bin */
+    uint8_t close_p;   /* the last frame of its uniform bin */
+    uint8_t close_s;   /* the last frame of its segment: the run of frames
+                          sharing one log-spaced and one uniform bin */
+} frame_role;
+
+typedef struct frame_batch {
+    float *frames;                  /* BATCH_FRAMES frames */
+    uint32_t index[BATCH_FRAMES];
+    uint32_t count;
+} frame_batch;
+
+/* Per-worker scratch for the per-pixel stage, which works on blocks of PB
+ * pixels: PB-column matrices, sample- or coefficient-major. */
+#define PB 16u
+typedef struct scratch {
+    double *Zb;     /* nused x PB: ln of the mean rise */
+    double *C;      /* k x PB: coefficients */
+    double *C3;     /* k x PB: third-derivative coefficients */
+    double *G3;     /* (PEAK_GRID + 1) x PB: third derivative on the grid */
+    float *Cf;      /* k x PB: coefficients in float */
+    float *Y;       /* nused x PB: the fit at the samples, float */
+    float *Ub;      /* M x PB: uniform samples */
+    int status[PB];
+    uint32_t nvalid[PB];
+    double *A, *z, *zz, *v; /* one pixel's own solve and slab fit */
+    unsigned char *valid;
+    double *vals;   /* reference medians */
+    float *fft_in;
+    kiss_fft_cpx *fft_out;
+    kiss_fftr_cfg fft;
+    uint32_t masked, partial, no_phase;
+} scratch;
+
+typedef void (*job_fn)(pl_reducer *r, uint32_t part);
+
+typedef struct worker_arg {
+    pl_reducer *r;
+    uint32_t part;
+} worker_arg;
+
+/* Channel indices of the output map (-1: not produced). */
+typedef struct layout {
+    int at[PL_REDUCE_MAX_TIMES][5];
+    int peak_t, peak_d2, depth_d2, depth_slab, peak_contrast, peak_contrast_t;
+    int phase0; /* first phase channel; three per frequency */
+    uint32_t nchannels;
+} layout;
+
+enum { STREAMING = 0, FINISHED = 1 };
+
+struct pl_reducer {
+    uint32_t width, height, nframes, preflash;
+    size_t npix;
+    double *times;
+    pl_reduce_options opt;
+    double map_times[PL_REDUCE_MAX_TIMES];
+    unsigned products;
+    uint32_t degree, k; /* k = degree + 1 coefficients */
+    double alpha;
+
+    /* log-spaced sampling */
+    double start, end;
+    uint32_t nbins, nused;
+    double *edges;      /* nbins + 1 */
+    uint32_t *bin_used; /* nbins: used index or UINT32_MAX */
+    double *lnt;        /* nused: mean ln t of each used bin's frames */
+    uint32_t *lcount;   /* nused: frames per used bin */
+    float *inv_l;       /* nused */
+    double centre, scale;
+    double *xs;         /* nused scaled abscissae */
+    double *design;     /* nused x k */
+    float *designf;     /* the same in float */
+    double *pinv;       /* k x nused: the pseudo-inverse */
+    double xt[PL_REDUCE_MAX_TIMES];
+    double gx[PEAK_GRID + 1]; /* the peak search grid over the samples */
+    double gpow[(PEAK_GRID + 1) * (PL_REDUCE_MAX_DEGREE - 2)]; /* gx^i, i <= degree - 3 */
+
+    /* uniform sampling for pulse phase */
+    uint32_t nfreq, M;
+    double trunc, dtp;
+    uint32_t *pcount; /* M */
+    float *inv_p;     /* M */
+    uint32_t *fill_lo, *fill_hi; /* M: neighbours of an empty bin */
+    float *fill_w;
+    uint32_t nempty_p;
+
+    frame_role *role;
+    uint32_t nneeded, fed;
+    int64_t last_index;
+    uint32_t next_needed;
+    int state;   /* STREAMING, FINISHED, or a negative status after a failure */
+
+    float *cold, *acc_s, *acc_l, *acc_p, *bins_l, *bins_p;
+    double *cold_sum;
+    uint32_t *cold_n;
+    frame_batch batch[2];
+    uint32_t cur, job_batch;
+
+    /* worker threads */
+    uint32_t nthreads, started;
+    pthread_t *threads;
+    worker_arg *args;
+    pthread_mutex_t mu;
+    pthread_cond_t go, done;
+    uint64_t gen;
+    uint32_t busy;
+    int quit;
+    job_fn fn;
+
+    /* per-pixel stage */
+    layout lay;
+    pl_map *map;
+    scratch *ws;
+    uint32_t row0, row1;
+    double cref[PL_REDUCE_MAX_DEGREE + 1];
+    double *ref_rise;        /* nused: reconstructed reference rise */
+    float *ref_risef;        /* the same in float */
+    int ref_region;
+    size_t *ref_pix, ref_np; /* pixels making the reference */
+    double *zref;            /* nused: reference samples */
+    float *pref;             /* M: reference uniform samples */
+    double ref_at[PL_REDUCE_MAX_TIMES];
+    double ref_phase[PL_REDUCE_MAX_PHASE_SAMPLES / 2];
+    const char *ref_kind;
+    double *slab_G, *slab_lam; /* SLAB_GRID x nused and SLAB_GRID */
+    pl_reduce_stats stats;
+};
+
+/* ---- worker threads ----------------------------------------------------- */
+
+static void *worker_main(void *p)
+{
+    worker_arg *a = p;
+    pl_reducer *r = a->r;
+    uint64_t seen = 0;
+    pthread_mutex_lock(&r->mu);
+    for (;;) {
+        while (!r->quit && r->gen == seen)
+            pthread_cond_wait(&r->go, &r->mu);
+        if (r->quit)
+            break;
+        seen = r->gen;
+        job_fn fn = r->fn;
+        pthread_mutex_unlock(&r->mu);
+        fn(r, a->part);
+        pthread_mutex_lock(&r->mu);
+        if (--r->busy == 0)
+            pthread_cond_broadcast(&r->done);
+    }
+    pthread_mutex_unlock(&r->mu);
+    return NULL;
+}
+
+static void pool_wait(pl_reducer *r)
+{
+    pthread_mutex_lock(&r->mu);
+    while (r->busy)
+        pthread_cond_wait(&r->done, &r->mu);
+    pthread_mutex_unlock(&r->mu);
+}
+
+/* Start `fn` on every worker and return at once; pool_wait() joins. */
+static void pool_start(pl_reducer *r, job_fn fn)
+{
+    pthread_mutex_lock(&r->mu);
+    while (r->busy)
+        pthread_cond_wait(&r->done, &r->mu);
+    r->fn = fn;
+    r->busy = r->nthreads;
+    r->gen++;
+    pthread_cond_broadcast(&r->go);
+    pthread_mutex_unlock(&r->mu);
+}
+
+/* Rows [a, b) split into nthreads parts: part `part`'s pixel range. */
+static void part_pixels(const pl_reducer *r, uint32_t part, uint32_t a, uint32_t b, size_t *p0,
+                        size_t *p1)
+{
+    uint64_t rows = b - a;
+    uint32_t r0 = a + (uint32_t)(rows * part / r->nthreads);
+    uint32_t r1 = a + (uint32_t)(rows * (part + 1) / r->nthreads);
+    *p0 = (size_t)r0 * r->width;
+    *p1 = (size_t)r1 * r->width;
+}
+
+/* ---- streaming ---------------------------------------------------------- */
+
+static void batch_job(pl_reducer *r, uint32_t part)
+{
+    const frame_batch *b = &r->batch[r->job_batch];
+    size_t p0, p1, npix = r->npix;
+    part_pixels(r, part, 0, r->height, &p0, &p1);
+    for (size_t q0 = p0; q0 < p1; q0 += BLOCK_PIXELS) {
+        size_t q1 = q0 + BLOCK_PIXELS < p1 ? q0 + BLOCK_PIXELS : p1;
+        for (uint32_t f = 0; f < b->count; f++) {
+            const frame_role *ro = &r->role[b->index[f]];
+            const float *restrict v = b->frames + (size_t)f * npix;
+            if (ro->pre) {
+                for (size_t p = q0; p < q1; p++)
+                    if (isfinite(v[p])) {
+                        r->cold_sum[p] += v[p];
+                        r->cold_n[p]++;
+                    }
+                if (ro->last_pre)
+                    for (size_t p = q0; p < q1; p++)
+                        r->cold[p] = r->cold_n[p] ? (float)(r->cold_sum[p] / r->cold_n[p]) : NAN;
+                continue;
+            }
+            float *restrict al = r->acc_l, *restrict ap = r->acc_p, *restrict as = r->acc_s;
+            const float *restrict cold = r->cold;
+            for (size_t p = q0; p < q1; p++)
+                as[p] += v[p] - cold[p];
+            if (ro->close_s) {
+                if (ro->lbin >= 0 && ro->pbin >= 0) {
+                    for (size_t p = q0; p < q1; p++) {
+                        al[p] += as[p];
+                        ap[p] += as[p];
+                        as[p] = 0.0f;
+                    }
+                } else {
+                    float *restrict acc = ro->lbin >= 0 ? al : ap;
+                    for (size_t p = q0; p < q1; p++) {
+                        acc[p] += as[p];
+                        as[p] = 0.0f;
+                    }
+                }
+            }
+            if (ro->close_l) {
+                float inv = r->inv_l[ro->lbin];
+                float *restrict dst = r->bins_l + (size_t)ro->lbin * npix;
+                for (size_t p = q0; p < q1; p++) {
+                    dst[p] = logf(al[p] * inv);
+                    al[p] = 0.0f;
+                }
+            }
+            if (ro->close_p) {
+                float inv = r->inv_p[ro->pbin];
+                float *restrict dst = r->bins_p + (size_t)ro->pbin * npix;
+                for (size_t p = q0; p < q1; p++) {
+                    dst[p] = ap[p] * inv;
+                    ap[p] = 0.0f;
+                }
+            }
+        }
+    }
+}
+
+static void submit_batch(pl_reducer *r)
+{
+    pool_wait(r);
+    r->job_batch = r->cur;
+    pool_start(r, batch_job);
+    r->cur ^= 1u;
+    r->batch[r->cur].count = 0;
+}
+
+static uint32_t next_needed_after(const pl_reducer *r, int64_t index)
+{
+    uint32_t i = (uint32_t)(index + 1);
+    while (i < r->nframes && !(r->role[i].pre || r->role[i].lbin >= 0 || r->role[i].pbin >= 0))
+        i++;
+    return i;
+}
+
+static int fail(pl_reducer *r, int code)
+{
+    r->state = code;
+    return code;
+}
+
+/* Check that frame `index` may come now. Returns 1 when it is needed, 0
+ * when it is to be ignored, or a negative status. */
+static int accept_frame(pl_reducer *r, uint32_t index, pl_err *err)
+{
+    if (r->state < 0)
+        return pl__err(err, r->state, "reduction: stopped after an earlier failure");
+    if (r->state == FINISHED)
+        return pl__err(err, PL_EINVAL, "reduction: frame %u after the reduction finished",
+                       index);
+    if (index >= r->nframes)
+        return pl__err(err, PL_EINVAL, "reduction: frame %u out of range (%u frames)", index,
+                       r->nframes);
+    if ((int64_t)index <= r->last_index)
+        return pl__err(err, PL_EINVAL,
+                       "reduction: frame %u after frame %" PRId64 "; frames must increase",
+                       index, r->last_index);
+    if (index > r->next_needed) {
+        pl__err(err, PL_EINVAL, "reduction: frame %u (t = %.6g s) skipped but needed",
+                r->next_needed, r->times[r->next_needed]);
+        return fail(r, PL_EINVAL);
+    }
+    r->last_index = index;
+    return index == r->next_needed;
+}
+
+static float *batch_slot(pl_reducer *r)
+{
+    frame_batch *b = &r->batch[r->cur];
+    return b->frames + (size_t)b->count * r->npix;
+}
+
+/* The frame in the current slot is frame `index`: queue it, hand a full
+ * batch to the workers, report progress. */
+static int commit_frame(pl_reducer *r, uint32_t index, pl_err *err)
+{
+    frame_batch *b = &r->batch[r->cur];
+    b->index[b->count++] = index;
+    r->fed++;
+    r->next_needed = next_needed_after(r, index);
+    if (b->count == BATCH_FRAMES || r->next_needed >= r->nframes) {
+        submit_batch(r);
+        if (r->opt.progress &&
+            r->opt.progress(r->opt.progress_data, STREAM_SHARE * r->fed / r->nneeded)) {
+            pool_wait(r);
+            pl__err(err, PL_ECANCELED, "reduction: cancelled at frame %u", index);
+            return fail(r, PL_ECANCELED);
+        }
+    }
+    return PL_OK;
+}
+
+PL_EXPORT int pl_reducer_frame_needed(const pl_reducer *r, uint32_t index)
+{
+    assert(r);
+    if (index >= r->nframes)
+        return 0;
+    const frame_role *ro = &r->role[index];
+    return ro->pre || ro->lbin >= 0 || ro->pbin >= 0;
+}
+
+PL_EXPORT int pl_reducer_frame(pl_reducer *r, uint32_t index, const float *kelvin, pl_err *err)
+{
+    assert(r && kelvin);
+    int rc = accept_frame(r, index, err);
+    if (rc <= 0)
+        return rc;
+    memcpy(batch_slot(r), kelvin, r->npix * sizeof(float));
+    return commit_frame(r, index, err);
+}
+
+/* ---- construction -------------------------------------------------------- */
+
+static int check_options(const pl_reduce_options *o, uint32_t width, uint32_t height,
+                         pl_err *err)
+{
+    if (o->version != PL_REDUCE_OPTIONS_VERSION)
+        return pl__err(err, PL_EINVAL, "reduction options: version %u, %u expected", o->version,
+                       PL_REDUCE_OPTIONS_VERSION);
+    if (o->degree < PL_REDUCE_MIN_DEGREE || o->degree > PL_REDUCE_MAX_DEGREE)
+        return pl__err(err, PL_EINVAL, "reduction options: degree %u outside %u..%u", o->degree,
+                       PL_REDUCE_MIN_DEGREE, PL_REDUCE_MAX_DEGREE);
+    if (o->samples < o->degree + 2 || o->samples > PL_REDUCE_MAX_SAMPLES)
+        return pl__err(err, PL_EINVAL,
+                       "reduction options: %u samples, degree + 2 .. %u expected", o->samples,
+                       PL_REDUCE_MAX_SAMPLES);
+    if (!isnan(o->start_s) && !(isfinite(o->start_s) && o->start_s > 0.0))
+        return pl__err(err, PL_EINVAL, "reduction options: start %g s is not a positive time",
+                       o->start_s);
+    if (!isnan(o->end_s) && !(isfinite(o->end_s) && o->end_s > 0.0))
+        return pl__err(err, PL_EINVAL, "reduction options: end %g s is not a positive time",
+                       o->end_s);
+    if (o->ntimes > PL_REDUCE_MAX_TIMES || (o->ntimes && !o->times_s))
+        return pl__err(err, PL_EINVAL, "reduction options: %u map times, at most %u",
+                       o->ntimes, PL_REDUCE_MAX_TIMES);
+    if (o->time_products & ~PL_REDUCE_AT_ALL)
+        return pl__err(err, PL_EINVAL, "reduction options: unknown time products 0x%x",
+                       o->time_products);
+    if (!isnan(o->diffusivity_mm2_s) &&
+        !(isfinite(o->diffusivity_mm2_s) && o->diffusivity_mm2_s > 0.0))
+        return pl__err(err, PL_EINVAL, "reduction options: diffusivity %g mm2/s not positive",
+                       o->diffusivity_mm2_s);
+    if (o->depth_method != PL_DEPTH_PEAK_D2 && o->depth_method != PL_DEPTH_SLAB_FIT &&
+        o->depth_method != PL_DEPTH_BOTH)
+        return pl__err(err, PL_EINVAL, "reduction options: unknown depth method %d",
+                       (int)o->depth_method);
+    if (o->ref_w && o->ref_h &&
+        ((uint64_t)o->ref_x + o->ref_w > width || (uint64_t)o->ref_y + o->ref_h > height))
+        return pl__err(err, PL_EINVAL,
+                       "reduction options: reference region %ux%u at (%u, %u) outside the "
+                       "%ux%u image",
+                       o->ref_w, o->ref_h, o->ref_x, o->ref_y, width, height);
+    if (o->phase_frequencies) {
+        if (o->phase_samples % 2 || o->phase_samples <= 2 * o->phase_frequencies ||
+            o->phase_samples > PL_REDUCE_MAX_PHASE_SAMPLES)
+            return pl__err(err, PL_EINVAL,
+                           "reduction options: %u phase samples for %u frequencies (even, "
+                           "more than twice the frequencies, at most %u)",
+                           o->phase_samples, o->phase_frequencies,
+                           PL_REDUCE_MAX_PHASE_SAMPLES);
+        if (!isnan(o->phase_end_s) && !(isfinite(o->phase_end_s) && o->phase_end_s > 0.0))
+            return pl__err(err, PL_EINVAL,
+                           "reduction options: truncation %g s is not a positive time",
+                           o->phase_end_s);
+    }
+    return PL_OK;
+}
+
+/* Which log-spaced bin [edges[b], edges[b+1]) holds t (the last bin also
+ * holds its upper edge), or -1. */
+static int log_bin_of(const double *edges, uint32_t nbins, double t)
+{
+    if (!(t >= edges[0] && t <= edges[nbins]))
+        return -1;
+    double f = log(t / edges[0]) / log(edges[nbins] / edges[0]) * nbins;
+    int64_t b = (int64_t)f;
+    if (b < 0)
+        b = 0;
+    if (b > (int64_t)nbins - 1)
+        b = nbins - 1;
+    while (b > 0 && t < edges[b])
+        b--;
+    while (b < (int64_t)nbins - 1 && t >= edges[b + 1])
+        b++;
+    return (int)b;
+}
+
+static int plan_sampling(pl_reducer *r, pl_err *err)
+{
+    const pl_reduce_options *o = &r->opt;
+    uint32_t first = r->nframes;
+    for (uint32_t i = r->preflash; i < r->nframes; i++)
+        if (r->times[i] > 0.0) {
+            first = i;
+            break;
+        }
+    if (first == r->nframes)
+        return pl__err(err, PL_EINVAL, "reduction: no frame after the flash");
+    double tfirst = r->times[first], tlast = r->times[r->nframes - 1];
+    r->start = isnan(o->start_s) ? PL_REDUCE_DEFAULT_START_S : o->start_s;
+    r->end = isnan(o->end_s) ? PL_REDUCE_DEFAULT_END_S : o->end_s;
+    if (r->start < tfirst)
+        r->start = tfirst;
+    if (r->end > tlast)
+        r->end = tlast;
+    if (!(r->start < r->end))
+        return pl__err(err, PL_EINVAL,
+                       "reduction: fit window %.6g-%.6g s holds no frames (frames after the "
+                       "flash span %.6g-%.6g s)",
+                       isnan(o->start_s) ? PL_REDUCE_DEFAULT_START_S : o->start_s,
+                       isnan(o->end_s) ? PL_REDUCE_DEFAULT_END_S : o->end_s, tfirst, tlast);
+    r->nbins = o->samples;
+    for (uint32_t b = 0; b <= r->nbins; b++)
+        r->edges[b] = r->start * pow(r->end / r->start, (double)b / r->nbins);
+    r->edges[0] = r->start;
+    r->edges[r->nbins] = r->end;
+
+    uint32_t *count = calloc(r->nbins, sizeof *count);
+    double *sum = calloc(r->nbins, sizeof *sum);
+    if (!count || !sum) {
+        free(count);
+        free(sum);
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    }
+    for (uint32_t i = first; i < r->nframes; i++) {
+        int b = log_bin_of(r->edges, r->nbins, r->times[i]);
+        if (b >= 0) {
+            count[b]++;
+            sum[b] += log(r->times[i]);
+        }
+    }
+    r->nused = 0;
+    for (uint32_t b = 0; b < r->nbins; b++) {
+        r->bin_used[b] = UINT32_MAX;
+        if (count[b]) {
+            r->bin_used[b] = r->nused;
+            r->lnt[r->nused] = sum[b] / count[b];
+            r->lcount[r->nused] = count[b];
+            r->inv_l[r->nused] = (float)(1.0 / count[b]);
+            r->nused++;
+        }
+    }
+    free(count);
+    free(sum);
+    if (r->nused < r->degree + 2)
+        return pl__err(err, PL_EINVAL,
+                       "reduction: only %u of %u log-spaced samples between %.6g and %.6g s "
+                       "hold frames; degree %u needs %u",
+                       r->nused, r->nbins, r->start, r->end, r->degree, r->degree + 2);
+    for (uint32_t j = 0; j < o->ntimes; j++)
+        if (!(r->map_times[j] >= r->start && r->map_times[j] <= r->end))
+            return pl__err(err, PL_ERANGE,
+                           "reduction: map time %.6g s lies outside the fit window "
+                           "%.6g-%.6g s",
+                           r->map_times[j], r->start, r->end);
+
+    /* frame roles */
+    for (uint32_t i = 0; i < r->nframes; i++) {
+        frame_role *ro = &r->role[i];
+        ro->lbin = ro->pbin = -1;
+        ro->pre = i < r->preflash;
+        ro->last_pre = i + 1 == r->preflash;
+        ro->close_l = ro->close_p = 0;
+        if (ro->pre || i < first)
+            continue;
+        int b = log_bin_of(r->edges, r->nbins, r->times[i]);
+        if (b >= 0)
+            ro->lbin = (int32_t)r->bin_used[b];
+    }
+    if (r->nfreq) {
+        r->trunc = isnan(o->phase_end_s) ? r->end : o->phase_end_s;
+        if (r->trunc > tlast)
+            return pl__err(err, PL_ERANGE,
+                           "reduction: pulse-phase truncation %.6g s after the last frame "
+                           "(%.6g s)",
+                           r->trunc, tlast);
+        r->dtp = r->trunc / r->M;
+        for (uint32_t i = first; i < r->nframes; i++) {
+            double t = r->times[i];
+            if (t > 0.0 && t < r->trunc) {
+                uint32_t m = (uint32_t)(t / r->dtp);
+                if (m >= r->M)
+                    m = r->M - 1;
+                r->role[i].pbin = (int32_t)m;
+                r->pcount[m]++;
+            }
+        }
+        uint32_t filled = 0;
+        for (uint32_t m = 0; m < r->M; m++) {
+            r->inv_p[m] = r->pcount[m] ? (float)(1.0 / r->pcount[m]) : 0.0f;
+            filled += r->pcount[m] != 0;
+        }
+        if (!filled)
+            return pl__err(err, PL_EINVAL,
+                           "reduction: no frame between the flash and the pulse-phase "
+                           "truncation at %.6g s",
+                           r->trunc);
+        /* An empty uniform bin is read as the linear interpolation between
+         * the centres of its nearest filled neighbours (the nearest one
+         * alone at either end). */
+        r->nempty_p = 0;
+        for (uint32_t m = 0; m < r->M; m++) {
+            if (r->pcount[m])
+                continue;
+            r->nempty_p++;
+            int64_t lo = (int64_t)m - 1, hi = m + 1;
+            while (lo >= 0 && !r->pcount[lo])
+                lo--;
+            while (hi < r->M && !r->pcount[hi])
+                hi++;
+            if (lo < 0)
+                lo = hi;
+            if (hi >= r->M)
+                hi = lo;
+            r->fill_lo[m] = (uint32_t)lo;
+            r->fill_hi[m] = (uint32_t)hi;
+            r->fill_w[m] = hi == lo ? 0.0f : (float)((double)(m - lo) / (double)(hi - lo));
+        }
+    }
+    int64_t last_l = -1, last_p = -1;
+    const frame_role *later = NULL;
+    for (uint32_t i = r->nframes; i-- > 0;) {
+        frame_role *ro = &r->role[i];
+        if (ro->lbin >= 0 || ro->pbin >= 0) {
+            ro->close_s = !later || later->lbin != ro->lbin || later->pbin != ro->pbin;
+            later = ro;
+        }
+        if (ro->lbin >= 0 && ro->lbin != last_l) {
+            ro->close_l = 1;
+            last_l = ro->lbin;
+        }
+        if (ro->pbin >= 0 && ro->pbin != last_p) {
+            ro->close_p = 1;
+            last_p = ro->pbin;
+        }
+    }
+    r->nneeded = 0;
+    for (uint32_t i = 0; i < r->nframes; i++)
+        r->nneeded += pl_reducer_frame_needed(r, i);
+    r->next_needed = next_needed_after(r, -1);
+    return PL_OK;
+}
+
+/* The design matrix in the scaled abscissa and its pseudo-inverse. */
+static int plan_fit(pl_reducer *r, pl_err *err)
+{
+    uint32_t n = r->nused, k = r->k;
+    r->centre = 0.5 * (r->lnt[0] + r->lnt[n - 1]);
+    r->scale = 0.5 * (r->lnt[n - 1] - r->lnt[0]);
+    for (uint32_t b = 0; b < n; b++) {
+        r->xs[b] = (r->lnt[b] - r->centre) / r->scale;
+        double p = 1.0;
+        for (uint32_t i = 0; i < k; i++) {
+            r->design[b * k + i] = p;
+            r->designf[b * k + i] = (float)p;
+            p *= r->xs[b];
+        }
+    }
+    for (uint32_t j = 0; j < r->opt.ntimes; j++)
+        r->xt[j] = (log(r->map_times[j]) - r->centre) / r->scale;
+    for (int g = 0; g <= PEAK_GRID; g++) {
+        double x = g == PEAK_GRID ? r->xs[n - 1]
+                                  : r->xs[0] + (r->xs[n - 1] - r->xs[0]) * g / PEAK_GRID, p = 1.0;
+        r->gx[g] = x;
+        for (uint32_t i = 0; i < PL_REDUCE_MAX_DEGREE - 2; i++) {
+            r->gpow[(size_t)g * (PL_REDUCE_MAX_DEGREE - 2) + i] = p;
+            p *= x;
+        }
+    }
+    double *A = malloc((size_t)n * k * sizeof *A);
+    double *Z = calloc((size_t)n * n, sizeof *Z);
+    double *v = malloc(n * sizeof *v);
+    int rc = PL_OK;
+    if (!A || !Z || !v) {
+        rc = pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    } else {
+        memcpy(A, r->design, (size_t)n * k * sizeof *A);
+        for (uint32_t b = 0; b < n; b++)
+            Z[b * n + b] = 1.0;
+        if (lsq(A, n, k, Z, n, v))
+            rc = pl__err(err, PL_EINVAL, "reduction: the %u samples cannot fit degree %u", n,
+                         r->degree);
+        else
+            memcpy(r->pinv, Z, (size_t)k * n * sizeof *Z);
+    }
+    free(A);
+    free(Z);
+    free(v);
+    return rc;
+}
+
+static void make_layout(pl_reducer *r)
+{
+    layout *l = &r->lay;
+    int c = 0;
+    for (uint32_t j = 0; j < r->opt.ntimes; j++)
+        for (unsigned q = 0; q < 5; q++)
+            l->at[j][q] = (r->products >> q) & 1u ? c++ : -1;
+    l->peak_t = c++;
+    l->peak_d2 = c++;
+    l->depth_d2 = l->depth_slab = -1;
+    if (!isnan(r->alpha)) {
+        if (r->opt.depth_method != PL_DEPTH_SLAB_FIT)
+            l->depth_d2 = c++;
+        if (r->opt.depth_method != PL_DEPTH_PEAK_D2)
+            l->depth_slab = c++;
+    }
+    l->peak_contrast = c++;
+    l->peak_contrast_t = c++;
+    l->phase0 = r->nfreq ? c : -1;
+    c += 3 * (int)r->nfreq;
+    l->nchannels = (uint32_t)c;
+}
+
+static int start_threads(pl_reducer *r, pl_err *err)
+{
+    uint32_t n = r->opt.threads;
+    if (n == 0) {
+        long cpus = sysconf(_SC_NPROCESSORS_ONLN);
+        n = cpus > 0 ? (uint32_t)cpus : 1u;
+    }
+    if (n > MAX_THREADS)
+        n = MAX_THREADS;
+    if (n > r->height)
+        n = r->height;
+    r->nthreads = n;
+    r->threads = calloc(n, sizeof *r->threads);
+    r->args = calloc(n, sizeof *r->args);
+    if (!r->threads || !r->args)
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    for (uint32_t i = 0; i < n; i++) {
+        r->args[i].r = r;
+        r->args[i].part = i;
+        if (pthread_create(&r->threads[i], NULL, worker_main, &r->args[i]))
+            return pl__err(err, PL_ENOMEM, "reduction: cannot start worker thread %u", i + 1);
+        r->started++;
+    }
+    return PL_OK;
+}
+
+static void *alloc_array(size_t n, size_t size, int *bad)
+{
+    void *p = calloc(n ? n : 1, size);
+    if (!p)
+        *bad = 1;
+    return p;
+}
+
+PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
+                             const double *times, uint32_t nframes, uint32_t preflash,
+                             const pl_reduce_options *opts, pl_err *err)
+{
+    assert(out && times);
+    *out = NULL;
+    pl__err_clear(err);
+    static const pl_reduce_options defaults = PL_REDUCE_OPTIONS_INIT;
+    const pl_reduce_options *o = opts ? opts : &defaults;
+    if (width == 0 || height == 0 || width > PL_MAP_MAX_SIDE || height > PL_MAP_MAX_SIDE)
+        return pl__err(err, PL_EINVAL, "reduction: image size %ux%u out of range", width,
+                       height);
+    if (nframes < 2 || preflash < 1 || preflash >= nframes)
+        return pl__err(err, PL_EINVAL,
+                       "reduction: %u frames with %u pre-flash frames (at least one of each "
+                       "needed)",
+                       nframes, preflash);
+    for (uint32_t i = 0; i < nframes; i++)
+        if (!isfinite(times[i]) || (i && !(times[i] > times[i - 1])))
+            return pl__err(err, PL_EINVAL, "reduction: frame %u time %.9g s is %s", i, times[i],
+                           isfinite(times[i]) ? "not after the previous one" : "not finite");
+    int rc = check_options(o, width, height, err);
+    if (rc)
+        return rc;
+    for (uint32_t j = 0; j < o->ntimes; j++)
+        if (!(isfinite(o->times_s[j]) && o->times_s[j] > 0.0))
+            return pl__err(err, PL_EINVAL, "reduction options: map time %g s is not positive",
+                           o->times_s[j]);
+
+    pl_reducer *r = calloc(1, sizeof *r);
+    if (!r)
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    pthread_mutex_init(&r->mu, NULL);
+    pthread_cond_init(&r->go, NULL);
+    pthread_cond_init(&r->done, NULL);
+    r->width = width;
+    r->height = height;
+    r->npix = (size_t)width * height;
+    r->nframes = nframes;
+    r->preflash = preflash;
+    r->opt = *o;
+    r->opt.times_s = r->map_times;
+    for (uint32_t j = 0; j < o->ntimes; j++)
+        r->map_times[j] = o->times_s[j];
+    r->products = o->time_products ? o->time_products : PL_REDUCE_AT_ALL;
+    r->degree = o->degree;
+    r->k = o->degree + 1;
+    r->alpha = o->diffusivity_mm2_s;
+    r->nfreq = o->phase_frequencies;
+    r->M = r->nfreq ? o->phase_samples : 0;
+    r->last_index = -1;
+    make_layout(r);
+    if (r->lay.nchannels > PL_MAP_MAX_CHANNELS) {
+        pl__err(err, PL_EINVAL, "reduction options: %u channels asked for, at most %u",
+                r->lay.nchannels, PL_MAP_MAX_CHANNELS);
+        pl_reducer_free(r);
+        return PL_EINVAL;
+    }
+
+    int bad = 0;
+    size_t npix = r->npix, nb = o->samples;
+    r->times = alloc_array(nframes, sizeof *r->times, &bad);
+    r->role = alloc_array(nframes, sizeof *r->role, &bad);
+    r->edges = alloc_array(nb + 1, sizeof *r->edges, &bad);
+    r->bin_used = alloc_array(nb, sizeof *r->bin_used, &bad);
+    r->lnt = alloc_array(nb, sizeof *r->lnt, &bad);
+    r->lcount = alloc_array(nb, sizeof *r->lcount, &bad);
+    r->inv_l = alloc_array(nb, sizeof *r->inv_l, &bad);
+    r->xs = alloc_array(nb, sizeof *r->xs, &bad);
+    r->design = alloc_array(nb * r->k, sizeof *r->design, &bad);
+    r->designf = alloc_array(nb * r->k, sizeof *r->designf, &bad);
+    r->pinv = alloc_array(nb * r->k, sizeof *r->pinv, &bad);
+    r->ref_rise = alloc_array(nb, sizeof *r->ref_rise, &bad);
+    r->ref_risef = alloc_array(nb, sizeof *r->ref_risef, &bad);
+    if (r->M) {
+        r->pcount = alloc_array(r->M, sizeof *r->pcount, &bad);
+        r->inv_p = alloc_array(r->M, sizeof *r->inv_p, &bad);
+        r->fill_lo = alloc_array(r->M, sizeof *r->fill_lo, &bad);
+        r->fill_hi = alloc_array(r->M, sizeof *r->fill_hi, &bad);
+        r->fill_w = alloc_array(r->M, sizeof *r->fill_w, &bad);
+    }
+    if (bad) {
+        pl_reducer_free(r);
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    }
+    memcpy(r->times, times, nframes * sizeof *times);
+    rc = plan_sampling(r, err);
+    if (!rc)
+        rc = plan_fit(r, err);
+    if (rc) {
+        pl_reducer_free(r);
+        return rc;
+    }
+    r->cold = alloc_array(npix, sizeof *r->cold, &bad);
+    r->cold_sum = alloc_array(npix, sizeof *r->cold_sum, &bad);
+    r->cold_n = alloc_array(npix, sizeof *r->cold_n, &bad);
+    r->acc_s = alloc_array(npix, sizeof *r->acc_s, &bad);
+    r->acc_l = alloc_array(npix, sizeof *r->acc_l, &bad);
+    r->bins_l = alloc_array(npix * r->nused, sizeof *r->bins_l, &bad);
+    if (r->M) {
+        r->acc_p = alloc_array(npix, sizeof *r->acc_p, &bad);
+        r->bins_p = alloc_array(npix * r->M, sizeof *r->bins_p, &bad);
+    }
+    uint32_t nbatch = r->nneeded < BATCH_FRAMES ? r->nneeded : BATCH_FRAMES;
+    for (int b = 0; b < 2; b++)
+        r->batch[b].frames = alloc_array(npix * nbatch, sizeof(float), &bad);
+    if (bad) {
+        pl_reducer_free(r);
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory for %ux%u pixels", width,
+                       height);
+    }
+    rc = start_threads(r, err);
+    if (rc) {
+        pl_reducer_free(r);
+        return rc;
+    }
+    *out = r;
+    return PL_OK;
+}
+
+PL_EXPORT void pl_reducer_free(pl_reducer *r)
+{
+    if (!r)
+        return;
+    if (r->started) {
+        pool_wait(r);
+        pthread_mutex_lock(&r->mu);
+        r->quit = 1;
+        pthread_cond_broadcast(&r->go);
+        pthread_mutex_unlock(&r->mu);
+        for (uint32_t i = 0; i < r->started; i++)
+            pthread_join(r->threads[i], NULL);
+    }
+    pthread_mutex_destroy(&r->mu);
+    pthread_cond_destroy(&r->go);
+    pthread_cond_destroy(&r->done);
+    free(r->threads);
+    free(r->args);
+    free(r->times);
+    free(r->role);
+    free(r->edges);
+    free(r->bin_used);
+    free(r->lnt);
+    free(r->lcount);
+    free(r->inv_l);
+    free(r->xs);
+    free(r->design);
+    free(r->designf);
+    free(r->pinv);
+    free(r->ref_rise);
+    free(r->ref_risef);
+    free(r->ref_pix);
+    free(r->zref);
+    free(r->pref);
+    free(r->pcount);
+    free(r->inv_p);
+    free(r->fill_lo);
+    free(r->fill_hi);
+    free(r->fill_w);
+    free(r->cold);
+    free(r->cold_sum);
+    free(r->cold_n);
+    free(r->acc_s);
+    free(r->acc_l);
+    free(r->acc_p);
+    free(r->bins_l);
+    free(r->bins_p);
+    free(r->batch[0].frames);
+    free(r->batch[1].frames);
+    free(r->slab_G);
+    free(r->slab_lam);
+    free(r);
+}
+
+/* ---- per-pixel stage ------------------------------------------------------ */
+
+/* Interpolate the empty uniform bins of one pixel's samples. */
+static void fill_phase(const pl_reducer *r, float *u)
+{
+    if (!r->nempty_p)
+        return;
+    for (uint32_t m = 0; m < r->M; m++)
+        if (!r->pcount[m])
+            u[m] = (1.0f - r->fill_w[m]) * u[r->fill_lo[m]] + r->fill_w[m] * u[r->fill_hi[m]];
+}
+
+/*
+ * out row r = sum over i < nterms of w[r * wstride + i] * X row i, for
+ * r < nrows, where every row holds PB values (PB pixels of a block). Each
+ * value is summed over i in order, from zero, in both versions below, so
+ * the result does not depend on which one is compiled. The GNU C vector
+ * type lets the compiler use whatever vector instructions the target has.
+ */
+static void combine_rows(double *restrict out, const double *restrict w, size_t wstride,
+                         uint32_t nrows, const double *restrict X, uint32_t nterms)
+{
+#if defined(__GNUC__)
+    typedef double row_t __attribute__((vector_size(PB * sizeof(double))));
+    for (uint32_t r = 0; r < nrows; r++) {
+        row_t acc = {0};
+        for (uint32_t i = 0; i < nterms; i++) {
+            row_t x;
+            memcpy(&x, X + (size_t)i * PB, sizeof x);
+            acc += w[r * wstride + i] * x;
+        }
+        memcpy(out + (size_t)r * PB, &acc, sizeof acc);
+    }
+#else
+    for (uint32_t r = 0; r < nrows; r++)
+        for (uint32_t j = 0; j < PB; j++) {
+            double acc = 0.0;
+            for (uint32_t i = 0; i < nterms; i++)
+                acc += w[r * wstride + i] * X[(size_t)i * PB + j];
+            out[(size_t)r * PB + j] = acc;
+        }
+#endif
+}
+
+/* combine_rows() in float. */
+static void combine_rows_f(float *restrict out, const float *restrict w, size_t wstride,
+                           uint32_t nrows, const float *restrict X, uint32_t nterms)
+{
+#if defined(__GNUC__)
+    typedef float row_t __attribute__((vector_size(PB * sizeof(float))));
+    for (uint32_t r = 0; r < nrows; r++) {
+        row_t acc = {0};
+        for (uint32_t i = 0; i < nterms; i++) {
+            row_t x;
+            memcpy(&x, X + (size_t)i * PB, sizeof x);
+            acc += w[r * wstride + i] * x;
+        }
+        memcpy(out + (size_t)r * PB, &acc, sizeof acc);
+    }
+#else
+    for (uint32_t r = 0; r < nrows; r++)
+        for (uint32_t j = 0; j < PB; j++) {
+            float acc = 0.0f;
+            for (uint32_t i = 0; i < nterms; i++)
+                acc += w[r * wstride + i] * X[(size_t)i * PB + j];
+            out[(size_t)r * PB + j] = acc;
+        }
+#endif
+}
+
+/*
+ * Fit the pixels p0 .. p0 + np - 1 (np <= PB) together: ws->Zb receives
+ * their samples (zero-padded to PB columns), ws->C their coefficients and
+ * ws->status whether each was fitted on all its samples (0), on the
+ * subset of valid samples by its own solve (1), or is masked (-1). The
+ * shared pseudo-inverse is applied column by column, summing over the
+ * samples in order, so a pixel's coefficients do not depend on the block
+ * (or thread) it falls in; working on PB pixels at once lets the compiler
+ * use vector instructions across pixels.
+ */
+static void fit_block(const pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
+{
+    uint32_t n = r->nused, k = r->k;
+    double *restrict Zb = ws->Zb, *restrict C = ws->C;
+    for (uint32_t j = 0; j < PB; j++)
+        ws->nvalid[j] = 0;
+    for (uint32_t b = 0; b < n; b++) {
+        const float *row = r->bins_l + (size_t)b * r->npix + p0;
+        double *zb = Zb + (size_t)b * PB;
+        for (uint32_t j = 0; j < np; j++) {
+            zb[j] = row[j];
+            ws->nvalid[j] += isfinite(zb[j]) != 0;
+        }
+        for (uint32_t j = np; j < PB; j++)
+            zb[j] = 0.0;
+    }
+    combine_rows(C, r->pinv, n, k, Zb, n);
+    uint32_t need = r->degree + 2 > (n + 1) / 2 ? r->degree + 2 : (n + 1) / 2;
+    for (uint32_t j = 0; j < np; j++) {
+        if (ws->nvalid[j] == n) {
+            ws->status[j] = 0;
+            continue;
+        }
+        ws->status[j] = -1;
+        if (ws->nvalid[j] < need)
+            continue;
+        uint32_t m = 0;
+        for (uint32_t b = 0; b < n; b++)
+            if (isfinite(Zb[(size_t)b * PB + j])) {
+                memcpy(ws->A + (size_t)m * k, r->design + (size_t)b * k, k * sizeof(double));
+                ws->zz[m++] = Zb[(size_t)b * PB + j];
+            }
+        if (lsq(ws->A, m, k, ws->zz, 1, ws->v))
+            continue;
+        for (uint32_t i = 0; i < k; i++)
+            C[(size_t)i * PB + j] = ws->zz[i];
+        ws->status[j] = 1;
+    }
+}
+
+/* Golden-section constant (3 - sqrt 5) / 2. */
+#define GOLDEN 0.38196601125010515
+
+static double slab_cost(const pl_reducer *r, const scratch *ws, double lam)
+{
+    double s = 0.0, s2 = 0.0;
+    uint32_t nv = 0;
+    double la = log(r->alpha);
+    for (uint32_t b = 0; b < r->nused; b++)
+        if (ws->valid[b]) {
+            double d = ws->z[b] - slab_lnf(la + r->lnt[b] - 2.0 * lam);
+            s += d;
+            s2 += d * d;
+            nv++;
+        }
+    return s2 - s * s / nv;
+}
+
+/* The adiabatic-slab thickness that best fits the pixel's samples (mm),
+ * NaN when the best grid point is an end of the search range. */
+static double slab_fit(const pl_reducer *r, const scratch *ws, int all_valid)
+{
+    double la = log(r->alpha), lam[SLAB_GRID], cost[SLAB_GRID];
+    uint32_t first = 0, last = r->nused - 1;
+    while (!ws->valid[first])
+        first++;
+    while (!ws->valid[last])
+        last--;
+    if (all_valid) {
+        for (int j = 0; j < SLAB_GRID; j++) {
+            const double *G = r->slab_G + (size_t)j * r->nused;
+            double s = 0.0, s2 = 0.0;
+            for (uint32_t b = 0; b < r->nused; b++) {
+                double d = ws->z[b] - G[b];
+                s += d;
+                s2 += d * d;
+            }
+            lam[j] = r->slab_lam[j];
+            cost[j] = s2 - s * s / r->nused;
+        }
+    } else {
+        double lo = 0.5 * (la + r->lnt[first] - log(16.0));
+        double hi = 0.5 * (la + r->lnt[last] + log(16.0));
+        for (int j = 0; j < SLAB_GRID; j++) {
+            lam[j] = lo + (hi - lo) * j / (SLAB_GRID - 1);
+            cost[j] = slab_cost(r, ws, lam[j]);
+        }
+    }
+    int jb = 0;
+    for (int j = 1; j < SLAB_GRID; j++)
+        if (cost[j] < cost[jb])
+            jb = j;
+    if (jb == 0 || jb == SLAB_GRID - 1 || !isfinite(cost[jb]))
+        return NAN;
+    double a = lam[jb - 1], b = lam[jb + 1];
+    double x1 = a + GOLDEN * (b - a), x2 = b - GOLDEN * (b - a);
+    double f1 = slab_cost(r, ws, x1), f2 = slab_cost(r, ws, x2);
+    for (int it = 0; it < SLAB_GOLDEN_STEPS; it++) {
+        if (f1 < f2) {
+            b = x2;
+            x2 = x1;
+            f2 = f1;
+            x1 = a + GOLDEN * (b - a);
+            f1 = slab_cost(r, ws, x1);
+        } else {
+            a = x1;
+            x1 = x2;
+            f1 = f2;
+            x2 = b - GOLDEN * (b - a);
+            f2 = slab_cost(r, ws, x2);
+        }
+    }
+    return exp(0.5 * (a + b));
+}
+
+static float *chan(const pl_reducer *r, int c)
+{
+    return r->map->data + (size_t)c * r->npix;
+}
+
+
+/*
+ * The largest positive interior maximum of the fitted second derivative
+ * of block column j (coefficients coef); its abscissa, NaN if none. Each
+ * sign change of the third derivative on the grid is a candidate, valued
+ * by the second derivative at the secant root; candidates are refined in
+ * decreasing order of that value until the rest fall more than 1 % below
+ * the best refined maximum (the secant value lies far closer than that to
+ * the true local maximum, whose error is second order in the root's).
+ */
+static double peak_d2(const pl_reducer *r, const scratch *ws, uint32_t j, const double *coef,
+                      double *value)
+{
+    uint32_t d = r->degree;
+    *value = NAN;
+    if (d < 3)
+        return NAN;
+    double c1[PL_REDUCE_MAX_DEGREE], c2[PL_REDUCE_MAX_DEGREE], c3[PL_REDUCE_MAX_DEGREE],
+        c4[PL_REDUCE_MAX_DEGREE];
+    poly_deriv(c1, coef, d);
+    poly_deriv(c2, c1, d - 1);
+    poly_deriv(c3, c2, d - 2);
+    poly_deriv(c4, c3, d - 3);
+    double xlo = r->gx[0], xhi = r->gx[PEAK_GRID], eps = 1e-9 * (xhi - xlo);
+    double cv[PEAK_GRID];
+    int cg[PEAK_GRID], nc = 0;
+    for (int g = 1; g <= PEAK_GRID; g++) {
+        double ga = ws->G3[(size_t)(g - 1) * PB + j], gb = ws->G3[(size_t)g * PB + j];
+        if (!(ga > 0.0 && gb <= 0.0))
+            continue;
+        double x0 = r->gx[g - 1] + ga * (r->gx[g] - r->gx[g - 1]) / (ga - gb);
+        double v0 = poly(c2, d - 2, x0);
+        int at = nc++;
+        while (at > 0 && cv[at - 1] < v0) {
+            cv[at] = cv[at - 1];
+            cg[at] = cg[at - 1];
+            at--;
+        }
+        cv[at] = v0;
+        cg[at] = g;
+    }
+    double best = NAN, bestv = 0.0;
+    for (int c = 0; c < nc; c++) {
+        if (!isnan(best) && cv[c] < bestv - 0.01 * fabs(bestv))
+            break;
+        int g = cg[c];
+        double xr = refine_root(c3, c4, d - 3, r->gx[g - 1], r->gx[g],
+                                ws->G3[(size_t)(g - 1) * PB + j], ws->G3[(size_t)g * PB + j]);
+        if (xr > xlo + eps && xr < xhi - eps) {
+            double v = poly(c2, d - 2, xr);
+            if (v > bestv) {
+                bestv = v;
+                best = xr;
+            }
+        }
+    }
+    if (!isnan(best))
+        *value = bestv;
+    return best;
+}
+
+/* Every channel of block column j (pixel p). */
+static void pixel_outputs(pl_reducer *r, scratch *ws, size_t p, uint32_t j)
+{
+    const layout *l = &r->lay;
+    uint32_t n = r->nused, d = r->degree;
+    if (ws->status[j] < 0) {
+        ws->masked++;
+        for (int c = 0; c < (l->phase0 >= 0 ? l->phase0 : (int)l->nchannels); c++)
+            chan(r, c)[p] = NAN;
+    } else {
+        ws->partial += ws->status[j] == 1;
+        double coef[PL_REDUCE_MAX_DEGREE + 1], c1[PL_REDUCE_MAX_DEGREE], c2[PL_REDUCE_MAX_DEGREE];
+        for (uint32_t i = 0; i <= d; i++)
+            coef[i] = ws->C[(size_t)i * PB + j];
+        poly_deriv(c1, coef, d);
+        poly_deriv(c2, c1, d - 1);
+        double s = r->scale;
+        for (uint32_t t = 0; t < r->opt.ntimes; t++) {
+            double x = r->xt[t], lnr = poly(coef, d, x);
+            const int *at = l->at[t];
+            if (at[0] >= 0)
+                chan(r, at[0])[p] = (float)exp(lnr);
+            if (at[1] >= 0)
+                chan(r, at[1])[p] = (float)(exp(lnr) - exp(r->ref_at[t]));
+            if (at[2] >= 0)
+                chan(r, at[2])[p] = (float)expm1(lnr - r->ref_at[t]);
+            if (at[3] >= 0)
+                chan(r, at[3])[p] = (float)(poly(c1, d - 1, x) / s);
+            if (at[4] >= 0)
+                chan(r, at[4])[p] = (float)(poly(c2, d - 2, x) / (s * s));
+        }
+        double v2, xp = peak_d2(r, ws, j, coef, &v2);
+        double tpk = exp(r->centre + s * xp);
+        chan(r, l->peak_t)[p] = (float)tpk;
+        chan(r, l->peak_d2)[p] = (float)(v2 / (s * s));
+        if (l->depth_d2 >= 0)
+            chan(r, l->depth_d2)[p] = (float)sqrt(M_PI * r->alpha * tpk);
+        if (l->depth_slab >= 0) {
+            for (uint32_t b = 0; b < n; b++) {
+                ws->z[b] = ws->Zb[(size_t)b * PB + j];
+                ws->valid[b] = isfinite(ws->z[b]) != 0;
+            }
+            chan(r, l->depth_slab)[p] = (float)slab_fit(r, ws, ws->nvalid[j] == n);
+        }
+
+        /* peak contrast over the samples, refined by a parabola */
+        uint32_t bb = 0;
+        float best = -INFINITY;
+        for (uint32_t b = 0; b < n; b++) {
+            float y = expf(ws->Y[(size_t)b * PB + j]) - r->ref_risef[b];
+            ws->zz[b] = y;
+            if (y > best) {
+                best = y;
+                bb = b;
+            }
+        }
+        double xbest = r->xs[bb], vbest = best;
+        if (bb > 0 && bb + 1 < n) {
+            double x0 = r->xs[bb - 1], x1 = r->xs[bb], x2 = r->xs[bb + 1];
+            double y0 = ws->zz[bb - 1], y1 = ws->zz[bb], y2 = ws->zz[bb + 1];
+            double d01 = (y1 - y0) / (x1 - x0), d12 = (y2 - y1) / (x2 - x1);
+            double curv = (d12 - d01) / (x2 - x0);
+            if (curv < 0.0) {
+                double xv = 0.5 * (x0 + x1) - d01 / (2.0 * curv);
+                if (xv > x0 && xv < x2) {
+                    double yv = exp(poly(coef, d, xv)) - exp(poly(r->cref, d, xv));
+                    if (yv > vbest) {
+                        vbest = yv;
+                        xbest = xv;
+                    }
+                }
+            }
+        }
+        chan(r, l->peak_contrast)[p] = (float)vbest;
+        chan(r, l->peak_contrast_t)[p] = (float)exp(r->centre + s * xbest);
+    }
+    if (l->phase0 >= 0) {
+        for (uint32_t m = 0; m < r->M; m++)
+            ws->fft_in[m] = ws->Ub[(size_t)m * PB + j];
+        fill_phase(r, ws->fft_in);
+        int ok = 1;
+        for (uint32_t m = 0; m < r->M; m++)
+            ok &= isfinite(ws->fft_in[m]) != 0;
+        if (ok)
+            kiss_fftr(ws->fft, ws->fft_in, ws->fft_out);
+        else
+            ws->no_phase++;
+        for (uint32_t f = 0; f < r->nfreq; f++) {
+            const kiss_fft_cpx *F = &ws->fft_out[f + 1];
+            float ph = NAN, amp = NAN, dph = NAN;
+            if (ok) {
+                double a = atan2(F->i, F->r);
+                double dd = a - r->ref_phase[f];
+                dd -= 2.0 * M_PI * floor((dd + M_PI) / (2.0 * M_PI));
+                if (dd <= -M_PI)
+                    dd += 2.0 * M_PI;
+                ph = (float)a;
+                amp = (float)(2.0 * hypot(F->r, F->i) / r->M);
+                dph = (float)dd;
+            }
+            chan(r, l->phase0 + 3 * (int)f)[p] = ph;
+            chan(r, l->phase0 + 3 * (int)f + 1)[p] = amp;
+            chan(r, l->phase0 + 3 * (int)f + 2)[p] = dph;
+        }
+    }
+}
+
+/* Fit a block of pixels, evaluate what every pixel needs on the shared
+ * grids (the third derivative for the peak search, the fit at the sample
+ * times for the contrast) and write the channels. */
+static void block_work(pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
+{
+    fit_block(r, ws, p0, np);
+    uint32_t n = r->nused, k = r->k, d = r->degree;
+    const double *restrict C = ws->C;
+    if (d >= 3) {
+        double *restrict C3 = ws->C3;
+        for (uint32_t i = 0; i + 3 <= d; i++) {
+            double f = (double)(i + 3) * (i + 2) * (i + 1);
+            for (uint32_t j = 0; j < PB; j++)
+                C3[(size_t)i * PB + j] = f * C[(size_t)(i + 3) * PB + j];
+        }
+        combine_rows(ws->G3, r->gpow, PL_REDUCE_MAX_DEGREE - 2, PEAK_GRID + 1, C3, d - 2);
+    }
+    /* the fit at the sample times, in float: it only feeds the contrast */
+    for (uint32_t i = 0; i < k * PB; i++)
+        ws->Cf[i] = (float)C[i];
+    combine_rows_f(ws->Y, r->designf, k, n, ws->Cf, k);
+    for (uint32_t m = 0; m < r->M; m++) {
+        const float *row = r->bins_p + (size_t)m * r->npix + p0;
+        float *u = ws->Ub + (size_t)m * PB;
+        for (uint32_t j = 0; j < np; j++)
+            u[j] = row[j];
+    }
+    for (uint32_t j = 0; j < np; j++)
+        pixel_outputs(r, ws, p0 + j, j);
+}
+
+static void finish_job(pl_reducer *r, uint32_t part)
+{
+    size_t p0, p1;
+    part_pixels(r, part, r->row0, r->row1, &p0, &p1);
+    for (size_t p = p0; p < p1; p += PB) {
+#if defined(__GNUC__)
+        /* the next block's samples lie on nused + M separate cache lines */
+        if (p + 2 * PB <= p1) {
+            for (uint32_t b = 0; b < r->nused; b++)
+                __builtin_prefetch(r->bins_l + (size_t)b * r->npix + p + PB);
+            for (uint32_t m = 0; m < r->M; m++)
+                __builtin_prefetch(r->bins_p + (size_t)m * r->npix + p + PB);
+        }
+#endif
+        block_work(r, &r->ws[part], p, (uint32_t)(p1 - p < PB ? p1 - p : PB));
+    }
+}
+
+static void free_one_scratch(scratch *w)
+{
+    free(w->Zb);
+    free(w->C);
+    free(w->C3);
+    free(w->G3);
+    free(w->Y);
+    free(w->Cf);
+    free(w->Ub);
+    free(w->A);
+    free(w->z);
+    free(w->zz);
+    free(w->v);
+    free(w->valid);
+    free(w->vals);
+    free(w->fft_in);
+    free(w->fft_out);
+    kiss_fftr_free(w->fft);
+}
+
+static void free_scratch(pl_reducer *r)
+{
+    if (!r->ws)
+        return;
+    for (uint32_t i = 0; i < r->nthreads; i++)
+        free_one_scratch(&r->ws[i]);
+    free(r->ws);
+    r->ws = NULL;
+}
+
+static int alloc_one_scratch(const pl_reducer *r, scratch *w)
+{
+    int bad = 0;
+    size_t n = r->nused;
+    w->Zb = alloc_array(n * PB, sizeof *w->Zb, &bad);
+    w->C = alloc_array((size_t)r->k * PB, sizeof *w->C, &bad);
+    w->C3 = alloc_array((size_t)r->k * PB, sizeof *w->C3, &bad);
+    w->G3 = alloc_array((size_t)(PEAK_GRID + 1) * PB, sizeof *w->G3, &bad);
+    w->Y = alloc_array(n * PB, sizeof *w->Y, &bad);
+    w->Cf = alloc_array((size_t)r->k * PB, sizeof *w->Cf, &bad);
+    w->Ub = alloc_array((size_t)(r->M ? r->M : 1) * PB, sizeof *w->Ub, &bad);
+    w->A = alloc_array(n * r->k, sizeof *w->A, &bad);
+    w->z = alloc_array(n, sizeof *w->z, &bad);
+    w->zz = alloc_array(n, sizeof *w->zz, &bad);
+    w->v = alloc_array(n, sizeof *w->v, &bad);
+    w->valid = alloc_array(n, 1, &bad);
+    if (r->M) {
+        w->fft_in = alloc_array(r->M, sizeof *w->fft_in, &bad);
+        w->fft_out = alloc_array(r->M / 2 + 1, sizeof *w->fft_out, &bad);
+        w->fft = kiss_fftr_alloc((int)r->M, 0, NULL, NULL);
+        bad |= !w->fft;
+    }
+    return bad ? -1 : 0;
+}
+
+static int alloc_scratch(pl_reducer *r, pl_err *err)
+{
+    r->ws = calloc(r->nthreads, sizeof *r->ws);
+    int bad = !r->ws;
+    for (uint32_t i = 0; !bad && i < r->nthreads; i++)
+        bad = alloc_one_scratch(r, &r->ws[i]);
+    if (bad) {
+        free_scratch(r);
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    }
+    return PL_OK;
+}
+
+/* Keep the pixels of pix[0..np) whose every log-spaced sample and every
+ * filled uniform bin holds a number; returns how many remain. Reads bin
+ * by bin, in pixel order. */
+static size_t keep_valid_pixels(const pl_reducer *r, size_t *pix, size_t np,
+                                unsigned char *ok)
+{
+    memset(ok, 1, np);
+    for (uint32_t q = 0; q < r->nused + r->M; q++) {
+        int log_sample = q < r->nused;
+        uint32_t m = q - (log_sample ? 0 : r->nused);
+        if (!log_sample && !r->pcount[m])
+            continue;
+        const float *row = log_sample ? r->bins_l + (size_t)q * r->npix
+                                      : r->bins_p + (size_t)m * r->npix;
+        for (size_t i = 0; i < np; i++)
+            ok[i] &= isfinite(row[pix[i]]) != 0;
+    }
+    size_t kept = 0;
+    for (size_t i = 0; i < np; i++)
+        if (ok[i])
+            pix[kept++] = pix[i];
+    return kept;
+}
+
+/* One sample of the reference curve per job index: log-spaced samples
+ * first, then the filled uniform bins; each worker takes every nthreads-th. */
+static void reference_job(pl_reducer *r, uint32_t part)
+{
+    size_t np = r->ref_np;
+    const size_t *pix = r->ref_pix;
+    double *vals = r->ws[part].vals;
+    for (uint32_t q = part; q < r->nused + r->M; q += r->nthreads) {
+        int log_sample = q < r->nused;
+        uint32_t m = q - (log_sample ? 0 : r->nused);
+        if (!log_sample && !r->pcount[m])
+            continue;
+        const float *row = log_sample ? r->bins_l + (size_t)q * r->npix
+                                      : r->bins_p + (size_t)m * r->npix;
+        double v;
+        if (r->ref_region) {
+            double s = 0.0;
+            for (size_t i = 0; i < np; i++)
+                s += log_sample ? exp((double)row[pix[i]]) : row[pix[i]];
+            v = log_sample ? log(s / np) : s / np;
+        } else {
+            for (size_t i = 0; i < np; i++)
+                vals[i] = row[pix[i]];
+            v = median(vals, np);
+        }
+        if (log_sample)
+            r->zref[q] = v;
+        else
+            r->pref[m] = (float)v;
+    }
+}
+
+/* The sound reference: per sample, the mean rise over the region, or the
+ * median over a regular subsample of the valid pixels; then its fit and,
+ * for pulse phase, the phase of its transform. */
+static int make_reference(pl_reducer *r, pl_err *err)
+{
+    const pl_reduce_options *o = &r->opt;
+    r->ref_region = o->ref_w && o->ref_h;
+    size_t cap = r->ref_region ? (size_t)o->ref_w * o->ref_h : REF_MAX_PIXELS;
+    r->ref_pix = malloc((cap ? cap : 1) * sizeof *r->ref_pix);
+    r->zref = malloc(r->nused * sizeof *r->zref);
+    r->pref = malloc((r->M ? r->M : 1) * sizeof *r->pref);
+    int bad = !r->ref_pix || !r->zref || !r->pref;
+    for (uint32_t i = 0; !bad && !r->ref_region && i < r->nthreads; i++) {
+        r->ws[i].vals = malloc(cap * sizeof *r->ws[i].vals);
+        bad = !r->ws[i].vals;
+    }
+    if (bad)
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    size_t np = 0;
+    if (r->ref_region) {
+        for (uint32_t y = o->ref_y; y < o->ref_y + o->ref_h; y++)
+            for (uint32_t x = o->ref_x; x < o->ref_x + o->ref_w; x++)
+                r->ref_pix[np++] = (size_t)y * r->width + x;
+        r->ref_kind = "region mean";
+    } else {
+        /* whole rows at a regular stride (columns too for very wide
+         * images), so that the samples are read in long runs */
+        uint32_t rows = REF_MAX_PIXELS / r->width ? REF_MAX_PIXELS / r->width : 1;
+        uint32_t ys = (r->height + rows - 1) / rows;
+        uint32_t xs = r->width > REF_MAX_PIXELS ? (r->width + REF_MAX_PIXELS - 1) / REF_MAX_PIXELS
+                                                : 1;
+        for (uint32_t y = 0; y < r->height; y += ys)
+            for (uint32_t x = 0; x < r->width && np < cap; x += xs)
+                r->ref_pix[np++] = (size_t)y * r->width + x;
+        r->ref_kind = "median";
+    }
+    unsigned char *ok = malloc(np ? np : 1);
+    if (!ok)
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    np = keep_valid_pixels(r, r->ref_pix, np, ok);
+    free(ok);
+    r->ref_np = np;
+    r->stats.reference_pixels = (uint32_t)np;
+    if (!np)
+        return pl__err(err, PL_EINVAL,
+                       r->ref_region ? "reduction: the reference region holds no valid pixel"
+                                     : "reduction: no pixel has a valid cooling curve");
+    pool_start(r, reference_job);
+    pool_wait(r);
+    for (uint32_t i = 0; i < r->k; i++) {
+        double acc = 0.0;
+        for (uint32_t b = 0; b < r->nused; b++)
+            acc += r->pinv[(size_t)i * r->nused + b] * r->zref[b];
+        r->cref[i] = acc;
+    }
+    for (uint32_t b = 0; b < r->nused; b++) {
+        r->ref_rise[b] = exp(poly(r->cref, r->degree, r->xs[b]));
+        r->ref_risef[b] = (float)r->ref_rise[b];
+    }
+    for (uint32_t j = 0; j < o->ntimes; j++)
+        r->ref_at[j] = poly(r->cref, r->degree, r->xt[j]);
+    if (r->M) {
+        fill_phase(r, r->pref);
+        kiss_fft_cpx *F = r->ws[0].fft_out;
+        kiss_fftr(r->ws[0].fft, r->pref, F);
+        for (uint32_t f = 0; f < r->nfreq; f++)
+            r->ref_phase[f] = atan2(F[f + 1].i, F[f + 1].r);
+    }
+    return PL_OK;
+}
+
+static int plan_slab(pl_reducer *r, pl_err *err)
+{
+    pthread_once(&slab_once, slab_build);
+    r->slab_G = malloc((size_t)SLAB_GRID * r->nused * sizeof *r->slab_G);
+    r->slab_lam = malloc(SLAB_GRID * sizeof *r->slab_lam);
+    if (!r->slab_G || !r->slab_lam)
+        return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+    double la = log(r->alpha);
+    double lo = 0.5 * (la + r->lnt[0] - log(16.0));
+    double hi = 0.5 * (la + r->lnt[r->nused - 1] + log(16.0));
+    for (int j = 0; j < SLAB_GRID; j++) {
+        double lam = lo + (hi - lo) * j / (SLAB_GRID - 1);
+        r->slab_lam[j] = lam;
+        for (uint32_t b = 0; b < r->nused; b++)
+            r->slab_G[(size_t)j * r->nused + b] = slab_lnf(la + r->lnt[b] - 2.0 * lam);
+    }
+    return PL_OK;
+}
+
+static int name_channels(pl_reducer *r, pl_err *err)
+{
+    static const char *const at_q[5] = {"temperature-rise", "temperature-contrast",
+                                        "normalised-contrast", "log-derivative-1",
+                                        "log-derivative-2"};
+    static const char *const at_u[5] = {"K", "K", "1", "1", "1"};
+    const layout *l = &r->lay;
+    pl_map *m = r->map;
+    int rc = PL_OK;
+    char lab[PL_LABEL_SIZE];
+#define SET(c, q, u, ...)                                                \
+    do {                                                                 \
+        if (!rc)                                                         \
+            rc = pl_map_set_channel(m, (uint32_t)(c), q, u, err);        \
+        snprintf(lab, sizeof lab, __VA_ARGS__);                          \
+        memcpy(m->channels[c].label, lab, sizeof lab);                   \
+    } while (0)
+    for (uint32_t j = 0; j < r->opt.ntimes; j++)
+        for (int q = 0; q < 5; q++)
+            if (l->at[j][q] >= 0)
+                SET(l->at[j][q], at_q[q], at_u[q], "t=%.4g s", r->map_times[j]);
+    SET(l->peak_t, "time-of-peak-d2", "s", "peak");
+    SET(l->peak_d2, "log-derivative-2", "1", "peak");
+    if (l->depth_d2 >= 0)
+        SET(l->depth_d2, "depth", "mm", "peak d2");
+    if (l->depth_slab >= 0)
+        SET(l->depth_slab, "depth", "mm", "slab fit");
+    SET(l->peak_contrast, "temperature-contrast", "K", "peak");
+    SET(l->peak_contrast_t, "time-of-peak-contrast", "s", "peak");
+    for (uint32_t f = 0; f < r->nfreq; f++) {
+        double hz = (f + 1) / r->trunc;
+        SET(l->phase0 + 3 * (int)f, "phase", "rad", "f=%.4g Hz", hz);
+        SET(l->phase0 + 3 * (int)f + 1, "amplitude", "K", "f=%.4g Hz", hz);
+        SET(l->phase0 + 3 * (int)f + 2, "phase-contrast", "rad", "f=%.4g Hz", hz);
+    }
+#undef SET
+    return rc;
+}
+
+static cJSON *number_array(const double *v, size_t n)
+{
+    cJSON *a = cJSON_CreateArray();
+    for (size_t i = 0; a && i < n; i++)
+        cJSON_AddItemToArray(a, cJSON_CreateNumber(v[i]));
+    return a;
+}
+
+static char *parameters_json(const pl_reducer *r)
+{
+    const pl_reduce_options *o = &r->opt;
+    cJSON *j = cJSON_CreateObject();
+    if (!j)
+        return NULL;
+    char sw[64];
+    snprintf(sw, sizeof sw, "plyledger %s", pl_version());
+    cJSON_AddStringToObject(j, "software", sw);
+    cJSON_AddStringToObject(j, "method",
+                            "log-log polynomial reconstruction (Shepard et al. 2003)");
+    double window[2] = {r->start, r->end};
+    cJSON_AddItemToObject(j, "window_s", number_array(window, 2));
+    cJSON_AddNumberToObject(j, "samples_requested", r->nbins);
+    cJSON_AddNumberToObject(j, "samples_used", r->nused);
+    cJSON_AddItemToObject(j, "bin_edges_s", number_array(r->edges, r->nbins + 1));
+    double *st = malloc(r->nused * sizeof *st);
+    if (st) {
+        for (uint32_t b = 0; b < r->nused; b++)
+            st[b] = exp(r->lnt[b]);
+        cJSON_AddItemToObject(j, "sample_times_s", number_array(st, r->nused));
+        for (uint32_t b = 0; b < r->nused; b++)
+            st[b] = r->lcount[b];
+        cJSON_AddItemToObject(j, "sample_frames", number_array(st, r->nused));
+        free(st);
+    }
+    cJSON_AddNumberToObject(j, "degree", r->degree);
+    cJSON *ab = cJSON_AddObjectToObject(j, "abscissa");
+    cJSON_AddStringToObject(ab, "definition", "x = (ln(t / 1 s) - centre) / scale");
+    cJSON_AddNumberToObject(ab, "centre", r->centre);
+    cJSON_AddNumberToObject(ab, "scale", r->scale);
+    cJSON *fr = cJSON_AddObjectToObject(j, "frames");
+    cJSON_AddNumberToObject(fr, "total", r->nframes);
+    cJSON_AddNumberToObject(fr, "preflash", r->preflash);
+    cJSON_AddNumberToObject(fr, "used", r->fed);
+    cJSON_AddItemToObject(j, "map_times_s", number_array(r->map_times, o->ntimes));
+    cJSON_AddNumberToObject(j, "time_products", r->products);
+    if (isnan(r->alpha)) {
+        cJSON_AddNullToObject(j, "diffusivity_mm2_s");
+    } else {
+        cJSON_AddNumberToObject(j, "diffusivity_mm2_s", r->alpha);
+        cJSON_AddStringToObject(j, "depth_method",
+                                o->depth_method == PL_DEPTH_PEAK_D2    ? "peak d2"
+                                : o->depth_method == PL_DEPTH_SLAB_FIT ? "slab fit"
+                                                                       : "peak d2 and slab fit");
+        cJSON_AddStringToObject(j, "depth_formula_peak_d2", "L = sqrt(pi * alpha * t*)");
+    }
+    cJSON *ref = cJSON_AddObjectToObject(j, "reference");
+    cJSON_AddStringToObject(ref, "kind", r->ref_kind);
+    if (o->ref_w && o->ref_h) {
+        double reg[4] = {o->ref_x, o->ref_y, o->ref_w, o->ref_h};
+        cJSON_AddItemToObject(ref, "region_xywh", number_array(reg, 4));
+    } else {
+        cJSON_AddNumberToObject(ref, "max_pixels", REF_MAX_PIXELS);
+    }
+    cJSON_AddNumberToObject(ref, "pixels", r->stats.reference_pixels);
+    cJSON *ph = cJSON_AddObjectToObject(j, "pulse_phase");
+    cJSON_AddNumberToObject(ph, "frequencies", r->nfreq);
+    if (r->nfreq) {
+        cJSON_AddNumberToObject(ph, "samples", r->M);
+        cJSON_AddNumberToObject(ph, "truncation_s", r->trunc);
+        cJSON_AddNumberToObject(ph, "empty_samples_interpolated", r->nempty_p);
+        double hz[PL_REDUCE_MAX_PHASE_SAMPLES / 2];
+        for (uint32_t f = 0; f < r->nfreq; f++)
+            hz[f] = (f + 1) / r->trunc;
+        cJSON_AddItemToObject(ph, "frequencies_hz", number_array(hz, r->nfreq));
+        cJSON_AddStringToObject(ph, "amplitude", "2 |F_k| / samples");
+    }
+    cJSON_AddNumberToObject(j, "threads", r->nthreads);
+    cJSON *px = cJSON_AddObjectToObject(j, "pixels");
+    cJSON_AddNumberToObject(px, "total", (double)r->npix);
+    cJSON_AddNumberToObject(px, "masked", r->stats.pixels_masked);
+    cJSON_AddNumberToObject(px, "partial", r->stats.pixels_partial);
+    cJSON_AddNumberToObject(px, "no_phase", r->stats.pixels_no_phase);
+    cJSON *ch = cJSON_AddArrayToObject(j, "channels");
+    for (uint32_t c = 0; c < r->map->nchannels; c++) {
+        cJSON *e = cJSON_CreateObject();
+        cJSON_AddStringToObject(e, "quantity", r->map->channels[c].quantity);
+        cJSON_AddStringToObject(e, "unit", r->map->channels[c].unit);
+        cJSON_AddStringToObject(e, "label", r->map->channels[c].label);
+        cJSON_AddItemToArray(ch, e);
+    }
+    char *s = cJSON_PrintUnformatted(j);
+    cJSON_Delete(j);
+    return s;
+}
+
+PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, pl_err *err)
+{
+    assert(r && map);
+    *map = NULL;
+    if (parameters)
+        *parameters = NULL;
+    if (r->state < 0)
+        return pl__err(err, r->state, "reduction: stopped after an earlier failure");
+    if (r->state == FINISHED)
+        return pl__err(err, PL_EINVAL, "reduction: already finished");
+    if (r->batch[r->cur].count)
+        submit_batch(r);
+    pool_wait(r);
+    if (r->next_needed < r->nframes) {
+        pl__err(err, PL_EINVAL, "reduction: frame %u (t = %.6g s) and later needed frames missing",
+                r->next_needed, r->times[r->next_needed]);
+        return fail(r, PL_EINVAL);
+    }
+    int rc = alloc_scratch(r, err);
+    if (!rc)
+        rc = pl_map_new(&r->map, r->width, r->height, r->lay.nchannels, err);
+    if (!rc)
+        rc = name_channels(r, err);
+    if (!rc && r->lay.depth_slab >= 0)
+        rc = plan_slab(r, err);
+    if (!rc)
+        rc = make_reference(r, err);
+    for (uint32_t c = 0; !rc && c < FINISH_CHUNKS; c++) {
+        r->row0 = (uint32_t)((uint64_t)r->height * c / FINISH_CHUNKS);
+        r->row1 = (uint32_t)((uint64_t)r->height * (c + 1) / FINISH_CHUNKS);
+        if (r->row1 == r->row0)
+            continue;
+        pool_start(r, finish_job);
+        pool_wait(r);
+        if (r->opt.progress &&
+            r->opt.progress(r->opt.progress_data,
+                            STREAM_SHARE + (1.0 - STREAM_SHARE) * (c + 1) / FINISH_CHUNKS))
+            rc = pl__err(err, PL_ECANCELED, "reduction: cancelled while fitting");
+    }
+    if (!rc) {
+        for (uint32_t i = 0; i < r->nthreads; i++) {
+            r->stats.pixels_masked += r->ws[i].masked;
+            r->stats.pixels_partial += r->ws[i].partial;
+            r->stats.pixels_no_phase += r->ws[i].no_phase;
+        }
+        r->stats.frames_used = r->fed;
+        r->stats.samples_used = r->nused;
+        r->map->pitch_u = r->map->pitch_v = NAN;
+        if (parameters) {
+            *parameters = parameters_json(r);
+            if (!*parameters)
+                rc = pl__err(err, PL_ENOMEM, "reduction: out of memory");
+        }
+    }
+    free_scratch(r);
+    if (rc) {
+        pl_map_free(r->map);
+        r->map = NULL;
+        memset(&r->stats, 0, sizeof r->stats);
+        return fail(r, rc);
+    }
+    *map = r->map;
+    r->map = NULL;
+    r->state = FINISHED;
+    return PL_OK;
+}
+
+PL_EXPORT void pl_reducer_stats(const pl_reducer *r, pl_reduce_stats *stats)
+{
+    assert(r && stats);
+    if (r->state == FINISHED)
+        *stats = r->stats;
+    else
+        memset(stats, 0, sizeof *stats);
+}
+
+/* ---- test access ---------------------------------------------------------- */
+
+int pl_reduce__pixel_fit(const pl_reducer *r, uint32_t pixel, double *x, double *z,
+                         uint32_t *n, double *coef, double *centre, double *scale)
+{
+    if (r->state != FINISHED || pixel >= r->npix)
+        return PL_EINVAL;
+    scratch w;
+    memset(&w, 0, sizeof w);
+    int rc = alloc_one_scratch(r, &w) ? PL_ENOMEM : PL_OK;
+    if (!rc) {
+        fit_block(r, &w, pixel, 1);
+        if (w.status[0] < 0)
+            rc = PL_ENOMATCH;
+    }
+    if (!rc) {
+        uint32_t m = 0;
+        for (uint32_t b = 0; b < r->nused; b++)
+            if (isfinite(w.Zb[(size_t)b * PB])) {
+                x[m] = r->xs[b];
+                z[m++] = w.Zb[(size_t)b * PB];
+            }
+        *n = m;
+        for (uint32_t i = 0; i < r->k; i++)
+            coef[i] = w.C[(size_t)i * PB];
+        *centre = r->centre;
+        *scale = r->scale;
+    }
+    free_one_scratch(&w);
+    return rc;
+}
+
+int pl_reduce__phase_samples(const pl_reducer *r, uint32_t pixel, float *out, double *dt)
+{
+    if (r->state != FINISHED || !r->M || pixel >= r->npix)
+        return PL_EINVAL;
+    for (uint32_t m = 0; m < r->M; m++)
+        out[m] = r->bins_p[(size_t)m * r->npix + pixel];
+    fill_phase(r, out);
+    *dt = r->dtp;
+    return PL_OK;
+}
+
+/* ---- whole sequences ------------------------------------------------------ */
+
+PL_EXPORT int pl_reduce_sequence(pl_map **map, char **parameters, pl_seq *seq,
+                                 const pl_reduce_options *opts, pl_reduce_stats *stats,
+                                 pl_err *err)
+{
+    assert(map && seq);
+    *map = NULL;
+    if (parameters)
+        *parameters = NULL;
+    if (stats)
+        memset(stats, 0, sizeof *stats);
+    pl_reducer *r = NULL;
+    uint32_t n = pl_seq_frame_count(seq);
+    int rc = pl_reducer_new(&r, pl_seq_width(seq), pl_seq_height(seq), pl_seq_times(seq), n,
+                            pl_seq_preflash_frames(seq), opts, err);
+    if (rc)
+        return rc;
+    uint64_t saturated = 0;
+    for (uint32_t i = 0; i < n && !rc; i++) {
+        if (!pl_reducer_frame_needed(r, i))
+            continue;
+        rc = accept_frame(r, i, err);
+        if (rc < 0)
+            break;
+        uint32_t nsat = 0;
+        rc = pl_seq_read_frame(seq, i, batch_slot(r), &nsat, err);
+        if (rc) {
+            fail(r, rc);
+            break;
+        }
+        saturated += nsat;
+        rc = commit_frame(r, i, err);
+    }
+    char *json = NULL;
+    if (!rc)
+        rc = pl_reducer_finish(r, map, parameters ? &json : NULL, err);
+    if (!rc && parameters) {
+        /* add the acquisition record and the reader's saturation count */
+        cJSON *j = cJSON_Parse(json);
+        cJSON *acq = cJSON_Parse(pl_seq_acquisition_json(seq));
+        if (j) {
+            cJSON_AddItemToObject(j, "acquisition", acq ? acq : cJSON_CreateObject());
+            acq = NULL;
+            cJSON_AddNumberToObject(j, "saturated_values", (double)saturated);
+            *parameters = cJSON_PrintUnformatted(j);
+        }
+        cJSON_Delete(j);
+        cJSON_Delete(acq);
+        free(json);
+        if (!*parameters) {
+            pl_map_free(*map);
+            *map = NULL;
+            rc = pl__err(err, PL_ENOMEM, "reduction: out of memory");
+        }
+    }
+    if (!rc && stats) {
+        pl_reducer_stats(r, stats);
+        stats->saturated_values = saturated;
+    }
+    pl_reducer_free(r);
+    return rc;
+}

@@ -20,5 +20,6 @@
 #include "plyledger/record.h"
 #include "plyledger/seq.h"
 #include "plyledger/sim.h"
+#include "plyledger/reduce.h"
 
 #endif

@@ -117,6 +117,24 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
 PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
                               void *userdata, pl_err *err);
 
+/**
+ * Record one inspection of a site with one map made in memory (a
+ * reduction's output, say), in one transaction. The map's pitch, where NaN,
+ * is taken from the site, and its placement is set to the site's map frame.
+ * @param map              completed in place (pitch, placement)
+ * @param made_by          how the map was made ("reduce", ...)
+ * @param source           what it was made from (a file name), or NULL
+ * @param parameters_json  the making's parameters (JSON object) or NULL
+ * @param[out] inspection_key  the recorded inspection (may be NULL)
+ * @param[out] map_id          the stored map (may be NULL)
+ * @return as pl_store_add_inspection() and pl_store_add_map(), with the
+ *         site named in the message.
+ */
+PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,
+                                       const char *made_by, const char *source,
+                                       const char *parameters_json, pl_id *inspection_key,
+                                       pl_id *map_id, pl_err *err);
+
 #ifdef __cplusplus
 }
 #endif

@@ -1,0 +1,153 @@
+#!/usr/bin/python3
+"""Reference side of tests/test_reduce.c: numpy and scipy.
+
+All binary files are raw little-endian arrays.
+
+  reduce_ref.py polyfit IN DEG XLO XHI OUT [XQ...]
+      IN holds float64 x[n] then z[n]. numpy.polyfit(x, z, DEG) fits them;
+      OUT receives float64: the DEG + 1 coefficients, constant first; then
+      for each XQ the values of the fit and of its first and second
+      derivatives (numpy.polyder / numpy.polyval); then the abscissa of the
+      largest positive interior maximum of the second derivative in
+      (XLO, XHI), from numpy.roots of the third derivative and the sign of
+      the fourth (NaN when there is none).
+
+  reduce_ref.py slab OUT V...
+      The adiabatic slab's front-face response F(u) = 1 + 2 sum exp(-n^2
+      pi^2 u) (Carslaw and Jaeger 1959, "Conduction of heat in solids",
+      section 3.3) summed with numpy in its Fourier form only (30000 terms),
+      at u = exp(V). OUT receives float64 triples: ln F and its first and
+      second derivatives against ln u, from the term-by-term derivatives.
+
+  reduce_ref.py slab-peak
+      Checks with scipy.optimize.minimize_scalar on the same numpy series
+      that d2 ln F / d ln u^2 peaks at u = 1/pi (t* = L^2 / (pi alpha)) and
+      that d ln F / d ln u = -1/4 there. Exit 1 on a mismatch.
+
+  reduce_ref.py phase OUT X...
+      For each X = L / mu: arg coth((1 + i) X) in degrees (the 1-D phase
+      contrast of a slab of thickness L over a semi-infinite body at the
+      thermal diffusion length mu, from the Laplace transform of the slab
+      solution) and arg(coth(z) - 1/z), z = (1 + i) X (the same transform
+      without its plateau term C / (i omega), which a DFT of a truncated
+      record at its own harmonics does not see). Checks first that
+      arg coth((1+i)) = -14.075 degrees and arg coth((1+i) pi/2) = 0.
+
+  reduce_ref.py rfft IN K OUT
+      IN holds float32 samples; OUT receives float64 pairs (real, imag) of
+      numpy.fft.rfft(samples) at bins 0..K.
+"""
+import sys
+
+import numpy as np
+from scipy.optimize import minimize_scalar
+
+
+def polyfit(args):
+    path, deg, xlo, xhi, out = args[0], int(args[1]), float(args[2]), float(args[3]), args[4]
+    xq = [float(a) for a in args[5:]]
+    raw = np.fromfile(path, dtype='<f8')
+    n = raw.size // 2
+    x, z = raw[:n], raw[n:]
+    p = np.polyfit(x, z, deg)
+    res = list(p[::-1])
+    d1, d2 = np.polyder(p, 1), np.polyder(p, 2)
+    for q in xq:
+        res += [np.polyval(p, q), np.polyval(d1, q), np.polyval(d2, q)]
+    d3, d4 = np.polyder(p, 3), np.polyder(p, 4)
+    best, bestv = np.nan, 0.0
+    for root in np.roots(d3):
+        if abs(root.imag) > 1e-9 * max(1.0, abs(root.real)):
+            continue
+        r = root.real
+        if not (xlo < r < xhi) or np.polyval(d4, r) >= 0:
+            continue
+        v = np.polyval(d2, r)
+        if v > bestv:
+            best, bestv = r, v
+    res.append(best)
+    np.asarray(res, dtype='<f8').tofile(out)
+
+
+N = np.arange(1, 30001, dtype=np.float64)
+
+
+def slab_series(v):
+    u = np.exp(v)
+    a = N * N * np.pi * np.pi * u
+    e = np.exp(-a)
+    f = 1.0 + 2.0 * e.sum()
+    f1 = -2.0 * (a * e).sum()               # dF/dln u
+    f2 = 2.0 * ((a * a - a) * e).sum()      # d2F/dln u^2
+    return np.log(f), f1 / f, f2 / f - (f1 / f) ** 2
+
+
+def slab(args):
+    out = args[0]
+    res = []
+    for v in args[1:]:
+        res += list(slab_series(float(v)))
+    np.asarray(res, dtype='<f8').tofile(out)
+
+
+def slab_peak(_args):
+    r = minimize_scalar(lambda v: -slab_series(v)[2], bracket=(-2.0, -1.2, -0.5),
+                        tol=1e-12)
+    u = np.exp(r.x)
+    d1 = slab_series(r.x)[1]
+    print('peak of d2 at u = %.12f (1/pi = %.12f), d1 there %.9f' % (u, 1 / np.pi, d1))
+    bad = abs(u * np.pi - 1.0) > 1e-6 or abs(d1 + 0.25) > 1e-6
+    # it is the global maximum over the range of interest
+    grid = np.linspace(-8.0, 3.0, 2201)
+    d2 = np.array([slab_series(v)[2] for v in grid])
+    if abs(np.exp(grid[np.argmax(d2)]) * np.pi - 1.0) > 0.01:
+        bad = True
+    return 1 if bad else 0
+
+
+def coth(z):
+    return np.cosh(z) / np.sinh(z)
+
+
+def phase(args):
+    out = args[0]
+    a1 = np.degrees(np.angle(coth((1 + 1j) * 1.0)))
+    a2 = np.degrees(np.angle(coth((1 + 1j) * np.pi / 2)))
+    print('arg coth((1+i)) = %.4f deg, arg coth((1+i) pi/2) = %.2e deg' % (a1, a2))
+    if abs(a1 + 14.075) > 5e-4 or abs(a2) > 1e-9:
+        return 1
+    res = []
+    for x in args[1:]:
+        z = (1 + 1j) * float(x)
+        res += [np.degrees(np.angle(coth(z))), np.degrees(np.angle(coth(z) - 1 / z))]
+    np.asarray(res, dtype='<f8').tofile(out)
+    return 0
+
+
+def rfft(args):
+    path, k, out = args[0], int(args[1]), args[2]
+    x = np.fromfile(path, dtype='<f4').astype(np.float64)
+    f = np.fft.rfft(x)[:k + 1]
+    np.column_stack([f.real, f.imag]).astype('<f8').tofile(out)
+
+
+def main(argv):
+    cmd, args = argv[1], argv[2:]
+    if cmd == 'polyfit':
+        polyfit(args)
+    elif cmd == 'slab':
+        slab(args)
+    elif cmd == 'slab-peak':
+        return slab_peak(args)
+    elif cmd == 'phase':
+        return phase(args)
+    elif cmd == 'rfft':
+        rfft(args)
+    else:
+        print('unknown command', cmd, file=sys.stderr)
+        return 2
+    return 0
+
+
+if __name__ == '__main__':
+    sys.exit(main(sys.argv))
