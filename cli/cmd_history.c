@@ -80,16 +80,23 @@ static int on_map(void *ud, const pl_map_record *m)
         cJSON_AddItemToArray(o->array, cli_json_map(m));
         return 0;
     }
-    char quantities[512] = "";
+    printf("      map %lld: %ux%u px at %g x %g mm, %s from %s, sha256 %.16s...\n",
+           (long long)m->id, m->width, m->height, m->pitch_u, m->pitch_v, m->origin,
+           m->source[0] ? m->source : "-", m->sha256);
+    /* channels, wrapped to keep lines readable */
+    int col = printf("        ");
     for (uint32_t c = 0; c < m->nchannels; c++) {
-        size_t len = strlen(quantities);
-        snprintf(quantities + len, sizeof quantities - len, "%s%s%s%s [%s]", c ? ", " : "",
-                 m->channels[c].quantity, m->channels[c].label[0] ? " " : "",
-                 m->channels[c].label, m->channels[c].unit);
+        char item[160];
+        int n = snprintf(item, sizeof item, "%s%s%s [%s]%s", m->channels[c].quantity,
+                         m->channels[c].label[0] ? " " : "", m->channels[c].label,
+                         m->channels[c].unit, c + 1 < m->nchannels ? ";" : "");
+        if (col > 8 && col + 1 + n > 96) {
+            printf("\n");
+            col = printf("        ");
+        }
+        col += printf("%s%s", col > 8 ? " " : "", item);
     }
-    printf("      map %lld: %s, %ux%u px at %g x %g mm, from %s (%s), sha256 %.16s...\n",
-           (long long)m->id, quantities, m->width, m->height, m->pitch_u, m->pitch_v,
-           m->source[0] ? m->source : "-", m->origin, m->sha256);
+    printf("\n");
     o->printed++;
     return 0;
 }

@@ -688,7 +688,7 @@ static int value_range(double *vmin, double *vmax, int *has_data, const float *d
 }
 
 /*
- * Place the parts. Row 1: the caption (quantity). Row 2: the map in a frame
+ * Place the parts. Row 1: the caption (quantity and channel label). Row 2: the map in a frame
  * with the scale bar and its label below it, and to its right the unit, the
  * colour bar in a frame, its ticks and labels. Everything is measured
  * before the image is allocated, so all of it lies inside the image.
@@ -855,7 +855,8 @@ int pl_render__map(pl_image **out, pl_render_layout *layout, const pl_map *map, 
 
     const pl_channel *ch = &map->channels[c];
     if (ch->quantity[0])
-        snprintf(lay.caption, sizeof lay.caption, "%.*s", PL_QUANTITY_SIZE - 1, ch->quantity);
+        snprintf(lay.caption, sizeof lay.caption, "%.*s%s%.*s", PL_QUANTITY_SIZE - 1,
+                 ch->quantity, ch->label[0] ? " " : "", PL_LABEL_SIZE - 1, ch->label);
     else
         snprintf(lay.caption, sizeof lay.caption, "channel %" PRIu32, c);
     snprintf(lay.unit, sizeof lay.unit, "%.*s", PL_UNIT_SIZE - 1, ch->unit);

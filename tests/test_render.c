@@ -637,6 +637,27 @@ static void test_render__scale_bar_length_matches_pitch(void **state)
 }
 
 /* Odd shapes and contents render inside the image without faults. */
+/* A channel's label joins its quantity in the caption, so maps of one
+ * quantity at several times can be told apart; the image widens for it. */
+static void test_render__caption_names_quantity_and_label(void **state)
+{
+    (void)state;
+    pl_map *m = map_alloc(8, 6, 1);
+    m->pitch_u = m->pitch_v = 1.0;
+    for (int i = 0; i < 8 * 6; i++)
+        m->data[i] = (float)i;
+    snprintf(m->channels[0].label, sizeof m->channels[0].label, "t=0.5 s");
+    pl_render_options o = PL_RENDER_OPTIONS_INIT;
+    pl_image *img;
+    pl_render_layout lay;
+    assert_int_equal(pl_render__map(&img, &lay, m, 0, &o, NULL), PL_OK);
+    assert_layout_inside(img, &lay);
+    assert_string_equal(lay.caption, "temperature-contrast t=0.5 s");
+    assert_text_at(img, lay.caption_x, lay.caption_y, lay.caption, lay.text_scale);
+    pl_image_free(img);
+    map_release(m);
+}
+
 static void test_render__tiny_and_extreme_maps(void **state)
 {
     (void)state;
@@ -912,6 +933,7 @@ int main(void)
         cmocka_unit_test(test_render__nan_pixels_are_nodata_grey),
         cmocka_unit_test(test_render__colour_bar_and_scale_bar),
         cmocka_unit_test(test_render__scale_bar_length_matches_pitch),
+        cmocka_unit_test(test_render__caption_names_quantity_and_label),
         cmocka_unit_test(test_render__tiny_and_extreme_maps),
         cmocka_unit_test(test_render__refuses_bad_requests),
         cmocka_unit_test(test_render__deterministic_and_read_only),

@@ -304,6 +304,72 @@ bad "sidecar unknown key" 1 "inspecter" ply record --sidecar "$WORK/bad_sidecar.
 printf '{ "airframe": ' >"$WORK/broken.json"
 bad "sidecar not json" 1 "broken.json" ply record --sidecar "$WORK/broken.json"
 
+# ---- simulate and reduce ------------------------------------------------------
+
+cat >"$WORK/scene.json" <<'JSON'
+{ "format": "plyledger-scene-1", "seed": 5,
+  "laminate": { "thickness_mm": 3.0, "density_kg_m3": 1560, "specific_heat_j_kgk": 1200,
+    "conductivity_along_w_mk": 2.5, "conductivity_across_w_mk": 2.0, "conductivity_through_w_mk": 0.75 },
+  "flash": { "energy_j_m2": 8000 },
+  "camera": { "width": 40, "height": 30, "pitch_mm": 0.5, "frame_rate_hz": 50, "frame_count": 200,
+    "netd_k": 0.02, "storage": "uint16", "gain_k": 0.004, "offset_k": 273.15, "saturation_count": 16383 },
+  "defects": [ { "kind": "delamination", "depth_mm": 0.8, "resistance_m2k_w": 0.1,
+    "outline": { "shape": "circle", "centre_mm": [10, 7.5], "diameter_mm": 8 } } ] }
+JSON
+run "simulate" 0 ply simulate "$WORK/scene.json" --output "$WORK/seq.json" \
+    && expect_out "simulate" "200 frames"
+[ -f "$WORK/seq-truth.json" ] || fail "simulate: no ground truth written"
+"$PY" -c 'import json,sys; t=json.load(open(sys.argv[1])); d=t["defects"][0]; assert abs(d["area_mm2"]-3.14159265*16)<1e-6, d["area_mm2"]' \
+    "$WORK/seq-truth.json" || fail "simulate: truth area of an 8 mm circle"
+run "reduce to npy" 0 ply reduce "$WORK/seq.json" --output "$WORK/reduced.npy" --diffusivity 0.4006 --json
+"$PY" - "$WORK" <<'PY' || fail "reduce: numpy reads a wrong map"
+import sys, json, numpy as np
+d = sys.argv[1]
+info = json.load(open(d + "/out"))
+m = np.load(d + "/reduced.npy")
+names = [(c["quantity"], c["label"]) for c in info["channels"]]
+assert m.shape == (len(names), 30, 40), m.shape
+depth = m[names.index(("depth", "peak d2"))]
+# the simulated flat-bottom delamination lies 0.8 mm deep under pixel (20, 15)
+assert abs(float(np.nanmedian(depth[13:18, 18:23])) - 0.8) < 0.12, depth[13:18, 18:23]
+PY
+run "reduce and record" 0 ply reduce "$WORK/seq.json" --at 0.3 --airframe TST-0001 --site T03 \
+    --kind baseline --date 2030-05-05 $TRACE && expect_out "reduce and record" "recorded inspection"
+run "reduce history" 0 ply history --airframe TST-0001 --site T03 --json
+"$PY" -c '
+import json,sys
+h=json.load(open(sys.argv[1]))
+i=h["inspections"][-1]
+assert i["parameters"]["software"].startswith("plyledger ") and i["parameters"]["acquisition"]["simulation"], i["parameters"]
+m=i["maps"][0]
+assert m["made_by"]=="reduce" and m["pitch_u_mm"]==0.5, m
+assert ("depth","peak d2") in [(c["quantity"],c["label"]) for c in m["channels"]]
+' "$WORK/out" || fail "reduce and record: the recorded inspection lacks its reduction"
+
+cp "$WORK/seq.json" "$WORK/seq_times.json"
+"$PY" - "$WORK/seq_times.json" <<'PY'
+import json, sys
+p = sys.argv[1]; m = json.load(open(p))
+del m["frame_rate_hz"]
+m["frame_times_s"] = [0.02 * i for i in range(200)]
+m["frame_times_s"][50] = m["frame_times_s"][49]
+json.dump(m, open(p, "w"))
+PY
+bad "sequence times not increasing" 1 "seq_times.json" ply reduce "$WORK/seq_times.json" --airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE
+cp "$WORK/seq.npy" "$WORK/short.npy"
+"$PY" -c 'import os,sys; os.truncate(sys.argv[1], os.path.getsize(sys.argv[1]) - 1000)' "$WORK/short.npy"
+sed 's/"seq.npy"/"short.npy"/' "$WORK/seq.json" >"$WORK/seq_short.json"
+bad "truncated sequence" 1 "short.npy" ply reduce "$WORK/seq_short.json" --airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE
+bad "reduce unknown site" 1 "T77" ply reduce "$WORK/seq.json" --airframe TST-0001 --site T77 --kind scheduled --date 2031-01-01 $TRACE
+"$PY" - "$WORK/seq.json" "$WORK/seq_pitch.json" <<'PY'
+import json, sys
+m = json.load(open(sys.argv[1])); m["pitch_mm"] = [1.0, 1.0]
+json.dump(m, open(sys.argv[2], "w"))
+PY
+bad "reduce pitch differs from site" 1 "pitch" ply reduce "$WORK/seq_pitch.json" --airframe TST-0001 --site T02 --kind scheduled --date 2031-01-01 $TRACE
+sed 's/"seed": 5,/"seed": 5, "colour": 1,/' "$WORK/scene.json" >"$WORK/scene_bad.json"
+bad "scene unknown key" 1 "scene_bad.json" ply simulate "$WORK/scene_bad.json" --output "$WORK/x.json"
+
 # Stores that are not plyledger stores, or newer ones.
 run "text file as store" 1 ply summary --store "$WORK/not-a-store.plyledger" \
     && expect_one_line_err "text file as store" "not-a-store.plyledger"
