@@ -923,6 +923,136 @@ PL_EXPORT int pl_render_map(pl_image **out, const pl_map *map, uint32_t c,
     return pl_render__map(out, NULL, map, c, opts, err);
 }
 
+/* ---- two maps together ------------------------------------------------- */
+
+/* 1st and 99th percentiles of the finite values of one or two arrays. */
+static int joint_range(double *lo, double *hi, const float *x, const float *y, size_t n,
+                       pl_err *err)
+{
+    float *copy = malloc(2 * n * sizeof *copy);
+    if (!copy)
+        return pl__err(err, PL_ENOMEM, "out of memory for the render range");
+    size_t k = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isfinite(x[i]))
+            copy[k++] = x[i];
+        if (y && isfinite(y[i]))
+            copy[k++] = y[i];
+    }
+    if (k == 0) {
+        free(copy);
+        return pl__err(err, PL_EINVAL, "maps have no data to render");
+    }
+    *lo = pl_render__percentile(copy, k, 1.0);
+    *hi = pl_render__percentile(copy, k, 99.0);
+    free(copy);
+    if (!(*lo < *hi)) {
+        double half = *lo != 0.0 ? fabs(*lo) * 0.01 : 0.5;
+        *lo -= half;
+        *hi += half;
+    }
+    return PL_OK;
+}
+
+static double unit_clamp(double v)
+{
+    return v < 0.0 ? 0.0 : v > 1.0 ? 1.0 : v;
+}
+
+PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const pl_map *b,
+                             uint32_t cb, pl_pair_mode mode, unsigned tile,
+                             const pl_render_options *opts, pl_err *err)
+{
+    assert(out && a && b);
+    *out = NULL;
+    if (a->width != b->width || a->height != b->height)
+        return pl__err(err, PL_EINVAL, "maps of %" PRIu32 "x%" PRIu32 " and %" PRIu32 "x%" PRIu32
+                       " px cannot be shown together", a->width, a->height, b->width, b->height);
+    if (ca >= a->nchannels || cb >= b->nchannels)
+        return pl__err(err, PL_EINVAL, "channel out of range");
+    if (mode != PL_PAIR_CHECKERBOARD && mode != PL_PAIR_BLEND)
+        return pl__err(err, PL_EINVAL, "unknown pair mode %d", (int)mode);
+    pl_render_options o = PL_RENDER_OPTIONS_INIT;
+    if (opts) {
+        if (opts->version != PL_RENDER_OPTIONS_VERSION)
+            return pl__err(err, PL_EINVAL, "render options version %u is not %u",
+                           opts->version, PL_RENDER_OPTIONS_VERSION);
+        o = *opts;
+    }
+    const size_t n = (size_t)a->width * a->height;
+    const float *x = a->data + (size_t)ca * n, *y = b->data + (size_t)cb * n;
+    if (tile == 0) {
+        uint32_t side = a->width < a->height ? a->width : a->height;
+        tile = side >= 16 ? side / 8 : 2;
+    }
+    float *mix = malloc(n * sizeof *mix);
+    if (!mix)
+        return pl__err(err, PL_ENOMEM, "out of memory for a paired rendering");
+    double lo_a = 0, hi_a = 1, lo_b = 0, hi_b = 1;
+    int rc;
+    if (mode == PL_PAIR_CHECKERBOARD) {
+        rc = joint_range(&lo_a, &hi_a, x, y, n, err);
+        if (!rc && isnan(o.vmin))
+            o.vmin = lo_a;
+        if (!rc && isnan(o.vmax))
+            o.vmax = hi_a;
+        for (uint32_t r = 0; r < a->height; r++)
+            for (uint32_t c = 0; c < a->width; c++) {
+                size_t i = (size_t)r * a->width + c;
+                mix[i] = ((r / tile + c / tile) & 1) ? y[i] : x[i];
+            }
+    } else {
+        rc = joint_range(&lo_a, &hi_a, x, NULL, n, err);
+        if (!rc)
+            rc = joint_range(&lo_b, &hi_b, y, NULL, n, err);
+        for (size_t i = 0; i < n; i++)
+            mix[i] = isfinite(x[i]) && isfinite(y[i]) ? 0.0f : NAN;
+        o.colorbar = 0;
+        o.vmin = -1.0;
+        o.vmax = 1.0;
+    }
+    if (rc) {
+        free(mix);
+        return rc;
+    }
+    /* Render the composite through the ordinary layout, then (blend) paint
+     * the map area with the two-colour picture. */
+    pl_channel ch = a->channels[ca];
+    snprintf(ch.label, sizeof ch.label, "%s",
+             mode == PL_PAIR_CHECKERBOARD ? "checkerboard" : "magenta 1st, green 2nd");
+    pl_map tmp = *a;
+    tmp.nchannels = 1;
+    tmp.channels = &ch;
+    tmp.data = mix;
+    pl_render_layout lay;
+    pl_image *img = NULL;
+    rc = pl_render__map(&img, &lay, &tmp, 0, &o, err);
+    if (!rc && mode == PL_PAIR_BLEND) {
+        unsigned char nodata[3];
+        pl_render__nodata_rgb(o.colormap, nodata);
+        for (uint32_t r = 0; r < a->height; r++)
+            for (uint32_t c = 0; c < a->width; c++) {
+                size_t i = (size_t)r * a->width + c;
+                unsigned char rgb[3];
+                if (isfinite(x[i]) && isfinite(y[i])) {
+                    double p = unit_clamp((x[i] - lo_a) / (hi_a - lo_a));
+                    double q = unit_clamp((y[i] - lo_b) / (hi_b - lo_b));
+                    rgb[0] = rgb[2] = (unsigned char)lround(255.0 * p);
+                    rgb[1] = (unsigned char)lround(255.0 * q);
+                } else {
+                    memcpy(rgb, nodata, 3);
+                }
+                pl_render__fill(img, lay.map_x + (int)(c * lay.zoom),
+                                lay.map_y + (int)(r * lay.zoom), (int)lay.zoom, (int)lay.zoom, rgb);
+            }
+    }
+    free(mix);
+    if (rc)
+        return rc;
+    *out = img;
+    return PL_OK;
+}
+
 /* ---- PNG output -------------------------------------------------------- */
 
 /* libpng reports errors through a callback that must not return; it

@@ -961,7 +961,7 @@ PL_EXPORT int pl_store_list_airframes(pl_store *s, const pl_airframe_filter *fil
         if (fn(ud, &af))
             break;
     }
-    if (r != SQLITE_ROW && r != SQLITE_DONE)
+    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
         rc = db_fail(s, err, s->path);
     sqlite3_finalize(st);
     return rc;
@@ -1259,7 +1259,7 @@ PL_EXPORT int pl_store_list_sites(pl_store *s, const pl_site_filter *filter, pl_
         if (fn(ud, &site))
             break;
     }
-    if (r != SQLITE_ROW && r != SQLITE_DONE)
+    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
         rc = db_fail(s, err, s->path);
     sqlite3_finalize(st);
     return rc;
@@ -1949,6 +1949,295 @@ PL_EXPORT int pl_store_list_maps(pl_store *s, pl_id inspection_key, pl_map_fn fn
     return rc;
 }
 
+/* ---- registrations and comparisons --------------------------------------------- */
+
+/* The site key and inspection kind/date of the inspection a map belongs to. */
+static int map_owner(pl_store *s, pl_id map_id, pl_id *site, pl_id *insp, char *kind,
+                     char *date, const char *label, pl_err *err)
+{
+    sqlite3_stmt *st;
+    int rc = prepare(s, &st,
+                     "SELECT i.site_key, i.stable_key, i.kind, i.performed_on FROM map m "
+                     "JOIN inspection_current i ON i.stable_key = m.inspection_key "
+                     "WHERE m.id = ?1", err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, map_id);
+    int r = sqlite3_step(st);
+    if (r == SQLITE_ROW) {
+        *site = sqlite3_column_int64(st, 0);
+        *insp = sqlite3_column_int64(st, 1);
+        col_text(st, 2, kind, PL_WORD_SIZE);
+        col_text(st, 3, date, PL_DATE_SIZE);
+    } else if (r == SQLITE_DONE) {
+        rc = pl__err(err, PL_ENOTFOUND, "%s: no map %lld", label, (long long)map_id);
+    } else {
+        rc = db_fail(s, err, label);
+    }
+    sqlite3_finalize(st);
+    return rc;
+}
+
+static int finite_all(const double *v, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        if (!isfinite(v[i]))
+            return 0;
+    return 1;
+}
+
+static int check_registration(pl_store *s, const pl_registration_record *r, const char *label,
+                              pl_err *err)
+{
+    int aligned = strcmp(r->status, "aligned") == 0;
+    int manual = strcmp(r->status, "manual") == 0;
+    int refused = strcmp(r->status, "refused") == 0;
+    if (!aligned && !manual && !refused)
+        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not aligned, refused or manual",
+                       label, FLD(r->status));
+    int rc;
+    if ((rc = check_name(err, label, "method", r->method, sizeof r->method, 1)))
+        return rc;
+    if (refused && !r->refusal[0])
+        return pl__err(err, PL_EINVAL, "%s: a refused registration needs its reason", label);
+    if (manual && (!r->supplied_by[0] || !r->supplied_reason[0]))
+        return pl__err(err, PL_EINVAL,
+                       "%s: a manual registration needs who supplied it and why", label);
+    if (!refused) {
+        double t[] = { r->shift_col_px, r->shift_row_px, r->shift_u_mm, r->shift_v_mm,
+                       r->rotation_deg, r->scale, r->overlap_fraction, r->overlap_mm2 };
+        if (!finite_all(t, sizeof t / sizeof t[0]) || !(r->scale > 0))
+            return pl__err(err, PL_EINVAL,
+                           "%s: an applied registration needs a finite transform (scale > 0) "
+                           "and its overlap", label);
+        if (r->overlap_fraction < 0 || r->overlap_fraction > 1 || r->overlap_mm2 < 0)
+            return pl__err(err, PL_EINVAL, "%s: overlap out of range", label);
+    }
+    return check_json_object(s, err, label, "parameters_json", r->parameters_json);
+}
+
+PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_record *r, pl_id *id,
+                                        pl_err *err)
+{
+    assert(s && r);
+    char label[LABEL_SIZE];
+    snprintf(label, sizeof label, "registration of map %lld onto map %lld",
+             (long long)r->current_map_id, (long long)r->baseline_map_id);
+    int rc = check_registration(s, r, label, err);
+    if (rc)
+        return rc;
+    pl_id bsite, csite, binsp, cinsp;
+    char bkind[PL_WORD_SIZE], ckind[PL_WORD_SIZE], bdate[PL_DATE_SIZE], cdate[PL_DATE_SIZE];
+    if ((rc = map_owner(s, r->baseline_map_id, &bsite, &binsp, bkind, bdate, label, err))
+        || (rc = map_owner(s, r->current_map_id, &csite, &cinsp, ckind, cdate, label, err)))
+        return rc;
+    if (bsite != csite)
+        return pl__err(err, PL_ENOMATCH, "%s: the maps belong to different sites", label);
+    if (r->baseline_map_id == r->current_map_id)
+        return pl__err(err, PL_EINVAL, "%s: a map cannot be registered onto itself", label);
+    int owned;
+    if ((rc = pl_store__write_begin(s, &owned, err)))
+        return rc;
+    sqlite3_stmt *st;
+    rc = prepare(s, &st,
+                 "INSERT INTO registration (baseline_map_id, current_map_id, method, status, "
+                 "refusal, shift_col_px, shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, "
+                 "scale, ncc, peak_sidelobe, overlap_fraction, overlap_mm2, supplied_by, "
+                 "supplied_reason, parameters_json, software_version, recorded_at) VALUES "
+                 "(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, "
+                 "?18, ?19, ?20)", err);
+    if (!rc) {
+        char now[PL_DATE_SIZE];
+        now_utc(now);
+        const char *ver = r->software_version[0] ? r->software_version : pl_version();
+        int b = sqlite3_bind_int64(st, 1, r->baseline_map_id)
+                | sqlite3_bind_int64(st, 2, r->current_map_id)
+                | sqlite3_bind_text(st, 3, r->method, -1, SQLITE_STATIC)
+                | sqlite3_bind_text(st, 4, r->status, -1, SQLITE_STATIC)
+                | bind_opt_text(st, 5, r->refusal)
+                | bind_opt_real(st, 6, r->shift_col_px) | bind_opt_real(st, 7, r->shift_row_px)
+                | bind_opt_real(st, 8, r->shift_u_mm) | bind_opt_real(st, 9, r->shift_v_mm)
+                | bind_opt_real(st, 10, r->rotation_deg) | bind_opt_real(st, 11, r->scale)
+                | bind_opt_real(st, 12, r->ncc) | bind_opt_real(st, 13, r->peak_sidelobe)
+                | bind_opt_real(st, 14, r->overlap_fraction)
+                | bind_opt_real(st, 15, r->overlap_mm2) | bind_opt_text(st, 16, r->supplied_by)
+                | bind_opt_text(st, 17, r->supplied_reason)
+                | bind_opt_text(st, 18, r->parameters_json)
+                | sqlite3_bind_text(st, 19, ver, -1, SQLITE_STATIC)
+                | sqlite3_bind_text(st, 20, now, -1, SQLITE_TRANSIENT);
+        rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
+        sqlite3_finalize(st);
+    }
+    return pl_store__write_end(s, owned, rc, err);
+}
+
+PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
+                                          pl_registration_fn fn, void *ud, pl_err *err)
+{
+    assert(s && fn);
+    sqlite3_stmt *st;
+    int rc = prepare(s, &st,
+                     "SELECT id, baseline_map_id, current_map_id, method, status, refusal, "
+                     "shift_col_px, shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, scale, "
+                     "ncc, peak_sidelobe, overlap_fraction, overlap_mm2, supplied_by, "
+                     "supplied_reason, parameters_json, software_version, recorded_at "
+                     "FROM registration WHERE ?1 = 0 OR current_map_id = ?1 ORDER BY id", err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, current_map_id);
+    int r;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        pl_registration_record g;
+        memset(&g, 0, sizeof g);
+        g.id = sqlite3_column_int64(st, 0);
+        g.baseline_map_id = sqlite3_column_int64(st, 1);
+        g.current_map_id = sqlite3_column_int64(st, 2);
+        col_text(st, 3, g.method, sizeof g.method);
+        col_text(st, 4, g.status, sizeof g.status);
+        col_text(st, 5, g.refusal, sizeof g.refusal);
+        double *nums[] = { &g.shift_col_px, &g.shift_row_px, &g.shift_u_mm, &g.shift_v_mm,
+                           &g.rotation_deg, &g.scale, &g.ncc, &g.peak_sidelobe,
+                           &g.overlap_fraction, &g.overlap_mm2 };
+        for (int k = 0; k < 10; k++)
+            *nums[k] = col_real(st, 6 + k);
+        col_text(st, 16, g.supplied_by, sizeof g.supplied_by);
+        col_text(st, 17, g.supplied_reason, sizeof g.supplied_reason);
+        int oom = 0;
+        g.parameters_json = col_dup(st, 18, &oom);
+        col_text(st, 19, g.software_version, sizeof g.software_version);
+        col_text(st, 20, g.recorded_at, sizeof g.recorded_at);
+        if (oom) {
+            rc = pl__err(err, PL_ENOMEM, "out of memory");
+            break;
+        }
+        int stop = fn(ud, &g);
+        free(g.parameters_json);
+        if (stop)
+            break;
+    }
+    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
+        rc = db_fail(s, err, s->path);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* The site key of an inspection (by key). */
+static int inspection_site_key(pl_store *s, pl_id key, pl_id *site, const char *label,
+                               pl_err *err)
+{
+    sqlite3_stmt *st;
+    int rc = prepare(s, &st, "SELECT site_key FROM inspection_current WHERE stable_key = ?1", err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, key);
+    int found = 0;
+    int64_t v = 0;
+    rc = step_int(s, st, &found, &v, err, label);
+    sqlite3_finalize(st);
+    if (!rc && !found)
+        rc = pl__err(err, PL_ENOTFOUND, "%s: no inspection with key %lld", label, (long long)key);
+    *site = v;
+    return rc;
+}
+
+PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c, pl_id *id,
+                                      pl_err *err)
+{
+    assert(s && c);
+    char label[LABEL_SIZE];
+    snprintf(label, sizeof label, "comparison of inspection %lld with %lld",
+             (long long)c->current_inspection, (long long)c->baseline_inspection);
+    int done = strcmp(c->status, "done") == 0, not_done = strcmp(c->status, "not-done") == 0;
+    if (!done && !not_done)
+        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not done or not-done", label,
+                       FLD(c->status));
+    if (not_done && !c->not_done_reason[0])
+        return pl__err(err, PL_EINVAL, "%s: a comparison not done needs its reason", label);
+    if (c->baseline_inspection == c->current_inspection)
+        return pl__err(err, PL_EINVAL, "%s: an inspection cannot be compared with itself", label);
+    int rc = check_json_object(s, err, label, "parameters_json", c->parameters_json);
+    pl_id bsite = 0, csite = 0;
+    if (!rc)
+        rc = inspection_site_key(s, c->baseline_inspection, &bsite, label, err);
+    if (!rc)
+        rc = inspection_site_key(s, c->current_inspection, &csite, label, err);
+    if (rc)
+        return rc;
+    if (bsite != csite)
+        return pl__err(err, PL_ENOMATCH, "%s: the inspections are of different sites", label);
+    int owned;
+    if ((rc = pl_store__write_begin(s, &owned, err)))
+        return rc;
+    sqlite3_stmt *st;
+    rc = prepare(s, &st,
+                 "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, "
+                 "registration_id, status, not_done_reason, uncompared_mm2, uncompared_fraction, "
+                 "parameters_json, software_version, recorded_at) VALUES (?1, ?2, ?3, ?4, ?5, "
+                 "?6, ?7, ?8, ?9, ?10, ?11)", err);
+    if (!rc) {
+        char now[PL_DATE_SIZE];
+        now_utc(now);
+        const char *ver = c->software_version[0] ? c->software_version : pl_version();
+        int b = sqlite3_bind_int64(st, 1, bsite) | sqlite3_bind_int64(st, 2, c->baseline_inspection)
+                | sqlite3_bind_int64(st, 3, c->current_inspection)
+                | bind_opt_id(st, 4, c->registration_id)
+                | sqlite3_bind_text(st, 5, c->status, -1, SQLITE_STATIC)
+                | bind_opt_text(st, 6, c->not_done_reason)
+                | bind_opt_real(st, 7, c->uncompared_mm2)
+                | bind_opt_real(st, 8, c->uncompared_fraction)
+                | bind_opt_text(st, 9, c->parameters_json)
+                | sqlite3_bind_text(st, 10, ver, -1, SQLITE_STATIC)
+                | sqlite3_bind_text(st, 11, now, -1, SQLITE_TRANSIENT);
+        rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
+        sqlite3_finalize(st);
+    }
+    return pl_store__write_end(s, owned, rc, err);
+}
+
+PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
+                                        pl_comparison_fn fn, void *ud, pl_err *err)
+{
+    assert(s && fn);
+    sqlite3_stmt *st;
+    int rc = prepare(s, &st,
+                     "SELECT id, baseline_inspection, current_inspection, registration_id, status, "
+                     "not_done_reason, uncompared_mm2, uncompared_fraction, parameters_json, "
+                     "software_version, recorded_at FROM comparison "
+                     "WHERE ?1 = 0 OR current_inspection = ?1 ORDER BY id", err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, current_inspection);
+    int r;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        pl_comparison_record c;
+        memset(&c, 0, sizeof c);
+        c.id = sqlite3_column_int64(st, 0);
+        c.baseline_inspection = sqlite3_column_int64(st, 1);
+        c.current_inspection = sqlite3_column_int64(st, 2);
+        c.registration_id = sqlite3_column_int64(st, 3);
+        col_text(st, 4, c.status, sizeof c.status);
+        col_text(st, 5, c.not_done_reason, sizeof c.not_done_reason);
+        c.uncompared_mm2 = col_real(st, 6);
+        c.uncompared_fraction = col_real(st, 7);
+        int oom = 0;
+        c.parameters_json = col_dup(st, 8, &oom);
+        col_text(st, 9, c.software_version, sizeof c.software_version);
+        col_text(st, 10, c.recorded_at, sizeof c.recorded_at);
+        if (oom) {
+            rc = pl__err(err, PL_ENOMEM, "out of memory");
+            break;
+        }
+        int stop = fn(ud, &c);
+        free(c.parameters_json);
+        if (stop)
+            break;
+    }
+    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
+        rc = db_fail(s, err, s->path);
+    sqlite3_finalize(st);
+    return rc;
+}
+
 /* ---- summary ----------------------------------------------------------------------- */
 
 static int count_into(pl_store *s, const char *sql, int64_t *out, pl_err *err)
@@ -2008,6 +2297,7 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT count(*) FROM disposition d WHERE NOT EXISTS "
           "(SELECT 1 FROM disposition e WHERE e.supersedes = d.id)", &sum->dispositions },
         { "SELECT count(*) FROM ledger", &sum->ledger_links },
+        { "SELECT count(*) FROM registration", &sum->registrations },
         { "SELECT coalesce(sum(length(data)), 0) FROM map", &sum->map_bytes },
     };
     for (size_t i = 0; !rc && i < sizeof counts / sizeof counts[0]; i++)

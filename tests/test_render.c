@@ -658,6 +658,79 @@ static void test_render__caption_names_quantity_and_label(void **state)
     map_release(m);
 }
 
+/* Checkerboard tiles alternate between the two maps on one colour scale;
+ * a blend of a map with itself is grey everywhere (equal magenta and green),
+ * and with a different map shows colour. */
+static void test_render__pair_checkerboard_and_blend(void **state)
+{
+    (void)state;
+    pl_map *a = map_alloc(32, 16, 1), *b = map_alloc(32, 16, 1);
+    for (int i = 0; i < 32 * 16; i++) {
+        a->data[i] = 0.0f;
+        b->data[i] = 1.0f;
+    }
+    a->data[5] = 1.0f;  /* give each map a spread for the blend's own range */
+    b->data[5] = 0.0f;
+    pl_render_options o = PL_RENDER_OPTIONS_INIT;
+    o.vmin = 0.0;
+    o.vmax = 1.0;
+    o.scalebar = 0;
+    pl_image *img;
+    pl_err err = {0};
+    assert_int_equal(pl_render_pair(&img, a, 0, b, 0, PL_PAIR_CHECKERBOARD, 4, &o, &err), PL_OK);
+    unsigned char lo[3], hi[3];
+    pl_colormap_rgb(PL_COLORMAP_LEDGER, 0.0, lo);
+    pl_colormap_rgb(PL_COLORMAP_LEDGER, 1.0, hi);
+    /* Find the map area: the first pixel with the low colour. */
+    int found = 0, mx = 0, my = 0;
+    for (int y = 0; y < (int)img->height && !found; y++)
+        for (int x = 0; x < (int)img->width && !found; x++)
+            if (memcmp(px(img, x, y), lo, 3) == 0) {
+                found = 1;
+                mx = x;
+                my = y;
+            }
+    assert_true(found);
+    /* zoom: the map is at least 256 px wide, so 8 image px per map px */
+    int z = (256 + 31) / 32;
+    assert_memory_equal(px(img, mx + 4 * z + 1, my + 1), hi, 3);       /* tile (0,1): b */
+    assert_memory_equal(px(img, mx + 8 * z + 1, my + 1), lo, 3);       /* tile (0,2): a */
+    assert_memory_equal(px(img, mx + 1, my + 4 * z + 1), hi, 3);       /* tile (1,0): b */
+    pl_image_free(img);
+
+    for (int i = 0; i < 32 * 16; i++)
+        b->data[i] = a->data[i] = (float)(i % 7);
+    assert_int_equal(pl_render_pair(&img, a, 0, b, 0, PL_PAIR_BLEND, 0, &o, &err), PL_OK);
+    int coloured = 0;
+    for (uint32_t y = 0; y < img->height; y++)
+        for (uint32_t x = 0; x < img->width; x++) {
+            const unsigned char *p = px(img, (int)x, (int)y);
+            if (p[0] != p[1] || p[1] != p[2])
+                coloured++;
+        }
+    assert_int_equal(coloured, 0);
+    pl_image_free(img);
+    for (int i = 0; i < 32 * 16; i++)
+        b->data[i] = (float)((i + 3) % 7);
+    assert_int_equal(pl_render_pair(&img, a, 0, b, 0, PL_PAIR_BLEND, 0, &o, &err), PL_OK);
+    coloured = 0;
+    for (uint32_t y = 0; y < img->height; y++)
+        for (uint32_t x = 0; x < img->width; x++) {
+            const unsigned char *p = px(img, (int)x, (int)y);
+            if (p[0] != p[1])
+                coloured++;
+        }
+    assert_true(coloured > 1000);
+    pl_image_free(img);
+
+    pl_map *c = map_alloc(31, 16, 1);
+    assert_int_equal(pl_render_pair(&img, a, 0, c, 0, PL_PAIR_BLEND, 0, &o, &err), PL_EINVAL);
+    assert_non_null(strstr(err.msg, "cannot be shown together"));
+    map_release(a);
+    map_release(b);
+    map_release(c);
+}
+
 static void test_render__tiny_and_extreme_maps(void **state)
 {
     (void)state;
@@ -934,6 +1007,7 @@ int main(void)
         cmocka_unit_test(test_render__colour_bar_and_scale_bar),
         cmocka_unit_test(test_render__scale_bar_length_matches_pitch),
         cmocka_unit_test(test_render__caption_names_quantity_and_label),
+        cmocka_unit_test(test_render__pair_checkerboard_and_blend),
         cmocka_unit_test(test_render__tiny_and_extreme_maps),
         cmocka_unit_test(test_render__refuses_bad_requests),
         cmocka_unit_test(test_render__deterministic_and_read_only),

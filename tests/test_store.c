@@ -1503,6 +1503,170 @@ static void test_store__summary_counts_the_record(void **state)
     check_integrity(f->path);
 }
 
+typedef struct reg_list {
+    int n;
+    pl_registration_record last;
+    char params[128];
+} reg_list;
+
+static int on_registration(void *ud, const pl_registration_record *r)
+{
+    reg_list *l = ud;
+    l->n++;
+    l->last = *r;
+    snprintf(l->params, sizeof l->params, "%s", r->parameters_json ? r->parameters_json : "");
+    l->last.parameters_json = NULL;
+    return 0;
+}
+
+static int on_comparison(void *ud, const pl_comparison_record *c)
+{
+    pl_comparison_record *out = ud;
+    *out = *c;
+    out->parameters_json = NULL;
+    return 0;
+}
+
+/* Registrations tie two maps of one site with the transform and its
+ * quality; refusals and manual transforms carry who and why; a comparison
+ * that could not be made says so. */
+static void test_store__registrations_and_comparisons(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    add_site(f->st, "PLX-0001", "F02");
+    pl_id base = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_id next = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
+    pl_id other = add_inspection(f->st, "PLX-0001", "F02", "baseline", "2016-01-10");
+    pl_map *m = test_map(8, 6, 1, 1.0f);
+    pl_map_record r = map_record(base);
+    pl_id mb = 0, mc = 0, mo = 0;
+    OK(pl_store_add_map(f->st, &r, m, &mb, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = next;
+    OK(pl_store_add_map(f->st, &r, m, &mc, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = other;
+    OK(pl_store_add_map(f->st, &r, m, &mo, &err));
+    pl_map_free(m);
+
+    pl_registration_record g;
+    memset(&g, 0, sizeof g);
+    g.baseline_map_id = mb;
+    g.current_map_id = mc;
+    snprintf(g.method, sizeof g.method, "phase-correlation");
+    snprintf(g.status, sizeof g.status, "aligned");
+    g.shift_col_px = 2.25;
+    g.shift_row_px = -1.5;
+    g.shift_u_mm = 1.125;
+    g.shift_v_mm = -0.75;
+    g.rotation_deg = 0.4;
+    g.scale = 1.0;
+    g.ncc = 0.93;
+    g.peak_sidelobe = 41.0;
+    g.overlap_fraction = 0.9;
+    g.overlap_mm2 = 10.8;
+    char params[] = "{\"upsample\":100}";
+    g.parameters_json = params;
+    pl_id gid = 0;
+    OK(pl_store_add_registration(f->st, &g, &gid, &err));
+    assert_true(gid > 0);
+
+    /* what is refused, and why */
+    pl_registration_record bad = g;
+    bad.current_map_id = mo;
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_ENOMATCH, &err,
+                "different sites");
+    bad = g;
+    bad.current_map_id = 999;
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_ENOTFOUND, &err,
+                "no map 999");
+    bad = g;
+    snprintf(bad.status, sizeof bad.status, "refused");
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "needs its reason");
+    bad = g;
+    snprintf(bad.status, sizeof bad.status, "manual");
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "who supplied it and why");
+    bad = g;
+    bad.scale = 0;
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "finite transform");
+    bad = g;
+    snprintf(bad.status, sizeof bad.status, "maybe");
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "'maybe'");
+
+    /* a refusal, then a manual transform */
+    pl_registration_record refused;
+    memset(&refused, 0, sizeof refused);
+    refused.baseline_map_id = mb;
+    refused.current_map_id = mc;
+    snprintf(refused.method, sizeof refused.method, "phase-correlation");
+    snprintf(refused.status, sizeof refused.status, "refused");
+    snprintf(refused.refusal, sizeof refused.refusal, "ncc 0.12 below the limit 0.5");
+    refused.shift_col_px = refused.shift_row_px = refused.shift_u_mm = refused.shift_v_mm = NAN;
+    refused.rotation_deg = refused.scale = refused.overlap_fraction = refused.overlap_mm2 = NAN;
+    refused.ncc = 0.12;
+    refused.peak_sidelobe = NAN;
+    pl_id rid = 0;
+    OK(pl_store_add_registration(f->st, &refused, &rid, &err));
+    pl_registration_record manual = g;
+    snprintf(manual.status, sizeof manual.status, "manual");
+    snprintf(manual.method, sizeof manual.method, "manual");
+    snprintf(manual.supplied_by, sizeof manual.supplied_by, "A. Engineer");
+    snprintf(manual.supplied_reason, sizeof manual.supplied_reason, "repainted surface");
+    manual.peak_sidelobe = NAN;
+    manual.parameters_json = NULL;
+    OK(pl_store_add_registration(f->st, &manual, NULL, &err));
+
+    reg_list l;
+    memset(&l, 0, sizeof l);
+    OK(pl_store_list_registrations(f->st, mc, on_registration, &l, &err));
+    assert_int_equal(l.n, 3);
+    assert_string_equal(l.last.status, "manual");
+    assert_string_equal(l.last.supplied_by, "A. Engineer");
+    assert_true(isnan(l.last.peak_sidelobe));
+    memset(&l, 0, sizeof l);
+    OK(pl_store_list_registrations(f->st, 0, on_registration, &l, &err));
+    assert_int_equal(l.n, 3);
+
+    /* the comparison that needed the refused registration is not done */
+    pl_comparison_record c;
+    memset(&c, 0, sizeof c);
+    c.baseline_inspection = base;
+    c.current_inspection = next;
+    c.registration_id = rid;
+    snprintf(c.status, sizeof c.status, "not-done");
+    c.uncompared_mm2 = c.uncompared_fraction = NAN;
+    expect_fail(pl_store_add_comparison(f->st, &c, NULL, &err), PL_EINVAL, &err,
+                "needs its reason");
+    snprintf(c.not_done_reason, sizeof c.not_done_reason, "registration refused: %.200s",
+             refused.refusal);
+    pl_comparison_record wrong = c;
+    wrong.current_inspection = other;
+    expect_fail(pl_store_add_comparison(f->st, &wrong, NULL, &err), PL_ENOMATCH, &err,
+                "different sites");
+    pl_id cid = 0;
+    OK(pl_store_add_comparison(f->st, &c, &cid, &err));
+    pl_comparison_record back;
+    memset(&back, 0, sizeof back);
+    OK(pl_store_list_comparisons(f->st, next, on_comparison, &back, &err));
+    assert_int_equal(back.id, cid);
+    assert_string_equal(back.status, "not-done");
+    assert_int_equal(back.registration_id, rid);
+    assert_non_null(strstr(back.not_done_reason, "ncc 0.12"));
+
+    pl_store_summary sum;
+    OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.registrations, 3);
+    assert_int_equal(sum.comparisons, 1);
+    check_integrity(f->path);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1525,6 +1689,7 @@ int main(void)
         T(test_store__rollback_leaves_the_store_as_it_was),
         T(test_store__listings_filter_and_order),
         T(test_store__summary_counts_the_record),
+        T(test_store__registrations_and_comparisons),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

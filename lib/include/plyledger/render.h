@@ -100,6 +100,28 @@ PL_EXPORT void pl_colormap_rgb(pl_colormap cmap, double t, unsigned char rgb[3])
 PL_EXPORT int pl_render_map(pl_image **out, const pl_map *map, uint32_t c,
                             const pl_render_options *opts, pl_err *err);
 
+/** How pl_render_pair() shows two maps of one grid together. */
+typedef enum pl_pair_mode {
+    PL_PAIR_CHECKERBOARD = 0, /**< alternate square tiles of each, one colour scale */
+    PL_PAIR_BLEND = 1,        /**< first in magenta, second in green: where they agree
+                                   the picture is grey, misfits show as colour fringes */
+} pl_pair_mode;
+
+/**
+ * Render two maps of the same size together, to judge an alignment: a
+ * checkerboard of `tile` map pixels (0: an eighth of the shorter side), both
+ * through the colour map over a common range (the options' vmin / vmax, or
+ * the 1st and 99th percentiles of both), or a blend, each normalised to its
+ * own 1st..99th percentile. The caption says which is which; the scale bar
+ * is drawn as pl_render_map() draws it; a blend has no colour bar.
+ * @param[out] out  free with pl_image_free()
+ * @return PL_OK, PL_EINVAL (sizes differ, a channel out of range, bad
+ *         options, no data), PL_ENOMEM.
+ */
+PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const pl_map *b,
+                             uint32_t cb, pl_pair_mode mode, unsigned tile,
+                             const pl_render_options *opts, pl_err *err);
+
 /**
  * Write an image as an 8-bit RGB PNG (non-interlaced, with a "Software"
  * text chunk naming plyledger and its version). After a failure the file

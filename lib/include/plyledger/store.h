@@ -354,6 +354,79 @@ typedef int (*pl_map_fn)(void *ud, const pl_map_record *rec);
 PL_EXPORT int pl_store_list_maps(pl_store *store, pl_id inspection_key, pl_map_fn fn, void *ud,
                                  pl_err *err);
 
+/* ---- registrations ---------------------------------------------------------- */
+
+/** One alignment of a current map onto a baseline map of the same site. */
+typedef struct pl_registration_record {
+    pl_id id;                             /**< (read) */
+    pl_id baseline_map_id;                /**< the map aligned to; required */
+    pl_id current_map_id;                 /**< the map aligned; required */
+    char method[PL_NAME_SIZE];            /**< how, e.g. "phase-correlation"; required */
+    char status[PL_WORD_SIZE];            /**< "aligned", "refused" or "manual" */
+    char refusal[PL_TEXT_SIZE];           /**< why, when refused (required then) */
+    double shift_col_px, shift_row_px;    /**< transform shift, baseline pixels */
+    double shift_u_mm, shift_v_mm;        /**< the same in mm along u, v */
+    double rotation_deg;                  /**< transform rotation */
+    double scale;                         /**< transform scale */
+    double ncc;                           /**< correlation over the overlap; NaN unknown */
+    double peak_sidelobe;                 /**< peak-to-sidelobe ratio; NaN unknown */
+    double overlap_fraction;              /**< of the baseline grid */
+    double overlap_mm2;                   /**< overlap area */
+    char supplied_by[PL_NAME_SIZE];       /**< manual: who gave the transform (required) */
+    char supplied_reason[PL_TEXT_SIZE];   /**< manual: why (required) */
+    char *parameters_json;                /**< options used (JSON object) or NULL; on read
+                                               valid for the callback's duration */
+    char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_registration_record;
+
+/**
+ * Record a registration. Both maps must exist and belong to inspections of
+ * the same site, the baseline map to the earlier inspection or a baseline;
+ * "aligned" and "manual" need the transform (finite shift, rotation, scale
+ * > 0) and the overlap; "refused" needs the refusal; "manual" needs who and
+ * why.
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (a map), PL_ENOMATCH (maps of
+ *         different sites), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_registration(pl_store *store, const pl_registration_record *reg,
+                                        pl_id *id, pl_err *err);
+
+typedef int (*pl_registration_fn)(void *ud, const pl_registration_record *reg);
+/** Registrations whose current map is `current_map_id` (0: all), oldest first. */
+PL_EXPORT int pl_store_list_registrations(pl_store *store, pl_id current_map_id,
+                                          pl_registration_fn fn, void *ud, pl_err *err);
+
+/* ---- comparisons ------------------------------------------------------------- */
+
+/** A comparison of a site's current inspection with its baseline. */
+typedef struct pl_comparison_record {
+    pl_id id;                             /**< (read) */
+    pl_id baseline_inspection;            /**< key; required */
+    pl_id current_inspection;             /**< key; required, same site */
+    pl_id registration_id;                /**< the registration it rests on, or 0 */
+    char status[PL_WORD_SIZE];            /**< "done" or "not-done" */
+    char not_done_reason[PL_TEXT_SIZE];   /**< why, when not done (required then) */
+    double uncompared_mm2;                /**< area that could not be compared; NaN unknown */
+    double uncompared_fraction;           /**< the same as a fraction of the site */
+    char *parameters_json;                /**< or NULL; on read valid for the callback */
+    char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_comparison_record;
+
+/**
+ * Record a comparison (its classified changes come with later work).
+ * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_ENOMATCH (inspections of
+ *         different sites), PL_EDB.
+ */
+PL_EXPORT int pl_store_add_comparison(pl_store *store, const pl_comparison_record *cmp, pl_id *id,
+                                      pl_err *err);
+
+typedef int (*pl_comparison_fn)(void *ud, const pl_comparison_record *cmp);
+/** Comparisons whose current inspection is `current_inspection` (0: all), oldest first. */
+PL_EXPORT int pl_store_list_comparisons(pl_store *store, pl_id current_inspection,
+                                        pl_comparison_fn fn, void *ud, pl_err *err);
+
 /* ---- summary ------------------------------------------------------------- */
 
 typedef struct pl_store_summary {
@@ -365,6 +438,7 @@ typedef struct pl_store_summary {
     int64_t inspections_by_kind[4];    /**< baseline, scheduled, unscheduled, post-repair */
     int64_t corrections;               /**< rows that supersede another */
     int64_t indications, comparisons, dispositions, ledger_links;
+    int64_t registrations;             /**< registrations recorded (any status) */
     int64_t map_bytes;                 /**< compressed map data */
     char first_inspection[PL_DATE_SIZE];
     char last_inspection[PL_DATE_SIZE];
