@@ -38,6 +38,8 @@ static const char help_head[] =
     "      --diffusivity MM2_S   through-thickness diffusivity for depth maps\n"
     "                            (default: the site's, when recording)\n"
     "      --depth-method M      peak-d2 (default), slab-fit or both\n"
+    "      --peak-rule R         first-significant (default): the earliest peak of the\n"
+    "                            second log-derivative above the noise; or largest\n"
     "      --reference X,Y,W,H   sound reference region in pixels (default: automatic)\n"
     "      --frequencies N       pulse-phase frequencies (default 4; 0 for none)\n"
     "      --phase-samples N     uniform samples for pulse phase (default 64)\n"
@@ -52,7 +54,7 @@ static const char help_tail[] =
 
 enum {
     O_START = 0x100, O_END, O_SAMPLES, O_DEGREE, O_AT, O_PRODUCTS, O_DIFFUSIVITY,
-    O_DEPTH_METHOD, O_REFERENCE, O_FREQUENCIES, O_PHASE_SAMPLES, O_PHASE_END, O_THREADS,
+    O_DEPTH_METHOD, O_PEAK_RULE, O_REFERENCE, O_FREQUENCIES, O_PHASE_SAMPLES, O_PHASE_END, O_THREADS,
 };
 static const struct option opts[] = {
     { "output", required_argument, NULL, 'o' },
@@ -64,6 +66,7 @@ static const struct option opts[] = {
     { "products", required_argument, NULL, O_PRODUCTS },
     { "diffusivity", required_argument, NULL, O_DIFFUSIVITY },
     { "depth-method", required_argument, NULL, O_DEPTH_METHOD },
+    { "peak-rule", required_argument, NULL, O_PEAK_RULE },
     { "reference", required_argument, NULL, O_REFERENCE },
     { "frequencies", required_argument, NULL, O_FREQUENCIES },
     { "phase-samples", required_argument, NULL, O_PHASE_SAMPLES },
@@ -175,6 +178,14 @@ static int take_opt(void *ctx, int opt, const char *arg)
             o->depth_method = PL_DEPTH_BOTH;
         else
             return cli_usage_error(usage, "--depth-method must be peak-d2, slab-fit or both");
+        break;
+    case O_PEAK_RULE:
+        if (strcmp(arg, "first-significant") == 0)
+            o->peak_rule = PL_PEAK_FIRST_SIGNIFICANT;
+        else if (strcmp(arg, "largest") == 0)
+            o->peak_rule = PL_PEAK_LARGEST;
+        else
+            return cli_usage_error(usage, "--peak-rule must be first-significant or largest");
         break;
     case O_REFERENCE: {
         double v[4];

@@ -11,16 +11,29 @@
  * the mean rise of each log-spaced bin and the mean rise of each uniform
  * bin. Bins are stored bin-major (all pixels of bin 0, then bin 1...) so
  * that closing a bin writes one contiguous row of floats. Frames arrive in
- * batches of BATCH_FRAMES; worker threads accumulate one batch while the
- * caller fills the other batch buffer, walking the pixels in blocks so that
- * the running sums stay in cache across the batch's frames.
+ * batches of BATCH_FRAMES (read straight into the batch buffer by
+ * pl_reduce_sequence()); the workers accumulate one batch, in blocks of
+ * pixels, while the caller fills the other buffer and then joins them.
+ * Two frames of one segment are added in one pass over a block, so the
+ * running sum is loaded and stored once for both; the frame buffers stay
+ * small so that the reader's copy lands in cache.
  *
  * The per-pixel stage works on blocks of PB neighbouring pixels, whose
  * samples are then PB contiguous floats per bin: the fit, the third
- * derivative on the peak-search grid and the fit at the sample times are
- * small matrix products over the block (combine_rows()), each pixel's
- * values summed in a fixed order so that blocks and threads do not change
- * any result.
+ * derivative on the peak-search grid, the fit at the sample times and the
+ * pulse-phase sums are small matrix products over the block
+ * (combine_rows()), each pixel's values summed in a fixed order so that
+ * blocks and threads do not change any result; logarithms and
+ * exponentials of whole rows are vectorised series (fast_logf(),
+ * fast_expf()). Only the peak search and a few outputs run pixel by
+ * pixel.
+ *
+ * Where the time goes (640 x 512 x 1000 float32 frames, 2 cores, perf
+ * samples of the whole process; see tests/bench/README.md): the kernel
+ * copying the frames out of the page cache a fifth, the accumulation
+ * (bound by memory traffic) a seventh, the per-pixel stage a third (its
+ * matrix products, the peak search and the outputs about evenly), page
+ * faults and unmapping a tenth, waking threads between batches a tenth.
  */
 #include "reduce_int.h"
 
@@ -33,9 +46,11 @@
 #include <kiss_fftr.h>
 #include <math.h>
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/mman.h>
 #include <unistd.h>
 
 #ifndef M_PI
@@ -43,14 +58,36 @@
 #endif
 
 #define BATCH_FRAMES 2u
-#define BLOCK_PIXELS 2048u
+#define BLOCK_PIXELS 1024u
 #define REF_MAX_PIXELS 16384u
-#define PEAK_GRID 64
+#define PEAK_GRID 63 /* intervals: 64 grid points, one bit each in a uint64_t */
 #define SLAB_GRID 64
 #define SLAB_GOLDEN_STEPS 30
 #define FINISH_CHUNKS 32u
+#define FINISH_UNIT 16u /* blocks of PB pixels a unit of the per-pixel stage */
 #define MAX_THREADS 256u
 #define STREAM_SHARE 0.8 /* share of the progress fraction taken by the frames */
+
+/*
+ * The loops over rows of pixels are written to vectorise; on x86-64 with
+ * GCC the functions that hold them are also compiled for AVX2 and chosen
+ * at run time (function multiversioning, and have_avx2() for the
+ * hand-written kernels). Without fused multiply-add (which the ISO C
+ * mode's default -ffp-contract=off does not form), every operation is the
+ * same IEEE operation in both versions, so the results do not depend on
+ * the version that runs.
+ */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define HAVE_AVX2_VERSIONS 1
+#define ROW_KERNEL __attribute__((target_clones("avx2", "default")))
+static int have_avx2(void)
+{
+    return __builtin_cpu_supports("avx2") != 0;
+}
+#else
+#define HAVE_AVX2_VERSIONS 0
+#define ROW_KERNEL
+#endif
 
 /* ---- the finite slab ---------------------------------------------------- */
 
@@ -131,6 +168,116 @@ static double slab_lnf(double v)
            (-2 * t3 + 3 * t2) * slab_g[i + 1] + (t3 - t2) * h * slab_dg[i + 1];
 }
 
+/* ---- logarithm and exponential for whole rows ----------------------------- */
+
+/*
+ * ln x, e^x and atan2 in float, written without branches or calls so that loops
+ * over rows of values vectorise (the C library's logf and expf are scalar
+ * calls). Both reduce the argument by a power of two and sum a short
+ * series; their error, a few units in the last place of a float (checked
+ * against the C library in the tests), is far below the noise of any
+ * thermal sample. Every choice is a select on bit masks: a conditional
+ * floating-point operation would keep the compiler from vectorising (it
+ * may not speculate it).
+ */
+static inline uint32_t f2u(float x)
+{
+    uint32_t u;
+    memcpy(&u, &x, sizeof u);
+    return u;
+}
+
+static inline float u2f(uint32_t u)
+{
+    float x;
+    memcpy(&x, &u, sizeof x);
+    return x;
+}
+
+/* a where c is 1, b where c is 0 */
+static inline uint32_t sel(uint32_t c, uint32_t a, uint32_t b)
+{
+    return (a & (0u - c)) | (b & (c - 1u));
+}
+
+/* x = m 2^e with m in [1/sqrt 2, sqrt 2), ln m = 2 atanh s = 2 s (1 + s^2/3
+ * + s^4/5 + s^6/7 + s^8/9), s = (m - 1) / (m + 1), |s| <= 0.172, the
+ * series' remainder below 1e-9. Zero, negative and NaN give NaN, +inf
+ * +inf; a subnormal x is scaled by 2^23 first. */
+static inline float fast_logf(float x)
+{
+    uint32_t u = f2u(x), tiny = u < 0x00800000u;
+    uint32_t v = sel(tiny, f2u(x * 8388608.0f), u);
+    int32_t e = (int32_t)((v >> 23) & 0xffu) - 127 - (int32_t)(23u & (0u - tiny));
+    uint32_t mu = (v & 0x007fffffu) | 0x3f800000u, big = mu > 0x3fb504f3u;
+    float m = u2f(mu - (0x00800000u & (0u - big)));
+    e += (int32_t)big;
+    float s = (m - 1.0f) / (m + 1.0f), s2 = s * s, fe = (float)e;
+    float series = 1.0f + s2 * (1.0f / 3 + s2 * (1.0f / 5 + s2 * (1.0f / 7 + s2 * (1.0f / 9))));
+    /* ln 2 in two parts, the first exact times e */
+    float y = fe * 0.693145752f + (fe * 1.42860677e-06f + 2.0f * s * series);
+    uint32_t ok = u - 1u < 0x7f7fffffu, inf = u == 0x7f800000u;
+    return u2f(sel(ok, f2u(y), sel(inf, u, 0x7fc00000u)));
+}
+
+/* e^x = 2^n e^r, n the integer nearest x / ln 2 (adding 1.5 2^23 rounds
+ * to it), |r| <= ln 2 / 2, e^r by its Taylor series to r^7 (remainder
+ * below 6e-9 relative). Below about -87 gives 0, above 88 +inf, NaN NaN. */
+static inline float fast_expf(float x)
+{
+    const float shift = 12582912.0f;
+    float t = x * 1.44269504f + shift;
+    int32_t n = (int32_t)(f2u(t) - f2u(shift));
+    float fn = t - shift;
+    float r = (x - fn * 0.693145752f) - fn * 1.42860677e-06f;
+    float p = 1.0f + r * (1.0f + r * (0.5f + r * (1.0f / 6 + r * (1.0f / 24 + r * (1.0f / 120 +
+              r * (1.0f / 720 + r * (1.0f / 5040)))))));
+    uint32_t low = n < -126, high = n > 127;
+    float y = p * u2f(sel(low | high, 0x3f800000u, (uint32_t)(n + 127) << 23));
+    uint32_t u = f2u(x), nan = (u & 0x7fffffffu) > 0x7f800000u;
+    return u2f(sel(nan, u, sel(low, 0u, sel(high, 0x7f800000u, f2u(y)))));
+}
+
+/* atan2 y x: a = min(|x|, |y|) / max(|x|, |y|) in [0, 1]; above tan(pi/8),
+ * atan a = pi/4 + atan((a - 1) / (a + 1)), so the series atan t = t - t^3/3
+ * + ... + t^17/17 runs over |t| <= tan(pi/8) (remainder below 3e-9); then
+ * the octant and the quadrant. Signed zeros as atan2(). */
+static inline float fast_atan2f(float y, float x)
+{
+    uint32_t ux = f2u(x), uy = f2u(y);
+    float ax = u2f(ux & 0x7fffffffu), ay = u2f(uy & 0x7fffffffu);
+    uint32_t swap = ay > ax;
+    float mx = u2f(sel(swap, f2u(ay), f2u(ax))), mn = u2f(sel(swap, f2u(ax), f2u(ay)));
+    float a = u2f(sel(mx == 0.0f, 0u, f2u(mn / mx)));
+    uint32_t big = a > 0.414213562f;
+    float t = u2f(sel(big, f2u((a - 1.0f) / (a + 1.0f)), f2u(a))), t2 = t * t;
+    float p = t * (1.0f + t2 * (-1.0f / 3 + t2 * (1.0f / 5 + t2 * (-1.0f / 7 + t2 * (1.0f / 9 +
+              t2 * (-1.0f / 11 + t2 * (1.0f / 13 + t2 * (-1.0f / 15 + t2 * (1.0f / 17)))))))));
+    float q = p + u2f(sel(big, f2u(0.785398163f), 0u));
+    q = u2f(sel(swap, f2u(1.57079633f - q), f2u(q)));
+    q = u2f(sel(ux >> 31, f2u(3.14159265f - q), f2u(q)));
+    return u2f(f2u(q) | (uy & 0x80000000u));
+}
+
+void pl_reduce__atan2_row(float *restrict out, const float *restrict y, const float *restrict x,
+                          size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        out[i] = fast_atan2f(y[i], x[i]);
+}
+
+void pl_reduce__log_row(float *restrict out, const float *restrict in, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        out[i] = fast_logf(in[i]);
+}
+
+void pl_reduce__exp_row(float *restrict out, const float *restrict in, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        out[i] = fast_expf(in[i]);
+}
+
 /* ---- polynomials and least squares -------------------------------------- */
 
 static double poly(const double *c, uint32_t deg, double x)
@@ -141,6 +288,19 @@ static double poly(const double *c, uint32_t deg, double x)
     return y;
 }
 
+/* Coefficients of the derivative of order `order` (<= deg) of a
+ * degree-`deg` polynomial: out[i] = (i + 1) ... (i + order) c[i + order],
+ * the integer factor exact. */
+static void deriv_coefs(double *out, const double *c, uint32_t deg, uint32_t order)
+{
+    for (uint32_t i = 0; i + order <= deg; i++) {
+        double f = 1.0;
+        for (uint32_t m = 1; m <= order; m++)
+            f *= (double)(i + m);
+        out[i] = f * c[i + order];
+    }
+}
+
 /* Coefficients of the first derivative of a degree-`deg` polynomial. */
 static void poly_deriv(double *out, const double *c, uint32_t deg)
 {
@@ -149,15 +309,26 @@ static void poly_deriv(double *out, const double *c, uint32_t deg)
 }
 
 /*
- * A root of the third derivative (coefficients c3, degree d3; c4 its
- * derivative) known to lie in (lo, hi], positive at lo and not at hi:
- * Newton steps from the secant guess, with a bisection whenever a step
- * would leave the bracket, until the step falls below 1e-14 relative.
+ * The maximum of the second derivative whose third derivative (c3, degree
+ * d3; c4 its derivative) changes sign in grid interval g (from gx[g - 1]
+ * to gx[g]; glo, ghi the grid values, computed in float). The bracket is
+ * checked in double first and moved by an interval if rounding put the
+ * sign change on the wrong side of a grid point. Then Newton steps from
+ * the secant guess, with a bisection whenever a step would leave the
+ * bracket, until a step falls below 1e-12 (x spans [-1, 1]).
  */
-static double refine_root(const double *c3, const double *c4, uint32_t d3, double lo, double hi,
-                          double glo, double ghi)
+static double refine_root(const double *c3, const double *c4, uint32_t d3, const double *gx,
+                          int g, double glo, double ghi)
 {
-    double x = glo > ghi ? lo + glo * (hi - lo) / (glo - ghi) : 0.5 * (lo + hi);
+    double lo = gx[g - 1], hi = gx[g], flo = poly(c3, d3, lo), fhi = poly(c3, d3, hi);
+    if (!(flo > 0.0) && g >= 2 && poly(c3, d3, gx[g - 2]) > 0.0) {
+        hi = lo;
+        lo = gx[g - 2];
+    } else if (fhi > 0.0 && g < PEAK_GRID && !(poly(c3, d3, gx[g + 1]) > 0.0)) {
+        lo = hi;
+        hi = gx[g + 1];
+    }
+    double x = glo > ghi ? gx[g - 1] + glo * (gx[g] - gx[g - 1]) / (glo - ghi) : 0.5 * (lo + hi);
     if (!(x > lo && x <= hi))
         x = 0.5 * (lo + hi);
     for (int it = 0; it < 60; it++) {
@@ -169,10 +340,12 @@ static double refine_root(const double *c3, const double *c4, uint32_t d3, doubl
         else
             hi = x;
         double fp = d3 ? poly(c4, d3 - 1, x) : 0.0;
+        if (fp < 0.0 && fabs(f / fp) <= 1e-12)
+            break; /* converged: a last step would not leave the rounding noise */
         double xn = fp < 0.0 ? x - f / fp : 0.5 * (lo + hi);
         if (!(xn > lo && xn < hi))
             xn = 0.5 * (lo + hi);
-        int done = fabs(xn - x) <= 1e-14 * (1.0 + fabs(x));
+        int done = fabs(xn - x) <= 1e-12;
         x = xn;
         if (done)
             break;
@@ -314,17 +487,31 @@ typedef struct frame_batch {
 
 /* Per-worker scratch for the per-pixel stage, which works on blocks of PB
  * pixels: PB-column matrices, sample- or coefficient-major. */
-#define PB 16u
+#define PB 32u
+#ifndef PREFETCH_BLOCKS
+#define PREFETCH_BLOCKS 8
+#endif
 typedef struct scratch {
     double *Zb;     /* nused x PB: ln of the mean rise */
+    float *Zf;      /* the same in float */
     double *C;      /* k x PB: coefficients */
-    double *C3;     /* k x PB: third-derivative coefficients */
-    double *G3;     /* (PEAK_GRID + 1) x PB: third derivative on the grid */
+    float *C3;      /* k x PB: third-derivative coefficients, float */
+    float *G3;      /* (PEAK_GRID + 1) x PB: third derivative on the grid, float */
+    uint64_t pos[PB]; /* bit g: G3 positive at grid point g */
     float *Cf;      /* k x PB: coefficients in float */
     float *Y;       /* nused x PB: the fit at the samples, float */
-    float *Ub;      /* M x PB: uniform samples */
+    double *Ud;     /* M x PB: uniform samples */
+    double *F;      /* 2 phase_frequencies x PB: real and imaginary parts */
+    float best[PB]; /* peak contrast over the samples */
+    uint32_t best_b[PB]; /* and its sample */
+    float *E;       /* nused x PB: the fitted rise at the samples */
+    float *Q;       /* nused x PB: 1 / (frames x fitted rise^2) */
+    double *Pp;     /* PB x k x nused: a partial pixel's own pseudo-inverse */
+    uint32_t *vidx; /* PB x nused: the samples it holds */
+    double *Id;     /* nused x nused scratch for that pseudo-inverse */
     int status[PB];
     uint32_t nvalid[PB];
+    double noise2[PB]; /* per-frame temperature noise variance from the residuals, K^2 */
     double *A, *z, *zz, *v; /* one pixel's own solve and slab fit */
     unsigned char *valid;
     double *vals;   /* reference medians */
@@ -360,6 +547,9 @@ struct pl_reducer {
     unsigned products;
     uint32_t degree, k; /* k = degree + 1 coefficients */
     double alpha;
+    pl_peak_rule rule;
+    double min_d2;  /* significance of a maximum of d2: least value, per (ln t)^2 */
+    double min_snr; /* and least ratio to its noise */
 
     /* log-spaced sampling */
     double start, end;
@@ -371,12 +561,15 @@ struct pl_reducer {
     float *inv_l;       /* nused */
     double centre, scale;
     double *xs;         /* nused scaled abscissae */
+    double *ts;         /* and times, exp(lnt) */
     double *design;     /* nused x k */
     float *designf;     /* the same in float */
     double *pinv;       /* k x nused: the pseudo-inverse */
+    double *w2;         /* (PEAK_GRID + 1) x nused: squared weights of each sample in
+                           the fitted d2 (in x) at the grid points */
     double xt[PL_REDUCE_MAX_TIMES];
     double gx[PEAK_GRID + 1]; /* the peak search grid over the samples */
-    double gpow[(PEAK_GRID + 1) * (PL_REDUCE_MAX_DEGREE - 2)]; /* gx^i, i <= degree - 3 */
+    float gpow[(PEAK_GRID + 1) * (PL_REDUCE_MAX_DEGREE - 2)]; /* gx^i, i <= degree - 3 */
 
     /* uniform sampling for pulse phase */
     uint32_t nfreq, M;
@@ -384,6 +577,8 @@ struct pl_reducer {
     uint32_t *pcount; /* M */
     float *inv_p;     /* M */
     uint32_t *fill_lo, *fill_hi; /* M: neighbours of an empty bin */
+    int direct;       /* transform by the direct sum, not kissfft */
+    double *tw;       /* 2 nfreq x M: its weights, empty bins folded in */
     float *fill_w;
     uint32_t nempty_p;
 
@@ -394,6 +589,7 @@ struct pl_reducer {
     int state;   /* STREAMING, FINISHED, or a negative status after a failure */
 
     float *cold, *acc_s, *acc_l, *acc_p, *bins_l, *bins_p;
+    size_t bins_l_bytes, bins_p_bytes; /* mapped sizes; 0 when from calloc */
     double *cold_sum;
     uint32_t *cold_n;
     frame_batch batch[2];
@@ -409,12 +605,14 @@ struct pl_reducer {
     uint32_t busy;
     int quit;
     job_fn fn;
+    atomic_size_t next_unit; /* the running job's next unit */
+    size_t units;            /* and its count */
 
     /* per-pixel stage */
     layout lay;
     pl_map *map;
     scratch *ws;
-    uint32_t row0, row1;
+    size_t chunk0, chunk1; /* the pixels of the running per-pixel chunk */
     double cref[PL_REDUCE_MAX_DEGREE + 1];
     double *ref_rise;        /* nused: reconstructed reference rise */
     float *ref_risef;        /* the same in float */
@@ -429,7 +627,16 @@ struct pl_reducer {
     pl_reduce_stats stats;
 };
 
-/* ---- worker threads ----------------------------------------------------- */
+/* ---- worker threads -----------------------------------------------------
+ *
+ * A job is a set of units (blocks of pixels, samples) handed out one at a
+ * time through an atomic counter. The caller's thread starts the job on
+ * the nthreads - 1 workers and works on it too, as participant
+ * nthreads - 1: while streaming it first reads the next frames, then joins
+ * in on what is left of the running batch, so reading and accumulating
+ * share the cores without a third thread in the way. Which thread takes a
+ * unit never changes what the unit computes.
+ */
 
 static void *worker_main(void *p)
 {
@@ -454,47 +661,66 @@ static void *worker_main(void *p)
     return NULL;
 }
 
+/* Wait until the workers have left the running job (the caller's share
+ * must be done: call pool_help() first). */
 static void pool_wait(pl_reducer *r)
 {
     pthread_mutex_lock(&r->mu);
     while (r->busy)
         pthread_cond_wait(&r->done, &r->mu);
+    r->fn = NULL;
     pthread_mutex_unlock(&r->mu);
 }
 
-/* Start `fn` on every worker and return at once; pool_wait() joins. */
-static void pool_start(pl_reducer *r, job_fn fn)
+/* Start `fn` over `units` units on every worker and return at once;
+ * pool_help() and pool_wait() finish it. */
+static void pool_start(pl_reducer *r, job_fn fn, size_t units)
 {
     pthread_mutex_lock(&r->mu);
     while (r->busy)
         pthread_cond_wait(&r->done, &r->mu);
+    atomic_store(&r->next_unit, 0);
+    r->units = units;
     r->fn = fn;
-    r->busy = r->nthreads;
+    r->busy = r->started;
     r->gen++;
     pthread_cond_broadcast(&r->go);
     pthread_mutex_unlock(&r->mu);
 }
 
-/* Rows [a, b) split into nthreads parts: part `part`'s pixel range. */
-static void part_pixels(const pl_reducer *r, uint32_t part, uint32_t a, uint32_t b, size_t *p0,
-                        size_t *p1)
+/* The caller's share of the running job, if any: units until none is left. */
+static void pool_help(pl_reducer *r)
 {
-    uint64_t rows = b - a;
-    uint32_t r0 = a + (uint32_t)(rows * part / r->nthreads);
-    uint32_t r1 = a + (uint32_t)(rows * (part + 1) / r->nthreads);
-    *p0 = (size_t)r0 * r->width;
-    *p1 = (size_t)r1 * r->width;
+    pthread_mutex_lock(&r->mu);
+    job_fn fn = r->fn;
+    pthread_mutex_unlock(&r->mu);
+    if (fn)
+        fn(r, r->nthreads - 1);
+}
+
+static void pool_run(pl_reducer *r, job_fn fn, size_t units)
+{
+    pool_start(r, fn, units);
+    pool_help(r);
+    pool_wait(r);
+}
+
+/* The next unit of the running job, or SIZE_MAX when none is left. */
+static size_t take_unit(pl_reducer *r)
+{
+    size_t u = atomic_fetch_add(&r->next_unit, 1);
+    return u < r->units ? u : SIZE_MAX;
 }
 
 /* ---- streaming ---------------------------------------------------------- */
 
-static void batch_job(pl_reducer *r, uint32_t part)
+ROW_KERNEL static void batch_job(pl_reducer *r, uint32_t part)
 {
+    (void)part;
     const frame_batch *b = &r->batch[r->job_batch];
-    size_t p0, p1, npix = r->npix;
-    part_pixels(r, part, 0, r->height, &p0, &p1);
-    for (size_t q0 = p0; q0 < p1; q0 += BLOCK_PIXELS) {
-        size_t q1 = q0 + BLOCK_PIXELS < p1 ? q0 + BLOCK_PIXELS : p1;
+    size_t npix = r->npix;
+    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
+        size_t q0 = unit * BLOCK_PIXELS, q1 = q0 + BLOCK_PIXELS < npix ? q0 + BLOCK_PIXELS : npix;
         for (uint32_t f = 0; f < b->count; f++) {
             const frame_role *ro = &r->role[b->index[f]];
             const float *restrict v = b->frames + (size_t)f * npix;
@@ -511,8 +737,19 @@ static void batch_job(pl_reducer *r, uint32_t part)
             }
             float *restrict al = r->acc_l, *restrict ap = r->acc_p, *restrict as = r->acc_s;
             const float *restrict cold = r->cold;
-            for (size_t p = q0; p < q1; p++)
-                as[p] += v[p] - cold[p];
+            /* two frames of one segment in one pass, the sums in the same
+             * order as one frame at a time */
+            const frame_role *next = f + 1 < b->count ? &r->role[b->index[f + 1]] : NULL;
+            if (next && !ro->close_s && !next->pre) {
+                const float *restrict v1 = v + npix;
+                for (size_t p = q0; p < q1; p++)
+                    as[p] = (as[p] + (v[p] - cold[p])) + (v1[p] - cold[p]);
+                ro = next;
+                f++;
+            } else {
+                for (size_t p = q0; p < q1; p++)
+                    as[p] += v[p] - cold[p];
+            }
             if (ro->close_s) {
                 if (ro->lbin >= 0 && ro->pbin >= 0) {
                     for (size_t p = q0; p < q1; p++) {
@@ -532,7 +769,7 @@ static void batch_job(pl_reducer *r, uint32_t part)
                 float inv = r->inv_l[ro->lbin];
                 float *restrict dst = r->bins_l + (size_t)ro->lbin * npix;
                 for (size_t p = q0; p < q1; p++) {
-                    dst[p] = logf(al[p] * inv);
+                    dst[p] = fast_logf(al[p] * inv);
                     al[p] = 0.0f;
                 }
             }
@@ -548,11 +785,15 @@ static void batch_job(pl_reducer *r, uint32_t part)
     }
 }
 
+/* Hand the full batch to the workers: finish the previous one first (the
+ * caller joins in on its rest), then start this one; the caller goes on
+ * reading into the other buffer. */
 static void submit_batch(pl_reducer *r)
 {
+    pool_help(r);
     pool_wait(r);
     r->job_batch = r->cur;
-    pool_start(r, batch_job);
+    pool_start(r, batch_job, (r->npix + BLOCK_PIXELS - 1) / BLOCK_PIXELS);
     r->cur ^= 1u;
     r->batch[r->cur].count = 0;
 }
@@ -676,6 +917,16 @@ static int check_options(const pl_reduce_options *o, uint32_t width, uint32_t he
         o->depth_method != PL_DEPTH_BOTH)
         return pl__err(err, PL_EINVAL, "reduction options: unknown depth method %d",
                        (int)o->depth_method);
+    if (o->peak_rule != PL_PEAK_FIRST_SIGNIFICANT && o->peak_rule != PL_PEAK_LARGEST)
+        return pl__err(err, PL_EINVAL, "reduction options: unknown peak rule %d",
+                       (int)o->peak_rule);
+    if (!isnan(o->peak_min_d2) && !(o->peak_min_d2 >= 0.0 && isfinite(o->peak_min_d2)))
+        return pl__err(err, PL_EINVAL, "reduction options: peak threshold %g is not >= 0",
+                       o->peak_min_d2);
+    if (!isnan(o->peak_min_snr) && !(o->peak_min_snr >= 0.0 && isfinite(o->peak_min_snr)))
+        return pl__err(err, PL_EINVAL,
+                       "reduction options: peak signal-to-noise threshold %g is not >= 0",
+                       o->peak_min_snr);
     if (o->ref_w && o->ref_h &&
         ((uint64_t)o->ref_x + o->ref_w > width || (uint64_t)o->ref_y + o->ref_h > height))
         return pl__err(err, PL_EINVAL,
@@ -848,6 +1099,37 @@ static int plan_sampling(pl_reducer *r, pl_err *err)
             r->fill_hi[m] = (uint32_t)hi;
             r->fill_w[m] = hi == lo ? 0.0f : (float)((double)(m - lo) / (double)(hi - lo));
         }
+        /* The direct sum costs 2 nfreq M multiply-adds a pixel, a real FFT
+         * about 2.5 M log2 M and more overhead: the direct sum up to
+         * 2 log2 M frequencies. Its weights take in the empty bins'
+         * interpolation, a linear map. */
+        uint32_t lg = 0;
+        while ((1u << (lg + 1)) <= r->M)
+            lg++;
+        r->direct = r->nfreq <= 2 * lg;
+        if (r->direct) {
+            r->tw = calloc((size_t)2 * r->nfreq * r->M, sizeof *r->tw);
+            if (!r->tw)
+                return pl__err(err, PL_ENOMEM, "reduction: out of memory");
+            for (uint32_t f = 0; f < r->nfreq; f++) {
+                double *re = r->tw + (size_t)(2 * f) * r->M, *im = re + r->M;
+                for (uint32_t m = 0; m < r->M; m++) {
+                    /* the angle reduced exactly in integers first */
+                    double a = 2.0 * M_PI * (double)(((uint64_t)(f + 1) * m) % r->M) / r->M;
+                    re[m] = cos(a);
+                    im[m] = -sin(a);
+                }
+                for (uint32_t m = 0; m < r->M; m++)
+                    if (!r->pcount[m]) {
+                        double w = r->fill_w[m];
+                        re[r->fill_lo[m]] += (1.0 - w) * re[m];
+                        im[r->fill_lo[m]] += (1.0 - w) * im[m];
+                        re[r->fill_hi[m]] += w * re[m];
+                        im[r->fill_hi[m]] += w * im[m];
+                        re[m] = im[m] = 0.0;
+                    }
+            }
+        }
     }
     int64_t last_l = -1, last_p = -1;
     const frame_role *later = NULL;
@@ -873,6 +1155,17 @@ static int plan_sampling(pl_reducer *r, pl_err *err)
     return PL_OK;
 }
 
+/* The second derivative of x^i at x, i < k, into bx. */
+static void d2_basis(double *bx, uint32_t k, double x)
+{
+    double p = 1.0;
+    bx[0] = bx[1] = 0.0;
+    for (uint32_t i = 2; i < k; i++) {
+        bx[i] = (double)i * (i - 1) * p;
+        p *= x;
+    }
+}
+
 /* The design matrix in the scaled abscissa and its pseudo-inverse. */
 static int plan_fit(pl_reducer *r, pl_err *err)
 {
@@ -881,6 +1174,7 @@ static int plan_fit(pl_reducer *r, pl_err *err)
     r->scale = 0.5 * (r->lnt[n - 1] - r->lnt[0]);
     for (uint32_t b = 0; b < n; b++) {
         r->xs[b] = (r->lnt[b] - r->centre) / r->scale;
+        r->ts[b] = exp(r->centre + r->scale * r->xs[b]);
         double p = 1.0;
         for (uint32_t i = 0; i < k; i++) {
             r->design[b * k + i] = p;
@@ -895,7 +1189,7 @@ static int plan_fit(pl_reducer *r, pl_err *err)
                                   : r->xs[0] + (r->xs[n - 1] - r->xs[0]) * g / PEAK_GRID, p = 1.0;
         r->gx[g] = x;
         for (uint32_t i = 0; i < PL_REDUCE_MAX_DEGREE - 2; i++) {
-            r->gpow[(size_t)g * (PL_REDUCE_MAX_DEGREE - 2) + i] = p;
+            r->gpow[(size_t)g * (PL_REDUCE_MAX_DEGREE - 2) + i] = (float)p;
             p *= x;
         }
     }
@@ -915,6 +1209,17 @@ static int plan_fit(pl_reducer *r, pl_err *err)
         else
             memcpy(r->pinv, Z, (size_t)k * n * sizeof *Z);
     }
+    if (!rc)
+        for (int g = 0; g <= PEAK_GRID; g++) {
+            double bx[PL_REDUCE_MAX_DEGREE + 1];
+            d2_basis(bx, r->k, r->gx[g]);
+            for (uint32_t b = 0; b < n; b++) {
+                double w = 0.0;
+                for (uint32_t i = 2; i < k; i++)
+                    w += r->pinv[(size_t)i * n + b] * bx[i];
+                r->w2[(size_t)g * n + b] = w * w;
+            }
+        }
     free(A);
     free(Z);
     free(v);
@@ -960,7 +1265,7 @@ static int start_threads(pl_reducer *r, pl_err *err)
     r->args = calloc(n, sizeof *r->args);
     if (!r->threads || !r->args)
         return pl__err(err, PL_ENOMEM, "reduction: out of memory");
-    for (uint32_t i = 0; i < n; i++) {
+    for (uint32_t i = 0; i + 1 < n; i++) { /* the caller's thread is participant n - 1 */
         r->args[i].r = r;
         r->args[i].part = i;
         if (pthread_create(&r->threads[i], NULL, worker_main, &r->args[i]))
@@ -968,6 +1273,40 @@ static int start_threads(pl_reducer *r, pl_err *err)
         r->started++;
     }
     return PL_OK;
+}
+
+/*
+ * The per-pixel samples (tens to hundreds of MB), mapped with every page
+ * in place (MAP_POPULATE where Linux has it): touching them page by page
+ * as the bins close costs tens of thousands of page faults, a noticeable
+ * share of the reduction (more in a virtual machine). Anonymous pages
+ * come zeroed. Released with free_samples().
+ */
+static float *alloc_samples(size_t n, size_t *bytes, int *bad)
+{
+    *bytes = (n ? n : 1) * sizeof(float);
+#if defined(MAP_POPULATE) && defined(MAP_ANONYMOUS)
+    void *p = mmap(NULL, *bytes, PROT_READ | PROT_WRITE,
+                   MAP_PRIVATE | MAP_ANONYMOUS | MAP_POPULATE, -1, 0);
+    if (p != MAP_FAILED)
+        return p;
+    *bytes = 0;
+#endif
+    float *q = calloc(n ? n : 1, sizeof(float));
+    if (!q)
+        *bad = 1;
+    return q;
+}
+
+static void free_samples(float *p, size_t bytes)
+{
+#if defined(MAP_POPULATE) && defined(MAP_ANONYMOUS)
+    if (p && bytes) {
+        munmap(p, bytes);
+        return;
+    }
+#endif
+    free(p);
 }
 
 static void *alloc_array(size_t n, size_t size, int *bad)
@@ -1026,6 +1365,9 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     r->degree = o->degree;
     r->k = o->degree + 1;
     r->alpha = o->diffusivity_mm2_s;
+    r->rule = o->peak_rule;
+    r->min_d2 = isnan(o->peak_min_d2) ? PL_REDUCE_DEFAULT_PEAK_MIN_D2 : o->peak_min_d2;
+    r->min_snr = isnan(o->peak_min_snr) ? PL_REDUCE_DEFAULT_PEAK_MIN_SNR : o->peak_min_snr;
     r->nfreq = o->phase_frequencies;
     r->M = r->nfreq ? o->phase_samples : 0;
     r->last_index = -1;
@@ -1047,9 +1389,11 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     r->lcount = alloc_array(nb, sizeof *r->lcount, &bad);
     r->inv_l = alloc_array(nb, sizeof *r->inv_l, &bad);
     r->xs = alloc_array(nb, sizeof *r->xs, &bad);
+    r->ts = alloc_array(nb, sizeof *r->ts, &bad);
     r->design = alloc_array(nb * r->k, sizeof *r->design, &bad);
     r->designf = alloc_array(nb * r->k, sizeof *r->designf, &bad);
     r->pinv = alloc_array(nb * r->k, sizeof *r->pinv, &bad);
+    r->w2 = alloc_array(nb * (PEAK_GRID + 1), sizeof *r->w2, &bad);
     r->ref_rise = alloc_array(nb, sizeof *r->ref_rise, &bad);
     r->ref_risef = alloc_array(nb, sizeof *r->ref_risef, &bad);
     if (r->M) {
@@ -1076,10 +1420,10 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     r->cold_n = alloc_array(npix, sizeof *r->cold_n, &bad);
     r->acc_s = alloc_array(npix, sizeof *r->acc_s, &bad);
     r->acc_l = alloc_array(npix, sizeof *r->acc_l, &bad);
-    r->bins_l = alloc_array(npix * r->nused, sizeof *r->bins_l, &bad);
+    r->bins_l = alloc_samples(npix * r->nused, &r->bins_l_bytes, &bad);
     if (r->M) {
         r->acc_p = alloc_array(npix, sizeof *r->acc_p, &bad);
-        r->bins_p = alloc_array(npix * r->M, sizeof *r->bins_p, &bad);
+        r->bins_p = alloc_samples(npix * r->M, &r->bins_p_bytes, &bad);
     }
     uint32_t nbatch = r->nneeded < BATCH_FRAMES ? r->nneeded : BATCH_FRAMES;
     for (int b = 0; b < 2; b++)
@@ -1124,9 +1468,11 @@ PL_EXPORT void pl_reducer_free(pl_reducer *r)
     free(r->lcount);
     free(r->inv_l);
     free(r->xs);
+    free(r->ts);
     free(r->design);
     free(r->designf);
     free(r->pinv);
+    free(r->w2);
     free(r->ref_rise);
     free(r->ref_risef);
     free(r->ref_pix);
@@ -1137,14 +1483,15 @@ PL_EXPORT void pl_reducer_free(pl_reducer *r)
     free(r->fill_lo);
     free(r->fill_hi);
     free(r->fill_w);
+    free(r->tw);
     free(r->cold);
     free(r->cold_sum);
     free(r->cold_n);
     free(r->acc_s);
     free(r->acc_l);
     free(r->acc_p);
-    free(r->bins_l);
-    free(r->bins_p);
+    free_samples(r->bins_l, r->bins_l_bytes);
+    free_samples(r->bins_p, r->bins_p_bytes);
     free(r->batch[0].frames);
     free(r->batch[1].frames);
     free(r->slab_G);
@@ -1167,24 +1514,63 @@ static void fill_phase(const pl_reducer *r, float *u)
 /*
  * out row r = sum over i < nterms of w[r * wstride + i] * X row i, for
  * r < nrows, where every row holds PB values (PB pixels of a block). Each
- * value is summed over i in order, from zero, in both versions below, so
- * the result does not depend on which one is compiled. The GNU C vector
- * type lets the compiler use whatever vector instructions the target has.
+ * value is summed over i in order, from zero, in every version below, so
+ * the result does not depend on which one runs. The GNU C versions keep
+ * four vector accumulators (of 2 doubles or 4 floats; 4 doubles or 8
+ * floats with AVX2) over 4 vector widths of columns, which stay in
+ * registers: wider generic vectors spill on SSE2 and run several times
+ * slower, so the width is chosen per target, at run time.
  */
+#define COMBINE_KERNEL(name, T, LANES, attr)                                               \
+    attr static void name(T *restrict out, const T *restrict w, size_t wstride,            \
+                          uint32_t nrows, const T *restrict X, uint32_t nterms)            \
+    {                                                                                      \
+        typedef T vec __attribute__((vector_size(LANES * sizeof(T))));                     \
+        for (uint32_t h = 0; h < PB; h += 4 * LANES)                                       \
+            for (uint32_t r = 0; r < nrows; r++) {                                         \
+                const vec zero = {0};                                                      \
+                vec a0 = zero, a1 = zero, a2 = zero, a3 = zero;                            \
+                const T *wr = w + r * wstride;                                             \
+                for (uint32_t i = 0; i < nterms; i++) {                                    \
+                    vec wi = zero + wr[i], x0, x1, x2, x3;                                 \
+                    const T *x = X + (size_t)i * PB + h;                                   \
+                    memcpy(&x0, x, sizeof x0);                                             \
+                    memcpy(&x1, x + LANES, sizeof x1);                                     \
+                    memcpy(&x2, x + 2 * LANES, sizeof x2);                                 \
+                    memcpy(&x3, x + 3 * LANES, sizeof x3);                                 \
+                    a0 += wi * x0;                                                         \
+                    a1 += wi * x1;                                                         \
+                    a2 += wi * x2;                                                         \
+                    a3 += wi * x3;                                                         \
+                }                                                                          \
+                T *o = out + (size_t)r * PB + h;                                           \
+                memcpy(o, &a0, sizeof a0);                                                 \
+                memcpy(o + LANES, &a1, sizeof a1);                                         \
+                memcpy(o + 2 * LANES, &a2, sizeof a2);                                     \
+                memcpy(o + 3 * LANES, &a3, sizeof a3);                                     \
+            }                                                                              \
+    }
+
+#if defined(__GNUC__)
+COMBINE_KERNEL(combine_rows_2, double, 2, )
+COMBINE_KERNEL(combine_rows_4f, float, 4, )
+#if HAVE_AVX2_VERSIONS
+COMBINE_KERNEL(combine_rows_4, double, 4, __attribute__((target("avx2"))))
+COMBINE_KERNEL(combine_rows_8f, float, 8, __attribute__((target("avx2"))))
+#endif
+#endif
+
 static void combine_rows(double *restrict out, const double *restrict w, size_t wstride,
                          uint32_t nrows, const double *restrict X, uint32_t nterms)
 {
 #if defined(__GNUC__)
-    typedef double row_t __attribute__((vector_size(PB * sizeof(double))));
-    for (uint32_t r = 0; r < nrows; r++) {
-        row_t acc = {0};
-        for (uint32_t i = 0; i < nterms; i++) {
-            row_t x;
-            memcpy(&x, X + (size_t)i * PB, sizeof x);
-            acc += w[r * wstride + i] * x;
-        }
-        memcpy(out + (size_t)r * PB, &acc, sizeof acc);
+#if HAVE_AVX2_VERSIONS
+    if (have_avx2()) {
+        combine_rows_4(out, w, wstride, nrows, X, nterms);
+        return;
     }
+#endif
+    combine_rows_2(out, w, wstride, nrows, X, nterms);
 #else
     for (uint32_t r = 0; r < nrows; r++)
         for (uint32_t j = 0; j < PB; j++) {
@@ -1201,16 +1587,13 @@ static void combine_rows_f(float *restrict out, const float *restrict w, size_t 
                            uint32_t nrows, const float *restrict X, uint32_t nterms)
 {
 #if defined(__GNUC__)
-    typedef float row_t __attribute__((vector_size(PB * sizeof(float))));
-    for (uint32_t r = 0; r < nrows; r++) {
-        row_t acc = {0};
-        for (uint32_t i = 0; i < nterms; i++) {
-            row_t x;
-            memcpy(&x, X + (size_t)i * PB, sizeof x);
-            acc += w[r * wstride + i] * x;
-        }
-        memcpy(out + (size_t)r * PB, &acc, sizeof acc);
+#if HAVE_AVX2_VERSIONS
+    if (have_avx2()) {
+        combine_rows_8f(out, w, wstride, nrows, X, nterms);
+        return;
     }
+#endif
+    combine_rows_4f(out, w, wstride, nrows, X, nterms);
 #else
     for (uint32_t r = 0; r < nrows; r++)
         for (uint32_t j = 0; j < PB; j++) {
@@ -1241,12 +1624,13 @@ static void fit_block(const pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
     for (uint32_t b = 0; b < n; b++) {
         const float *row = r->bins_l + (size_t)b * r->npix + p0;
         double *zb = Zb + (size_t)b * PB;
+        float *zf = ws->Zf + (size_t)b * PB;
         for (uint32_t j = 0; j < np; j++) {
-            zb[j] = row[j];
-            ws->nvalid[j] += isfinite(zb[j]) != 0;
+            zb[j] = zf[j] = row[j];
+            ws->nvalid[j] += isfinite(row[j]) != 0;
         }
         for (uint32_t j = np; j < PB; j++)
-            zb[j] = 0.0;
+            zb[j] = zf[j] = 0.0f;
     }
     combine_rows(C, r->pinv, n, k, Zb, n);
     uint32_t need = r->degree + 2 > (n + 1) / 2 ? r->degree + 2 : (n + 1) / 2;
@@ -1258,18 +1642,194 @@ static void fit_block(const pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
         ws->status[j] = -1;
         if (ws->nvalid[j] < need)
             continue;
-        uint32_t m = 0;
+        /* its own pseudo-inverse, kept for the noise of its d2 */
+        uint32_t m = 0, *vidx = ws->vidx + (size_t)j * n;
         for (uint32_t b = 0; b < n; b++)
             if (isfinite(Zb[(size_t)b * PB + j])) {
                 memcpy(ws->A + (size_t)m * k, r->design + (size_t)b * k, k * sizeof(double));
-                ws->zz[m++] = Zb[(size_t)b * PB + j];
+                vidx[m++] = b;
             }
-        if (lsq(ws->A, m, k, ws->zz, 1, ws->v))
+        memset(ws->Id, 0, (size_t)m * m * sizeof *ws->Id);
+        for (uint32_t b = 0; b < m; b++)
+            ws->Id[(size_t)b * m + b] = 1.0;
+        if (lsq(ws->A, m, k, ws->Id, m, ws->v))
             continue;
-        for (uint32_t i = 0; i < k; i++)
-            C[(size_t)i * PB + j] = ws->zz[i];
+        double *P = ws->Pp + (size_t)j * k * n;
+        memcpy(P, ws->Id, (size_t)k * m * sizeof *P);
+        for (uint32_t i = 0; i < k; i++) {
+            double acc = 0.0;
+            for (uint32_t b = 0; b < m; b++)
+                acc += P[(size_t)i * m + b] * Zb[(size_t)vidx[b] * PB + j];
+            C[(size_t)i * PB + j] = acc;
+        }
         ws->status[j] = 1;
     }
+}
+
+/*
+ * The fit at the samples (ws->Y, ln; ws->E, the rise), the noise of each
+ * fitted pixel of the block and its peak contrast over the samples. A
+ * log-spaced sample is the mean of n_b frames of a rise R_b, so with a
+ * per-frame temperature noise sigma its ln has the variance sigma^2 /
+ * (n_b R_b^2) (first order). sigma^2 is estimated from the pixel's own
+ * residuals, weighted accordingly: sum_b (z_b - y_b)^2 n_b R_b^2 / (m - k)
+ * over its m samples, R_b the fitted rise; misfit of the polynomial counts
+ * as noise, which only makes the significance test stricter. ws->Q keeps
+ * 1 / (n_b R_b^2). The loops run over the block's columns so that they
+ * vectorise; a partial pixel's sum is then redone over its own samples.
+ */
+ROW_KERNEL static void fit_samples(const pl_reducer *r, scratch *ws, uint32_t np)
+{
+    uint32_t n = r->nused, k = r->k;
+    for (uint32_t i = 0; i < k * PB; i++)
+        ws->Cf[i] = (float)ws->C[i];
+    combine_rows_f(ws->Y, r->designf, k, n, ws->Cf, k);
+    float *restrict E = ws->E, *restrict Q = ws->Q;
+    const float *restrict Y = ws->Y, *restrict Z = ws->Zf;
+    for (uint32_t i = 0; i < n * PB; i++)
+        E[i] = fast_expf(Y[i]);
+    float sum[PB], best[PB];
+    uint32_t best_b[PB];
+    for (uint32_t j = 0; j < PB; j++) {
+        sum[j] = 0.0f;
+        best[j] = -INFINITY;
+        best_b[j] = 0;
+    }
+    for (uint32_t b = 0; b < n; b++) {
+        float cnt = (float)r->lcount[b], ref = r->ref_risef[b];
+        const float *restrict Eb = E + (size_t)b * PB, *restrict Yb = Y + (size_t)b * PB,
+                             *restrict Zr = Z + (size_t)b * PB;
+        float *restrict Qb = Q + (size_t)b * PB;
+        for (uint32_t j = 0; j < PB; j++) {
+            float R = Eb[j], e = Zr[j] - Yb[j], w = cnt * R * R;
+            sum[j] += e * e * w;
+            Qb[j] = 1.0f / w;
+            float y = R - ref, bj = best[j];
+            uint32_t c = y > bj;
+            best[j] = y > bj ? y : bj;
+            best_b[j] = sel(c, b, best_b[j]);
+        }
+    }
+    for (uint32_t j = 0; j < np; j++) {
+        ws->best[j] = best[j];
+        ws->best_b[j] = best_b[j];
+        if (ws->status[j] == 0) {
+            ws->noise2[j] = sum[j] / (n - k);
+        } else if (ws->status[j] == 1) {
+            float s1 = 0.0f;
+            uint32_t m = ws->nvalid[j];
+            for (uint32_t b = 0; b < n; b++) {
+                float z = Z[(size_t)b * PB + j];
+                if (isfinite(z)) {
+                    float e = z - Y[(size_t)b * PB + j];
+                    s1 += e * e / Q[(size_t)b * PB + j];
+                }
+            }
+            ws->noise2[j] = m > k ? s1 / (m - k) : NAN;
+        }
+    }
+}
+
+static float *chan(const pl_reducer *r, int c)
+{
+    return r->map->data + (size_t)c * r->npix;
+}
+
+/*
+ * The pulse-phase transform of the block's uniform samples at the first
+ * nfreq harmonics, into ws->F. Directly, F_k = sum_m u_m e^(-2 pi i k m /
+ * M) as one matrix product over the block, each value summed in a fixed
+ * order (a NaN sample poisons its pixel's sums, as it should); with many
+ * frequencies, kissfft per pixel.
+ */
+ROW_KERNEL static void phase_block(const pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
+{
+    uint32_t M = r->M, nf = r->nfreq;
+    for (uint32_t m = 0; m < M; m++) {
+        const float *row = r->bins_p + (size_t)m * r->npix + p0;
+        double *u = ws->Ud + (size_t)m * PB;
+        for (uint32_t j = 0; j < np; j++)
+            u[j] = row[j];
+        for (uint32_t j = np; j < PB; j++)
+            u[j] = 0.0;
+    }
+    if (r->direct) {
+        combine_rows(ws->F, r->tw, M, 2 * nf, ws->Ud, M);
+    } else {
+        for (uint32_t j = 0; j < np; j++) {
+            for (uint32_t m = 0; m < M; m++)
+                ws->fft_in[m] = (float)ws->Ud[(size_t)m * PB + j];
+            fill_phase(r, ws->fft_in);
+            kiss_fftr(ws->fft, ws->fft_in, ws->fft_out);
+            for (uint32_t f = 0; f < nf; f++) {
+                ws->F[(size_t)(2 * f) * PB + j] = ws->fft_out[f + 1].r;
+                ws->F[(size_t)(2 * f + 1) * PB + j] = ws->fft_out[f + 1].i;
+            }
+        }
+    }
+    /* phase, amplitude and phase contrast (wrapped to (-pi, pi]); a pixel
+     * with a NaN in any harmonic is NaN in all */
+    uint32_t bad[PB] = {0};
+    for (uint32_t f = 0; f < 2 * nf; f++)
+        for (uint32_t j = 0; j < PB; j++)
+            bad[j] |= !isfinite(ws->F[(size_t)f * PB + j]);
+    for (uint32_t j = 0; j < np; j++)
+        ws->no_phase += bad[j];
+    float ph[PB], amp[PB], dph[PB], fre[PB], fim[PB];
+    for (uint32_t f = 0; f < nf; f++) {
+        const double *re = ws->F + (size_t)(2 * f) * PB, *im = re + PB;
+        float ref = (float)r->ref_phase[f], twopi = (float)(2.0 * M_PI), pi = (float)M_PI;
+        for (uint32_t j = 0; j < PB; j++) {
+            fre[j] = (float)re[j];
+            fim[j] = (float)im[j];
+        }
+        for (uint32_t j = 0; j < PB; j++)
+            ph[j] = fast_atan2f(fim[j], fre[j]);
+        for (uint32_t j = 0; j < PB; j++) {
+            float a = ph[j], dd = a - ref;
+            float up = dd + twopi, down = dd - twopi;
+            uint32_t hi = dd > pi, lo = dd <= -pi, nan = bad[j];
+            dd = u2f(sel(hi, f2u(down), sel(lo, f2u(up), f2u(dd))));
+            ph[j] = u2f(sel(nan, 0x7fc00000u, f2u(a)));
+            dph[j] = u2f(sel(nan, 0x7fc00000u, f2u(dd)));
+        }
+        for (uint32_t j = 0; j < PB; j++) /* sqrt keeps errno: not vectorised */
+            amp[j] = bad[j] ? NAN : (float)(2.0 * sqrt(re[j] * re[j] + im[j] * im[j]) / M);
+        int c = r->lay.phase0 + 3 * (int)f;
+        memcpy(chan(r, c) + p0, ph, np * sizeof(float));
+        memcpy(chan(r, c + 1) + p0, amp, np * sizeof(float));
+        memcpy(chan(r, c + 2) + p0, dph, np * sizeof(float));
+    }
+}
+
+/* The variance of block column j's fitted d2 (in x) at x = (1 - f) gx[g]
+ * + f gx[g + 1], its squared weights interpolated linearly. */
+static double d2_variance(const pl_reducer *r, const scratch *ws, uint32_t j, int g, double f)
+{
+    uint32_t n = r->nused;
+    const float *Q = ws->Q;
+    double v = 0.0;
+    if (ws->status[j] == 0) {
+        const double *wa = r->w2 + (size_t)g * n, *wb = wa + n;
+        for (uint32_t b = 0; b < n; b++)
+            v += ((1.0 - f) * wa[b] + f * wb[b]) * Q[(size_t)b * PB + j];
+    } else {
+        uint32_t k = r->k, m = ws->nvalid[j];
+        const double *P = ws->Pp + (size_t)j * k * n;
+        const uint32_t *vidx = ws->vidx + (size_t)j * n;
+        double ba[PL_REDUCE_MAX_DEGREE + 1], bb[PL_REDUCE_MAX_DEGREE + 1];
+        d2_basis(ba, k, r->gx[g]);
+        d2_basis(bb, k, r->gx[g + 1]);
+        for (uint32_t b = 0; b < m; b++) {
+            double wa = 0.0, wb = 0.0;
+            for (uint32_t i = 2; i < k; i++) {
+                wa += P[(size_t)i * m + b] * ba[i];
+                wb += P[(size_t)i * m + b] * bb[i];
+            }
+            v += ((1.0 - f) * wa * wa + f * wb * wb) * Q[(size_t)vidx[b] * PB + j];
+        }
+    }
+    return v * ws->noise2[j];
 }
 
 /* Golden-section constant (3 - sqrt 5) / 2. */
@@ -1347,59 +1907,176 @@ static double slab_fit(const pl_reducer *r, const scratch *ws, int all_valid)
     return exp(0.5 * (a + b));
 }
 
-static float *chan(const pl_reducer *r, int c)
-{
-    return r->map->data + (size_t)c * r->npix;
-}
 
 
 /*
- * The largest positive interior maximum of the fitted second derivative
- * of block column j (coefficients coef); its abscissa, NaN if none. Each
- * sign change of the third derivative on the grid is a candidate, valued
- * by the second derivative at the secant root; candidates are refined in
- * decreasing order of that value until the rest fall more than 1 % below
- * the best refined maximum (the secant value lies far closer than that to
- * the true local maximum, whose error is second order in the root's).
+ * The fitted second derivative d2 seen by the peak search: the two ends of
+ * the search range and every interior extremum between them, in order of
+ * x. An extremum is a sign change of the third derivative on the grid
+ * (g3: its values at the grid points, `stride` apart; pos: bit g set where
+ * g3 is positive at grid point g), placed at the
+ * secant root inside its interval and valued there. The secant root lies
+ * within a small fraction of the interval from the true one, and the value
+ * of d2 there differs from the extremum's by the square of that distance
+ * times the curvature: far below any threshold, so the rule judges the
+ * extrema on these values and only the chosen one is refined. The rules
+ * need the values of the maxima only; `minima` asks for those of the
+ * minima and the ends too (for prominence()).
+ */
+typedef struct d2_profile {
+    int n;
+    double x[PEAK_GRID + 2], v[PEAK_GRID + 2];
+    signed char kind[PEAK_GRID + 2]; /* +1 a maximum, -1 a minimum, 0 an end */
+    unsigned char cell[PEAK_GRID + 2]; /* the grid interval g (from g - 1 to g) */
+} d2_profile;
+
+static void d2_profile_of(const pl_reducer *r, const float *g3, size_t stride, uint64_t pos,
+                          const double *c2, int minima, d2_profile *pr)
+{
+    uint32_t d2deg = r->degree - 2;
+    int n = 0;
+    pr->x[n] = r->gx[0];
+    pr->v[n] = minima ? poly(c2, d2deg, r->gx[0]) : NAN;
+    pr->kind[n] = 0;
+    pr->cell[n++] = 0;
+    /* bit g - 1 of `change`: a sign change in interval g, a maximum where
+     * the third derivative goes from positive to not */
+    uint64_t inner = ((uint64_t)1 << PEAK_GRID) - 1, change = (pos ^ (pos >> 1)) & inner;
+    while (change) {
+        int g = 1;
+        uint64_t c = change;
+#if defined(__GNUC__)
+        g += __builtin_ctzll(c);
+#else
+        while (!(c & 1)) {
+            c >>= 1;
+            g++;
+        }
+#endif
+        change &= change - 1;
+        int kind = (pos >> (g - 1)) & 1 ? 1 : -1;
+        double ga = g3[(size_t)(g - 1) * stride], gb = g3[(size_t)g * stride];
+        double x0 = r->gx[g - 1] + ga * (r->gx[g] - r->gx[g - 1]) / (ga - gb);
+        pr->x[n] = x0;
+        pr->v[n] = kind == 1 || minima ? poly(c2, d2deg, x0) : NAN;
+        pr->kind[n] = (signed char)kind;
+        pr->cell[n++] = (unsigned char)g;
+    }
+    pr->x[n] = r->gx[PEAK_GRID];
+    pr->v[n] = minima ? poly(c2, d2deg, r->gx[PEAK_GRID]) : NAN;
+    pr->kind[n] = 0;
+    pr->cell[n++] = 0;
+    pr->n = n;
+}
+
+/* The prominence of maximum i of a profile, as scipy.signal.peak_prominences
+ * defines it on a sampled signal: on each side, the lowest value between
+ * the peak and the first higher point (or the end of the range); the
+ * prominence is the peak's height over the higher of the two. Between
+ * neighbouring points of the profile d2 is monotone, so its extrema and
+ * ends are all the samples the definition needs. */
+static double prominence(const d2_profile *pr, int i)
+{
+    double v = pr->v[i], left = v, right = v;
+    for (int j = i - 1; j >= 0 && pr->v[j] <= v; j--)
+        left = fmin(left, pr->v[j]);
+    for (int j = i + 1; j < pr->n && pr->v[j] <= v; j++)
+        right = fmin(right, pr->v[j]);
+    return v - fmax(left, right);
+}
+
+/* The variance of the fitted d2 at extremum i of block column j's
+ * profile, interpolated linearly between the ends of its grid interval. */
+static double peak_variance(const pl_reducer *r, const scratch *ws, uint32_t j,
+                            const d2_profile *pr, int i)
+{
+    int g = pr->cell[i];
+    double f = (pr->x[i] - r->gx[g - 1]) / (r->gx[g] - r->gx[g - 1]);
+    return d2_variance(r, ws, j, g - 1, f);
+}
+
+/*
+ * The interior maximum of the fitted second derivative (coefficients coef,
+ * third derivative g3 on the grid, `stride` apart) chosen by the reducer's
+ * rule: its abscissa and [out] value (d2 in x), NaN for both if none.
+ *  - first significant: the earliest maximum whose value (in ln t: divided
+ *    by scale^2) is positive and reaches min_d2, and whose ratio to its
+ *    noise reaches min_snr and PL_REDUCE_PEAK_LOBE_RATIO times the largest
+ *    such ratio of the pixel's maxima that reach min_d2;
+ *  - largest: every maximum is a candidate, valued at its secant root, and
+ *    candidates are refined in decreasing order of that value until the
+ *    rest fall more than 1 % below the best refined one.
+ * The chosen root is refined by refine_root(); one that lands within 1e-9
+ * of the range's ends is not interior and does not count.
  */
 static double peak_d2(const pl_reducer *r, const scratch *ws, uint32_t j, const double *coef,
                       double *value)
 {
+    const float *g3 = ws->G3 + j;
+    const size_t stride = PB;
     uint32_t d = r->degree;
     *value = NAN;
     if (d < 3)
         return NAN;
-    double c1[PL_REDUCE_MAX_DEGREE], c2[PL_REDUCE_MAX_DEGREE], c3[PL_REDUCE_MAX_DEGREE],
-        c4[PL_REDUCE_MAX_DEGREE];
-    poly_deriv(c1, coef, d);
-    poly_deriv(c2, c1, d - 1);
-    poly_deriv(c3, c2, d - 2);
-    poly_deriv(c4, c3, d - 3);
+    /* d2's coefficients now, d3's and d4's only to refine a maximum */
+    double c2[PL_REDUCE_MAX_DEGREE], c3[PL_REDUCE_MAX_DEGREE], c4[PL_REDUCE_MAX_DEGREE];
+    deriv_coefs(c2, coef, d, 2);
+    int have_c3 = 0;
     double xlo = r->gx[0], xhi = r->gx[PEAK_GRID], eps = 1e-9 * (xhi - xlo);
+    d2_profile pr;
+    d2_profile_of(r, g3, stride, ws->pos[j], c2, 0, &pr);
+    if (r->rule == PL_PEAK_FIRST_SIGNIFICANT) {
+        double s2 = r->scale * r->scale;
+        double vmin = r->min_d2 * s2, snr[PEAK_GRID + 2], best = 0.0;
+        for (int i = 1; i + 1 < pr.n; i++) {
+            snr[i] = NAN;
+            if (pr.kind[i] == 1 && pr.v[i] > 0.0 && pr.v[i] >= vmin) {
+                snr[i] = pr.v[i] / sqrt(peak_variance(r, ws, j, &pr, i));
+                if (snr[i] > best)
+                    best = snr[i];
+            }
+        }
+        for (int i = 1; i + 1 < pr.n; i++) {
+            if (!(snr[i] >= r->min_snr && snr[i] >= PL_REDUCE_PEAK_LOBE_RATIO * best))
+                continue;
+            if (!have_c3) {
+                deriv_coefs(c3, coef, d, 3);
+                deriv_coefs(c4, coef, d, 4);
+                have_c3 = 1;
+            }
+            int g = pr.cell[i];
+            double xr = refine_root(c3, c4, d - 3, r->gx, g, g3[(size_t)(g - 1) * stride],
+                                    g3[(size_t)g * stride]);
+            if (xr > xlo + eps && xr < xhi - eps) {
+                *value = poly(c2, d - 2, xr);
+                return xr;
+            }
+        }
+        return NAN;
+    }
+    deriv_coefs(c3, coef, d, 3);
+    deriv_coefs(c4, coef, d, 4);
     double cv[PEAK_GRID];
     int cg[PEAK_GRID], nc = 0;
-    for (int g = 1; g <= PEAK_GRID; g++) {
-        double ga = ws->G3[(size_t)(g - 1) * PB + j], gb = ws->G3[(size_t)g * PB + j];
-        if (!(ga > 0.0 && gb <= 0.0))
+    for (int i = 1; i + 1 < pr.n; i++) {
+        if (pr.kind[i] != 1)
             continue;
-        double x0 = r->gx[g - 1] + ga * (r->gx[g] - r->gx[g - 1]) / (ga - gb);
-        double v0 = poly(c2, d - 2, x0);
         int at = nc++;
-        while (at > 0 && cv[at - 1] < v0) {
+        while (at > 0 && cv[at - 1] < pr.v[i]) {
             cv[at] = cv[at - 1];
             cg[at] = cg[at - 1];
             at--;
         }
-        cv[at] = v0;
-        cg[at] = g;
+        cv[at] = pr.v[i];
+        cg[at] = pr.cell[i];
     }
     double best = NAN, bestv = 0.0;
     for (int c = 0; c < nc; c++) {
         if (!isnan(best) && cv[c] < bestv - 0.01 * fabs(bestv))
             break;
         int g = cg[c];
-        double xr = refine_root(c3, c4, d - 3, r->gx[g - 1], r->gx[g],
-                                ws->G3[(size_t)(g - 1) * PB + j], ws->G3[(size_t)g * PB + j]);
+        double xr = refine_root(c3, c4, d - 3, r->gx, g, g3[(size_t)(g - 1) * stride],
+                                g3[(size_t)g * stride]);
         if (xr > xlo + eps && xr < xhi - eps) {
             double v = poly(c2, d - 2, xr);
             if (v > bestv) {
@@ -1427,8 +2104,10 @@ static void pixel_outputs(pl_reducer *r, scratch *ws, size_t p, uint32_t j)
         double coef[PL_REDUCE_MAX_DEGREE + 1], c1[PL_REDUCE_MAX_DEGREE], c2[PL_REDUCE_MAX_DEGREE];
         for (uint32_t i = 0; i <= d; i++)
             coef[i] = ws->C[(size_t)i * PB + j];
-        poly_deriv(c1, coef, d);
-        poly_deriv(c2, c1, d - 1);
+        if (r->opt.ntimes) {
+            poly_deriv(c1, coef, d);
+            poly_deriv(c2, c1, d - 1);
+        }
         double s = r->scale;
         for (uint32_t t = 0; t < r->opt.ntimes; t++) {
             double x = r->xt[t], lnr = poly(coef, d, x);
@@ -1459,113 +2138,124 @@ static void pixel_outputs(pl_reducer *r, scratch *ws, size_t p, uint32_t j)
         }
 
         /* peak contrast over the samples, refined by a parabola */
-        uint32_t bb = 0;
-        float best = -INFINITY;
-        for (uint32_t b = 0; b < n; b++) {
-            float y = expf(ws->Y[(size_t)b * PB + j]) - r->ref_risef[b];
-            ws->zz[b] = y;
-            if (y > best) {
-                best = y;
-                bb = b;
-            }
-        }
-        double xbest = r->xs[bb], vbest = best;
+        uint32_t bb = ws->best_b[j];
+        double xbest = r->xs[bb], vbest = ws->best[j], tbest = r->ts[bb];
         if (bb > 0 && bb + 1 < n) {
             double x0 = r->xs[bb - 1], x1 = r->xs[bb], x2 = r->xs[bb + 1];
-            double y0 = ws->zz[bb - 1], y1 = ws->zz[bb], y2 = ws->zz[bb + 1];
+            double y0 = ws->E[(size_t)(bb - 1) * PB + j] - r->ref_risef[bb - 1];
+            double y1 = vbest;
+            double y2 = ws->E[(size_t)(bb + 1) * PB + j] - r->ref_risef[bb + 1];
             double d01 = (y1 - y0) / (x1 - x0), d12 = (y2 - y1) / (x2 - x1);
             double curv = (d12 - d01) / (x2 - x0);
             if (curv < 0.0) {
                 double xv = 0.5 * (x0 + x1) - d01 / (2.0 * curv);
                 if (xv > x0 && xv < x2) {
-                    double yv = exp(poly(coef, d, xv)) - exp(poly(r->cref, d, xv));
+                    /* in float, as the contrast at the samples */
+                    double yv = (double)fast_expf((float)poly(coef, d, xv)) -
+                                (double)fast_expf((float)poly(r->cref, d, xv));
                     if (yv > vbest) {
                         vbest = yv;
                         xbest = xv;
+                        tbest = exp(r->centre + s * xbest);
                     }
                 }
             }
         }
         chan(r, l->peak_contrast)[p] = (float)vbest;
-        chan(r, l->peak_contrast_t)[p] = (float)exp(r->centre + s * xbest);
-    }
-    if (l->phase0 >= 0) {
-        for (uint32_t m = 0; m < r->M; m++)
-            ws->fft_in[m] = ws->Ub[(size_t)m * PB + j];
-        fill_phase(r, ws->fft_in);
-        int ok = 1;
-        for (uint32_t m = 0; m < r->M; m++)
-            ok &= isfinite(ws->fft_in[m]) != 0;
-        if (ok)
-            kiss_fftr(ws->fft, ws->fft_in, ws->fft_out);
-        else
-            ws->no_phase++;
-        for (uint32_t f = 0; f < r->nfreq; f++) {
-            const kiss_fft_cpx *F = &ws->fft_out[f + 1];
-            float ph = NAN, amp = NAN, dph = NAN;
-            if (ok) {
-                double a = atan2(F->i, F->r);
-                double dd = a - r->ref_phase[f];
-                dd -= 2.0 * M_PI * floor((dd + M_PI) / (2.0 * M_PI));
-                if (dd <= -M_PI)
-                    dd += 2.0 * M_PI;
-                ph = (float)a;
-                amp = (float)(2.0 * hypot(F->r, F->i) / r->M);
-                dph = (float)dd;
-            }
-            chan(r, l->phase0 + 3 * (int)f)[p] = ph;
-            chan(r, l->phase0 + 3 * (int)f + 1)[p] = amp;
-            chan(r, l->phase0 + 3 * (int)f + 2)[p] = dph;
-        }
+        chan(r, l->peak_contrast_t)[p] = (float)tbest;
     }
 }
 
-/* Fit a block of pixels, evaluate what every pixel needs on the shared
- * grids (the third derivative for the peak search, the fit at the sample
- * times for the contrast) and write the channels. */
+/* The third derivative of the block's fits on the peak-search grid, into
+ * ws->G3 (degree >= 3). In float: it only locates the sign changes, each
+ * of which is checked in double before it is refined (peak_bracket()). */
+ROW_KERNEL static void third_derivative_grid(const pl_reducer *r, scratch *ws)
+{
+    uint32_t d = r->degree;
+    const double *restrict C = ws->C;
+    float *restrict C3 = ws->C3;
+    for (uint32_t i = 0; i + 3 <= d; i++) {
+        double f = (double)(i + 3) * (i + 2) * (i + 1);
+        for (uint32_t j = 0; j < PB; j++)
+            C3[(size_t)i * PB + j] = (float)(f * C[(size_t)(i + 3) * PB + j]);
+    }
+    combine_rows_f(ws->G3, r->gpow, PL_REDUCE_MAX_DEGREE - 2, PEAK_GRID + 1, C3, d - 2);
+    /* bit g of pos: the third derivative positive at grid point g (as an
+     * integer, a float is positive when its bits are) */
+    uint32_t lo[PB] = {0}, hi[PB] = {0};
+#if defined(__GNUC__)
+    typedef int32_t v4i __attribute__((vector_size(4 * sizeof(int32_t))));
+    typedef uint32_t v4u __attribute__((vector_size(4 * sizeof(uint32_t))));
+    for (uint32_t j = 0; j < PB; j += 4) {
+        v4u l = {0, 0, 0, 0}, h = l;
+        for (uint32_t g = 0; g <= PEAK_GRID; g++) {
+            v4i u;
+            memcpy(&u, ws->G3 + (size_t)g * PB + j, sizeof u);
+            v4u bit = (v4u)(u > 0) & 1u;
+            if (g < 32)
+                l |= bit << g;
+            else
+                h |= bit << (g - 32);
+        }
+        memcpy(lo + j, &l, sizeof l);
+        memcpy(hi + j, &h, sizeof h);
+    }
+#else
+    for (uint32_t g = 0; g <= PEAK_GRID; g++)
+        for (uint32_t j = 0; j < PB; j++) {
+            uint32_t bit = (int32_t)f2u(ws->G3[(size_t)g * PB + j]) > 0;
+            if (g < 32)
+                lo[j] |= bit << g;
+            else
+                hi[j] |= bit << (g - 32);
+        }
+#endif
+    for (uint32_t j = 0; j < PB; j++)
+        ws->pos[j] = (uint64_t)hi[j] << 32 | lo[j];
+}
+
 static void block_work(pl_reducer *r, scratch *ws, size_t p0, uint32_t np)
 {
     fit_block(r, ws, p0, np);
-    uint32_t n = r->nused, k = r->k, d = r->degree;
-    const double *restrict C = ws->C;
-    if (d >= 3) {
-        double *restrict C3 = ws->C3;
-        for (uint32_t i = 0; i + 3 <= d; i++) {
-            double f = (double)(i + 3) * (i + 2) * (i + 1);
-            for (uint32_t j = 0; j < PB; j++)
-                C3[(size_t)i * PB + j] = f * C[(size_t)(i + 3) * PB + j];
-        }
-        combine_rows(ws->G3, r->gpow, PL_REDUCE_MAX_DEGREE - 2, PEAK_GRID + 1, C3, d - 2);
-    }
-    /* the fit at the sample times, in float: it only feeds the contrast */
-    for (uint32_t i = 0; i < k * PB; i++)
-        ws->Cf[i] = (float)C[i];
-    combine_rows_f(ws->Y, r->designf, k, n, ws->Cf, k);
-    for (uint32_t m = 0; m < r->M; m++) {
-        const float *row = r->bins_p + (size_t)m * r->npix + p0;
-        float *u = ws->Ub + (size_t)m * PB;
-        for (uint32_t j = 0; j < np; j++)
-            u[j] = row[j];
-    }
+    if (r->degree >= 3)
+        third_derivative_grid(r, ws);
+    fit_samples(r, ws, np);
+    if (r->nfreq)
+        phase_block(r, ws, p0, np);
     for (uint32_t j = 0; j < np; j++)
         pixel_outputs(r, ws, p0 + j, j);
 }
 
-static void finish_job(pl_reducer *r, uint32_t part)
+/* Pixels [p0, p1) of the per-pixel stage, in blocks of PB. */
+static void finish_pixels(pl_reducer *r, uint32_t part, size_t p0, size_t p1)
 {
-    size_t p0, p1;
-    part_pixels(r, part, r->row0, r->row1, &p0, &p1);
     for (size_t p = p0; p < p1; p += PB) {
 #if defined(__GNUC__)
-        /* the next block's samples lie on nused + M separate cache lines */
-        if (p + 2 * PB <= p1) {
+        /* a block's samples lie on nused + M separate cache lines, too
+         * many streams for the hardware to follow: ask for them a few
+         * blocks ahead, every 64-byte line of them */
+        size_t ahead = p + PREFETCH_BLOCKS * PB;
+        if (ahead + PB <= r->chunk1) {
             for (uint32_t b = 0; b < r->nused; b++)
-                __builtin_prefetch(r->bins_l + (size_t)b * r->npix + p + PB);
+                for (uint32_t j = 0; j < PB; j += 16)
+                    __builtin_prefetch(r->bins_l + (size_t)b * r->npix + ahead + j);
             for (uint32_t m = 0; m < r->M; m++)
-                __builtin_prefetch(r->bins_p + (size_t)m * r->npix + p + PB);
+                for (uint32_t j = 0; j < PB; j += 16)
+                    __builtin_prefetch(r->bins_p + (size_t)m * r->npix + ahead + j);
         }
 #endif
         block_work(r, &r->ws[part], p, (uint32_t)(p1 - p < PB ? p1 - p : PB));
+    }
+}
+
+/* One unit of the per-pixel stage: FINISH_UNIT blocks of PB pixels of the
+ * chunk [r->chunk0, r->chunk1). */
+static void finish_job(pl_reducer *r, uint32_t part)
+{
+    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
+        size_t p0 = r->chunk0 + unit * FINISH_UNIT * PB;
+        size_t p1 = p0 + FINISH_UNIT * PB < r->chunk1 ? p0 + FINISH_UNIT * PB : r->chunk1;
+        finish_pixels(r, part, p0, p1);
     }
 }
 
@@ -1577,7 +2267,14 @@ static void free_one_scratch(scratch *w)
     free(w->G3);
     free(w->Y);
     free(w->Cf);
-    free(w->Ub);
+    free(w->Ud);
+    free(w->F);
+    free(w->E);
+    free(w->Q);
+    free(w->Zf);
+    free(w->Pp);
+    free(w->vidx);
+    free(w->Id);
     free(w->A);
     free(w->z);
     free(w->zz);
@@ -1609,13 +2306,20 @@ static int alloc_one_scratch(const pl_reducer *r, scratch *w)
     w->G3 = alloc_array((size_t)(PEAK_GRID + 1) * PB, sizeof *w->G3, &bad);
     w->Y = alloc_array(n * PB, sizeof *w->Y, &bad);
     w->Cf = alloc_array((size_t)r->k * PB, sizeof *w->Cf, &bad);
-    w->Ub = alloc_array((size_t)(r->M ? r->M : 1) * PB, sizeof *w->Ub, &bad);
+    w->Ud = alloc_array((size_t)(r->M ? r->M : 1) * PB, sizeof *w->Ud, &bad);
+    w->F = alloc_array((size_t)(r->nfreq ? 2 * r->nfreq : 1) * PB, sizeof *w->F, &bad);
+    w->E = alloc_array(n * PB, sizeof *w->E, &bad);
+    w->Q = alloc_array(n * PB, sizeof *w->Q, &bad);
+    w->Zf = alloc_array(n * PB, sizeof *w->Zf, &bad);
+    w->Pp = alloc_array(n * r->k * PB, sizeof *w->Pp, &bad);
+    w->vidx = alloc_array(n * PB, sizeof *w->vidx, &bad);
+    w->Id = alloc_array(n * n, sizeof *w->Id, &bad);
     w->A = alloc_array(n * r->k, sizeof *w->A, &bad);
     w->z = alloc_array(n, sizeof *w->z, &bad);
     w->zz = alloc_array(n, sizeof *w->zz, &bad);
     w->v = alloc_array(n, sizeof *w->v, &bad);
     w->valid = alloc_array(n, 1, &bad);
-    if (r->M) {
+    if (r->M && !r->direct) {
         w->fft_in = alloc_array(r->M, sizeof *w->fft_in, &bad);
         w->fft_out = alloc_array(r->M / 2 + 1, sizeof *w->fft_out, &bad);
         w->fft = kiss_fftr_alloc((int)r->M, 0, NULL, NULL);
@@ -1661,14 +2365,15 @@ static size_t keep_valid_pixels(const pl_reducer *r, size_t *pix, size_t np,
     return kept;
 }
 
-/* One sample of the reference curve per job index: log-spaced samples
- * first, then the filled uniform bins; each worker takes every nthreads-th. */
+/* One sample of the reference curve a unit: log-spaced samples first,
+ * then the filled uniform bins. */
 static void reference_job(pl_reducer *r, uint32_t part)
 {
     size_t np = r->ref_np;
     const size_t *pix = r->ref_pix;
     double *vals = r->ws[part].vals;
-    for (uint32_t q = part; q < r->nused + r->M; q += r->nthreads) {
+    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
+        uint32_t q = (uint32_t)unit;
         int log_sample = q < r->nused;
         uint32_t m = q - (log_sample ? 0 : r->nused);
         if (!log_sample && !r->pcount[m])
@@ -1740,8 +2445,7 @@ static int make_reference(pl_reducer *r, pl_err *err)
         return pl__err(err, PL_EINVAL,
                        r->ref_region ? "reduction: the reference region holds no valid pixel"
                                      : "reduction: no pixel has a valid cooling curve");
-    pool_start(r, reference_job);
-    pool_wait(r);
+    pool_run(r, reference_job, r->nused + r->M);
     for (uint32_t i = 0; i < r->k; i++) {
         double acc = 0.0;
         for (uint32_t b = 0; b < r->nused; b++)
@@ -1756,10 +2460,21 @@ static int make_reference(pl_reducer *r, pl_err *err)
         r->ref_at[j] = poly(r->cref, r->degree, r->xt[j]);
     if (r->M) {
         fill_phase(r, r->pref);
-        kiss_fft_cpx *F = r->ws[0].fft_out;
-        kiss_fftr(r->ws[0].fft, r->pref, F);
-        for (uint32_t f = 0; f < r->nfreq; f++)
-            r->ref_phase[f] = atan2(F[f + 1].i, F[f + 1].r);
+        if (r->direct) {
+            for (uint32_t f = 0; f < r->nfreq; f++) {
+                double re = 0.0, im = 0.0;
+                for (uint32_t m = 0; m < r->M; m++) {
+                    re += r->tw[(size_t)(2 * f) * r->M + m] * (double)r->pref[m];
+                    im += r->tw[(size_t)(2 * f + 1) * r->M + m] * (double)r->pref[m];
+                }
+                r->ref_phase[f] = atan2(im, re);
+            }
+        } else {
+            kiss_fft_cpx *F = r->ws[0].fft_out;
+            kiss_fftr(r->ws[0].fft, r->pref, F);
+            for (uint32_t f = 0; f < r->nfreq; f++)
+                r->ref_phase[f] = atan2(F[f + 1].i, F[f + 1].r);
+        }
     }
     return PL_OK;
 }
@@ -1877,6 +2592,18 @@ static char *parameters_json(const pl_reducer *r)
                                                                        : "peak d2 and slab fit");
         cJSON_AddStringToObject(j, "depth_formula_peak_d2", "L = sqrt(pi * alpha * t*)");
     }
+    cJSON *pk = cJSON_AddObjectToObject(j, "peak_d2");
+    if (r->rule == PL_PEAK_FIRST_SIGNIFICANT) {
+        cJSON_AddStringToObject(pk, "rule", "first significant interior maximum");
+        cJSON_AddNumberToObject(pk, "min_d2", r->min_d2);
+        cJSON_AddNumberToObject(pk, "min_snr", r->min_snr);
+        cJSON_AddNumberToObject(pk, "min_snr_share_of_largest", PL_REDUCE_PEAK_LOBE_RATIO);
+        cJSON_AddStringToObject(pk, "noise",
+                                "propagated from the samples, per-frame noise from the "
+                                "residuals");
+    } else {
+        cJSON_AddStringToObject(pk, "rule", "largest positive interior maximum");
+    }
     cJSON *ref = cJSON_AddObjectToObject(j, "reference");
     cJSON_AddStringToObject(ref, "kind", r->ref_kind);
     if (o->ref_w && o->ref_h) {
@@ -1892,6 +2619,7 @@ static char *parameters_json(const pl_reducer *r)
         cJSON_AddNumberToObject(ph, "samples", r->M);
         cJSON_AddNumberToObject(ph, "truncation_s", r->trunc);
         cJSON_AddNumberToObject(ph, "empty_samples_interpolated", r->nempty_p);
+        cJSON_AddStringToObject(ph, "transform", r->direct ? "direct sum" : "kissfft");
         double hz[PL_REDUCE_MAX_PHASE_SAMPLES / 2];
         for (uint32_t f = 0; f < r->nfreq; f++)
             hz[f] = (f + 1) / r->trunc;
@@ -1929,6 +2657,7 @@ PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, 
         return pl__err(err, PL_EINVAL, "reduction: already finished");
     if (r->batch[r->cur].count)
         submit_batch(r);
+    pool_help(r);
     pool_wait(r);
     if (r->next_needed < r->nframes) {
         pl__err(err, PL_EINVAL, "reduction: frame %u (t = %.6g s) and later needed frames missing",
@@ -1945,12 +2674,12 @@ PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, 
     if (!rc)
         rc = make_reference(r, err);
     for (uint32_t c = 0; !rc && c < FINISH_CHUNKS; c++) {
-        r->row0 = (uint32_t)((uint64_t)r->height * c / FINISH_CHUNKS);
-        r->row1 = (uint32_t)((uint64_t)r->height * (c + 1) / FINISH_CHUNKS);
-        if (r->row1 == r->row0)
+        r->chunk0 = r->npix * c / FINISH_CHUNKS;
+        r->chunk1 = r->npix * (c + 1) / FINISH_CHUNKS;
+        if (r->chunk1 == r->chunk0)
             continue;
-        pool_start(r, finish_job);
-        pool_wait(r);
+        size_t unit = (size_t)FINISH_UNIT * PB;
+        pool_run(r, finish_job, (r->chunk1 - r->chunk0 + unit - 1) / unit);
         if (r->opt.progress &&
             r->opt.progress(r->opt.progress_data,
                             STREAM_SHARE + (1.0 - STREAM_SHARE) * (c + 1) / FINISH_CHUNKS))
@@ -2020,6 +2749,50 @@ int pl_reduce__pixel_fit(const pl_reducer *r, uint32_t pixel, double *x, double 
             coef[i] = w.C[(size_t)i * PB];
         *centre = r->centre;
         *scale = r->scale;
+    }
+    free_one_scratch(&w);
+    return rc;
+}
+
+int pl_reduce__pixel_peaks(const pl_reducer *r, uint32_t pixel, pl_reduce__peak *peaks,
+                           uint32_t cap, uint32_t *n)
+{
+    if (r->state != FINISHED || pixel >= r->npix || r->degree < 3)
+        return PL_EINVAL;
+    scratch w;
+    memset(&w, 0, sizeof w);
+    int rc = alloc_one_scratch(r, &w) ? PL_ENOMEM : PL_OK;
+    if (!rc) {
+        fit_block(r, &w, pixel, 1);
+        if (w.status[0] < 0)
+            rc = PL_ENOMATCH;
+    }
+    if (!rc) {
+        uint32_t d = r->degree;
+        double coef[PL_REDUCE_MAX_DEGREE + 1], c1[PL_REDUCE_MAX_DEGREE],
+            c2[PL_REDUCE_MAX_DEGREE];
+        for (uint32_t i = 0; i <= d; i++)
+            coef[i] = w.C[(size_t)i * PB];
+        third_derivative_grid(r, &w);
+        fit_samples(r, &w, 1);
+        poly_deriv(c1, coef, d);
+        poly_deriv(c2, c1, d - 1);
+        d2_profile pr;
+        d2_profile_of(r, w.G3, PB, w.pos[0], c2, 1, &pr);
+        double s2 = r->scale * r->scale;
+        uint32_t m = 0;
+        for (int i = 1; i + 1 < pr.n; i++) {
+            if (pr.kind[i] != 1)
+                continue;
+            if (m < cap) {
+                peaks[m].t_s = exp(r->centre + r->scale * pr.x[i]);
+                peaks[m].d2 = pr.v[i] / s2;
+                peaks[m].prominence = prominence(&pr, i) / s2;
+                peaks[m].noise = sqrt(peak_variance(r, &w, 0, &pr, i)) / s2;
+            }
+            m++;
+        }
+        *n = m;
     }
     free_one_scratch(&w);
     return rc;

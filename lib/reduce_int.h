@@ -19,6 +19,16 @@
 void pl_reduce__slab(double v, double out[3]);
 
 /*
+ * ln and exp of n floats, as the reduction takes them (vectorised series;
+ * a few units in the last place). ln: NaN for zero, negative or NaN
+ * input, +inf for +inf. exp: 0 below about -87, +inf above 88.
+ */
+void pl_reduce__log_row(float *out, const float *in, size_t n);
+void pl_reduce__exp_row(float *out, const float *in, size_t n);
+/* atan2(y[i], x[i]) likewise (signed zeros as atan2()). */
+void pl_reduce__atan2_row(float *out, const float *y, const float *x, size_t n);
+
+/*
  * After pl_reducer_finish(): the samples pixel `pixel` was fitted on and
  * its coefficients. Into [out] x (the scaled abscissae (ln t - centre) /
  * scale), [out] z (ln of the mean rise), [out] n (their count; the arrays
@@ -29,6 +39,26 @@ void pl_reduce__slab(double v, double out[3]);
  */
 int pl_reduce__pixel_fit(const pl_reducer *r, uint32_t pixel, double *x, double *z,
                          uint32_t *n, double *coef, double *centre, double *scale);
+
+/* One interior maximum of a pixel's fitted second log-derivative. */
+typedef struct pl_reduce__peak {
+    double t_s;        /* its time, s after the flash */
+    double d2;         /* d2 ln dT / d ln t^2 there */
+    double prominence; /* its prominence, in the same unit */
+    double noise;      /* the standard deviation of the fitted d2 there */
+} pl_reduce__peak;
+
+/*
+ * After pl_reducer_finish(): every interior maximum of pixel `pixel`'s
+ * fitted second log-derivative, as the peak search sees them before its
+ * rule chooses one (times and values at the secant roots), in order of
+ * time, into [out] peaks (room for `cap`), their count into [out] n (all
+ * of them, even beyond cap).
+ * @return PL_OK, PL_EINVAL (not finished, pixel out of range, degree < 3),
+ *         PL_ENOMATCH (the pixel is masked), PL_ENOMEM.
+ */
+int pl_reduce__pixel_peaks(const pl_reducer *r, uint32_t pixel, pl_reduce__peak *peaks,
+                           uint32_t cap, uint32_t *n);
 
 /*
  * After pl_reducer_finish(): the uniform pulse-phase samples of pixel

@@ -214,6 +214,14 @@ static void reduce_synth(const synth *s, const pl_reduce_options *o, pl_map **ma
         pl_reducer_free(r);
 }
 
+static double jnum(const cJSON *o, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItem(o, key);
+    if (!cJSON_IsNumber(v))
+        fail_msg("parameters: %s missing", key);
+    return v->valuedouble;
+}
+
 /* The channel of `quantity` with `label`. */
 static const float *channel(const pl_map *m, const char *quantity, const char *label)
 {
@@ -275,38 +283,68 @@ static void test_reduce__slab_d2_peaks_at_l2_over_pi_alpha(void **state)
 
 /* ---- the polynomial fit -------------------------------------------------- */
 
+/* A curve that departs from the 4 mm plate's by a bump in log time (not a
+ * physical curve: its second log-derivative has a positive maximum on each
+ * flank of the bump, the earlier one at about 0.38 s and smaller than the
+ * back wall's). */
+static double bump_rise(double t)
+{
+    double b = log(t / 1.5) / 0.8;
+    return slab_rise(t, 4.0) * (1.0 + 0.3 * exp(-0.5 * b * b));
+}
+
 /* Each pixel's coefficients equal numpy.polyfit's on the same samples (in
  * the same scaled variable) to 1e-6 relative; the derivative maps equal
- * numpy.polyder's values, the peak time the largest positive interior
- * maximum found from numpy.roots. One pixel is saturated early and fitted
- * on its remaining samples. */
+ * numpy.polyder's values; the peak time is the rule's choice among the
+ * interior maxima found from numpy.roots, with the noise of d2 propagated
+ * through numpy.linalg.pinv (reduce_ref.py), for both rules: the earliest
+ * significant maximum (default) and the largest. One pixel is saturated
+ * early and fitted on its remaining samples; on the bump the two rules
+ * choose different maxima. */
 static void test_reduce__polyfit_matches_numpy(void **state)
 {
     (void)state;
     rng_seed(11);
     static const double depth[] = {0.7, 1.3, 2.2, 1.0};
-    synth *s = synth_new(4, 1, 200.0, 20.0, 10);
+    const uint32_t np = 5;
+    synth *s = synth_new(np, 1, 200.0, 20.0, 10);
     for (size_t p = 0; p < 4; p++)
         synth_slab(s, p, COLD, depth[p], 0.02);
-    for (uint32_t i = 0; i < s->nframes; i++)
+    for (uint32_t i = 0; i < s->nframes; i++) {
         if (s->times[i] > 0 && s->times[i] < 0.1)
             *px(s, i, 3) = NAN; /* saturated after the flash */
+        *px(s, i, 4) = (float)(COLD + 0.02 * gauss() + (s->times[i] > 0 ? bump_rise(s->times[i])
+                                                                         : 0.0));
+    }
     static const double times[] = {0.3, 1.0, 4.0};
     pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
     o.times_s = times;
     o.ntimes = 3;
     o.diffusivity_mm2_s = ALPHA;
-    pl_map *m;
+    pl_map *m, *ml;
     pl_reducer *r;
     pl_reduce_stats st;
-    reduce_synth(s, &o, &m, NULL, &st, &r);
+    char *json;
+    reduce_synth(s, &o, &m, &json, &st, &r);
     assert_int_equal(st.pixels_partial, 1);
     assert_int_equal(st.pixels_masked, 0);
+    o.peak_rule = PL_PEAK_LARGEST;
+    reduce_synth(s, &o, &ml, NULL, NULL, NULL);
+    /* the frames of each sample */
+    cJSON *j = cJSON_Parse(json);
+    assert_non_null(j);
+    cJSON *sf = cJSON_GetObjectItem(j, "sample_frames");
+    assert_int_equal(cJSON_GetArraySize(sf), st.samples_used);
+    double frames[PL_REDUCE_MAX_SAMPLES], xall[PL_REDUCE_MAX_SAMPLES];
+    for (uint32_t b = 0; b < st.samples_used; b++)
+        frames[b] = cJSON_GetArrayItem(sf, (int)b)->valuedouble;
+    cJSON_Delete(j);
+    free(json);
 
     char *dir = tu_tmpdir();
     char *in = tu_path(dir, "fit.f8"), *out = tu_path(dir, "fit_out.f8");
-    uint32_t k = o.degree + 1;
-    for (uint32_t p = 0; p < 4; p++) {
+    uint32_t k = o.degree + 1, differ = 0;
+    for (uint32_t p = 0; p < np; p++) {
         double x[PL_REDUCE_MAX_SAMPLES * 2], coef[PL_REDUCE_MAX_DEGREE + 1], centre, scale;
         uint32_t n;
         assert_int_equal(pl_reduce__pixel_fit(r, p, x, x + PL_REDUCE_MAX_SAMPLES, &n, coef,
@@ -316,65 +354,84 @@ static void test_reduce__polyfit_matches_numpy(void **state)
             assert_true(n < st.samples_used && n > st.samples_used / 2);
         else
             assert_int_equal(n, st.samples_used);
-        double xz[2 * PL_REDUCE_MAX_SAMPLES];
+        if (p == 0)
+            memcpy(xall, x, n * sizeof(double));
+        double xz[3 * PL_REDUCE_MAX_SAMPLES];
         memcpy(xz, x, n * sizeof(double));
         memcpy(xz + n, x + PL_REDUCE_MAX_SAMPLES, n * sizeof(double));
-        write_f8(in, xz, 2 * n);
-        char a_deg[16], a_lo[32], a_hi[32], xq[3][32];
+        for (uint32_t i = 0, b = 0; i < n; i++) { /* the frames of the samples it holds */
+            while (xall[b] != x[i])
+                b++;
+            xz[2 * n + i] = frames[b];
+        }
+        write_f8(in, xz, 3 * n);
+        char a_deg[16], a_lo[32], a_hi[32], a_scale[32], a_d2[32], a_snr[32], a_ratio[32],
+            xq[3][32];
         snprintf(a_deg, sizeof a_deg, "%u", o.degree);
         /* the peak search runs over the reducer's whole sample range */
-        pl_reducer *full = r;
-        double xa[PL_REDUCE_MAX_SAMPLES * 2], ca[PL_REDUCE_MAX_DEGREE + 1], c0, s0;
-        uint32_t na;
-        assert_int_equal(pl_reduce__pixel_fit(full, 0, xa, xa + PL_REDUCE_MAX_SAMPLES, &na, ca,
-                                              &c0, &s0),
-                         PL_OK);
-        snprintf(a_lo, sizeof a_lo, "%.17g", xa[0]);
-        snprintf(a_hi, sizeof a_hi, "%.17g", xa[na - 1]);
-        for (int j = 0; j < 3; j++)
-            snprintf(xq[j], sizeof xq[j], "%.17g", (log(times[j]) - centre) / scale);
-        assert_int_equal(tu_python("reduce_ref.py", "polyfit", in, a_deg, a_lo, a_hi, out,
-                                   xq[0], xq[1], xq[2], NULL),
+        snprintf(a_lo, sizeof a_lo, "%.17g", xall[0]);
+        snprintf(a_hi, sizeof a_hi, "%.17g", xall[st.samples_used - 1]);
+        snprintf(a_scale, sizeof a_scale, "%.17g", scale);
+        snprintf(a_d2, sizeof a_d2, "%.17g", PL_REDUCE_DEFAULT_PEAK_MIN_D2);
+        snprintf(a_snr, sizeof a_snr, "%.17g", PL_REDUCE_DEFAULT_PEAK_MIN_SNR);
+        snprintf(a_ratio, sizeof a_ratio, "%.17g", PL_REDUCE_PEAK_LOBE_RATIO);
+        for (int q = 0; q < 3; q++)
+            snprintf(xq[q], sizeof xq[q], "%.17g", (log(times[q]) - centre) / scale);
+        assert_int_equal(tu_python("reduce_ref.py", "polyfit", in, a_deg, a_lo, a_hi, a_scale,
+                                   a_d2, a_snr, a_ratio, out, xq[0], xq[1], xq[2], NULL),
                          0);
         size_t nout;
-        double *np = read_f8(out, &nout);
-        assert_int_equal(nout, k + 9 + 1);
+        double *ref = read_f8(out, &nout);
+        assert_int_equal(nout, k + 9 + 2);
         double cmax = 0;
         for (uint32_t i = 0; i < k; i++)
-            cmax = fmax(cmax, fabs(np[i]));
+            cmax = fmax(cmax, fabs(ref[i]));
         /* numpy.polyfit (Debian python3-numpy): 1e-6 relative */
         double worst = 0;
         for (uint32_t i = 0; i < k; i++) {
-            if (!(fabs(coef[i] - np[i]) <= 1e-6 * fabs(np[i]) + 1e-9 * cmax))
-                fail_msg("pixel %u coefficient %u: %.15g, numpy %.15g", p, i, coef[i], np[i]);
-            worst = fmax(worst, fabs(coef[i] - np[i]) / fabs(np[i]));
+            if (!(fabs(coef[i] - ref[i]) <= 1e-6 * fabs(ref[i]) + 1e-9 * cmax))
+                fail_msg("pixel %u coefficient %u: %.15g, numpy %.15g", p, i, coef[i], ref[i]);
+            worst = fmax(worst, fabs(coef[i] - ref[i]) / fabs(ref[i]));
         }
         printf("# pixel %u: %u samples, largest relative difference from numpy.polyfit %.2g\n",
                p, n, worst);
         char lab[PL_LABEL_SIZE];
-        for (int j = 0; j < 3; j++) {
-            snprintf(lab, sizeof lab, "t=%.4g s", times[j]);
-            double f = np[k + 3 * j], f1 = np[k + 3 * j + 1], f2 = np[k + 3 * j + 2];
+        for (int q = 0; q < 3; q++) {
+            snprintf(lab, sizeof lab, "t=%.4g s", times[q]);
+            double f = ref[k + 3 * q], f1 = ref[k + 3 * q + 1], f2 = ref[k + 3 * q + 2];
             assert_rel(channel(m, "temperature-rise", lab)[p], exp(f), 1e-6, "rise");
             assert_close(channel(m, "log-derivative-1", lab)[p], f1 / scale, 1e-6, "d1");
             assert_close(channel(m, "log-derivative-2", lab)[p], f2 / (scale * scale), 1e-6,
                          "d2");
         }
-        double tstar = exp(centre + scale * np[k + 9]);
-        double got = channel(m, "time-of-peak-d2", "peak")[p];
-        if (isnan(np[k + 9]))
-            assert_true(isnan(got));
-        else
+        for (int rule = 0; rule < 2; rule++) {
+            const pl_map *mm = rule ? ml : m;
+            double xr = ref[k + 10 - rule], tstar = exp(centre + scale * xr);
+            double got = channel(mm, "time-of-peak-d2", "peak")[p];
+            printf("#   %s: t* %.6g s, numpy %.6g s\n", rule ? "largest" : "first significant",
+                   got, tstar);
+            if (isnan(xr)) {
+                assert_true(isnan(got) && isnan(channel(mm, "depth", "peak d2")[p]) &&
+                            isnan(channel(mm, "log-derivative-2", "peak")[p]));
+                continue;
+            }
             assert_rel(got, tstar, 1e-6, "time of peak d2");
-        assert_rel(channel(m, "depth", "peak d2")[p], sqrt(M_PI * ALPHA * tstar), 1e-6,
-                   "depth");
-        free(np);
+            assert_rel(channel(mm, "depth", "peak d2")[p], sqrt(M_PI * ALPHA * tstar), 1e-6,
+                       "depth");
+        }
+        differ += !(fabs(ref[k + 9] - ref[k + 10]) < 1e-6);
+        free(ref);
     }
+    /* the bump (and only it) tells the rules apart */
+    assert_int_equal(differ, 1);
+    assert_true(channel(m, "time-of-peak-d2", "peak")[4] < 1.0);
+    assert_true(channel(ml, "time-of-peak-d2", "peak")[4] > 5.0);
     free(in);
     free(out);
     tu_rmtree(dir);
     pl_reducer_free(r);
     pl_map_free(m);
+    pl_map_free(ml);
     synth_free(s);
 }
 
@@ -557,8 +614,11 @@ static void test_reduce__pulse_phase_follows_slab_transform(void **state)
 }
 
 /* The DFT of each pixel's uniform samples equals numpy.fft.rfft of the
- * same float32 samples: amplitude 2 |F_k| / M and phase arg F_k, default
- * phase options (64 samples, 4 frequencies). */
+ * same float32 samples: amplitude 2 |F_k| / M and phase arg F_k. Three
+ * cases: the default options (64 samples, 4 frequencies: the direct sum);
+ * 30 frequencies (kissfft); 2048 samples, 8 frequencies, most uniform bins
+ * empty (the direct sum with the empty bins' interpolation folded into its
+ * weights; pl_reduce__phase_samples() interpolates them explicitly). */
 static void test_reduce__dft_matches_numpy_rfft(void **state)
 {
     (void)state;
@@ -567,39 +627,135 @@ static void test_reduce__dft_matches_numpy_rfft(void **state)
     static const double depth[] = {0.6, 1.1, 1.7, 2.5, 3.0, 4.0};
     for (size_t p = 0; p < 6; p++)
         synth_slab(s, p, COLD + p, depth[p], 0.03);
-    pl_map *m;
-    pl_reducer *r;
-    reduce_synth(s, NULL, &m, NULL, NULL, &r);
+    static const uint32_t Ms[3] = {PL_REDUCE_DEFAULT_PHASE_SAMPLES,
+                                   PL_REDUCE_DEFAULT_PHASE_SAMPLES, 2048},
+                          Ks[3] = {PL_REDUCE_DEFAULT_FREQUENCIES, 30, 8};
     char *dir = tu_tmpdir();
     char *in = tu_path(dir, "u.f4"), *out = tu_path(dir, "u.f8");
-    const uint32_t M = PL_REDUCE_DEFAULT_PHASE_SAMPLES, K = PL_REDUCE_DEFAULT_FREQUENCIES;
-    int ph0 = pl_map_find_channel(m, "phase");
-    assert_true(ph0 >= 0);
-    for (uint32_t p = 0; p < 6; p++) {
-        float u[PL_REDUCE_DEFAULT_PHASE_SAMPLES];
-        double dt;
-        assert_int_equal(pl_reduce__phase_samples(r, p, u, &dt), PL_OK);
-        assert_close(dt, 12.0 / M, 1e-12, "uniform spacing (truncation at the window end)");
-        write_f4(in, u, M);
-        assert_int_equal(tu_python("reduce_ref.py", "rfft", in, "4", out, NULL), 0);
-        size_t n;
-        double *F = read_f8(out, &n);
-        assert_int_equal(n, 2 * (K + 1));
-        for (uint32_t k = 1; k <= K; k++) {
-            double re = F[2 * k], im = F[2 * k + 1];
-            double a = pl_map_channel(m, (uint32_t)ph0 + 3 * (k - 1) + 1)[p];
-            double phase = pl_map_channel(m, (uint32_t)ph0 + 3 * (k - 1))[p];
-            assert_rel(a, 2 * hypot(re, im) / M, 1e-5, "amplitude");
-            assert_close(phase, atan2(im, re), 1e-5, "phase");
+    float *u = malloc(2048 * sizeof *u);
+    assert_non_null(u);
+    for (int c = 0; c < 3; c++) {
+        const uint32_t M = Ms[c], K = Ks[c];
+        pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
+        o.phase_samples = M;
+        o.phase_frequencies = K;
+        pl_map *m;
+        char *json;
+        pl_reducer *r;
+        reduce_synth(s, &o, &m, &json, NULL, &r);
+        cJSON *j = cJSON_Parse(json);
+        assert_non_null(j);
+        cJSON *ph = cJSON_GetObjectItem(j, "pulse_phase");
+        assert_string_equal(cJSON_GetObjectItem(ph, "transform")->valuestring,
+                            c == 1 ? "kissfft" : "direct sum");
+        assert_true(c == 2 ? jnum(ph, "empty_samples_interpolated") > M / 2
+                           : jnum(ph, "empty_samples_interpolated") == 0);
+        cJSON_Delete(j);
+        free(json);
+        int ph0 = pl_map_find_channel(m, "phase");
+        assert_true(ph0 >= 0);
+        char kk[16];
+        snprintf(kk, sizeof kk, "%u", K);
+        double worst_a = 0, worst_p = 0;
+        for (uint32_t p = 0; p < 6; p++) {
+            double dt;
+            assert_int_equal(pl_reduce__phase_samples(r, p, u, &dt), PL_OK);
+            assert_close(dt, 12.0 / M, 1e-12, "uniform spacing (truncation at the window end)");
+            write_f4(in, u, M);
+            /* numpy.fft.rfft (Debian python3-numpy) */
+            assert_int_equal(tu_python("reduce_ref.py", "rfft", in, kk, out, NULL), 0);
+            size_t n;
+            double *F = read_f8(out, &n);
+            assert_int_equal(n, 2 * (K + 1));
+            for (uint32_t k = 1; k <= K; k++) {
+                double re = F[2 * k], im = F[2 * k + 1], want = 2 * hypot(re, im) / M;
+                double a = pl_map_channel(m, (uint32_t)ph0 + 3 * (k - 1) + 1)[p];
+                double phase = pl_map_channel(m, (uint32_t)ph0 + 3 * (k - 1))[p];
+                assert_rel(a, want, 1e-5, "amplitude");
+                assert_close(phase, atan2(im, re), 1e-5, "phase");
+                worst_a = fmax(worst_a, fabs(a - want) / want);
+                worst_p = fmax(worst_p, fabs(phase - atan2(im, re)));
+            }
+            free(F);
         }
-        free(F);
+        printf("# %u samples, %u frequencies: largest difference from numpy.fft.rfft: "
+               "amplitude %.2g relative, phase %.2g rad\n",
+               M, K, worst_a, worst_p);
+        pl_reducer_free(r);
+        pl_map_free(m);
     }
+    free(u);
     free(in);
     free(out);
     tu_rmtree(dir);
-    pl_reducer_free(r);
-    pl_map_free(m);
     synth_free(s);
+}
+
+/* The vectorised ln, exp and atan2 of the reduction against the C
+ * library's (glibc libm, correctly rounded to within an ulp or so): ln
+ * within 4 units in the last place over every 97th positive float and
+ * the special values; exp within 2 over [-87, 88]; atan2 within 5e-7 rad
+ * over random points of every quadrant and the signed zeros. */
+static void test_reduce__fast_math_matches_libm(void **state)
+{
+    (void)state;
+    enum { N = 4096 };
+    float in[N], in2[N], out[N];
+    double worst = 0;
+    uint32_t bits = 1;
+    while (bits < 0x7f800000u) {
+        size_t n = 0;
+        for (; n < N && bits < 0x7f800000u; n++, bits += 97 * 4099)
+            memcpy(&in[n], &bits, sizeof bits);
+        pl_reduce__log_row(out, in, n);
+        for (size_t i = 0; i < n; i++) {
+            float want = logf(in[i]);
+            double ulp = nextafterf(fabsf(want), INFINITY) - fabsf(want);
+            worst = fmax(worst, fabs((double)out[i] - want) / ulp);
+        }
+    }
+    printf("# ln: %.2f ulp\n", worst);
+    assert_true(worst <= 4);
+    float special[6] = {0.0f, -0.0f, -1.0f, NAN, INFINITY, -INFINITY};
+    pl_reduce__log_row(out, special, 6);
+    assert_true(isnan(out[0]) && isnan(out[1]) && isnan(out[2]) && isnan(out[3]));
+    assert_true(out[4] == INFINITY && isnan(out[5]));
+
+    worst = 0;
+    for (int rep = 0; rep < 43; rep++) {
+        for (int i = 0; i < N; i++)
+            in[i] = -87.0f + 175.0f * (float)(rep * N + i) / (43.0f * N);
+        pl_reduce__exp_row(out, in, N);
+        for (int i = 0; i < N; i++) {
+            float want = expf(in[i]);
+            double ulp = nextafterf(want, INFINITY) - want;
+            worst = fmax(worst, fabs((double)out[i] - want) / ulp);
+        }
+    }
+    printf("# exp: %.2f ulp\n", worst);
+    assert_true(worst <= 2);
+    float big[3] = {-200.0f, 200.0f, NAN};
+    pl_reduce__exp_row(out, big, 3);
+    assert_true(out[0] == 0.0f && out[1] == INFINITY && isnan(out[2]));
+
+    worst = 0;
+    rng_seed(9);
+    for (int i = 0; i < N; i++) {
+        double sc = i % 3 ? 1.0 : 1e-3;
+        in[i] = (float)(sc * (2 * uniform01() - 1));
+        in2[i] = (float)(2 * uniform01() - 1);
+    }
+    pl_reduce__atan2_row(out, in, in2, N);
+    for (int i = 0; i < N; i++)
+        worst = fmax(worst, fabs(out[i] - atan2((double)in[i], (double)in2[i])));
+    printf("# atan2: %.2g rad\n", worst);
+    assert_true(worst <= 5e-7);
+    float zy[4] = {0.0f, -0.0f, 0.0f, -0.0f}, zx[4] = {0.0f, 0.0f, -0.0f, -0.0f};
+    pl_reduce__atan2_row(out, zy, zx, 4);
+    for (int i = 0; i < 4; i++) {
+        float want = atan2f(zy[i], zx[i]);
+        assert_true(out[i] == want && signbit(out[i]) == signbit(want));
+    }
 }
 
 /* ---- masking, cold reference, contrast ------------------------------------ */
@@ -709,15 +865,6 @@ static void test_reduce__subtracts_preflash_mean(void **state)
                     channel(m, "log-derivative-2", "peak")[p] < 0.01);
     pl_map_free(m);
     synth_free(s);
-}
-
-/* A curve that departs from the 4 mm plate's by a bump in log time, so
- * that its contrast peaks inside the window (not a physical curve: it
- * exercises the peak search). */
-static double bump_rise(double t)
-{
-    double b = log(t / 1.5) / 0.8;
-    return slab_rise(t, 4.0) * (1.0 + 0.3 * exp(-0.5 * b * b));
 }
 
 /* Contrast between reconstructed curves: a 1 mm slab region in a 4 mm
@@ -856,13 +1003,6 @@ static void test_reduce__threads_do_not_change_results(void **state)
     synth_free(s);
 }
 
-static double jnum(const cJSON *o, const char *key)
-{
-    const cJSON *v = cJSON_GetObjectItem(o, key);
-    if (!cJSON_IsNumber(v))
-        fail_msg("parameters: %s missing", key);
-    return v->valuedouble;
-}
 
 /* The parameters name the software version and every option in force,
  * the sample times and edges; the map's channels carry quantities, units
@@ -918,6 +1058,13 @@ static void test_reduce__parameters_record_everything_used(void **state)
     assert_int_equal(st.frames_used, s->nframes); /* 12 s window and truncation */
     assert_close(jnum(j, "diffusivity_mm2_s"), 0.45, 0, "diffusivity");
     assert_string_equal(cJSON_GetObjectItem(j, "depth_method")->valuestring, "peak d2");
+    cJSON *pk = cJSON_GetObjectItem(j, "peak_d2");
+    assert_string_equal(cJSON_GetObjectItem(pk, "rule")->valuestring,
+                        "first significant interior maximum");
+    assert_close(jnum(pk, "min_d2"), PL_REDUCE_DEFAULT_PEAK_MIN_D2, 0, "peak threshold");
+    assert_close(jnum(pk, "min_snr"), PL_REDUCE_DEFAULT_PEAK_MIN_SNR, 0, "peak ratio");
+    assert_close(jnum(pk, "min_snr_share_of_largest"), PL_REDUCE_PEAK_LOBE_RATIO, 0,
+                 "share of the largest ratio");
     assert_int_equal(jnum(j, "time_products"), PL_REDUCE_AT_CONTRAST | PL_REDUCE_AT_D2);
     cJSON *ph = cJSON_GetObjectItem(j, "pulse_phase");
     assert_int_equal(jnum(ph, "samples"), 64);
@@ -948,6 +1095,18 @@ static void test_reduce__refuses_bad_input(void **state)
     o.degree = 16;
     assert_int_equal(pl_reducer_new(&r, 2, 2, s->times, s->nframes, 5, &o, &err), PL_EINVAL);
     assert_msg_has(&err, "degree 16");
+    o = (pl_reduce_options)PL_REDUCE_OPTIONS_INIT;
+    o.peak_rule = (pl_peak_rule)7;
+    assert_int_equal(pl_reducer_new(&r, 2, 2, s->times, s->nframes, 5, &o, &err), PL_EINVAL);
+    assert_msg_has(&err, "peak rule 7");
+    o = (pl_reduce_options)PL_REDUCE_OPTIONS_INIT;
+    o.peak_min_d2 = -0.1;
+    assert_int_equal(pl_reducer_new(&r, 2, 2, s->times, s->nframes, 5, &o, &err), PL_EINVAL);
+    assert_msg_has(&err, "peak threshold -0.1");
+    o = (pl_reduce_options)PL_REDUCE_OPTIONS_INIT;
+    o.peak_min_snr = INFINITY;
+    assert_int_equal(pl_reducer_new(&r, 2, 2, s->times, s->nframes, 5, &o, &err), PL_EINVAL);
+    assert_msg_has(&err, "signal-to-noise threshold inf");
     o = (pl_reduce_options)PL_REDUCE_OPTIONS_INIT;
     o.ref_x = 1;
     o.ref_w = 2;
@@ -1144,10 +1303,20 @@ static void test_reduce__sequence_file_matches_direct_frames(void **state)
     synth_free(s);
 }
 
-/* ---- simulated delaminations ------------------------------------------------ */
+/* ---- simulated laminate ---------------------------------------------------- */
+
+/* The carbon-fibre laminate of the simulated scenes: rho 1560 kg/m3, c 1200
+ * J/kgK, k 3.5 / 0.7 W/mK in the plane and 0.75 W/mK through the thickness,
+ * so alpha = 0.40 mm^2/s (from memory of handbook values), 8 kJ/m^2
+ * absorbed (from memory, a typical flash). */
+#define SIM_LAMINATE                                                                   \
+    "\"laminate\": {\"thickness_mm\": %g, \"density_kg_m3\": 1560, "                   \
+    "\"specific_heat_j_kgk\": 1200, \"conductivity_along_w_mk\": 3.5, "                \
+    "\"conductivity_across_w_mk\": 0.7, \"conductivity_through_w_mk\": 0.75}, "        \
+    "\"flash\": {\"energy_j_m2\": 8000}, "
 
 typedef struct sim_feed {
-    pl_reducer *r;
+    pl_reducer *r[2];
     const double *times;
 } sim_feed;
 
@@ -1156,97 +1325,309 @@ static int feed_frame(void *ud, uint32_t index, double time_s, const float *kelv
     sim_feed *f = ud;
     if (fabs(time_s - f->times[index]) > 1e-9)
         return PL_EINVAL;
-    return pl_reducer_frame(f->r, index, kelvin, NULL);
+    for (int i = 0; i < 2; i++) {
+        int rc = f->r[i] ? pl_reducer_frame(f->r[i], index, kelvin, NULL) : PL_OK;
+        if (rc)
+            return rc;
+    }
+    return PL_OK;
 }
 
-/*
- * The issue's requirement on simulated flat-bottom delaminations (lib/sim):
- * a 4 mm carbon-fibre laminate (rho 1560 kg/m3, c 1200 J/kgK, k 3.5 / 0.7
- * W/mK in the plane and 0.75 W/mK through the thickness, so alpha = 0.40
- * mm^2/s; from memory of handbook values), 8 kJ/m^2 absorbed, seven
- * circular delaminations of 20 mm at 0.5-2.0 mm, 50 frames/s for 20 s,
- * NETD 20 mK. A flat-bottom defect is an air-filled void of a few mm
- * behind the remaining ligament: about 0.1 m^2K/W (3 mm of air at 0.026
- * W/mK, from memory). With the default method the depth at each defect's
- * centre (mean of 3x3 pixels) must be found (none missed: within 25 %)
- * and the mean error at most 10 %; both estimators are printed.
- *
- * Measured: peak d2 -4.5, -3.2, -0.1, -0.7, +2.1, +1.3, +0.0 % (mean 1.7 %);
- * slab fit +17, +13, +11, +9, +9, +8, +7 % (mean 10.4 %: lateral flow and
- * the finite resistance bend the curve away from the adiabatic slab late
- * in the window). With a 25 um air gap (9.6e-4 m^2K/W, the simulator's
- * default) the reflection is partial: its d2 peak (0.1-0.26) is smaller
- * than the back wall's (about 0.5 at 13 s), so the largest-maximum rule
- * reports the back wall for most depths.
- */
-static void test_reduce__depth_on_simulated_delaminations(void **state)
+/* Simulate `scene` once and reduce it with the options o[0] and, when
+ * o[1] is not NULL, o[1] too (the same frames), each with the scene's
+ * through-thickness diffusivity; the maps into m[]. */
+static void reduce_scene(const char *scene, const pl_reduce_options *const o[2], pl_map *m[2],
+                         pl_sim_info *info)
 {
-    (void)state;
-    static const double depth[] = {0.5, 0.75, 1.0, 1.25, 1.5, 1.75, 2.0};
-    char scene[4096];
-    int n = snprintf(scene, sizeof scene,
-                     "{\"seed\": 7, \"laminate\": {\"thickness_mm\": 4.0, "
-                     "\"density_kg_m3\": 1560, \"specific_heat_j_kgk\": 1200, "
-                     "\"conductivity_along_w_mk\": 3.5, \"conductivity_across_w_mk\": 0.7, "
-                     "\"conductivity_through_w_mk\": 0.75}, "
-                     "\"flash\": {\"energy_j_m2\": 8000}, "
-                     "\"camera\": {\"width\": 120, \"height\": 60, \"pitch_mm\": 1.0, "
-                     "\"frame_rate_hz\": 50, \"frame_count\": 1005, \"preflash_frames\": 5, "
-                     "\"netd_k\": 0.02}, \"defects\": [");
-    for (int d = 0; d < 7; d++)
-        n += snprintf(scene + n, sizeof scene - (size_t)n,
-                      "%s{\"kind\": \"delamination\", \"depth_mm\": %g, "
-                      "\"resistance_m2k_w\": 0.1, \"outline\": {\"shape\": \"circle\", "
-                      "\"centre_mm\": [%d, %d], \"diameter_mm\": 20}}",
-                      d ? ", " : "", depth[d], 15 + 30 * (d % 4), 15 + 30 * (d / 4));
-    snprintf(scene + n, sizeof scene - (size_t)n, "]}");
     pl_sim_scene *sc;
     pl_err err = {0};
     if (pl_sim_scene_parse(&sc, scene, "scene", &err))
         fail_msg("%s", err.msg);
-    pl_sim_info info;
-    pl_sim_scene_info(sc, &info);
-    assert_close(info.diffusivity_mm2_s[2], 0.40, 0.005, "through-thickness diffusivity");
-    double *times = malloc(info.frame_count * sizeof *times);
+    pl_sim_scene_info(sc, info);
+    assert_close(info->diffusivity_mm2_s[2], 0.40, 0.005, "through-thickness diffusivity");
+    double *times = malloc(info->frame_count * sizeof *times);
     assert_non_null(times);
-    for (uint32_t i = 0; i < info.frame_count; i++)
-        times[i] = i / info.frame_rate_hz - info.flash_time_s;
-    pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
-    o.diffusivity_mm2_s = info.diffusivity_mm2_s[2];
-    o.depth_method = PL_DEPTH_BOTH;
-    sim_feed feed = {NULL, times};
-    if (pl_reducer_new(&feed.r, info.width, info.height, times, info.frame_count,
-                       info.preflash_frames, &o, &err))
-        fail_msg("%s", err.msg);
+    for (uint32_t i = 0; i < info->frame_count; i++)
+        times[i] = i / info->frame_rate_hz - info->flash_time_s;
+    sim_feed feed = {{NULL, NULL}, times};
+    for (int i = 0; i < 2; i++) {
+        if (!o[i])
+            continue;
+        pl_reduce_options oi = *o[i];
+        oi.diffusivity_mm2_s = info->diffusivity_mm2_s[2];
+        if (pl_reducer_new(&feed.r[i], info->width, info->height, times, info->frame_count,
+                           info->preflash_frames, &oi, &err))
+            fail_msg("%s", err.msg);
+    }
     if (pl_sim_run_frames(sc, feed_frame, &feed, NULL, NULL, &err))
         fail_msg("simulation: %s", err.msg);
-    pl_map *m;
-    if (pl_reducer_finish(feed.r, &m, NULL, &err))
-        fail_msg("%s", err.msg);
-    const float *d2 = channel(m, "depth", "peak d2"), *fit = channel(m, "depth", "slab fit");
+    for (int i = 0; i < 2; i++) {
+        m[i] = NULL;
+        if (feed.r[i] && pl_reducer_finish(feed.r[i], &m[i], NULL, &err))
+            fail_msg("%s", err.msg);
+        pl_reducer_free(feed.r[i]);
+    }
+    free(times);
+    pl_sim_scene_free(sc);
+}
+
+/* The time of the peak, its value and the depth agree with the rule
+ * everywhere: all three NaN, or a value of at least the threshold (the
+ * first-significant rule) and the depth of the time. */
+static void assert_peak_channels_agree(const pl_map *m, int first_significant, double alpha)
+{
+    const float *t = channel(m, "time-of-peak-d2", "peak"),
+                *v = channel(m, "log-derivative-2", "peak"), *d = channel(m, "depth", "peak d2");
+    for (size_t p = 0; p < (size_t)m->width * m->height; p++) {
+        if (isnan(t[p])) {
+            assert_true(isnan(v[p]) && isnan(d[p]));
+            continue;
+        }
+        assert_true(v[p] > 0);
+        if (first_significant && !(v[p] >= PL_REDUCE_DEFAULT_PEAK_MIN_D2 * (1 - 1e-6)))
+            fail_msg("pixel %zu: peak d2 %g below the threshold", p, v[p]);
+        assert_rel(d[p], sqrt(M_PI * alpha * t[p]), 1e-5, "depth of the peak time");
+    }
+}
+
+/*
+ * A sound laminate whose back wall lies beyond the window gives no depth.
+ * A 4 mm plate (its back wall at L^2 / (pi alpha) = 12.7 s) seen for 240
+ * frames at 30 Hz (8 s) with NETD 20 mK: noise and the fit leave interior
+ * maxima of d2 on every pixel, and the largest-maximum rule turns them into
+ * depths (about 1.3 mm on average here: a defect everywhere to an
+ * inspector); with the default rule at most 0.5 % of the pixels may keep
+ * one (measured: none of 1200 here; 0.03 % over all the configurations
+ * below, at most 1 % in the worst). The thresholds come from this
+ * measurement (tests/bench/reduce_peak_study, simulated as here; sound
+ * laminate 2.8 / 4.0 / 5.2 / 6.4 mm, 30 / 60 / 100 Hz, NETD 10 / 20 / 40
+ * mK, 8 and 20 s, 3 x 24 x 24 pixels each, 124416 pixels, the maxima
+ * before the back wall; delaminations of 20 mm at 0.5-2.0 mm in 4 mm, 3x3
+ * pixels at each centre, 30 Hz / 8 s and 50 Hz / 20 s, NETD 20 and 40 mK,
+ * the maximum nearest the defect's depth; quantiles):
+ *
+ *   d2 value of the maxima           1 %    50 %    99 %   99.9 %   max
+ *     spurious, sound laminate     -0.002  0.011   0.162   0.321   0.783
+ *     back wall                     0.184  0.477   0.613   0.738   0.991
+ *     true, 10 um air gap           0.038  0.077   0.209   0.406   0.406
+ *     true, 25 um air gap           0.092  0.148   0.330   0.351   0.351
+ *     true, 100 um air gap          0.231  0.293   0.452   0.460   0.460
+ *     true, flat bottom (0.1)       0.392  0.431   0.507   0.534   0.534
+ *   signal-to-noise ratio (value / noise of d2 there)
+ *     spurious, sound laminate     -0.24   1.12    4.64    6.60   11.07
+ *     true, 10 um air gap           1.38   7.03   23.7    24.2    24.2
+ *     true, 25 um air gap           2.89  13.7    39.9    45.5    45.5
+ *     true, 100 um air gap          6.97  26.5    59.6    63.1    63.1
+ *     true, flat bottom             12.0  38.1    74.0    81.3    81.3
+ *
+ * A threshold on the value alone cannot separate them: noisy sound maxima
+ * (30 Hz, 40 mK, short windows) reach 0.3-0.8, beyond the 25 um gaps'
+ * 0.1-0.35 (the prominence separates them no better: the polynomial dives
+ * at the window's ends). Over their noise they separate, but for two
+ * families: maxima of 0.01-0.02 well above their noise (misfit of the
+ * polynomial where the noise is small: 2.8 mm, 100 Hz, 10 mK), which the
+ * least value of 0.04 removes, and the ringing of the polynomial before a
+ * sharp reflector (a flat bottom at 0.75 mm leaves a maximum of 0.16 at
+ * 0.08 s, ratio 5-8, beside the true 0.43 at ratio 50-80), which the share
+ * of the largest ratio removes (such early maxima reach at most 0.20 of
+ * the true one's ratio, a true reflector before a larger back wall at
+ * least 0.37). Chosen: value >= 0.04, ratio >= 6 and >= 0.3 of the
+ * largest. Outcome over the same sets: sound pixels given a false depth
+ * 0.030 % (0.11 % with a ratio of 5, 0.01 % with 7; the largest rule
+ * 63 %), the worst configuration 1 % (4 mm, 100 Hz, 10 mK, cut at 8 s: the
+ * back wall's rise cut by the window's end); mean |depth error| at 50 Hz /
+ * 20 s / 20 mK: 10 um gap 15.6 %, 25 um 12.0 %, 100 um 6.2 %, flat bottom
+ * 1.7 %, none missed; at 30 Hz / 8 s / 40 mK the deepest 10 and 25 um
+ * gaps are not found (their ratio falls to 2-5): too little signal.
+ */
+static void test_reduce__no_depth_on_sound_laminate(void **state)
+{
+    (void)state;
+    char scene[2048];
+    snprintf(scene, sizeof scene,
+             "{\"seed\": 21, " SIM_LAMINATE
+             "\"camera\": {\"width\": 40, \"height\": 30, \"pitch_mm\": 1.0, "
+             "\"frame_rate_hz\": 30, \"frame_count\": 245, \"preflash_frames\": 5, "
+             "\"netd_k\": 0.02}}",
+             4.0);
+    pl_reduce_options first = PL_REDUCE_OPTIONS_INIT, largest = PL_REDUCE_OPTIONS_INIT;
+    first.diffusivity_mm2_s = largest.diffusivity_mm2_s = ALPHA;
+    largest.peak_rule = PL_PEAK_LARGEST;
+    const pl_reduce_options *o[2] = {&first, &largest};
+    pl_map *m[2];
+    pl_sim_info info;
+    reduce_scene(scene, o, m, &info);
+    size_t npix = (size_t)info.width * info.height, with[2] = {0, 0};
+    double mean_largest = 0;
+    for (int i = 0; i < 2; i++) {
+        assert_peak_channels_agree(m[i], i == 0, info.diffusivity_mm2_s[2]);
+        const float *d = channel(m[i], "depth", "peak d2");
+        for (size_t p = 0; p < npix; p++)
+            if (!isnan(d[p])) {
+                with[i]++;
+                if (i)
+                    mean_largest += d[p];
+            }
+    }
+    mean_largest /= with[1] ? (double)with[1] : 1.0;
+    printf("# sound 4 mm laminate, 8 s at 30 Hz: pixels with a depth: first significant %zu, "
+           "largest %zu (mean %.2f mm) of %zu\n",
+           with[0], with[1], mean_largest, npix);
+    assert_true((double)with[0] <= 0.005 * (double)npix);
+    assert_true((double)with[1] >= 0.9 * (double)npix); /* the old rule fails here */
+    pl_map_free(m[0]);
+    pl_map_free(m[1]);
+}
+
+/* Seven circular delaminations of 20 mm at 0.5-2.0 mm in a 4 mm laminate,
+ * 50 frames/s for 20 s, NETD 20 mK, each an interface of resistance
+ * `resistance` (NAN: the simulator's default, a 25 um air gap); the
+ * default depth map and the one of `other` (may be NULL); into [out]
+ * mean_depth the mean over the 3x3 pixels at each centre, [out] missing
+ * how many of those pixels have none. */
+static const double delam_depth[7] = {0.5, 0.75, 1.0, 1.25, 1.5, 1.75, 2.0};
+
+static void reduce_delaminations(double resistance, const pl_reduce_options *other,
+                                 double mean_depth[2][7], int missing[2][7],
+                                 double mean_other_fit[7])
+{
+    char scene[4096], res[64] = "";
+    if (!isnan(resistance))
+        snprintf(res, sizeof res, "\"resistance_m2k_w\": %g, ", resistance);
+    int n = snprintf(scene, sizeof scene,
+                     "{\"seed\": 7, " SIM_LAMINATE
+                     "\"camera\": {\"width\": 120, \"height\": 60, \"pitch_mm\": 1.0, "
+                     "\"frame_rate_hz\": 50, \"frame_count\": 1005, \"preflash_frames\": 5, "
+                     "\"netd_k\": 0.02}, \"defects\": [",
+                     4.0);
+    for (int d = 0; d < 7; d++)
+        n += snprintf(scene + n, sizeof scene - (size_t)n,
+                      "%s{\"kind\": \"delamination\", \"depth_mm\": %g, %s"
+                      "\"outline\": {\"shape\": \"circle\", \"centre_mm\": [%d, %d], "
+                      "\"diameter_mm\": 20}}",
+                      d ? ", " : "", delam_depth[d], res, 15 + 30 * (d % 4), 15 + 30 * (d / 4));
+    snprintf(scene + n, sizeof scene - (size_t)n, "]}");
+    pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
+    o.diffusivity_mm2_s = ALPHA;
+    const pl_reduce_options *os[2] = {&o, other};
+    pl_map *m[2];
+    pl_sim_info info;
+    reduce_scene(scene, os, m, &info);
+    for (int i = 0; i < 2; i++) {
+        if (!m[i])
+            continue;
+        assert_peak_channels_agree(m[i], i == 0, info.diffusivity_mm2_s[2]);
+        const float *dd = channel(m[i], "depth", "peak d2");
+        const float *fit = other && other->depth_method != PL_DEPTH_PEAK_D2 && i
+                               ? channel(m[i], "depth", "slab fit")
+                               : NULL;
+        for (int d = 0; d < 7; d++) {
+            double a = 0, b = 0;
+            int got = 0;
+            missing[i][d] = 0;
+            for (int dy = -1; dy <= 1; dy++)
+                for (int dx = -1; dx <= 1; dx++) {
+                    size_t p =
+                        (size_t)(15 + 30 * (d / 4) + dy) * info.width + 15 + 30 * (d % 4) + dx;
+                    if (isnan(dd[p])) {
+                        missing[i][d]++;
+                    } else {
+                        a += dd[p];
+                        got++;
+                    }
+                    if (fit)
+                        b += fit[p] / 9;
+                }
+            mean_depth[i][d] = got ? a / got : NAN;
+            if (fit)
+                mean_other_fit[d] = b;
+        }
+        pl_map_free(m[i]);
+    }
+}
+
+/*
+ * The issue's requirement on simulated flat-bottom delaminations (lib/sim):
+ * in the laminate above, seven circular delaminations of 20 mm at 0.5-2.0
+ * mm, 50 frames/s for 20 s, NETD 20 mK. A flat-bottom defect is an
+ * air-filled void of a few mm behind the remaining ligament: about 0.1
+ * m^2K/W (3 mm of air at 0.026 W/mK, from memory). With the default
+ * method the depth at each defect's centre (mean of 3x3 pixels) must be
+ * found (every pixel has one, and the mean is within 25 %) and the mean
+ * error at most 10 %; both estimators are printed.
+ *
+ * Measured: peak d2 -4.5, -3.2, -0.1, -0.7, +2.1, +1.3, +0.0 % (mean 1.7 %);
+ * slab fit +17, +13, +11, +9, +9, +8, +7 % (mean 10.4 %: lateral flow and
+ * the finite resistance bend the curve away from the adiabatic slab late
+ * in the window).
+ */
+static void test_reduce__depth_on_simulated_delaminations(void **state)
+{
+    (void)state;
+    pl_reduce_options both = PL_REDUCE_OPTIONS_INIT;
+    both.diffusivity_mm2_s = ALPHA;
+    both.depth_method = PL_DEPTH_BOTH;
+    double depth[2][7], fit[7];
+    int missing[2][7];
+    reduce_delaminations(0.1, &both, depth, missing, fit);
     double mean_d2 = 0, mean_fit = 0;
     printf("# simulated flat-bottom delaminations | error %%: peak d2 (default), slab fit\n");
     for (int d = 0; d < 7; d++) {
-        double a = 0, b = 0;
-        for (int dy = -1; dy <= 1; dy++)
-            for (int dx = -1; dx <= 1; dx++) {
-                size_t p = (size_t)(15 + 30 * (d / 4) + dy) * info.width + 15 + 30 * (d % 4) + dx;
-                a += d2[p] / 9;
-                b += fit[p] / 9;
-            }
-        double e1 = (a - depth[d]) / depth[d], e2 = (b - depth[d]) / depth[d];
-        printf("  %4.2f mm | %+6.1f %+6.1f\n", depth[d], 100 * e1, 100 * e2);
-        if (!(fabs(e1) <= 0.25))
-            fail_msg("delamination at %g mm missed: depth %g mm", depth[d], a);
+        double e1 = (depth[0][d] - delam_depth[d]) / delam_depth[d];
+        double e2 = (fit[d] - delam_depth[d]) / delam_depth[d];
+        printf("  %4.2f mm | %+6.1f %+6.1f\n", delam_depth[d], 100 * e1, 100 * e2);
+        /* the same frames give the same peak d2 depth with both methods asked */
+        assert_close(depth[1][d], depth[0][d], 1e-6, "peak d2 depth with both methods");
+        if (missing[0][d] || !(fabs(e1) <= 0.25))
+            fail_msg("delamination at %g mm missed: depth %g mm, %d pixels without",
+                     delam_depth[d], depth[0][d], missing[0][d]);
         mean_d2 += fabs(e1) / 7;
         mean_fit += fabs(e2) / 7;
     }
     printf("  mean    | %6.1f %6.1f\n", 100 * mean_d2, 100 * mean_fit);
     assert_true(mean_d2 <= 0.10);
-    pl_map_free(m);
-    pl_reducer_free(feed.r);
-    free(times);
-    pl_sim_scene_free(sc);
+}
+
+/*
+ * Delaminations that reflect only part of the heat: the simulator's
+ * default interface, a 25 um air gap (9.6e-4 m^2K/W), in the scene above.
+ * Their d2 peaks (0.10-0.27) are smaller than the back wall's (about 0.5
+ * at 13 s), so the largest-maximum rule reports the back wall for most of
+ * them; the default rule must find every one (every centre pixel has a
+ * depth, the mean within 25 %) with a mean error of at most 15 %. A
+ * partial reflector's peak comes early (heat leaks through it and the
+ * curve turns back before a perfect reflector's would), so the depths
+ * read shallow: a bias of the physics, not of the fit.
+ *
+ * Measured: -10.2, -11.8, -14.0, -12.3, -11.8, -12.1, -13.8 % (mean
+ * 12.3 %, all shallow); the largest rule reads 3.9-4.3 mm on five of seven.
+ */
+static void test_reduce__depth_on_air_gap_delaminations(void **state)
+{
+    (void)state;
+    pl_reduce_options largest = PL_REDUCE_OPTIONS_INIT;
+    largest.diffusivity_mm2_s = ALPHA;
+    largest.peak_rule = PL_PEAK_LARGEST;
+    double depth[2][7], bias = 0, mean = 0;
+    int missing[2][7], back_wall = 0;
+    reduce_delaminations(NAN, &largest, depth, missing, NULL);
+    printf("# simulated 25 um air-gap delaminations | depth mm (error %%): first "
+           "significant (default), largest\n");
+    for (int d = 0; d < 7; d++) {
+        double e = (depth[0][d] - delam_depth[d]) / delam_depth[d];
+        printf("  %4.2f mm | %5.2f (%+5.1f) %5.2f\n", delam_depth[d], depth[0][d], 100 * e,
+               depth[1][d]);
+        if (missing[0][d] || !(fabs(e) <= 0.25))
+            fail_msg("delamination at %g mm missed: depth %g mm, %d pixels without",
+                     delam_depth[d], depth[0][d], missing[0][d]);
+        bias += e / 7;
+        mean += fabs(e) / 7;
+        back_wall += depth[1][d] > 3.0;
+    }
+    printf("  mean error %.1f %%, bias %+.1f %%; the largest rule reads the back wall on %d\n",
+           100 * mean, 100 * bias, back_wall);
+    assert_true(mean <= 0.15);
+    assert_true(back_wall >= 4); /* what the default rule is for */
 }
 
 int main(void)
@@ -1258,6 +1639,7 @@ int main(void)
         cmocka_unit_test(test_reduce__depth_on_analytic_slabs_meets_requirement),
         cmocka_unit_test(test_reduce__pulse_phase_follows_slab_transform),
         cmocka_unit_test(test_reduce__dft_matches_numpy_rfft),
+        cmocka_unit_test(test_reduce__fast_math_matches_libm),
         cmocka_unit_test(test_reduce__masks_saturated_and_dead_pixels),
         cmocka_unit_test(test_reduce__subtracts_preflash_mean),
         cmocka_unit_test(test_reduce__contrast_against_reference),
@@ -1267,6 +1649,8 @@ int main(void)
         cmocka_unit_test(test_reduce__progress_and_cancel),
         cmocka_unit_test(test_reduce__sequence_file_matches_direct_frames),
         cmocka_unit_test(test_reduce__depth_on_simulated_delaminations),
+        cmocka_unit_test(test_reduce__depth_on_air_gap_delaminations),
+        cmocka_unit_test(test_reduce__no_depth_on_sound_laminate),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -13,9 +13,14 @@ Reads a plyledger-sequence-1 manifest with a float32 .npy cube, then:
   - ln of the mean rise per log bin; one shared Vandermonde matrix in the
     centred and scaled ln t, numpy.linalg.pinv applied to all pixels at once
     (a pixel with any invalid bin is masked, not refitted);
-  - time of the peak second log-derivative: the second derivative evaluated
-    on 256 points for all pixels (in chunks), the largest positive interior
-    local maximum, refined by a parabola; depth = sqrt(pi alpha t*);
+  - time of the peak second log-derivative by the default rule of
+    plyledger/reduce.h: the third derivative on 64 grid points for all
+    pixels (in chunks); at each sign change from + to - (an interior
+    maximum of d2) d2 at the secant root and its noise (the per-frame noise
+    from the weighted residuals, propagated through the pseudo-inverse);
+    the earliest maximum with d2 >= 0.04 (per (ln t)^2), d2 / noise >= 6
+    and >= 0.3 of the pixel's largest such ratio, refined by three Newton
+    steps; depth = sqrt(pi alpha t*);
   - contrast against the per-bin median over the valid pixels of every s-th
     row (at most 16384 pixels), peak
     contrast over the sample times refined by a parabola, and its time;
@@ -33,7 +38,8 @@ import numpy as np
 
 START, END, SAMPLES, DEGREE = 0.05, 20.0, 64, 10   # PL_REDUCE_DEFAULT_*
 NFREQ, M, ALPHA = 4, 64, 0.4
-GRID, CHUNK, REF_MAX = 256, 32768, 16384
+GRID, CHUNK, REF_MAX = 64, 32768, 16384
+MIN_D2, MIN_SNR, LOBE = 0.04, 6.0, 0.3                # PL_REDUCE_DEFAULT_PEAK_*
 
 
 def npy_layout(path):
@@ -135,36 +141,69 @@ def main(argv):
     cref = P @ zref
     uref = np.median(U[:, sample], axis=1)
 
-    # peak of the second log-derivative by dense evaluation
+    # peak of the second log-derivative: the first significant maximum
     xg = np.linspace(x[0], x[-1], GRID)
     j = np.arange(DEGREE + 1)
-    B2 = np.where(j >= 2, j * (j - 1) * xg[:, None] ** np.maximum(j - 2, 0), 0.0).astype(np.float32)
+
+    def basis(xs, order):
+        """d^order/dx^order of x^j at xs: (len(xs), DEGREE + 1)"""
+        f = np.ones_like(j, dtype=float)
+        for o in range(order):
+            f = f * (j - o)
+        return np.where(j >= order, f * xs[:, None] ** np.maximum(j - order, 0), 0.0)
+
+    B3 = basis(xg, 3).astype(np.float32)
+    W2 = (basis(xg, 2) @ P) ** 2                         # squared weights of d2 (GRID, n)
+    frames = np.array([np.count_nonzero(lbin == b) for b in bins], dtype=float)
     tstar = np.full(npix, np.nan, dtype=np.float32)
     d2peak = np.full(npix, np.nan, dtype=np.float32)
     pc = np.full(npix, np.nan, dtype=np.float32)
     pct = np.full(npix, np.nan, dtype=np.float32)
     Vf = V.astype(np.float32)
     ref_rise = np.exp(V @ cref).astype(np.float32)
-    dx = xg[1] - xg[0]
+    h = xg[1] - xg[0]
     for a in range(0, npix, CHUNK):
         c = C[:, a:a + CHUNK]
-        D = B2 @ c
-        inner = D[1:-1]
-        is_max = (inner > D[:-2]) & (inner >= D[2:]) & (inner > 0)
-        val = np.where(is_max, inner, -np.inf)
-        k = np.argmax(val, axis=0)
-        has = np.isfinite(val[k, np.arange(val.shape[1])])
-        k1 = k + 1
-        cols = np.arange(D.shape[1])
-        y0, y1, y2 = D[k1 - 1, cols], D[k1, cols], D[k1 + 1, cols]
-        den = y0 - 2 * y1 + y2
+        cols = np.arange(c.shape[1])
+        D3 = B3 @ c                                      # (GRID, chunk)
+        is_max = (D3[:-1] > 0) & (D3[1:] <= 0)           # interval g - 1 .. g
         with np.errstate(invalid='ignore', divide='ignore'):
-            delta = np.where(den != 0, 0.5 * (y0 - y2) / den, 0.0)
-        xp = xg[k1] + delta * dx
-        tstar[a:a + CHUNK] = np.where(has, np.exp(centre + scale * xp), np.nan)
-        d2peak[a:a + CHUNK] = np.where(has, (y1 - 0.25 * (y0 - y2) * delta) / scale ** 2, np.nan)
+            frac = np.where(is_max, D3[:-1] / (D3[:-1] - D3[1:]), 0.5)
+        xs = xg[:-1, None] + frac * h                    # secant roots
+        cd = c.astype(np.float64)
+        v = np.zeros_like(xs)
+        for i in range(DEGREE, 1, -1):                   # d2 by Horner
+            v = v * xs + i * (i - 1) * cd[i]
+        Yf = Vf @ c
+        R = np.exp(Yf)
+        sigma2 = ((Z[:, a:a + CHUNK] - Yf) ** 2 * frames[:, None] * R ** 2).sum(axis=0) / (
+            len(x) - DEGREE - 1)
+        Q = 1.0 / (frames[:, None] * R ** 2)
+        var = ((1 - frac) * (W2[:-1] @ Q) + frac * (W2[1:] @ Q)) * sigma2
+        with np.errstate(invalid='ignore', divide='ignore'):
+            snr = np.where(is_max & (v > 0) & (v >= MIN_D2 * scale ** 2), v / np.sqrt(var), np.nan)
+        best = np.nanmax(np.where(np.isnan(snr), -np.inf, snr), axis=0)
+        ok = (snr >= MIN_SNR) & (snr >= LOBE * best)
+        first = np.argmax(ok, axis=0)
+        has = ok[first, cols]
+        xr = xs[first, cols]
+        c3 = np.array([[i * (i - 1) * (i - 2) for i in range(DEGREE + 1)]]).T * cd
+        for _ in range(3):                               # Newton on d3
+            f3 = np.zeros_like(xr)
+            f4 = np.zeros_like(xr)
+            for i in range(DEGREE, 2, -1):
+                f3 = f3 * xr + c3[i]
+            for i in range(DEGREE, 3, -1):
+                f4 = f4 * xr + (i - 3) * c3[i]
+            with np.errstate(invalid='ignore', divide='ignore'):
+                xr = np.clip(xr - f3 / f4, xg[first], xg[first + 1])
+        vr = np.zeros_like(xr)
+        for i in range(DEGREE, 1, -1):
+            vr = vr * xr + i * (i - 1) * cd[i]
+        tstar[a:a + CHUNK] = np.where(has, np.exp(centre + scale * xr), np.nan)
+        d2peak[a:a + CHUNK] = np.where(has, vr / scale ** 2, np.nan)
         # peak contrast over the sample times, refined by a parabola
-        R = np.exp(Vf @ c) - ref_rise[:, None]
+        R = R - ref_rise[:, None]
         braw = np.argmax(R, axis=0)
         inside = (braw > 0) & (braw < len(x) - 1)
         b = np.clip(braw, 1, len(x) - 2)

@@ -3,14 +3,24 @@
 
 All binary files are raw little-endian arrays.
 
-  reduce_ref.py polyfit IN DEG XLO XHI OUT [XQ...]
-      IN holds float64 x[n] then z[n]. numpy.polyfit(x, z, DEG) fits them;
-      OUT receives float64: the DEG + 1 coefficients, constant first; then
-      for each XQ the values of the fit and of its first and second
-      derivatives (numpy.polyder / numpy.polyval); then the abscissa of the
-      largest positive interior maximum of the second derivative in
-      (XLO, XHI), from numpy.roots of the third derivative and the sign of
-      the fourth (NaN when there is none).
+  reduce_ref.py polyfit IN DEG XLO XHI SCALE MIN_D2 MIN_SNR RATIO OUT [XQ...]
+      IN holds float64 x[n], z[n] and frames[n] (the frames averaged in
+      each sample). numpy.polyfit(x, z, DEG) fits them; OUT receives
+      float64: the DEG + 1 coefficients, constant first; then for each XQ
+      the values of the fit and of its first and second derivatives
+      (numpy.polyder / numpy.polyval); then the abscissae of two interior
+      maxima of the second derivative in (XLO, XHI), found from numpy.roots
+      of the third derivative and the sign of the fourth (NaN when there is
+      none):
+        - the largest positive one;
+        - the earliest significant one: its value d2 / SCALE^2 at least
+          MIN_D2, its signal-to-noise ratio at least MIN_SNR and at least
+          RATIO times the largest ratio among the maxima reaching MIN_D2.
+          The noise of the fitted d2 at r is sigma * sqrt(sum_b w_b^2 /
+          (frames_b R_b^2)), w = pinv(V)^T b(r) with numpy.linalg.pinv of
+          the Vandermonde matrix V and b(r) the second derivatives of the
+          monomials at r, R_b the fitted rise exp(fit) and sigma^2 =
+          sum_b (z_b - fit_b)^2 frames_b R_b^2 / (n - DEG - 1).
 
   reduce_ref.py slab OUT V...
       The adiabatic slab's front-face response F(u) = 1 + 2 sum exp(-n^2
@@ -44,28 +54,52 @@ from scipy.optimize import minimize_scalar
 
 
 def polyfit(args):
-    path, deg, xlo, xhi, out = args[0], int(args[1]), float(args[2]), float(args[3]), args[4]
-    xq = [float(a) for a in args[5:]]
+    path, deg = args[0], int(args[1])
+    xlo, xhi, scale = float(args[2]), float(args[3]), float(args[4])
+    min_d2, min_snr, ratio, out = float(args[5]), float(args[6]), float(args[7]), args[8]
+    xq = [float(a) for a in args[9:]]
     raw = np.fromfile(path, dtype='<f8')
-    n = raw.size // 2
-    x, z = raw[:n], raw[n:]
+    n = raw.size // 3
+    x, z, frames = raw[:n], raw[n:2 * n], raw[2 * n:]
     p = np.polyfit(x, z, deg)
     res = list(p[::-1])
     d1, d2 = np.polyder(p, 1), np.polyder(p, 2)
     for q in xq:
         res += [np.polyval(p, q), np.polyval(d1, q), np.polyval(d2, q)]
     d3, d4 = np.polyder(p, 3), np.polyder(p, 4)
-    best, bestv = np.nan, 0.0
+    maxima = []
     for root in np.roots(d3):
         if abs(root.imag) > 1e-9 * max(1.0, abs(root.real)):
             continue
         r = root.real
-        if not (xlo < r < xhi) or np.polyval(d4, r) >= 0:
-            continue
+        if xlo < r < xhi and np.polyval(d4, r) < 0:
+            maxima.append(r)
+    maxima.sort()
+    largest, largest_v = np.nan, 0.0
+    for r in maxima:
         v = np.polyval(d2, r)
-        if v > bestv:
-            best, bestv = r, v
-    res.append(best)
+        if v > largest_v:
+            largest, largest_v = r, v
+    V = np.vander(x, deg + 1, increasing=True)
+    P = np.linalg.pinv(V)
+    fit = V @ P @ z
+    rise = np.exp(fit)
+    sigma2 = np.sum((z - fit) ** 2 * frames * rise ** 2) / (n - deg - 1)
+    j = np.arange(deg + 1)
+    cand = []
+    for r in maxima:
+        v = np.polyval(d2, r)
+        if v > 0 and v / scale ** 2 >= min_d2:
+            b = np.where(j >= 2, j * (j - 1) * r ** np.maximum(j - 2, 0), 0.0)
+            w = P.T @ b
+            cand.append((r, v / np.sqrt(sigma2 * np.sum(w ** 2 / (frames * rise ** 2)))))
+    first = np.nan
+    best = max([c[1] for c in cand], default=0.0)
+    for r, snr in cand:
+        if snr >= min_snr and snr >= ratio * best:
+            first = r
+            break
+    res += [largest, first]
     np.asarray(res, dtype='<f8').tofile(out)
 
 

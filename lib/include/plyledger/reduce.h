@@ -23,15 +23,38 @@
  *    pseudo-inverse (Householder QR) is computed once. From the
  *    coefficients, analytically: the reconstructed rise, the first and
  *    second log-derivatives d ln dT / d ln t and d2 ln dT / d ln t^2.
- *  - Time of the peak second log-derivative t*: the largest interior
- *    maximum of the fitted second log-derivative that is positive (NaN
- *    where there is none: a maximum on the first or last sample does not
- *    count), found from the sign changes of the third derivative on a grid
- *    of 64 intervals, each refined by safeguarded Newton steps. For an
- *    adiabatic slab of thickness L and through-thickness diffusivity alpha,
- *    the exact series peaks at t* = L^2/(pi alpha) (checked in the tests),
- *    so depth L = sqrt(pi alpha t*). A partial reflector (a thin air gap)
- *    gives a smaller peak than the back wall's, which then wins.
+ *  - Time of the peak second log-derivative t*. The interior maxima of the
+ *    fitted second log-derivative d2 (a maximum on the first or last sample
+ *    does not count) are found from the sign changes of the third
+ *    derivative on a grid of 63 intervals. By default
+ *    (PL_PEAK_FIRST_SIGNIFICANT) t* is the earliest of them that is
+ *    significant: its value at least `peak_min_d2`, its signal-to-noise
+ *    ratio (value over noise) at least `peak_min_snr` and at least
+ *    PL_REDUCE_PEAK_LOBE_RATIO times the largest ratio among the pixel's
+ *    maxima of value at least `peak_min_d2`. The noise is the standard
+ *    deviation of the fitted d2 at that time propagated from the samples'
+ *    own: a sample, the mean of n frames of rise R, has ln noise sigma / (R
+ *    sqrt(n)), sigma the per-frame temperature noise, which is estimated
+ *    from the pixel's residuals (so misfit counts as noise). The last
+ *    condition rejects the ringing of the polynomial around a strong
+ *    reflector: a sharp peak (a flat-bottom defect) leaves early side
+ *    lobes of a third of its value but a tenth of its ratio. Heat meets the
+ *    shallowest reflector first, and a partial reflector (a thin air gap)
+ *    gives a smaller peak than the back wall's, so the earliest
+ *    significant peak is the defect; where no reflector lies inside the
+ *    window, noise and the fit leave only maxima that are small or not
+ *    above their noise, and t* is NaN. The thresholds were chosen by
+ *    measurement on simulated sound laminate and delaminations (see
+ *    PL_REDUCE_DEFAULT_PEAK_MIN_D2). PL_PEAK_LARGEST keeps the largest
+ *    positive interior maximum instead, without thresholds. The chosen
+ *    maximum is refined by safeguarded Newton steps; its time and value
+ *    are the "time-of-peak-d2" and peak "log-derivative-2" channels and
+ *    give the depth (all three NaN where no maximum qualifies). For an
+ *    adiabatic slab of thickness L and through-thickness diffusivity
+ *    alpha, the exact series peaks at t* = L^2/(pi alpha) (checked in the
+ *    tests), so depth L = sqrt(pi alpha t*). A partial reflector peaks
+ *    earlier than a perfect one at its depth: with a 25 um air gap the
+ *    depth reads about 12 % shallow (measured).
  *  - A second depth estimator fits the adiabatic finite-slab solution
  *    (Carslaw and Jaeger 1959, "Conduction of heat in solids", 2nd ed.,
  *    section 3.3) to each pixel's samples: ln dT = a + ln F(alpha t / L^2),
@@ -51,7 +74,10 @@
  *    truncation time is resampled uniformly by averaging the frames inside
  *    `phase_samples` equal bins (so memory does not grow with the frame
  *    count; a bin without a frame is interpolated linearly between its
- *    neighbours), and transformed with a real FFT (kissfft). Phase is
+ *    neighbours), and transformed: at few frequencies (at most 2 log2 M)
+ *    by the direct sum over the M samples, which then costs less than a
+ *    whole FFT, else by a real FFT (kissfft); the parameters name the one
+ *    used, and both equal numpy.fft.rfft (see the tests). Phase is
  *    arg F_k (numpy.fft.rfft's convention), amplitude 2 |F_k| / M, at the
  *    frequencies f_k = k / t_trunc, k = 1..phase_frequencies; phase
  *    contrast is the phase minus the reference curve's, wrapped to
@@ -78,11 +104,15 @@
  * pl_reducer_free() releases the reducer. pl_reduce_sequence() does all of
  * this for a sequence opened with pl_seq_open().
  *
- * Threads. The work is split over rows between `threads` worker threads
- * (0: one per online processor). Each pixel is computed the same way
- * whatever the split, so results are bit-for-bit independent of the
- * thread count. The progress callback is called only from the thread that
- * calls pl_reducer_frame() / pl_reducer_finish().
+ * Threads. The work is shared by `threads` threads (0: one per online
+ * processor): the caller's and threads - 1 workers, which take blocks of
+ * pixels as they come free; while frames stream in, the caller reads the
+ * next frames while the workers accumulate the previous ones, then joins
+ * them. Each pixel is computed the same way whoever takes it, so results
+ * are bit-for-bit independent of the thread count (and of the processor's
+ * vector instructions: the AVX2 versions of the inner loops perform the
+ * same operations). The progress callback is called only from the thread
+ * that calls pl_reducer_frame() / pl_reducer_finish().
  *
  * Output map. Channels, in this order (quantity, unit, label):
  *   for each chosen time t, as selected by `time_products`:
@@ -124,6 +154,16 @@ extern "C" {
 /** Default number of uniform samples for pulse phase. */
 #define PL_REDUCE_DEFAULT_PHASE_SAMPLES 64u
 
+/** Least value of a significant maximum of the second log-derivative, and
+ * least ratio of it to its noise (measured on simulated sound laminate and
+ * delaminations; the table is in tests/test_reduce.c above
+ * test_reduce__no_depth_on_sound_laminate). */
+#define PL_REDUCE_DEFAULT_PEAK_MIN_D2 0.04
+#define PL_REDUCE_DEFAULT_PEAK_MIN_SNR 6.0
+/** A significant maximum's signal-to-noise ratio is at least this share of
+ * the pixel's largest (measured with the thresholds above). */
+#define PL_REDUCE_PEAK_LOBE_RATIO 0.3
+
 /** Limits of the options. */
 #define PL_REDUCE_MIN_DEGREE 2u
 #define PL_REDUCE_MAX_DEGREE 15u
@@ -138,6 +178,16 @@ extern "C" {
 #define PL_REDUCE_AT_D1 0x08u         /**< d ln dT / d ln t */
 #define PL_REDUCE_AT_D2 0x10u         /**< d2 ln dT / d ln t^2 */
 #define PL_REDUCE_AT_ALL 0x1fu
+
+/** Which interior maximum of the second log-derivative gives t*. */
+typedef enum pl_peak_rule {
+    PL_PEAK_FIRST_SIGNIFICANT = 0, /**< the earliest maximum whose value reaches
+                                        peak_min_d2 and whose ratio to its noise
+                                        reaches peak_min_snr and
+                                        PL_REDUCE_PEAK_LOBE_RATIO of the pixel's
+                                        largest */
+    PL_PEAK_LARGEST = 1,           /**< the largest positive maximum (no thresholds) */
+} pl_peak_rule;
 
 /** How depth is estimated (needs a diffusivity). */
 typedef enum pl_depth_method {
@@ -168,16 +218,24 @@ typedef struct pl_reduce_options {
     uint32_t phase_frequencies; /**< pulse-phase frequencies; 0: no phase maps */
     uint32_t phase_samples;    /**< uniform bins, even, > 2 * phase_frequencies */
     double phase_end_s;        /**< truncation time; NaN: the fit window's end */
-    uint32_t threads;          /**< worker threads; 0: one per online processor */
+    uint32_t threads;          /**< threads, the caller's included; 0: one per
+                                    online processor */
     pl_progress_fn progress;   /**< may be NULL */
     void *progress_data;       /**< passed to progress */
+    pl_peak_rule peak_rule;    /**< default PL_PEAK_FIRST_SIGNIFICANT */
+    double peak_min_d2;        /**< least value of a significant maximum of d2 (per
+                                    (ln t)^2, >= 0); NaN:
+                                    PL_REDUCE_DEFAULT_PEAK_MIN_D2 */
+    double peak_min_snr;       /**< least ratio of that value to its noise (>= 0);
+                                    NaN: PL_REDUCE_DEFAULT_PEAK_MIN_SNR */
 } pl_reduce_options;
 
 #define PL_REDUCE_OPTIONS_VERSION 1
 #define PL_REDUCE_OPTIONS_INIT                                                        \
     { PL_REDUCE_OPTIONS_VERSION, NAN, NAN, PL_REDUCE_DEFAULT_SAMPLES,                 \
       PL_REDUCE_DEFAULT_DEGREE, NULL, 0, 0, NAN, PL_DEPTH_PEAK_D2, 0, 0, 0, 0,        \
-      PL_REDUCE_DEFAULT_FREQUENCIES, PL_REDUCE_DEFAULT_PHASE_SAMPLES, NAN, 0, NULL, NULL }
+      PL_REDUCE_DEFAULT_FREQUENCIES, PL_REDUCE_DEFAULT_PHASE_SAMPLES, NAN, 0, NULL, NULL, \
+      PL_PEAK_FIRST_SIGNIFICANT, NAN, NAN }
 
 /** Counts of a finished reduction. */
 typedef struct pl_reduce_stats {
