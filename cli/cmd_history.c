@@ -69,15 +69,73 @@ static int collect(void *ud, const pl_inspection *in)
 }
 
 typedef struct map_out {
+    pl_store *store;
     cJSON *array;  /* JSON mode */
     int printed;   /* text mode */
+    int failed;    /* a registration listing failed */
+    pl_err err;
 } map_out;
+
+static void add_num(cJSON *o, const char *k, double v)
+{
+    if (v == v)
+        cJSON_AddNumberToObject(o, k, v);
+    else
+        cJSON_AddNullToObject(o, k);
+}
+
+/* One registration of a map onto its baseline, under the map. */
+static int on_registration(void *ud, const pl_registration_record *g)
+{
+    cJSON *array = ud;
+    if (array) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddNumberToObject(o, "registration", (double)g->id);
+        cJSON_AddNumberToObject(o, "baseline_map", (double)g->baseline_map_id);
+        cJSON_AddStringToObject(o, "status", g->status);
+        cJSON_AddStringToObject(o, "method", g->method);
+        if (g->refusal[0])
+            cJSON_AddStringToObject(o, "refusal", g->refusal);
+        add_num(o, "shift_col_px", g->shift_col_px);
+        add_num(o, "shift_row_px", g->shift_row_px);
+        add_num(o, "shift_u_mm", g->shift_u_mm);
+        add_num(o, "shift_v_mm", g->shift_v_mm);
+        add_num(o, "rotation_deg", g->rotation_deg);
+        add_num(o, "scale", g->scale);
+        add_num(o, "ncc", g->ncc);
+        add_num(o, "peak_sidelobe", g->peak_sidelobe);
+        add_num(o, "overlap_fraction", g->overlap_fraction);
+        if (g->supplied_by[0]) {
+            cJSON_AddStringToObject(o, "supplied_by", g->supplied_by);
+            cJSON_AddStringToObject(o, "supplied_reason", g->supplied_reason);
+        }
+        cJSON_AddStringToObject(o, "recorded_at", g->recorded_at);
+        cJSON_AddItemToArray(array, o);
+        return 0;
+    }
+    if (strcmp(g->status, "refused") == 0)
+        printf("        registration %lld onto map %lld refused: %s\n", (long long)g->id,
+               (long long)g->baseline_map_id, g->refusal);
+    else
+        printf("        registration %lld onto map %lld (%s): shift %+.2f, %+.2f mm, rotation "
+               "%+.2f deg, ncc %.3f, overlap %.0f %%%s%s\n",
+               (long long)g->id, (long long)g->baseline_map_id, g->status, g->shift_u_mm,
+               g->shift_v_mm, g->rotation_deg, g->ncc, 100.0 * g->overlap_fraction,
+               g->supplied_by[0] ? ", supplied by " : "", g->supplied_by);
+    return 0;
+}
 
 static int on_map(void *ud, const pl_map_record *m)
 {
     map_out *o = ud;
     if (o->array) {
-        cJSON_AddItemToArray(o->array, cli_json_map(m));
+        cJSON *jm = cli_json_map(m);
+        cJSON *regs = cJSON_AddArrayToObject(jm, "registrations");
+        cJSON_AddItemToArray(o->array, jm);
+        if (pl_store_list_registrations(o->store, m->id, on_registration, regs, &o->err)) {
+            o->failed = 1;
+            return 1;
+        }
         return 0;
     }
     printf("      map %lld: %ux%u px at %g x %g mm, %s from %s, sha256 %.16s...\n",
@@ -98,6 +156,10 @@ static int on_map(void *ud, const pl_map_record *m)
     }
     printf("\n");
     o->printed++;
+    if (pl_store_list_registrations(o->store, m->id, on_registration, NULL, &o->err)) {
+        o->failed = 1;
+        return 1;
+    }
     return 0;
 }
 
@@ -173,6 +235,7 @@ int cmd_history(int argc, char **argv)
     }
     for (size_t i = 0; !st && i < list.n; i++) {
         map_out mo = { 0 };
+        mo.store = store;
         if (jinsp) {
             cJSON *o = cli_json_inspection(&list.items[i]);
             mo.array = cJSON_AddArrayToObject(o, "maps");
@@ -181,6 +244,10 @@ int cmd_history(int argc, char **argv)
             print_inspection(&list.items[i]);
         }
         st = pl_store_list_maps(store, list.items[i].key, on_map, &mo, &err);
+        if (!st && mo.failed) {
+            st = mo.err.code ? mo.err.code : PL_EDB;
+            err = mo.err;
+        }
         if (!st && !jinsp && !mo.printed)
             printf("      no maps\n");
     }
