@@ -55,6 +55,7 @@ int cmd_summary(int argc, char **argv)
         cJSON_AddNumberToObject(o, "map_bytes", (double)s.map_bytes);
         cJSON_AddNumberToObject(o, "corrections", (double)s.corrections);
         cJSON_AddNumberToObject(o, "indications", (double)s.indications);
+        cJSON_AddNumberToObject(o, "registrations", (double)s.registrations);
         cJSON_AddNumberToObject(o, "comparisons", (double)s.comparisons);
         cJSON_AddNumberToObject(o, "dispositions", (double)s.dispositions);
         cJSON_AddNumberToObject(o, "ledger_links", (double)s.ledger_links);
@@ -81,6 +82,7 @@ int cmd_summary(int argc, char **argv)
     printf("maps         %lld (%.1f MiB stored)\n", (long long)s.maps,
            (double)s.map_bytes / (1024.0 * 1024.0));
     printf("corrections  %lld\n", (long long)s.corrections);
+    printf("registrations %lld\n", (long long)s.registrations);
     printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
            (long long)s.comparisons, (long long)s.dispositions);
     return CLI_OK;

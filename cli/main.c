@@ -13,6 +13,7 @@ const cli_command cli_commands[] = {
     { "simulate", cmd_simulate, "simulate a flash-thermography sequence of a described site" },
     { "reduce", cmd_reduce, "reduce a thermal sequence to maps, or record them as an inspection" },
     { "record", cmd_record, "record inspections of one or many sites with their maps" },
+    { "register", cmd_register, "align a site's reinspection map onto its baseline and record it" },
     { "correct", cmd_correct, "correct a recorded inspection or site, with a reason" },
     { "airframes", cmd_airframes, "list airframes" },
     { "sites", cmd_sites, "list inspection sites" },

@@ -634,3 +634,166 @@ PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *ins
         *map_id = id;
     return PL_OK;
 }
+
+/* ---- registration ------------------------------------------------------- */
+
+typedef struct pair_scan {
+    pl_id baseline, latest;
+    char latest_date[PL_DATE_SIZE];
+} pair_scan;
+
+static int scan_inspection(void *ud, const pl_inspection *in)
+{
+    pair_scan *p = ud;
+    if (strcmp(in->kind, "baseline") == 0) {
+        p->baseline = in->key;
+    } else if (strcmp(in->performed_on, p->latest_date) >= 0) {
+        p->latest = in->key;
+        snprintf(p->latest_date, sizeof p->latest_date, "%s", in->performed_on);
+    }
+    return 0;
+}
+
+typedef struct first_map {
+    pl_id first;
+    pl_id want;
+    int has_want;
+} first_map;
+
+static int scan_map(void *ud, const pl_map_record *m)
+{
+    first_map *f = ud;
+    if (!f->first)
+        f->first = m->id;
+    if (m->id == f->want)
+        f->has_want = 1;
+    return 0;
+}
+
+/* The first map of an inspection, or check that `want` belongs to it. */
+static int inspection_map(pl_store *store, pl_id insp, pl_id *map, const char *what,
+                          pl_err *err)
+{
+    first_map f = { 0, *map, 0 };
+    int rc = pl_store_list_maps(store, insp, scan_map, &f, err);
+    if (rc)
+        return rc;
+    if (*map) {
+        if (!f.has_want)
+            return pl__err(err, PL_ENOMATCH, "map %lld is not a map of the %s inspection %lld",
+                           (long long)*map, what, (long long)insp);
+        return PL_OK;
+    }
+    if (!f.first)
+        return pl__err(err, PL_ENOTFOUND, "the %s inspection %lld has no maps", what,
+                       (long long)insp);
+    *map = f.first;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const char *code,
+                                  pl_record_pair *pair, pl_err *err)
+{
+    pl_site site;
+    int rc = pl_store_get_site(store, serial, code, &site, err);
+    if (rc)
+        return rc;
+    pair_scan p;
+    memset(&p, 0, sizeof p);
+    pl_inspection_filter f = { serial, code, NULL, NULL, NULL };
+    if ((rc = pl_store_list_inspections(store, &f, scan_inspection, &p, err)))
+        return rc;
+    if (!p.baseline)
+        return pl__err(err, PL_ENOTFOUND, "%s site %s has no baseline inspection", serial, code);
+    pair->baseline_inspection = p.baseline;
+    if (pair->current_inspection) {
+        pl_inspection in;
+        memset(&in, 0, sizeof in);
+        if ((rc = pl_store_get_inspection(store, pair->current_inspection, &in, err)))
+            return rc;
+        int same = strcmp(in.airframe_serial, serial) == 0 && strcmp(in.site_code, code) == 0;
+        int base = strcmp(in.kind, "baseline") == 0;
+        pl_inspection_clear(&in);
+        if (!same)
+            return pl__err(err, PL_ENOMATCH, "inspection %lld is not of %s site %s",
+                           (long long)pair->current_inspection, serial, code);
+        if (base)
+            return pl__err(err, PL_EINVAL, "inspection %lld is the baseline itself",
+                           (long long)pair->current_inspection);
+    } else if (p.latest) {
+        pair->current_inspection = p.latest;
+    } else {
+        return pl__err(err, PL_ENOTFOUND, "%s site %s has no inspection after its baseline",
+                       serial, code);
+    }
+    if ((rc = inspection_map(store, pair->baseline_inspection, &pair->baseline_map, "baseline",
+                             err)))
+        return rc;
+    return inspection_map(store, pair->current_inspection, &pair->current_map, "current", err);
+}
+
+PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair,
+                                     const pl_register_result *res, int manual,
+                                     const char *method, const char *supplied_by,
+                                     const char *supplied_reason, const char *parameters_json,
+                                     pl_id *registration_id, pl_id *comparison_id, pl_err *err)
+{
+    pl_registration_record g;
+    memset(&g, 0, sizeof g);
+    g.baseline_map_id = pair->baseline_map;
+    g.current_map_id = pair->current_map;
+    snprintf(g.method, sizeof g.method, "%s", method ? method : "");
+    snprintf(g.status, sizeof g.status, "%s",
+             manual ? "manual" : res->refused ? "refused" : "aligned");
+    snprintf(g.refusal, sizeof g.refusal, "%s", res->refused ? res->reason : "");
+    if (res->refused) {
+        /* a refused transform is not one: only the figures that refused it */
+        g.shift_col_px = g.shift_row_px = g.shift_u_mm = g.shift_v_mm = NAN;
+        g.rotation_deg = g.scale = g.overlap_fraction = g.overlap_mm2 = NAN;
+    } else {
+        g.shift_col_px = res->transform.dx;
+        g.shift_row_px = res->transform.dy;
+        g.shift_u_mm = res->shift_u_mm;
+        g.shift_v_mm = res->shift_v_mm;
+        g.rotation_deg = res->transform.rotation_deg;
+        g.scale = res->transform.scale;
+        g.overlap_fraction = res->overlap_fraction;
+        g.overlap_mm2 = res->overlap_mm2;
+    }
+    g.ncc = res->ncc;
+    g.peak_sidelobe = res->psr;
+    snprintf(g.supplied_by, sizeof g.supplied_by, "%s", supplied_by ? supplied_by : "");
+    snprintf(g.supplied_reason, sizeof g.supplied_reason, "%s",
+             supplied_reason ? supplied_reason : "");
+    g.parameters_json = parameters_json ? pl__strdup(parameters_json) : NULL;
+    if (parameters_json && !g.parameters_json)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    int rc = pl_store_begin(store, err);
+    pl_id rid = 0, cid = 0;
+    if (!rc)
+        rc = pl_store_add_registration(store, &g, &rid, err);
+    if (!rc && res->refused) {
+        pl_comparison_record c;
+        memset(&c, 0, sizeof c);
+        c.baseline_inspection = pair->baseline_inspection;
+        c.current_inspection = pair->current_inspection;
+        c.registration_id = rid;
+        snprintf(c.status, sizeof c.status, "not-done");
+        snprintf(c.not_done_reason, sizeof c.not_done_reason, "registration refused: %.200s",
+                 res->reason);
+        c.uncompared_mm2 = c.uncompared_fraction = NAN;
+        rc = pl_store_add_comparison(store, &c, &cid, err);
+    }
+    free(g.parameters_json);
+    if (rc) {
+        pl_store_rollback(store);
+        return rc;
+    }
+    if ((rc = pl_store_commit(store, err)))
+        return rc;
+    if (registration_id)
+        *registration_id = rid;
+    if (comparison_id)
+        *comparison_id = cid;
+    return PL_OK;
+}

@@ -21,5 +21,6 @@
 #include "plyledger/seq.h"
 #include "plyledger/sim.h"
 #include "plyledger/reduce.h"
+#include "plyledger/register.h"
 
 #endif

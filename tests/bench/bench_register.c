@@ -2,8 +2,8 @@
  * bench_register.c - plyledger's translation-only registration of a
  * 640 x 512 pair (upsample factor 100) against scikit-image's
  * phase_cross_correlation on the same files in the same run, and its
- * registration with rotation on a rotated pair. See README.md in this
- * folder.
+ * registration with rotation on a rotated pair. Build with optimisation
+ * (the default debugoptimized or release) for timings.
  *
  *   bench_register [--dir DIR] [--repeats N] [--keep]
  *
@@ -197,7 +197,7 @@ int main(int argc, char **argv)
            1e3 * sk_med, 1e3 * sk_min, sk_dx, sk_dy, e_sk);
     printf("    speed ratio skimage / plyledger  %.2f   (target >= 3)\n", sk_med / ours.median);
     printf("    error: plyledger %s skimage's\n", e_ours <= e_sk + 1e-9 ? "<=" : ">");
-    printf("  with rotation (log-polar, both candidates, refinement)\n");
+    printf("  with rotation (log-polar, three candidates, refinement)\n");
     printf("    same pair                    %8.2f ms (%7.2f)  shift (%.3f, %.3f)  rotation %+.4f deg\n",
            1e3 * rot0.median, 1e3 * rot0.min, rot0.res.transform.dx, rot0.res.transform.dy,
            rot0.res.transform.rotation_deg);

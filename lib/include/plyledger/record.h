@@ -42,6 +42,7 @@
 
 #include "plyledger/common.h"
 #include "plyledger/map.h"
+#include "plyledger/register.h"
 #include "plyledger/store.h"
 
 #ifdef __cplusplus
@@ -134,6 +135,44 @@ PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *ins
                                        const char *made_by, const char *source,
                                        const char *parameters_json, pl_id *inspection_key,
                                        pl_id *map_id, pl_err *err);
+
+/** The two maps a registration of a site aligns, and their inspections. */
+typedef struct pl_record_pair {
+    pl_id baseline_inspection;  /**< key of the site's current baseline */
+    pl_id current_inspection;   /**< key of the inspection being compared */
+    pl_id baseline_map;         /**< its map (the first recorded, unless chosen) */
+    pl_id current_map;
+} pl_record_pair;
+
+/**
+ * Find what a registration of site `code` on `serial` aligns: the site's
+ * baseline inspection and, unless given (non-zero in `pair`), the latest
+ * other inspection and the first map of each. Given ids are checked.
+ * @param[in,out] pair  zeros to choose, or ids to check
+ * @return PL_OK, PL_ENOTFOUND (no such site, no baseline, no later
+ *         inspection, an inspection without maps), PL_ENOMATCH (a given map
+ *         or inspection of another site or inspection), PL_EDB.
+ */
+PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const char *code,
+                                  pl_record_pair *pair, pl_err *err);
+
+/**
+ * Record a registration's outcome: the registration (aligned, refused or
+ * manual, from `res`) and, when it was refused, the comparison it was
+ * needed for, as not done and why. One transaction.
+ * @param method           "phase-correlation", "manual", ...
+ * @param supplied_by      manual: who (else NULL)
+ * @param supplied_reason  manual: why (else NULL)
+ * @param parameters_json  the options used, or NULL
+ * @param[out] registration_id  may be NULL
+ * @param[out] comparison_id    (refused only) may be NULL; 0 otherwise
+ * @return as pl_store_add_registration() and pl_store_add_comparison().
+ */
+PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair,
+                                     const pl_register_result *res, int manual,
+                                     const char *method, const char *supplied_by,
+                                     const char *supplied_reason, const char *parameters_json,
+                                     pl_id *registration_id, pl_id *comparison_id, pl_err *err);
 
 #ifdef __cplusplus
 }
