@@ -1391,47 +1391,109 @@ static void result_init(pl_register_result *res)
 /* A separable Gaussian of `sigma` pixels over the pixels with data only
  * (the weights renormalised where neighbours lack data; NaN stays NaN).
  * [out] *out is malloc'd. */
+/* Separable Gaussian blur with NaN kept as NaN and the weights renormalised
+ * over the finite neighbours near NaN and the edges. Rows and columns far
+ * from both take a branch-free path (most of an image). */
 static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, double sigma)
 {
     int rad = (int)ceil(3.0 * sigma);
     size_t np = (size_t)w * h;
     float *tmp = malloc(np * sizeof *tmp), *o = malloc(np * sizeof *o);
-    double *k = malloc((size_t)(2 * rad + 1) * sizeof *k);
+    float *k = malloc((size_t)(2 * rad + 1) * sizeof *k);
+    unsigned char *bad_row = calloc(h, 1), *bad_col = calloc(w, 1);
     *out = NULL;
-    if (!tmp || !o || !k) {
+    if (!tmp || !o || !k || !bad_row || !bad_col) {
         free(tmp);
         free(o);
         free(k);
+        free(bad_row);
+        free(bad_col);
         return PL_ENOMEM;
     }
+    double ksum = 0.0;
     for (int i = -rad; i <= rad; i++)
-        k[i + rad] = exp(-0.5 * i * i / (sigma * sigma));
-    for (int pass = 0; pass < 2; pass++) {
-        const float *in = pass ? tmp : src;
-        float *dst = pass ? o : tmp;
-        for (uint32_t y = 0; y < h; y++)
-            for (uint32_t x = 0; x < w; x++) {
-                size_t p = (size_t)y * w + x;
-                if (!isfinite(in[p])) {
-                    dst[p] = NAN;
-                    continue;
-                }
-                double acc = 0.0, ws = 0.0;
-                for (int i = -rad; i <= rad; i++) {
-                    long xx = pass ? (long)x : (long)x + i, yy = pass ? (long)y + i : (long)y;
-                    if (xx < 0 || yy < 0 || xx >= (long)w || yy >= (long)h)
-                        continue;
-                    float v = in[(size_t)yy * w + (size_t)xx];
-                    if (isfinite(v)) {
-                        acc += k[i + rad] * v;
-                        ws += k[i + rad];
-                    }
-                }
-                dst[p] = (float)(acc / ws);
+        ksum += exp(-0.5 * i * i / (sigma * sigma));
+    for (int i = -rad; i <= rad; i++)
+        k[i + rad] = (float)(exp(-0.5 * i * i / (sigma * sigma)) / ksum);
+    for (uint32_t y = 0; y < h; y++)
+        for (uint32_t x = 0; x < w; x++)
+            if (!isfinite(src[(size_t)y * w + x])) {
+                bad_row[y] = 1;
+                bad_col[x] = 1;
             }
+    /* the general (edge or NaN) case for one output value */
+    #define BLUR_AT(in, dst, x, y, horizontal)                                              \
+        do {                                                                                \
+            size_t p_ = (size_t)(y) * w + (x);                                              \
+            if (!isfinite(in[p_])) {                                                        \
+                dst[p_] = NAN;                                                              \
+                break;                                                                      \
+            }                                                                               \
+            double acc_ = 0.0, ws_ = 0.0;                                                   \
+            for (int i_ = -rad; i_ <= rad; i_++) {                                          \
+                long xx_ = (horizontal) ? (long)(x) + i_ : (long)(x);                       \
+                long yy_ = (horizontal) ? (long)(y) : (long)(y) + i_;                       \
+                if (xx_ < 0 || yy_ < 0 || xx_ >= (long)w || yy_ >= (long)h)                 \
+                    continue;                                                               \
+                float v_ = in[(size_t)yy_ * w + (size_t)xx_];                               \
+                if (isfinite(v_)) {                                                         \
+                    acc_ += k[i_ + rad] * v_;                                               \
+                    ws_ += k[i_ + rad];                                                     \
+                }                                                                           \
+            }                                                                               \
+            dst[p_] = (float)(acc_ / ws_);                                                  \
+        } while (0)
+    /* rows: the interior of a row without NaN tap by tap (vectorisable),
+     * its ends and rows with NaN by the general case */
+    for (uint32_t y = 0; y < h; y++) {
+        const float *r = src + (size_t)y * w;
+        float *d = tmp + (size_t)y * w;
+        if (!bad_row[y] && (long)w > 2L * rad) {
+            uint32_t x0 = (uint32_t)rad, x1 = w - (uint32_t)rad;
+            for (uint32_t x = x0; x < x1; x++)
+                d[x] = 0.0f;
+            for (int i = -rad; i <= rad; i++) {
+                float kk = k[i + rad];
+                const float *ri = r + i;
+                for (uint32_t x = x0; x < x1; x++)
+                    d[x] += kk * ri[x];
+            }
+            for (uint32_t x = 0; x < x0; x++)
+                BLUR_AT(src, tmp, x, y, 1);
+            for (uint32_t x = x1; x < w; x++)
+                BLUR_AT(src, tmp, x, y, 1);
+        } else {
+            for (uint32_t x = 0; x < w; x++)
+                BLUR_AT(src, tmp, x, y, 1);
+        }
     }
+    /* columns: interior rows by whole rows at a time (vectorisable) */
+    for (uint32_t y = 0; y < h; y++) {
+        float *d = o + (size_t)y * w;
+        int inside = (long)y >= rad && (long)y + rad < (long)h;
+        if (inside) {
+            for (uint32_t x = 0; x < w; x++)
+                d[x] = 0.0f;
+            for (int i = -rad; i <= rad; i++) {
+                const float *r = tmp + (size_t)((long)y + i) * w;
+                float kk = k[i + rad];
+                for (uint32_t x = 0; x < w; x++)
+                    d[x] += kk * r[x];
+            }
+            /* redo the columns a NaN touches */
+            for (uint32_t x = 0; x < w; x++)
+                if (bad_col[x])
+                    BLUR_AT(tmp, o, x, y, 0);
+        } else {
+            for (uint32_t x = 0; x < w; x++)
+                BLUR_AT(tmp, o, x, y, 0);
+        }
+    }
+    #undef BLUR_AT
     free(tmp);
     free(k);
+    free(bad_row);
+    free(bad_col);
     *out = o;
     return PL_OK;
 }
@@ -1794,8 +1856,11 @@ done:
  * Dead and hot pixels sit still in the camera while the part moves, and
  * phase correlation, which whitens the spectrum, weighs such single-pixel
  * outliers as heavily as the texture. A pixel is taken for one when it lies
- * more than DESPECKLE_K robust standard deviations above the largest, or
- * below the smallest, of its 8 neighbours; it is replaced by their median.
+ * more than DESPECKLE_K robust standard deviations, and more than
+ * DESPECKLE_RANGE of the image's 1st-99th percentile range, above the
+ * largest, or below the smallest, of its 8 neighbours; it is replaced by
+ * their median. (The range keeps a noiseless photograph's sharp texture,
+ * whose robust noise is near zero, out of reach.)
  * An edge or a line has neighbours on both sides of its value, so real
  * structure is never touched; the robust standard deviation is 1.4826 x the
  * median absolute difference between a pixel and the median of its
@@ -1803,6 +1868,7 @@ done:
  * impulse noise).
  */
 #define DESPECKLE_K 8.0
+#define DESPECKLE_RANGE 0.25
 #define DESPECKLE_SAMPLES 16384u
 
 static float median_small(float *v, int n)
@@ -1845,7 +1911,7 @@ static int despeckle(float **out, const float *src, uint32_t w, uint32_t h)
 {
     size_t np = (size_t)w * h;
     float *o = malloc(np * sizeof *o);
-    float *sample = malloc(DESPECKLE_SAMPLES * sizeof *sample);
+    float *sample = malloc(2 * DESPECKLE_SAMPLES * sizeof *sample);
     *out = NULL;
     if (!o || !sample) {
         free(o);
@@ -1853,35 +1919,112 @@ static int despeckle(float **out, const float *src, uint32_t w, uint32_t h)
         return PL_ENOMEM;
     }
     memcpy(o, src, np * sizeof *o);
-    size_t step = np / DESPECKLE_SAMPLES + 1, k = 0;
+    /* the noise (residual from the neighbours' median) and the range of
+     * the values, from a sample of the pixels */
+    size_t step = np / DESPECKLE_SAMPLES + 1, k = 0, kv = 0;
+    float *vals = sample + DESPECKLE_SAMPLES;
     for (size_t i = 0; i < np && k < DESPECKLE_SAMPLES; i += step) {
+        if (!isfinite(src[i]))
+            continue;
+        vals[kv++] = src[i];
         float v[8];
         int n = neighbours(v, src, w, h, (uint32_t)(i % w), (uint32_t)(i / w));
-        if (n && isfinite(src[i]))
+        if (n)
             sample[k++] = fabsf(src[i] - ((n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2])));
     }
-    double sigma = 0.0;
-    if (k) {
+    double sigma = 0.0, range = 0.0;
+    if (k && kv) {
         qsort(sample, k, sizeof *sample, cmp_float);
         sigma = 1.4826 * sample[k / 2];
+        qsort(vals, kv, sizeof *vals, cmp_float);
+        range = (double)vals[(kv * 99) / 100] - (double)vals[kv / 100];
     }
     free(sample);
-    if (!(sigma > 0.0)) {
+    /* an impulse stands out from the noise and from the texture's range */
+    double lim = fmax(DESPECKLE_K * sigma, DESPECKLE_RANGE * range);
+    if (!(lim > 0.0)) {
         *out = o;
         return PL_OK;
     }
-    double lim = DESPECKLE_K * sigma;
+    int any_nan = 0;
+    for (size_t i = 0; i < np && !any_nan; i++)
+        any_nan = !isfinite(src[i]);
     for (uint32_t y = 0; y < h; y++)
         for (uint32_t x = 0; x < w; x++) {
             size_t i = (size_t)y * w + x;
-            if (!isfinite(src[i]))
+            float c = src[i];
+            float lo = INFINITY, hi = -INFINITY;
+            int n = 0;
+            if (!any_nan && x > 0 && y > 0 && x + 1 < w && y + 1 < h) {
+                /* the common case: all 8 neighbours there and finite */
+                const float *a = src + i - w, *b = src + i + w;
+                float q[8] = { a[-1], a[0], a[1], src[i - 1], src[i + 1], b[-1], b[0], b[1] };
+                for (int j = 0; j < 8; j++) {
+                    lo = q[j] < lo ? q[j] : lo;
+                    hi = q[j] > hi ? q[j] : hi;
+                }
+                n = 8;
+            } else {
+                if (!isfinite(c))
+                    continue;
+                for (int dy = -1; dy <= 1; dy++) {
+                    long yy = (long)y + dy;
+                    if (yy < 0 || yy >= (long)h)
+                        continue;
+                    for (int dx = -1; dx <= 1; dx++) {
+                        long xx = (long)x + dx;
+                        if ((!dx && !dy) || xx < 0 || xx >= (long)w)
+                            continue;
+                        float q = src[(size_t)yy * w + (size_t)xx];
+                        if (isfinite(q)) {
+                            lo = q < lo ? q : lo;
+                            hi = q > hi ? q : hi;
+                            n++;
+                        }
+                    }
+                }
+            }
+            if (n < 3 || !(c > hi + lim || c < lo - lim))
                 continue;
             float v[8];
-            int n = neighbours(v, src, w, h, x, y);
-            if (n >= 3 && (src[i] > v[n - 1] + lim || src[i] < v[0] - lim))
-                o[i] = (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
+            n = neighbours(v, src, w, h, x, y);
+            o[i] = (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
         }
     *out = o;
+    return PL_OK;
+}
+
+/* Two images at once on two threads (large images): despeckle or blur. */
+typedef struct pair_job {
+    const float *src[2];
+    float *out[2];
+    uint32_t w, h;
+    double sigma;  /* > 0: blur, else despeckle */
+    int failed[2];
+} pair_job;
+
+static void pair_run(void *ctx, uint32_t b, uint32_t e, unsigned t)
+{
+    (void)t;
+    pair_job *j = ctx;
+    for (uint32_t k = b; k < e; k++)
+        j->failed[k] = j->sigma > 0.0 ? gauss_blur(&j->out[k], j->src[k], j->w, j->h, j->sigma)
+                                      : despeckle(&j->out[k], j->src[k], j->w, j->h);
+}
+
+static int pair_apply(float **a_out, float **b_out, const float *a, const float *b, uint32_t w,
+                      uint32_t h, double sigma)
+{
+    pair_job j = { { a, b }, { NULL, NULL }, w, h, sigma, { 0, 0 } };
+    parallel_for(thread_count((size_t)w * h) > 1 ? 2 : 1, 2, pair_run, &j);
+    if (j.failed[0] || j.failed[1]) {
+        free(j.out[0]);
+        free(j.out[1]);
+        *a_out = *b_out = NULL;
+        return PL_ENOMEM;
+    }
+    *a_out = j.out[0];
+    *b_out = j.out[1];
     return PL_OK;
 }
 
@@ -1907,47 +2050,48 @@ static double aligned_ncc(float *buf, const float *fixed, const float *moving, u
 }
 
 /* The search made robust for inspection maps (see above): despeckle, search,
- * and when the answer correlates poorly, search again on smoothed images
- * and keep the better. [out] ncc and both: the correlation over the
- * overlap (despeckled images) and the overlap's pixel count. */
-static int robust_search(pl_transform *t, double *psr, double *ncc, size_t *both,
+ * and (rotation on) when the answer correlates poorly, search again on
+ * smoothed images and keep the clearly better. [out] fd: the despeckled
+ * fixed image; al: the despeckled moving image resampled through the
+ * answer (both malloc'd, for the quality figure). */
+static int robust_search(pl_transform *t, double *psr, float **fd_out, float **al_out,
                          const float *fixed, const float *moving, uint32_t w, uint32_t h,
                          const pl_register_options *o, pl_err *err)
 {
-    size_t np = (size_t)w * h;
+    size_t np = (size_t)w * h, both = 0;
     float *fd = NULL, *md = NULL, *al = NULL, *fb = NULL, *mb = NULL;
     int rc = PL_OK;
-    if (despeckle(&fd, fixed, w, h) || despeckle(&md, moving, w, h)
-        || !(al = malloc(np * sizeof *al))) {
+    *fd_out = *al_out = NULL;
+    if (pair_apply(&fd, &md, fixed, moving, w, h, 0.0) || !(al = malloc(np * sizeof *al))) {
         rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
         goto done;
     }
     if ((rc = search(t, psr, fd, md, w, h, o, err)))
         goto done;
-    *ncc = aligned_ncc(al, fd, md, w, h, t, o->interp, both);
-    if (!(*ncc >= SMOOTH_RETRY_NCC)) {
+    double ncc = o->rotation ? aligned_ncc(al, fd, md, w, h, t, o->interp, &both) : 1.0;
+    if (!(ncc >= SMOOTH_RETRY_NCC)) {
         pl_transform t2;
         double psr2 = NAN;
-        if (gauss_blur(&fb, fd, w, h, SMOOTH_SIGMA) || gauss_blur(&mb, md, w, h, SMOOTH_SIGMA)) {
+        if (pair_apply(&fb, &mb, fd, md, w, h, SMOOTH_SIGMA)) {
             rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
             goto done;
         }
         if ((rc = search(&t2, &psr2, fb, mb, w, h, o, err)))
             goto done;
-        if (o->rotation
-            && refine_rigid(&t2, fd, md, w, h, o->scale, o->interp, thread_count(np))) {
+        if (refine_rigid(&t2, fd, md, w, h, o->scale, o->interp, thread_count(np))) {
             rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
             goto done;
         }
-        size_t both2 = 0;
-        double ncc2 = aligned_ncc(al, fd, md, w, h, &t2, o->interp, &both2);
-        if (ncc2 > *ncc + SMOOTH_GAIN || (isnan(*ncc) && !isnan(ncc2))) {
+        double ncc2 = aligned_ncc(al, fd, md, w, h, &t2, o->interp, &both);
+        if (ncc2 > ncc + SMOOTH_GAIN || (isnan(ncc) && !isnan(ncc2))) {
             *t = t2;
             *psr = psr2;
-            *ncc = ncc2;
-            *both = both2;
         }
     }
+    resample_run(al, w, h, md, w, h, t, o->interp);
+    *fd_out = fd;
+    *al_out = al;
+    fd = al = NULL;
 done:
     free(fd);
     free(md);
@@ -1959,33 +2103,30 @@ done:
 
 /*
  * The correlation reported and judged: Pearson's r over the overlap of the
- * aligned pair after both are despeckled and smoothed by a Gaussian of
+ * aligned pair, both despeckled (the moving one before it was resampled: a
+ * resampled dead pixel is a blob) and smoothed by a Gaussian of
  * QUALITY_SIGMA pixels, so that it measures how well the structure agrees
  * rather than how loud the camera noise is (on simulated 5-6 mm skins raw
  * pixels correlated 0.3-0.5 when aligned to 0.05 mm). [out] both counts the
- * pixels with data in both unsmoothed images.
+ * pixels with data in both.
  */
 #define QUALITY_SIGMA 1.0
 
-static double quality_ncc(const float *fixed, const float *aligned, uint32_t w, uint32_t h,
-                          size_t *both, int *oom)
+static double structure_ncc(const float *fd, const float *al, uint32_t w, uint32_t h,
+                            size_t *both, int *oom)
 {
     size_t np = (size_t)w * h;
-    float *fd = NULL, *ad = NULL, *fs = NULL, *as = NULL;
+    float *fs = NULL, *as = NULL;
     double r = NAN;
     *oom = 0;
-    if (despeckle(&fd, fixed, w, h) || despeckle(&ad, aligned, w, h)
-        || gauss_blur(&fs, fd, w, h, QUALITY_SIGMA) || gauss_blur(&as, ad, w, h, QUALITY_SIGMA)) {
+    if (pair_apply(&fs, &as, fd, al, w, h, QUALITY_SIGMA)) {
         *oom = 1;
     } else {
-        /* the overlap is where both unsmoothed images hold data */
         for (size_t i = 0; i < np; i++)
-            if (!isfinite(fixed[i]) || !isfinite(aligned[i]))
+            if (!isfinite(fd[i]) || !isfinite(al[i]))
                 fs[i] = NAN;
         r = pearson(fs, as, np, both);
     }
-    free(fd);
-    free(ad);
     free(fs);
     free(as);
     return r;
@@ -2006,27 +2147,20 @@ int pl_register_images(pl_register_result *res, const float *fixed, const float 
         return pl__err(err, PL_EINVAL, "registration: image size %ux%u not in %u..%u", width,
                        height, MIN_SIDE, PL_MAP_MAX_SIDE);
     pl_transform t;
-    double psr = NAN, ncc = NAN;
-    size_t both = 0;
-    if ((rc = robust_search(&t, &psr, &ncc, &both, fixed, moving, width, height, &o, err)))
+    double psr = NAN;
+    float *fd = NULL, *al = NULL;
+    if ((rc = robust_search(&t, &psr, &fd, &al, fixed, moving, width, height, &o, err)))
         return rc;
-    size_t np = (size_t)width * height;
-    float *al = malloc(np * sizeof *al), *md = NULL;
-    /* despeckle before resampling: a resampled dead pixel is a blob */
-    if (!al || despeckle(&md, moving, width, height)) {
-        free(al);
-        return pl__err(err, PL_ENOMEM, "registration: out of memory");
-    }
-    resample_run(al, width, height, md, width, height, &t, o.interp);
+    size_t both = 0;
     int oom;
-    res->ncc = quality_ncc(fixed, al, width, height, &both, &oom);
+    res->ncc = structure_ncc(fd, al, width, height, &both, &oom);
+    free(fd);
     free(al);
-    free(md);
     if (oom)
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     res->transform = t;
     res->psr = psr;
-    res->overlap_fraction = (double)both / (double)np;
+    res->overlap_fraction = (double)both / ((double)width * height);
     judge(res, o.min_ncc, o.min_psr);
     return PL_OK;
 }
@@ -2220,8 +2354,13 @@ static int finish(pl_register_result *res, const pl_map *b, const pl_map *cur, i
         free(al);
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     }
-    int oom;
-    res->ncc = quality_ncc(pl_map_channel(b, (uint32_t)ib), al, b->width, b->height, &both, &oom);
+    int oom = 0;
+    float *bd = NULL;
+    if (despeckle(&bd, pl_map_channel(b, (uint32_t)ib), b->width, b->height))
+        oom = 1;
+    else
+        res->ncc = structure_ncc(bd, al, b->width, b->height, &both, &oom);
+    free(bd);
     free(al);
     if (oom)
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
@@ -2296,10 +2435,12 @@ int pl_register_maps(pl_register_result *res, pl_map **aligned, const pl_map *ba
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     }
     pl_transform r;
-    double psr = NAN, ncc = NAN;
-    size_t both = 0;
-    rc = robust_search(&r, &psr, &ncc, &both, pl_map_channel(baseline, (uint32_t)ib), mov, w, h,
-                       &o, err);
+    double psr = NAN;
+    float *fd = NULL, *al = NULL;
+    rc = robust_search(&r, &psr, &fd, &al, pl_map_channel(baseline, (uint32_t)ib), mov, w, h, &o,
+                       err);
+    free(fd);
+    free(al);
     free(mov);
     if (rc)
         return rc;
