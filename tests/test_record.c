@@ -249,6 +249,117 @@ static void test_record__add_map_checks_lists(void **state)
     pl_record_free(rec);
 }
 
+static pl_inspection traced(const char *site, const char *kind, const char *date)
+{
+    pl_inspection in;
+    memset(&in, 0, sizeof in);
+    in.aircraft_hours = NAN;
+    in.aircraft_cycles = -1;
+    strcpy(in.airframe_serial, "REC-0001");
+    strcpy(in.site_code, site);
+    strcpy(in.kind, kind);
+    strcpy(in.performed_on, date);
+    strcpy(in.procedure, "P");
+    strcpy(in.procedure_rev, "A");
+    strcpy(in.equipment, "E");
+    strcpy(in.calibration_ref, "C");
+    strcpy(in.inspector, "I");
+    strcpy(in.inspector_level, "2");
+    return in;
+}
+
+static pl_id record_one(pl_store *st, const char *site, const char *kind, const char *date,
+                        float base, pl_id *map_id)
+{
+    pl_inspection in = traced(site, kind, date);
+    pl_map *m;
+    assert_int_equal(pl_map_new(&m, 6, 4, 1, NULL), 0);
+    for (uint32_t i = 0; i < 24; i++)
+        m->data[i] = base + (float)i;
+    assert_int_equal(pl_map_set_channel(m, 0, "phase", "rad", NULL), 0);
+    m->pitch_u = m->pitch_v = NAN;
+    pl_id key = 0;
+    pl_err err = { 0 };
+    if (pl_record_map_inspection(st, &in, m, "reduce", "seq.json", "{\"k\":1}", &key, map_id, &err))
+        fail_msg("%s", err.msg);
+    pl_map_free(m);
+    return key;
+}
+
+/* The pair a registration aligns: the site's baseline and the latest later
+ * inspection, first maps, unless chosen; and its outcome recorded, a
+ * refusal with the comparison it stops. */
+static void test_record__registration_pair_and_outcome(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_record_pair pair;
+    memset(&pair, 0, sizeof pair);
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_ENOTFOUND);
+    assert_non_null(strstr(err.msg, "no baseline"));
+    pl_id mb = 0, m1 = 0, m2 = 0;
+    pl_id kb = record_one(f->store, "A1", "baseline", "2030-01-01", 0.0f, &mb);
+    memset(&pair, 0, sizeof pair);
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_ENOTFOUND);
+    assert_non_null(strstr(err.msg, "no inspection after its baseline"));
+    pl_id k1 = record_one(f->store, "A1", "scheduled", "2034-01-01", 1.0f, &m1);
+    pl_id k2 = record_one(f->store, "A1", "unscheduled", "2036-05-05", 2.0f, &m2);
+    memset(&pair, 0, sizeof pair);
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_OK);
+    assert_int_equal(pair.baseline_inspection, kb);
+    assert_int_equal(pair.current_inspection, k2); /* the latest */
+    assert_int_equal(pair.baseline_map, mb);
+    assert_int_equal(pair.current_map, m2);
+    memset(&pair, 0, sizeof pair);
+    pair.current_inspection = k1;
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_OK);
+    assert_int_equal(pair.current_map, m1);
+    pair.current_map = m2; /* not a map of inspection k1 */
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_ENOMATCH);
+    memset(&pair, 0, sizeof pair);
+    pair.current_inspection = kb;
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_EINVAL);
+
+    /* a refused registration records the comparison it stops */
+    memset(&pair, 0, sizeof pair);
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_OK);
+    pl_register_result res;
+    memset(&res, 0, sizeof res);
+    res.refused = 1;
+    snprintf(res.reason, sizeof res.reason, "normalised cross-correlation 0.1 below the limit 0.6");
+    res.ncc = 0.1;
+    res.psr = 3.0;
+    pl_id rid = 0, cid = 0;
+    assert_int_equal(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL,
+                                            NULL, "{\"upsample\":100}", &rid, &cid, &err), PL_OK);
+    assert_true(rid > 0 && cid > 0);
+    /* an aligned one records no comparison */
+    memset(&res, 0, sizeof res);
+    res.transform.dx = 1.5;
+    res.transform.dy = -0.5;
+    res.transform.scale = 1.0;
+    res.shift_u_mm = 0.75;
+    res.shift_v_mm = -0.25;
+    res.ncc = 0.99;
+    res.psr = 20.0;
+    res.overlap_fraction = 0.9;
+    res.overlap_mm2 = 5.4;
+    pl_id rid2 = 0, cid2 = 7;
+    assert_int_equal(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL,
+                                            NULL, NULL, &rid2, &cid2, &err), PL_OK);
+    assert_true(rid2 > rid);
+    assert_int_equal(cid2, 0);
+    pl_store_summary sum;
+    assert_int_equal(pl_store_summarize(f->store, &sum, &err), PL_OK);
+    assert_int_equal(sum.registrations, 2);
+    assert_int_equal(sum.comparisons, 1);
+    /* the reduced map took the site's pitch and frame */
+    pl_map *back;
+    assert_int_equal(pl_store_load_map(f->store, m1, &back, NULL, &err), PL_OK);
+    assert_true(back->pitch_u == 0.5 && back->placement.origin[0] == 100.0);
+    pl_map_free(back);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -257,6 +368,7 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_record__apply_records_and_completes_from_the_site, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_is_all_or_nothing, setup, teardown),
         cmocka_unit_test(test_record__add_map_checks_lists),
+        cmocka_unit_test_setup_teardown(test_record__registration_pair_and_outcome, setup, teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
