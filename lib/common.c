@@ -4,6 +4,7 @@
 #include "common_int.h"
 #include "plyledger/version.h"
 
+#include <errno.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -96,5 +97,41 @@ int pl__copy_text(char *dst, size_t cap, const char *src, const char *what,
         return pl__err(err, PL_EINVAL, "%s is too long (%zu characters, at most %zu)",
                        what, n, cap - 1);
     memcpy(dst, src, n + 1);
+    return PL_OK;
+}
+
+int pl__read_text(char **out, size_t *len, const char *path, size_t max, pl_err *err)
+{
+    *out = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return pl__err(err, PL_EIO, "%s: cannot open (%s)", path, strerror(errno));
+    size_t cap = 1 << 14, n = 0, got;
+    char *buf = malloc(cap);
+    while (buf && (got = fread(buf + n, 1, cap - n - 1, f)) > 0) {
+        n += got;
+        if (n + 1 == cap) {
+            char *nb = cap < max ? realloc(buf, cap * 2) : NULL;
+            if (!nb) {
+                free(buf);
+                buf = NULL;
+                break;
+            }
+            buf = nb;
+            cap *= 2;
+        }
+    }
+    int bad = ferror(f);
+    fclose(f);
+    if (!buf)
+        return pl__err(err, PL_ENOMEM, "%s: too large or out of memory", path);
+    if (bad) {
+        free(buf);
+        return pl__err(err, PL_EIO, "%s: read error", path);
+    }
+    buf[n] = '\0';
+    *out = buf;
+    if (len)
+        *len = n;
     return PL_OK;
 }

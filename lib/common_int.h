@@ -27,6 +27,12 @@ const char *pl__basename(const char *path);
 /* strdup that returns NULL for NULL. */
 char *pl__strdup(const char *s);
 
+/* Read a whole text file (at most `max` bytes) into a malloc'd,
+ * NUL-terminated buffer (*out, its length in *len, may be NULL).
+ * PL_EIO (cannot open or read, the message naming `path`), PL_ENOMEM (too
+ * large or out of memory). */
+int pl__read_text(char **out, size_t *len, const char *path, size_t max, pl_err *err);
+
 /* Copy src into a fixed buffer; PL_EINVAL (with a message naming `what`)
  * when it does not fit. NULL src gives an empty string. */
 int pl__copy_text(char *dst, size_t cap, const char *src, const char *what,

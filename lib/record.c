@@ -402,34 +402,11 @@ static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, co
 PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *err)
 {
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot open", path);
-    size_t cap = 4096, n = 0;
-    char *buf = malloc(cap);
-    size_t got;
-    while (buf && (got = fread(buf + n, 1, cap - n - 1, f)) > 0) {
-        n += got;
-        if (n + 1 == cap) {
-            char *nb = cap < (64u << 20) ? realloc(buf, cap * 2) : NULL;
-            if (!nb) {
-                free(buf);
-                buf = NULL;
-                break;
-            }
-            buf = nb;
-            cap *= 2;
-        }
-    }
-    int rd_err = ferror(f);
-    fclose(f);
-    if (!buf)
-        return pl__err(err, PL_ENOMEM, "%s: too large or out of memory", path);
-    if (rd_err) {
-        free(buf);
-        return pl__err(err, PL_EIO, "%s: read error", path);
-    }
-    buf[n] = '\0';
+    char *buf;
+    size_t n;
+    int rrc = pl__read_text(&buf, &n, path, (size_t)64 << 20, err);
+    if (rrc)
+        return rrc;
     const char *end = NULL;
     cJSON *root = cJSON_ParseWithOpts(buf, &end, 1);
     if (!root) {

@@ -1010,33 +1010,10 @@ PL_EXPORT int pl_sim_scene_parse(pl_sim_scene **out, const char *json, const cha
 PL_EXPORT int pl_sim_scene_load(pl_sim_scene **out, const char *path, pl_err *err)
 {
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot open (%s)", path, strerror(errno));
-    size_t cap = 1 << 14, n = 0, got;
-    char *buf = malloc(cap);
-    while (buf && (got = fread(buf + n, 1, cap - n - 1, f)) > 0) {
-        n += got;
-        if (n + 1 == cap) {
-            char *nb = cap < ((size_t)64 << 20) ? realloc(buf, cap * 2) : NULL;
-            if (!nb) {
-                free(buf);
-                buf = NULL;
-                break;
-            }
-            buf = nb;
-            cap *= 2;
-        }
-    }
-    int bad = ferror(f);
-    fclose(f);
-    if (!buf)
-        return pl__err(err, PL_ENOMEM, "%s: too large or out of memory", path);
-    if (bad) {
-        free(buf);
-        return pl__err(err, PL_EIO, "%s: read error", path);
-    }
-    buf[n] = '\0';
+    char *buf;
+    int rrc = pl__read_text(&buf, NULL, path, (size_t)64 << 20, err);
+    if (rrc)
+        return rrc;
     int rc = pl_sim_scene_parse(out, buf, path, err);
     free(buf);
     return rc;
