@@ -274,7 +274,7 @@ static pl_inspection inspection(const char *serial, const char *code, const char
     snprintf(in.procedure_rev, sizeof in.procedure_rev, "C");
     snprintf(in.equipment, sizeof in.equipment, "flash lamp pair, LWIR camera 640x512");
     snprintf(in.calibration_ref, sizeof in.calibration_ref, "REF-STD-07");
-    snprintf(in.inspector, sizeof in.inspector, "J. Smith");
+    snprintf(in.inspector, sizeof in.inspector, "K. Varnholt");
     snprintf(in.inspector_level, sizeof in.inspector_level, "2");
     return in;
 }
