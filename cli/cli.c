@@ -110,6 +110,13 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
     return rc;
 }
 
+int cli_no_operands(int argc, char **argv, int first, const char *usage)
+{
+    if (first < argc)
+        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    return 0;
+}
+
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
 {
     if (!common->store)

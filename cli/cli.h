@@ -68,6 +68,12 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
               cli_common *common, cli_opt_fn on_opt, void *ctx, const char *usage,
               const char *help, int *first_arg);
 
+/* The command takes no operands: 0, or CLI_USAGE (printed) naming the first. */
+int cli_no_operands(int argc, char **argv, int first, const char *usage);
+
+/* Add a number to a JSON object, null when it is not finite (unknown). */
+void cli_json_num(cJSON *o, const char *key, double v);
+
 /* Open the store named by common->store; prints the failure itself.
  * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);

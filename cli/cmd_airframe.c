@@ -65,8 +65,8 @@ int cmd_add_airframe(int argc, char **argv)
                        add_help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(add_usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, add_usage)))
+        return rc;
     if (!a.serial || !a.type)
         return cli_usage_error(add_usage, "--serial and --type are required");
     if (a.since && !a.operator_name)
@@ -146,8 +146,8 @@ int cmd_set_operator(int argc, char **argv)
                        op_help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(op_usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, op_usage)))
+        return rc;
     if (a.type || a.manufactured || a.notes)
         return cli_usage_error(op_usage, "only --serial, --operator and --since apply here");
     if (!a.serial || !a.operator_name || !a.since)

@@ -21,7 +21,7 @@ static const char help[] =
     "Inspection fields:\n"
     "  --kind KIND  --date DATE  --task REF  --hours N  --cycles N\n"
     "  --procedure REF  --procedure-rev REV  --equipment TEXT  --calibration REF\n"
-    "  --inspector NAME  --level LEVEL  --notes TEXT\n"
+    "  --inspector NAME  --level LEVEL  --notes TEXT  --parameters FILE\n"
     "Site fields:\n"
     "  --zone Z  --description TEXT  --frame F  --stringer S  --material M\n"
     "  --thickness MM  --diffusivity MM2_S  --method METHOD\n"
@@ -39,28 +39,13 @@ static const char help[] =
     "  -h, --help             show this help\n";
 
 enum {
-    O_INSPECTION = 0x100, O_AIRFRAME, O_SITE, O_REASON, O_KIND, O_DATE, O_TASK, O_HOURS,
-    O_CYCLES, O_PROCEDURE, O_PROCEDURE_REV, O_EQUIPMENT, O_CALIBRATION, O_INSPECTOR, O_LEVEL,
-    O_NOTES, O_ZONE, O_DESCRIPTION, O_FRAME, O_STRINGER, O_MATERIAL, O_THICKNESS,
-    O_DIFFUSIVITY, O_METHOD, O_ORIGIN, O_U, O_V, O_WIDTH, O_HEIGHT, O_PITCH,
+    O_INSPECTION = 0x100, O_REASON, O_ZONE, O_DESCRIPTION, O_FRAME, O_STRINGER, O_MATERIAL,
+    O_THICKNESS, O_DIFFUSIVITY, O_METHOD, O_ORIGIN, O_U, O_V, O_WIDTH, O_HEIGHT, O_PITCH,
 };
 static const struct option opts[] = {
     { "inspection", required_argument, NULL, O_INSPECTION },
-    { "airframe", required_argument, NULL, O_AIRFRAME },
-    { "site", required_argument, NULL, O_SITE },
     { "reason", required_argument, NULL, O_REASON },
-    { "kind", required_argument, NULL, O_KIND },
-    { "date", required_argument, NULL, O_DATE },
-    { "task", required_argument, NULL, O_TASK },
-    { "hours", required_argument, NULL, O_HOURS },
-    { "cycles", required_argument, NULL, O_CYCLES },
-    { "procedure", required_argument, NULL, O_PROCEDURE },
-    { "procedure-rev", required_argument, NULL, O_PROCEDURE_REV },
-    { "equipment", required_argument, NULL, O_EQUIPMENT },
-    { "calibration", required_argument, NULL, O_CALIBRATION },
-    { "inspector", required_argument, NULL, O_INSPECTOR },
-    { "level", required_argument, NULL, O_LEVEL },
-    { "notes", required_argument, NULL, O_NOTES },
+    CLI_INSPECTION_OPTIONS,
     { "zone", required_argument, NULL, O_ZONE },
     { "description", required_argument, NULL, O_DESCRIPTION },
     { "frame", required_argument, NULL, O_FRAME },
@@ -78,27 +63,41 @@ static const struct option opts[] = {
     { NULL, 0, NULL, 0 },
 };
 
-/* Options are kept by code until we know which record they apply to. */
-#define NOPTS (O_PITCH - O_INSPECTION + 1)
+/* The inspection fields share their options with record and reduce; the
+ * site fields are kept by code until we know which record is corrected. */
+#define NSITE (O_PITCH - O_ZONE + 1)
 typedef struct correct_args {
-    const char *val[NOPTS];
-    int insp_fields, site_fields;
+    cli_inspection_args insp;  /* also --airframe and --site, which name a site */
+    const char *inspection, *reason;
+    const char *site[NSITE];
+    int site_fields;
 } correct_args;
 
 static int take_opt(void *ctx, int opt, const char *arg)
 {
     correct_args *a = ctx;
-    if (opt < O_INSPECTION || opt > O_PITCH)
-        return CLI_USAGE;
-    a->val[opt - O_INSPECTION] = arg;
-    if (opt >= O_KIND && opt <= O_NOTES)
-        a->insp_fields++;
-    else if (opt >= O_ZONE)
+    if (opt == O_INSPECTION)
+        a->inspection = arg;
+    else if (opt == O_REASON)
+        a->reason = arg;
+    else if (opt >= O_ZONE && opt <= O_PITCH) {
+        a->site[opt - O_ZONE] = arg;
         a->site_fields++;
+    } else
+        return cli_inspection_take(&a->insp, opt, arg, usage);
     return 0;
 }
 
-#define V(a, o) ((a)->val[(o) - O_INSPECTION])
+/* Whether an inspection field (not the airframe and site that name a
+ * site) was given. */
+static int inspection_fields(const cli_inspection_args *i)
+{
+    cli_inspection_args rest = *i;
+    rest.airframe = rest.site = NULL;
+    return cli_inspection_given(&rest);
+}
+
+#define V(a, o) ((a)->site[(o) - O_ZONE])
 
 static int vec3(const char *opt, const char *arg, double out[3])
 {
@@ -117,7 +116,7 @@ static int vec3(const char *opt, const char *arg, double out[3])
 static int correct_inspection(const correct_args *a, pl_store *store, const cli_common *common)
 {
     long long key;
-    if (cli_count("--inspection", V(a, O_INSPECTION), &key, usage))
+    if (cli_count("--inspection", a->inspection, &key, usage))
         return CLI_USAGE;
     pl_err err = { 0 };
     pl_inspection in;
@@ -125,31 +124,16 @@ static int correct_inspection(const correct_args *a, pl_store *store, const cli_
     int st = pl_store_get_inspection(store, (pl_id)key, &in, &err);
     if (st)
         return cli_fail_err(st, &err);
-    int rc;
-    double hours = NAN;
-    long long cycles = -1;
-    if ((rc = cli_text(in.kind, sizeof in.kind, V(a, O_KIND), "--kind"))
-        || (rc = cli_text(in.performed_on, sizeof in.performed_on, V(a, O_DATE), "--date"))
-        || (rc = cli_text(in.task_ref, sizeof in.task_ref, V(a, O_TASK), "--task"))
-        || (rc = cli_text(in.procedure, sizeof in.procedure, V(a, O_PROCEDURE), "--procedure"))
-        || (rc = cli_text(in.procedure_rev, sizeof in.procedure_rev, V(a, O_PROCEDURE_REV),
-                          "--procedure-rev"))
-        || (rc = cli_text(in.equipment, sizeof in.equipment, V(a, O_EQUIPMENT), "--equipment"))
-        || (rc = cli_text(in.calibration_ref, sizeof in.calibration_ref, V(a, O_CALIBRATION),
-                          "--calibration"))
-        || (rc = cli_text(in.inspector, sizeof in.inspector, V(a, O_INSPECTOR), "--inspector"))
-        || (rc = cli_text(in.inspector_level, sizeof in.inspector_level, V(a, O_LEVEL), "--level"))
-        || (rc = cli_text(in.notes, sizeof in.notes, V(a, O_NOTES), "--notes"))
-        || (V(a, O_HOURS) && (rc = cli_number("--hours", V(a, O_HOURS), &hours, usage)))
-        || (V(a, O_CYCLES) && (rc = cli_count("--cycles", V(a, O_CYCLES), &cycles, usage)))) {
+    char *params = NULL;
+    int rc = a->insp.parameters ? cli_read_json_object(a->insp.parameters, &params) : 0;
+    if (!rc)
+        rc = cli_inspection_apply(&a->insp, &in, params);
+    free(params);
+    if (rc) {
         pl_inspection_clear(&in);
         return rc;
     }
-    if (V(a, O_HOURS))
-        in.aircraft_hours = hours;
-    if (V(a, O_CYCLES))
-        in.aircraft_cycles = cycles;
-    st = pl_store_correct_inspection(store, (pl_id)key, &in, V(a, O_REASON), NULL, &err);
+    st = pl_store_correct_inspection(store, (pl_id)key, &in, a->reason, NULL, &err);
     pl_inspection_clear(&in);
     if (!st)
         st = pl_store_get_inspection(store, (pl_id)key, &in, &err);
@@ -159,7 +143,7 @@ static int correct_inspection(const correct_args *a, pl_store *store, const cli_
         rc = cli_print_json(cli_json_inspection(&in));
     else if (!common->quiet)
         printf("corrected inspection %lld (now version %lld): %s\n", key, (long long)in.id,
-               V(a, O_REASON));
+               a->reason);
     pl_inspection_clear(&in);
     return rc;
 }
@@ -168,7 +152,7 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
 {
     pl_err err = { 0 };
     pl_site s;
-    int st = pl_store_get_site(store, V(a, O_AIRFRAME), V(a, O_SITE), &s, &err);
+    int st = pl_store_get_site(store, a->insp.airframe, a->insp.site, &s, &err);
     if (st)
         return cli_fail_err(st, &err);
     int rc;
@@ -198,16 +182,16 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
     }
     if (V(a, O_PITCH) && (rc = cli_pitch("--pitch", V(a, O_PITCH), &s.pitch_u, &s.pitch_v, usage)))
         return rc;
-    st = pl_store_correct_site(store, &s, V(a, O_REASON), NULL, &err);
+    st = pl_store_correct_site(store, &s, a->reason, NULL, &err);
     if (!st)
-        st = pl_store_get_site(store, V(a, O_AIRFRAME), V(a, O_SITE), &s, &err);
+        st = pl_store_get_site(store, a->insp.airframe, a->insp.site, &s, &err);
     if (st)
         return cli_fail_err(st, &err);
     if (common->json)
         return cli_print_json(cli_json_site(&s));
     if (!common->quiet)
         printf("corrected site %s on %s (now version %lld): %s\n", s.code, s.airframe_serial,
-               (long long)s.id, V(a, O_REASON));
+               (long long)s.id, a->reason);
     return CLI_OK;
 }
 
@@ -216,25 +200,27 @@ int cmd_correct(int argc, char **argv)
     cli_common common;
     correct_args a;
     memset(&a, 0, sizeof a);
+    cli_inspection_init(&a.insp);
     int first;
     int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
-    int is_insp = V(&a, O_INSPECTION) != NULL;
-    int is_site = V(&a, O_SITE) != NULL || V(&a, O_AIRFRAME) != NULL;
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
+    int is_insp = a.inspection != NULL;
+    int is_site = a.insp.site != NULL || a.insp.airframe != NULL;
+    int insp_fields = inspection_fields(&a.insp);
     if (is_insp == is_site)
         return cli_usage_error(usage, "give --inspection ID, or --airframe and --site");
-    if (is_site && (!V(&a, O_SITE) || !V(&a, O_AIRFRAME)))
+    if (is_site && (!a.insp.site || !a.insp.airframe))
         return cli_usage_error(usage, "a site is named by --airframe and --site together");
-    if (!V(&a, O_REASON) || !*V(&a, O_REASON))
+    if (!a.reason || !*a.reason)
         return cli_usage_error(usage, "--reason is required: say why the record is corrected");
     if (is_insp && a.site_fields)
         return cli_usage_error(usage, "site fields cannot correct an inspection");
-    if (is_site && a.insp_fields)
+    if (is_site && insp_fields)
         return cli_usage_error(usage, "inspection fields cannot correct a site");
-    if (!a.insp_fields && !a.site_fields)
+    if (!insp_fields && !a.site_fields)
         return cli_usage_error(usage, "nothing to correct: give the fields that change");
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, 0)))

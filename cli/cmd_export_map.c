@@ -116,8 +116,8 @@ int cmd_export_map(int argc, char **argv)
     int rc = cli_parse(argc, argv, "o:", opts, &common, take_opt, &a, usage, help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
     if (!a.has_map || !a.output)
         return cli_usage_error(usage, "--map and --output are required");
     const char *format = a.format ? a.format : format_from_name(a.output);

@@ -76,14 +76,6 @@ typedef struct map_out {
     pl_err err;
 } map_out;
 
-static void add_num(cJSON *o, const char *k, double v)
-{
-    if (v == v)
-        cJSON_AddNumberToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
 /* One registration of a map onto its baseline, under the map. */
 static int on_registration(void *ud, const pl_registration_record *g)
 {
@@ -96,15 +88,15 @@ static int on_registration(void *ud, const pl_registration_record *g)
         cJSON_AddStringToObject(o, "method", g->method);
         if (g->refusal[0])
             cJSON_AddStringToObject(o, "refusal", g->refusal);
-        add_num(o, "shift_col_px", g->shift_col_px);
-        add_num(o, "shift_row_px", g->shift_row_px);
-        add_num(o, "shift_u_mm", g->shift_u_mm);
-        add_num(o, "shift_v_mm", g->shift_v_mm);
-        add_num(o, "rotation_deg", g->rotation_deg);
-        add_num(o, "scale", g->scale);
-        add_num(o, "ncc", g->ncc);
-        add_num(o, "peak_sidelobe", g->peak_sidelobe);
-        add_num(o, "overlap_fraction", g->overlap_fraction);
+        cli_json_num(o, "shift_col_px", g->shift_col_px);
+        cli_json_num(o, "shift_row_px", g->shift_row_px);
+        cli_json_num(o, "shift_u_mm", g->shift_u_mm);
+        cli_json_num(o, "shift_v_mm", g->shift_v_mm);
+        cli_json_num(o, "rotation_deg", g->rotation_deg);
+        cli_json_num(o, "scale", g->scale);
+        cli_json_num(o, "ncc", g->ncc);
+        cli_json_num(o, "peak_sidelobe", g->peak_sidelobe);
+        cli_json_num(o, "overlap_fraction", g->overlap_fraction);
         if (g->supplied_by[0]) {
             cJSON_AddStringToObject(o, "supplied_by", g->supplied_by);
             cJSON_AddStringToObject(o, "supplied_reason", g->supplied_reason);
@@ -206,8 +198,8 @@ int cmd_history(int argc, char **argv)
     int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
     if (!a.airframe || !a.site)
         return cli_usage_error(usage, "--airframe and --site are required");
     pl_store *store;

@@ -103,8 +103,8 @@ int cmd_airframes(int argc, char **argv)
     int rc = cli_parse(argc, argv, "", af_opts, &common, take_opt, &a, af_usage, af_help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(af_usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, af_usage)))
+        return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
@@ -179,8 +179,8 @@ int cmd_sites(int argc, char **argv)
                        &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(site_usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, site_usage)))
+        return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
@@ -262,8 +262,8 @@ int cmd_inspections(int argc, char **argv)
                        &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(insp_usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, insp_usage)))
+        return rc;
     if (a.site && !a.airframe)
         return cli_usage_error(insp_usage, "--site needs --airframe (site codes are per airframe)");
     pl_err err = { 0 };

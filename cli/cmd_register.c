@@ -209,14 +209,6 @@ static char *parameters(const reg_args *a)
     return s;
 }
 
-static void add_num(cJSON *o, const char *k, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
 static int print_result(const reg_args *a, const pl_record_pair *pair, const pl_register_result *r,
                         pl_id rid, pl_id cid, const cli_common *common)
 {
@@ -234,17 +226,17 @@ static int print_result(const reg_args *a, const pl_record_pair *pair, const pl_
         cJSON_AddNumberToObject(o, "current_inspection", (double)pair->current_inspection);
         cJSON_AddNumberToObject(o, "current_map", (double)pair->current_map);
         cJSON *t = cJSON_AddObjectToObject(o, "transform");
-        add_num(t, "shift_col_px", r->transform.dx);
-        add_num(t, "shift_row_px", r->transform.dy);
-        add_num(t, "shift_u_mm", r->shift_u_mm);
-        add_num(t, "shift_v_mm", r->shift_v_mm);
-        add_num(t, "rotation_deg", r->transform.rotation_deg);
-        add_num(t, "scale", r->transform.scale);
+        cli_json_num(t, "shift_col_px", r->transform.dx);
+        cli_json_num(t, "shift_row_px", r->transform.dy);
+        cli_json_num(t, "shift_u_mm", r->shift_u_mm);
+        cli_json_num(t, "shift_v_mm", r->shift_v_mm);
+        cli_json_num(t, "rotation_deg", r->transform.rotation_deg);
+        cli_json_num(t, "scale", r->transform.scale);
         cJSON *q = cJSON_AddObjectToObject(o, "quality");
-        add_num(q, "ncc", r->ncc);
-        add_num(q, "peak_sidelobe", r->psr);
-        add_num(q, "overlap_fraction", r->overlap_fraction);
-        add_num(q, "overlap_mm2", r->overlap_mm2);
+        cli_json_num(q, "ncc", r->ncc);
+        cli_json_num(q, "peak_sidelobe", r->psr);
+        cli_json_num(q, "overlap_fraction", r->overlap_fraction);
+        cli_json_num(q, "overlap_mm2", r->overlap_mm2);
         if (cid)
             cJSON_AddNumberToObject(o, "comparison_not_done", (double)cid);
         if (a->aligned && !r->refused)
@@ -292,8 +284,8 @@ int cmd_register(int argc, char **argv)
     int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, helptext, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
     if (!a.airframe || !a.site)
         return cli_usage_error(usage, "--airframe and --site are required");
     if (a.manual && (!a.by || !*a.by || !a.why || !*a.why))

@@ -27,8 +27,8 @@ int cmd_summary(int argc, char **argv)
     int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
@@ -106,8 +106,8 @@ int cmd_quantities(int argc, char **argv)
     int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, q_help, &first);
     if (rc >= 0)
         return rc;
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
+    if ((rc = cli_no_operands(argc, argv, first, usage)))
+        return rc;
     size_t n = pl_quantity_count();
     if (common.json) {
         cJSON *arr = cJSON_CreateArray();

@@ -20,12 +20,12 @@ int cli_print_json(cJSON *value)
     return CLI_OK;
 }
 
-static void add_num(cJSON *o, const char *key, double v)
+void cli_json_num(cJSON *o, const char *key, double v)
 {
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
+    if (isfinite(v))
         cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
 }
 
 /* Empty optional text becomes null, so "not recorded" reads as such. */
@@ -79,8 +79,8 @@ cJSON *cli_json_site(const pl_site *s)
     add_text(o, "stringer", s->stringer);
     cJSON_AddStringToObject(o, "method", s->method);
     add_text(o, "material", s->material);
-    add_num(o, "thickness_mm", s->thickness_mm);
-    add_num(o, "diffusivity_mm2_s", s->diffusivity_mm2_s);
+    cli_json_num(o, "thickness_mm", s->thickness_mm);
+    cli_json_num(o, "diffusivity_mm2_s", s->diffusivity_mm2_s);
     cJSON_AddItemToObject(o, "map_frame", cli_json_placement(&s->map_frame));
     if (s->width_px)
         cJSON_AddNumberToObject(o, "width_px", s->width_px);
@@ -108,7 +108,7 @@ cJSON *cli_json_inspection(const pl_inspection *in)
     cJSON_AddStringToObject(o, "kind", in->kind);
     cJSON_AddStringToObject(o, "date", in->performed_on);
     add_text(o, "task", in->task_ref);
-    add_num(o, "hours", in->aircraft_hours);
+    cli_json_num(o, "hours", in->aircraft_hours);
     if (in->aircraft_cycles >= 0)
         cJSON_AddNumberToObject(o, "cycles", (double)in->aircraft_cycles);
     else

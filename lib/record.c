@@ -101,31 +101,27 @@ static int append_map(pl_record_site *s, pl_record_map **out, pl_err *err)
     return PL_OK;
 }
 
-PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
-                                const char *quantities, const char *units,
-                                double pitch_u, double pitch_v, pl_err *err)
+/* Append a map file with its channel descriptions (n may be 0: from the
+ * file), each checked, a missing unit taking the quantity's default. The
+ * two ways in (comma lists, a sidecar's channel objects) both end here. */
+static int add_map(pl_record *rec, size_t site, const char *path, pl_channel *ch, uint32_t n,
+                   double pitch_u, double pitch_v, pl_err *err)
 {
     if (site >= rec->nsites)
         return pl__err(err, PL_EINVAL, "site index %zu out of range", site);
     if (!path || !*path)
         return pl__err(err, PL_EINVAL, "map file name is empty");
-    enum { MAXCH = 32 };
-    char q[MAXCH][PL_QUANTITY_SIZE], u[MAXCH][PL_UNIT_SIZE];
-    int nq = quantities && *quantities ? split_list(quantities, q[0], PL_QUANTITY_SIZE, MAXCH) : 0;
-    int nu = units && *units ? split_list(units, u[0], PL_UNIT_SIZE, MAXCH) : 0;
-    if (nq < 0 || nu < 0)
-        return pl__err(err, PL_EINVAL, "%s: too many or too long quantities or units", path);
-    if (nu && nq != nu)
-        return pl__err(err, PL_EINVAL, "%s: %d quantities but %d units", path, nq, nu);
-    for (int i = 0; i < nq; i++) {
-        const char *unit = nu ? u[i] : pl_quantity_default_unit(q[i]);
-        if (!unit)
-            return pl__err(err, PL_EINVAL, "%s: quantity %s needs a unit", path, q[i]);
-        int rc = pl_quantity_check(q[i], unit, err);
+    for (uint32_t i = 0; i < n; i++) {
+        if (!ch[i].unit[0]) {
+            const char *unit = pl_quantity_default_unit(ch[i].quantity);
+            if (!unit)
+                return pl__err(err, PL_EINVAL, "%s: quantity %s needs a unit", path,
+                               ch[i].quantity);
+            snprintf(ch[i].unit, sizeof ch[i].unit, "%s", unit);
+        }
+        int rc = pl_quantity_check(ch[i].quantity, ch[i].unit, err);
         if (rc)
             return rc;
-        if (!nu && strlen(unit) < sizeof u[i])
-            memcpy(u[i], unit, strlen(unit) + 1);
     }
     if ((!isnan(pitch_u) && !(pitch_u > 0 && isfinite(pitch_u)))
         || (!isnan(pitch_v) && !(pitch_v > 0 && isfinite(pitch_v))))
@@ -138,16 +134,38 @@ PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
     m->pitch_v = pitch_v;
     if (!(m->path = pl__strdup(path)))
         return pl__err(err, PL_ENOMEM, "out of memory");
-    if (nq) {
-        if (!(m->channels = calloc((size_t)nq, sizeof *m->channels)))
+    if (n) {
+        if (!(m->channels = calloc(n, sizeof *m->channels)))
             return pl__err(err, PL_ENOMEM, "out of memory");
-        m->nchannels = (uint32_t)nq;
-        for (int i = 0; i < nq; i++) {
-            memcpy(m->channels[i].quantity, q[i], sizeof q[i]);
-            memcpy(m->channels[i].unit, u[i], sizeof u[i]);
-        }
+        memcpy(m->channels, ch, n * sizeof *ch);
+        m->nchannels = n;
     }
     return PL_OK;
+}
+
+enum { MAX_LISTED_CHANNELS = 32 };
+
+PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
+                                const char *quantities, const char *units,
+                                double pitch_u, double pitch_v, pl_err *err)
+{
+    const char *name = path && *path ? path : "map";
+    char q[MAX_LISTED_CHANNELS][PL_QUANTITY_SIZE], u[MAX_LISTED_CHANNELS][PL_UNIT_SIZE];
+    int nq = quantities && *quantities
+                 ? split_list(quantities, q[0], PL_QUANTITY_SIZE, MAX_LISTED_CHANNELS) : 0;
+    int nu = units && *units ? split_list(units, u[0], PL_UNIT_SIZE, MAX_LISTED_CHANNELS) : 0;
+    if (nq < 0 || nu < 0)
+        return pl__err(err, PL_EINVAL, "%s: too many or too long quantities or units", name);
+    if (nu && nq != nu)
+        return pl__err(err, PL_EINVAL, "%s: %d quantities but %d units", name, nq, nu);
+    pl_channel ch[MAX_LISTED_CHANNELS];
+    memset(ch, 0, sizeof ch);
+    for (int i = 0; i < nq; i++) {
+        memcpy(ch[i].quantity, q[i], sizeof q[i]);
+        if (nu)
+            memcpy(ch[i].unit, u[i], sizeof u[i]);
+    }
+    return add_map(rec, site, path, ch, (uint32_t)nq, pitch_u, pitch_v, err);
 }
 
 /* ---- sidecar ----------------------------------------------------------- */
@@ -304,29 +322,29 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         if (!(pu > 0) || !(pv > 0))
             return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
     }
-    /* Build the comma lists pl_record_add_map() takes. */
-    char qlist[1024] = "", ulist[1024] = "";
+    pl_channel ch[MAX_LISTED_CHANNELS];
+    memset(ch, 0, sizeof ch);
+    uint32_t n = 0;
     if (jch) {
         if (!cJSON_IsArray(jch))
             return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", file);
-        int first = 1;
         for (const cJSON *c = jch->child; c; c = c->next) {
             const cJSON *q = cJSON_GetObjectItemCaseSensitive(c, "quantity");
             const cJSON *u = cJSON_GetObjectItemCaseSensitive(c, "unit");
             if (!cJSON_IsString(q) || (u && !cJSON_IsString(u)) || cJSON_GetArraySize(c) != (u ? 2 : 1))
                 return pl__err(err, PL_EFORMAT,
                                "%s: each channel is {\"quantity\": text, \"unit\": text}", file);
-            const char *unit = u ? u->valuestring : pl_quantity_default_unit(q->valuestring);
-            if (!unit)
-                return pl__err(err, PL_EINVAL, "%s: quantity %s needs a unit", file, q->valuestring);
-            if (strchr(q->valuestring, ',') || strchr(unit, ','))
-                return pl__err(err, PL_EINVAL, "%s: a quantity or unit cannot contain ','", file);
-            size_t ql = strlen(qlist), ul = strlen(ulist);
-            if (ql + strlen(q->valuestring) + 2 >= sizeof qlist || ul + strlen(unit) + 2 >= sizeof ulist)
-                return pl__err(err, PL_EINVAL, "%s: too many channels", file);
-            snprintf(qlist + ql, sizeof qlist - ql, "%s%s", first ? "" : ",", q->valuestring);
-            snprintf(ulist + ul, sizeof ulist - ul, "%s%s", first ? "" : ",", unit);
-            first = 0;
+            if (n == MAX_LISTED_CHANNELS)
+                return pl__err(err, PL_EINVAL, "%s: too many channels (at most %d)", file,
+                               MAX_LISTED_CHANNELS);
+            int rc = pl__copy_text(ch[n].quantity, sizeof ch[n].quantity, q->valuestring,
+                                   "channel quantity", err);
+            if (!rc && u)
+                rc = pl__copy_text(ch[n].unit, sizeof ch[n].unit, u->valuestring, "channel unit",
+                                   err);
+            if (rc)
+                return rc;
+            n++;
         }
     }
     const char *name = jfile->valuestring;
@@ -335,7 +353,7 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         snprintf(path, sizeof path, "%s", name);
     else
         snprintf(path, sizeof path, "%s/%s", dir, name);
-    int rc = pl_record_add_map(rec, site, path, qlist, ulist, pu, pv, err);
+    int rc = add_map(rec, site, path, ch, n, pu, pv, err);
     if (rc)
         return rc;
     if (jplace) {

@@ -17,6 +17,8 @@
  *
  * Usage: genscenes PLAN.csv OUTDIR
  */
+#include <plyledger.h>
+
 #include <errno.h>
 #include <math.h>
 #include <stdint.h>
@@ -94,62 +96,41 @@ static const indication indications[] = {
 };
 
 typedef struct site {
-    char code[16];
+    char code[PL_NAME_SIZE];
     double thickness_mm;
     double diffusivity;
 } site;
 
-/* Read the codes and thicknesses of the plan (the columns the generator
- * needs; the plan itself is checked by plyledger import-plan). */
+/* The codes, thicknesses and diffusivities of the site plan, read (and
+ * checked) by the library's plan reader. */
 static int read_plan(const char *path, site *sites)
 {
-    FILE *f = fopen(path, "r");
-    if (!f) {
-        fprintf(stderr, "genscenes: cannot open %s: %s\n", path, strerror(errno));
+    pl_plan *plan;
+    pl_err err = { 0 };
+    if (pl_plan_load(&plan, path, &err)) {
+        fprintf(stderr, "genscenes: %s\n", err.msg);
         return -1;
     }
-    char line[2048];
-    int n = 0, col_site = -1, col_thick = -1, col_diff = -1;
-    while (fgets(line, sizeof line, f)) {
-        char *fields[64];
-        int nf = 0, quoted = 0;
-        char *p = line;
-        fields[nf++] = p;
-        for (; *p && *p != '\n' && *p != '\r'; p++) {
-            if (*p == '"')
-                quoted = !quoted;
-            else if (*p == ',' && !quoted && nf < 64) {
-                *p = '\0';
-                fields[nf++] = p + 1;
-            }
-        }
-        *p = '\0';
-        if (col_site < 0) {
-            for (int i = 0; i < nf; i++) {
-                if (strcmp(fields[i], "site") == 0) col_site = i;
-                if (strcmp(fields[i], "thickness_mm") == 0) col_thick = i;
-                if (strcmp(fields[i], "diffusivity_mm2_s") == 0) col_diff = i;
-            }
-            if (col_site < 0 || col_thick < 0 || col_diff < 0) {
-                fprintf(stderr, "genscenes: %s: needs site, thickness_mm, diffusivity_mm2_s\n", path);
-                fclose(f);
-                return -1;
-            }
-            continue;
-        }
-        if (n == NSITES || nf <= col_site || nf <= col_thick || nf <= col_diff)
+    int rc = 0;
+    if (plan->nsites != NSITES) {
+        fprintf(stderr, "genscenes: %s: expected %d sites, found %zu\n", path, NSITES,
+                plan->nsites);
+        rc = -1;
+    }
+    for (size_t i = 0; !rc && i < NSITES; i++) {
+        const pl_site *p = &plan->sites[i];
+        if (!(p->thickness_mm > 0) || !(p->diffusivity_mm2_s > 0)) {
+            fprintf(stderr, "genscenes: %s: site %s needs thickness_mm and diffusivity_mm2_s\n",
+                    path, p->code);
+            rc = -1;
             break;
-        snprintf(sites[n].code, sizeof sites[n].code, "%s", fields[col_site]);
-        sites[n].thickness_mm = atof(fields[col_thick]);
-        sites[n].diffusivity = atof(fields[col_diff]);
-        n++;
+        }
+        snprintf(sites[i].code, sizeof sites[i].code, "%s", p->code);
+        sites[i].thickness_mm = p->thickness_mm;
+        sites[i].diffusivity = p->diffusivity_mm2_s;
     }
-    fclose(f);
-    if (n != NSITES) {
-        fprintf(stderr, "genscenes: %s: expected %d sites, found %d\n", path, NSITES, n);
-        return -1;
-    }
-    return 0;
+    pl_plan_free(plan);
+    return rc;
 }
 
 /* Placement error of inspection c at a site: shift (mm) and rotation
