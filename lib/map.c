@@ -80,24 +80,26 @@ PL_EXPORT const pl_quantity_info *pl_quantity_at(size_t i)
     return i < NQUANTITIES ? &quantities[i].info : NULL;
 }
 
-PL_EXPORT const pl_quantity_info *pl_quantity_lookup(const char *name)
+static const struct vocab_entry *find_entry(const char *name)
 {
     if (!name)
         return NULL;
     for (size_t i = 0; i < NQUANTITIES; i++)
         if (strcmp(quantities[i].info.name, name) == 0)
-            return &quantities[i].info;
+            return &quantities[i];
     return NULL;
+}
+
+PL_EXPORT const pl_quantity_info *pl_quantity_lookup(const char *name)
+{
+    const struct vocab_entry *e = find_entry(name);
+    return e ? &e->info : NULL;
 }
 
 PL_EXPORT const char *pl_quantity_default_unit(const char *quantity)
 {
-    if (!quantity)
-        return NULL;
-    for (size_t i = 0; i < NQUANTITIES; i++)
-        if (strcmp(quantities[i].info.name, quantity) == 0)
-            return quantities[i].default_unit;
-    return NULL;
+    const struct vocab_entry *e = find_entry(quantity);
+    return e ? e->default_unit : NULL;
 }
 
 /* Whether `unit` is one of the space separated words in `list`. */
@@ -412,15 +414,15 @@ int pl_map__parse_pitch(double *pu, double *pv, const char *s)
 
 #define CHUNK_VALUES 4096
 
-/* Little-endian float32 bytes with every NaN made the quiet NaN
- * 0x7fc00000, so that equal maps give equal bytes and digests whatever
- * NaN payloads or host byte order produced them. */
-static void to_le(unsigned char *out, const float *in, size_t n)
+/* The store encodes with canonical_nan set, so that equal maps give equal
+ * bytes and digests whatever NaN payloads or host byte order produced
+ * them. */
+void pl_map__f32_to_le(unsigned char *out, const float *in, size_t n, int canonical_nan)
 {
     for (size_t i = 0; i < n; i++) {
         uint32_t b;
         memcpy(&b, &in[i], sizeof b);
-        if ((b & 0x7f800000u) == 0x7f800000u && (b & 0x007fffffu))
+        if (canonical_nan && (b & 0x7f800000u) == 0x7f800000u && (b & 0x007fffffu))
             b = 0x7fc00000u;
         out[4 * i] = (unsigned char)(b & 0xff);
         out[4 * i + 1] = (unsigned char)(b >> 8 & 0xff);
@@ -449,7 +451,7 @@ PL_EXPORT void pl_map_digest(unsigned char sha256[32], const pl_map *map)
     pl_sha256_init(&ctx);
     for (size_t done = 0; done < count;) {
         size_t n = count - done < CHUNK_VALUES ? count - done : CHUNK_VALUES;
-        to_le(buf, map->data + done, n);
+        pl_map__f32_to_le(buf, map->data + done, n, 1);
         pl_sha256_update(&ctx, buf, 4 * n);
         done += n;
     }
@@ -486,7 +488,7 @@ PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len, unsigned cha
     zrc = Z_OK;
     while (zrc != Z_STREAM_END) {
         size_t n = count - done < CHUNK_VALUES ? count - done : CHUNK_VALUES;
-        to_le(buf, map->data + done, n);
+        pl_map__f32_to_le(buf, map->data + done, n, 1);
         pl_sha256_update(&ctx, buf, 4 * n);
         done += n;
         zs.next_in = buf;

@@ -18,6 +18,13 @@
 int pl_map__count(size_t *count, uint32_t width, uint32_t height, uint32_t nchannels);
 
 /*
+ * Little-endian float32 bytes of n values into out (4 n bytes), whatever
+ * the host's byte order: bit for bit, or with canonical_nan every NaN
+ * written as the quiet NaN 0x7fc00000 (the store encoding).
+ */
+void pl_map__f32_to_le(unsigned char *out, const float *in, size_t n, int canonical_nan);
+
+/*
  * Parse a decimal number as written in text files: optional sign, digits
  * with an optional fraction, optional exponent; surrounding blanks allowed.
  * No hex, no "inf", no "nan" (callers decide about those).

@@ -132,15 +132,7 @@ static int write_npy(const pl_map *map, FILE *f, const char *path, pl_err *err)
     unsigned char buf[4 * CHUNK_VALUES];
     for (size_t done = 0; done < count;) {
         size_t n = count - done < CHUNK_VALUES ? count - done : CHUNK_VALUES;
-        /* explicit little-endian bytes, whatever the host's order */
-        for (size_t i = 0; i < n; i++) {
-            uint32_t b;
-            memcpy(&b, &map->data[done + i], sizeof b);
-            buf[4 * i] = (unsigned char)(b & 0xff);
-            buf[4 * i + 1] = (unsigned char)(b >> 8 & 0xff);
-            buf[4 * i + 2] = (unsigned char)(b >> 16 & 0xff);
-            buf[4 * i + 3] = (unsigned char)(b >> 24);
-        }
+        pl_map__f32_to_le(buf, map->data + done, n, 0);
         if (fwrite(buf, 4, n, f) != n)
             return pl__err(err, PL_EIO, "%s: cannot write: %s", path, strerror(errno));
         done += n;

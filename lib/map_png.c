@@ -1,17 +1,18 @@
 /*
- * map_png.c - maps to and from grayscale PNG with plyledger.* text chunks.
+ * map_png.c - maps to and from grayscale PNG with plyledger.* text chunks;
+ * also the libpng set-up of png_int.h, shared with render.c and seq.c.
  *
  * libpng reports errors by longjmp. Each libpng session keeps everything
  * it allocates in a `png_job` owned by the caller's frame; the function
  * that calls setjmp() only fills that struct, so after a longjmp nothing
- * lives in clobbered locals and the caller frees it all on one path.
+ * lives in clobbered locals and job_end() frees it all on one path.
  */
 #include "map_int.h"
 #include "common_int.h"
+#include "png_int.h"
 
 #include <errno.h>
 #include <math.h>
-#include <png.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -20,21 +21,12 @@
 #define NODATA_CODE 65535
 #define MAX_CODE 65534
 
-typedef struct png_job {
-    FILE *f;
-    const char *path;
-    long long file_size;    /* -1 when unknown */
-    png_structp png;
-    png_infop info;
-    unsigned char *image;   /* the decoded rows, or one row when writing */
-    png_bytep *rows;
-    char msg[160];          /* libpng's own complaint */
-} png_job;
+/* ---- libpng set-up (png_int.h) ---------------------------------------- */
 
 static void on_error(png_structp png, png_const_charp msg)
 {
-    png_job *j = png_get_error_ptr(png);
-    snprintf(j->msg, sizeof j->msg, "%s", msg ? msg : "unknown error");
+    char *buf = png_get_error_ptr(png);
+    snprintf(buf, PL_PNG_MSG_SIZE, "%s", msg ? msg : "unknown error");
     png_longjmp(png, 1);
 }
 
@@ -42,6 +34,77 @@ static void on_warning(png_structp png, png_const_charp msg)
 {
     (void)png;
     (void)msg;
+}
+
+int pl_png__create(png_structp *png, png_infop *info, int writing, char *msg)
+{
+    msg[0] = '\0';
+    *png = writing ? png_create_write_struct(PNG_LIBPNG_VER_STRING, msg, on_error, on_warning)
+                   : png_create_read_struct(PNG_LIBPNG_VER_STRING, msg, on_error, on_warning);
+    *info = *png ? png_create_info_struct(*png) : NULL;
+    if (*info)
+        return 0;
+    pl_png__destroy(png, info, writing);
+    return -1;
+}
+
+void pl_png__destroy(png_structp *png, png_infop *info, int writing)
+{
+    if (*png) {
+        if (writing)
+            png_destroy_write_struct(png, *info ? info : NULL);
+        else
+            png_destroy_read_struct(png, *info ? info : NULL, NULL);
+    }
+    *png = NULL;
+    *info = NULL;
+}
+
+/* ---- one file --------------------------------------------------------- */
+
+typedef struct png_job {
+    FILE *f;
+    const char *path;
+    int writing;
+    long long file_size;    /* when reading; -1 when unknown */
+    png_structp png;
+    png_infop info;
+    unsigned char *image;   /* the decoded rows, or one row when writing */
+    png_bytep *rows;
+    char msg[PL_PNG_MSG_SIZE]; /* libpng's own complaint */
+} png_job;
+
+/* Open `path` for reading or writing and make libpng's structs for it.
+ * Whatever the outcome, the job is then ready for job_end(). */
+static int job_begin(png_job *j, const char *path, int writing, pl_err *err)
+{
+    memset(j, 0, sizeof *j);
+    j->path = path;
+    j->writing = writing;
+    j->f = fopen(path, writing ? "wb" : "rb");
+    if (!j->f)
+        return pl__err(err, PL_EIO, "%s: cannot %s: %s", path, writing ? "create" : "open",
+                       strerror(errno));
+    if (pl_png__create(&j->png, &j->info, writing, j->msg))
+        return pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG %s", path,
+                       writing ? "writer" : "reader");
+    return PL_OK;
+}
+
+/* Free the job and close its file; a written file must close cleanly, and
+ * one whose writing failed is removed. Returns `rc` or the close error. */
+static int job_end(png_job *j, int rc, pl_err *err)
+{
+    pl_png__destroy(&j->png, &j->info, j->writing);
+    free(j->rows);
+    free(j->image);
+    if (!j->f)
+        return rc;
+    if (fclose(j->f) != 0 && rc == PL_OK && j->writing)
+        rc = pl__err(err, PL_EIO, "%s: cannot write: %s", j->path, strerror(errno));
+    if (rc && j->writing)
+        remove(j->path);
+    return rc;
 }
 
 static const char *colour_type_name(int ctype)
@@ -205,42 +268,34 @@ static int read_png(png_job *j, pl_map **out, pl_err *err)
     return PL_OK;
 }
 
+/* The file's size, for the bound in read_png(), and its PNG signature. */
+static int read_signature(png_job *j, pl_err *err)
+{
+    j->file_size = -1;
+    if (fseeko(j->f, 0, SEEK_END) == 0) {
+        off_t end = ftello(j->f);
+        j->file_size = end >= 0 ? (long long)end : -1;
+    }
+    rewind(j->f);
+    unsigned char sig[8];
+    size_t got = fread(sig, 1, sizeof sig, j->f);
+    if (got < sizeof sig && ferror(j->f))
+        return pl__err(err, PL_EIO, "%s: cannot read: %s", j->path, strerror(errno));
+    if (got < sizeof sig || png_sig_cmp(sig, 0, sizeof sig) != 0)
+        return pl__err(err, PL_EFORMAT, "%s: not a PNG file", j->path);
+    return PL_OK;
+}
+
 PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err)
 {
     *out = NULL;
     png_job j;
-    memset(&j, 0, sizeof j);
-    j.path = path;
-    j.f = fopen(path, "rb");
-    if (!j.f)
-        return pl__err(err, PL_EIO, "%s: cannot open: %s", path, strerror(errno));
-    j.file_size = -1;
-    if (fseeko(j.f, 0, SEEK_END) == 0) {
-        off_t end = ftello(j.f);
-        j.file_size = end >= 0 ? (long long)end : -1;
-    }
-    rewind(j.f);
-    unsigned char sig[8];
-    size_t got = fread(sig, 1, sizeof sig, j.f);
-    int rc;
-    if (got < sizeof sig && ferror(j.f)) {
-        rc = pl__err(err, PL_EIO, "%s: cannot read: %s", path, strerror(errno));
-    } else if (got < sizeof sig || png_sig_cmp(sig, 0, sizeof sig) != 0) {
-        rc = pl__err(err, PL_EFORMAT, "%s: not a PNG file", path);
-    } else {
-        j.png = png_create_read_struct(PNG_LIBPNG_VER_STRING, &j, on_error, on_warning);
-        j.info = j.png ? png_create_info_struct(j.png) : NULL;
-        if (!j.png || !j.info)
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG reader", path);
-        else
-            rc = read_png(&j, out, err);
-    }
-    if (j.png)
-        png_destroy_read_struct(&j.png, j.info ? &j.info : NULL, NULL);
-    free(j.rows);
-    free(j.image);
-    fclose(j.f);
-    return rc;
+    int rc = job_begin(&j, path, 0, err);
+    if (rc == PL_OK)
+        rc = read_signature(&j, err);
+    if (rc == PL_OK)
+        rc = read_png(&j, out, err);
+    return job_end(&j, rc, err);
 }
 
 /* ---- writing ---------------------------------------------------------- */
@@ -254,8 +309,9 @@ typedef struct png_texts {
     int n;  /* chunks in use */
 } png_texts;
 
-static void add_text(png_texts *t, int i, const char *key, const char *value)
+static void add_text(png_texts *t, const char *key, const char *value)
 {
+    int i = t->n++;
     snprintf(t->key[i], sizeof t->key[i], "%s", key);
     snprintf(t->value[i], sizeof t->value[i], "%s", value);
     memset(&t->text[i], 0, sizeof t->text[i]);
@@ -263,8 +319,6 @@ static void add_text(png_texts *t, int i, const char *key, const char *value)
     t->text[i].key = t->key[i];
     t->text[i].text = t->value[i];
     t->text[i].text_length = strlen(t->value[i]);
-    if (i + 1 > t->n)
-        t->n = i + 1;
 }
 
 /* The code of one value: offset + scale * code is within scale / 2 of a
@@ -325,38 +379,22 @@ PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, p
     memset(&t, 0, sizeof t);
     char num[80];
     snprintf(num, sizeof num, "%.17g", scale);
-    add_text(&t, 0, PL_PNG_KEY_SCALE, num);
+    add_text(&t, PL_PNG_KEY_SCALE, num);
     snprintf(num, sizeof num, "%.17g", offset);
-    add_text(&t, 1, PL_PNG_KEY_OFFSET, num);
+    add_text(&t, PL_PNG_KEY_OFFSET, num);
     snprintf(num, sizeof num, "%d", NODATA_CODE);
-    add_text(&t, 2, PL_PNG_KEY_NODATA, num);
-    add_text(&t, 3, PL_PNG_KEY_QUANTITY, map->channels[c].quantity);
-    add_text(&t, 4, PL_PNG_KEY_UNIT, map->channels[c].unit);
+    add_text(&t, PL_PNG_KEY_NODATA, num);
+    add_text(&t, PL_PNG_KEY_QUANTITY, map->channels[c].quantity);
+    add_text(&t, PL_PNG_KEY_UNIT, map->channels[c].unit);
     /* A map whose pitch is not known (NaN) gets no pitch chunk. */
     if (isfinite(map->pitch_u) && isfinite(map->pitch_v)) {
         snprintf(num, sizeof num, "%.17g %.17g", map->pitch_u, map->pitch_v);
-        add_text(&t, 5, PL_PNG_KEY_PITCH, num);
+        add_text(&t, PL_PNG_KEY_PITCH, num);
     }
 
     png_job j;
-    memset(&j, 0, sizeof j);
-    j.path = path;
-    j.f = fopen(path, "wb");
-    if (!j.f)
-        return pl__err(err, PL_EIO, "%s: cannot create: %s", path, strerror(errno));
-    int rc;
-    j.png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &j, on_error, on_warning);
-    j.info = j.png ? png_create_info_struct(j.png) : NULL;
-    if (!j.png || !j.info)
-        rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG writer", path);
-    else
+    int rc = job_begin(&j, path, 1, err);
+    if (rc == PL_OK)
         rc = write_png(&j, map, c, &t, offset, scale, err);
-    if (j.png)
-        png_destroy_write_struct(&j.png, j.info ? &j.info : NULL);
-    free(j.image);
-    if (fclose(j.f) != 0 && rc == PL_OK)
-        rc = pl__err(err, PL_EIO, "%s: cannot write: %s", path, strerror(errno));
-    if (rc)
-        remove(path);
-    return rc;
+    return job_end(&j, rc, err);
 }

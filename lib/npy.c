@@ -45,38 +45,53 @@ PL_EXPORT const char *pl_npy_dtype_name(pl_npy_dtype dtype)
     return "unsupported";
 }
 
-char *pl_npy__descr_name(char *out, size_t cap, const char *descr)
+/*
+ * Split a simple descr string ("<f4", "|u1", "c16") into its byte order
+ * character ('|' when none is written), kind letter and item size. Returns
+ * 0, or -1 when the string is not of that form (no kind, no size, more
+ * than 4 digits, anything after them); order and kind are set either way.
+ */
+static int split_descr(const char *descr, char *order, char *kind, unsigned long *size)
 {
     const char *d = descr;
+    *order = '|';
     if (*d == '<' || *d == '>' || *d == '|' || *d == '=')
-        d++;
-    const char *kind = NULL;
-    switch (*d) {
-    case 'b': kind = "bool"; break;
-    case 'i': kind = "int"; break;
-    case 'u': kind = "uint"; break;
-    case 'f': kind = "float"; break;
-    case 'c': kind = "complex"; break;
-    default: break;
-    }
-    unsigned long bytes = 0;
+        *order = *d++;
+    *kind = *d;
+    *size = 0;
+    if (!*d)
+        return -1;
     int digits = 0;
-    for (const char *p = d + (*d ? 1 : 0); *p; p++) {
-        if (*p < '0' || *p > '9' || digits >= 4) {
-            kind = NULL;
-            break;
-        }
-        bytes = bytes * 10 + (unsigned long)(*p - '0');
+    for (const char *p = d + 1; *p; p++) {
+        if (*p < '0' || *p > '9' || digits >= 4)
+            return -1;
+        *size = *size * 10 + (unsigned long)(*p - '0');
         digits++;
     }
-    if (kind && digits && bytes) {
-        if (strcmp(kind, "bool") == 0)
-            snprintf(out, cap, "bool");
-        else
-            snprintf(out, cap, "%s%lu", kind, bytes * 8);
-    } else {
-        snprintf(out, cap, "'%s'", descr);
+    return digits ? 0 : -1;
+}
+
+char *pl_npy__descr_name(char *out, size_t cap, const char *descr)
+{
+    char order, kind;
+    unsigned long bytes;
+    const char *name = NULL;
+    if (split_descr(descr, &order, &kind, &bytes) == 0 && bytes) {
+        switch (kind) {
+        case 'b': name = "bool"; break;
+        case 'i': name = "int"; break;
+        case 'u': name = "uint"; break;
+        case 'f': name = "float"; break;
+        case 'c': name = "complex"; break;
+        default: break;
+        }
     }
+    if (!name)
+        snprintf(out, cap, "'%s'", descr);
+    else if (kind == 'b')
+        snprintf(out, cap, "bool");
+    else
+        snprintf(out, cap, "%s%lu", name, bytes * 8);
     return out;
 }
 
@@ -197,24 +212,13 @@ static int skip_bracketed(hreader *r)
 /* Fill dtype, big_endian and itemsize from the descr string. */
 static void classify_descr(pl_npy_header *hdr)
 {
-    const char *d = hdr->descr;
-    char order = '|';
-    if (*d == '<' || *d == '>' || *d == '|' || *d == '=')
-        order = *d++;
-    char kind = *d;
-    unsigned long size = 0;
-    int digits = 0;
-    int ok = kind != '\0';
-    for (const char *p = d + (ok ? 1 : 0); ok && *p; p++) {
-        if (*p < '0' || *p > '9' || digits >= 4)
-            ok = 0;
-        else
-            size = size * 10 + (unsigned long)(*p - '0'), digits++;
-    }
+    char order, kind;
+    unsigned long size;
+    int ok = split_descr(hdr->descr, &order, &kind, &size) == 0;
     hdr->dtype = PL_NPY_UNSUPPORTED;
-    hdr->itemsize = ok && digits ? size : 0;
+    hdr->itemsize = ok ? size : 0;
     hdr->big_endian = order == '>' || (order == '=' && host_big_endian());
-    if (!ok || !digits)
+    if (!ok)
         return;
     if (kind == 'u' && size == 1)
         hdr->dtype = PL_NPY_U8;
@@ -444,10 +448,7 @@ PL_EXPORT int pl_npy_read_header(pl_npy_header *hdr, FILE *f, const char *name, 
 
     hreader r = {.f = f, .left = hlen, .name = name, .err = err};
     advance(&r);
-    int rc = parse_dict(&r, hdr);
-    if (rc)
-        return rc;
-    return PL_OK;
+    return parse_dict(&r, hdr);
 }
 
 /* ---- header writer --------------------------------------------------- */

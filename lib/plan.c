@@ -13,7 +13,6 @@
 
 #include <assert.h>
 #include <csv.h>
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -39,6 +38,10 @@ static const struct {
 
 #define DEFAULT_SYSTEM "STA/BL/WL"
 #define DEFAULT_UNIT "mm"
+
+/* Far above any plan (a thousand sites take some 150 kB); a wrong file of
+ * gigabytes is refused instead of read. */
+#define PLAN_MAX_BYTES ((size_t)64 << 20)
 
 typedef struct reader {
     const char *path;
@@ -136,7 +139,6 @@ static int parse_number(const char *s, double *out)
     if (!*s || strchr(" \t\r\n\f\v", s[0]) || strpbrk(s, "xX"))
         return 0;
     char *end;
-    errno = 0;
     double v = strtod(s, &end);
     if (*end)
         return 0;
@@ -366,34 +368,17 @@ PL_EXPORT int pl_plan_load(pl_plan **out, const char *path, pl_err *err)
 {
     assert(out && path);
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot open: %s", path, strerror(errno));
-    size_t cap = 1 << 14, len = 0, got;
-    char *buf = malloc(cap);
-    while (buf && (got = fread(buf + len, 1, cap - len, f)) > 0) {
-        len += got;
-        if (len == cap) {
-            char *nb = realloc(buf, cap *= 2);
-            if (!nb)
-                free(buf);
-            buf = nb;
-        }
-    }
-    int bad = ferror(f);
-    fclose(f);
-    if (!buf)
-        return pl__err(err, PL_ENOMEM, "%s: out of memory", path);
-    if (bad) {
-        free(buf);
-        return pl__err(err, PL_EIO, "%s: read error", path);
-    }
+    char *buf = NULL;
+    size_t len = 0;
+    int rc = pl__read_text(&buf, &len, path, PLAN_MAX_BYTES, err);
+    if (rc)
+        return rc;
 
     reader r;
     memset(&r, 0, sizeof r);
     r.path = path;
     r.err = err;
-    int rc = parse(&r, buf, len);
+    rc = parse(&r, buf, len);
     free(buf);
     free(r.fields);
     if (!rc && !r.have_header)

@@ -301,13 +301,6 @@ static void deriv_coefs(double *out, const double *c, uint32_t deg, uint32_t ord
     }
 }
 
-/* Coefficients of the first derivative of a degree-`deg` polynomial. */
-static void poly_deriv(double *out, const double *c, uint32_t deg)
-{
-    for (uint32_t i = 0; i < deg; i++)
-        out[i] = (double)(i + 1) * c[i + 1];
-}
-
 /*
  * The maximum of the second derivative whose third derivative (c3, degree
  * d3; c4 its derivative) changes sign in grid interval g (from gx[g - 1]
@@ -512,7 +505,7 @@ typedef struct scratch {
     int status[PB];
     uint32_t nvalid[PB];
     double noise2[PB]; /* per-frame temperature noise variance from the residuals, K^2 */
-    double *A, *z, *zz, *v; /* one pixel's own solve and slab fit */
+    double *A, *z, *v; /* one pixel's own solve and slab fit */
     unsigned char *valid;
     double *vals;   /* reference medians */
     float *fft_in;
@@ -547,7 +540,6 @@ struct pl_reducer {
     unsigned products;
     uint32_t degree, k; /* k = degree + 1 coefficients */
     double alpha;
-    pl_peak_rule rule;
     double min_d2;  /* significance of a maximum of d2: least value, per (ln t)^2 */
     double min_snr; /* and least ratio to its noise */
 
@@ -614,8 +606,7 @@ struct pl_reducer {
     scratch *ws;
     size_t chunk0, chunk1; /* the pixels of the running per-pixel chunk */
     double cref[PL_REDUCE_MAX_DEGREE + 1];
-    double *ref_rise;        /* nused: reconstructed reference rise */
-    float *ref_risef;        /* the same in float */
+    float *ref_risef;        /* nused: reconstructed reference rise */
     int ref_region;
     size_t *ref_pix, ref_np; /* pixels making the reference */
     double *zref;            /* nused: reference samples */
@@ -798,10 +789,16 @@ static void submit_batch(pl_reducer *r)
     r->batch[r->cur].count = 0;
 }
 
+/* A frame enters the reduction: cold reference, log-spaced or uniform bin. */
+static int role_needed(const frame_role *ro)
+{
+    return ro->pre || ro->lbin >= 0 || ro->pbin >= 0;
+}
+
 static uint32_t next_needed_after(const pl_reducer *r, int64_t index)
 {
     uint32_t i = (uint32_t)(index + 1);
-    while (i < r->nframes && !(r->role[i].pre || r->role[i].lbin >= 0 || r->role[i].pbin >= 0))
+    while (i < r->nframes && !role_needed(&r->role[i]))
         i++;
     return i;
 }
@@ -866,10 +863,7 @@ static int commit_frame(pl_reducer *r, uint32_t index, pl_err *err)
 PL_EXPORT int pl_reducer_frame_needed(const pl_reducer *r, uint32_t index)
 {
     assert(r);
-    if (index >= r->nframes)
-        return 0;
-    const frame_role *ro = &r->role[index];
-    return ro->pre || ro->lbin >= 0 || ro->pbin >= 0;
+    return index < r->nframes && role_needed(&r->role[index]);
 }
 
 PL_EXPORT int pl_reducer_frame(pl_reducer *r, uint32_t index, const float *kelvin, pl_err *err)
@@ -1365,7 +1359,6 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     r->degree = o->degree;
     r->k = o->degree + 1;
     r->alpha = o->diffusivity_mm2_s;
-    r->rule = o->peak_rule;
     r->min_d2 = isnan(o->peak_min_d2) ? PL_REDUCE_DEFAULT_PEAK_MIN_D2 : o->peak_min_d2;
     r->min_snr = isnan(o->peak_min_snr) ? PL_REDUCE_DEFAULT_PEAK_MIN_SNR : o->peak_min_snr;
     r->nfreq = o->phase_frequencies;
@@ -1394,7 +1387,6 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     r->designf = alloc_array(nb * r->k, sizeof *r->designf, &bad);
     r->pinv = alloc_array(nb * r->k, sizeof *r->pinv, &bad);
     r->w2 = alloc_array(nb * (PEAK_GRID + 1), sizeof *r->w2, &bad);
-    r->ref_rise = alloc_array(nb, sizeof *r->ref_rise, &bad);
     r->ref_risef = alloc_array(nb, sizeof *r->ref_risef, &bad);
     if (r->M) {
         r->pcount = alloc_array(r->M, sizeof *r->pcount, &bad);
@@ -1473,7 +1465,6 @@ PL_EXPORT void pl_reducer_free(pl_reducer *r)
     free(r->designf);
     free(r->pinv);
     free(r->w2);
-    free(r->ref_rise);
     free(r->ref_risef);
     free(r->ref_pix);
     free(r->zref);
@@ -1551,58 +1542,53 @@ static void fill_phase(const pl_reducer *r, float *u)
             }                                                                              \
     }
 
+/* Without GNU C vectors, the same sums as a plain loop. */
+#define COMBINE_PLAIN(name, T)                                                             \
+    static void name(T *restrict out, const T *restrict w, size_t wstride, uint32_t nrows, \
+                     const T *restrict X, uint32_t nterms)                                 \
+    {                                                                                      \
+        for (uint32_t r = 0; r < nrows; r++)                                               \
+            for (uint32_t j = 0; j < PB; j++) {                                            \
+                T acc = 0;                                                                 \
+                for (uint32_t i = 0; i < nterms; i++)                                      \
+                    acc += w[r * wstride + i] * X[(size_t)i * PB + j];                     \
+                out[(size_t)r * PB + j] = acc;                                             \
+            }                                                                              \
+    }
+
 #if defined(__GNUC__)
-COMBINE_KERNEL(combine_rows_2, double, 2, )
-COMBINE_KERNEL(combine_rows_4f, float, 4, )
-#if HAVE_AVX2_VERSIONS
-COMBINE_KERNEL(combine_rows_4, double, 4, __attribute__((target("avx2"))))
-COMBINE_KERNEL(combine_rows_8f, float, 8, __attribute__((target("avx2"))))
+COMBINE_KERNEL(combine_d_base, double, 2, )
+COMBINE_KERNEL(combine_f_base, float, 4, )
+#else
+COMBINE_PLAIN(combine_d_base, double)
+COMBINE_PLAIN(combine_f_base, float)
 #endif
+#if HAVE_AVX2_VERSIONS
+COMBINE_KERNEL(combine_d_avx2, double, 4, __attribute__((target("avx2"))))
+COMBINE_KERNEL(combine_f_avx2, float, 8, __attribute__((target("avx2"))))
+/* a direct call of either (a call through a chosen pointer costs a few %) */
+#define PICK_KERNEL(base, avx2, args) \
+    do {                              \
+        if (have_avx2())              \
+            avx2 args;                \
+        else                          \
+            base args;                \
+    } while (0)
+#else
+#define PICK_KERNEL(base, avx2, args) base args
 #endif
 
 static void combine_rows(double *restrict out, const double *restrict w, size_t wstride,
                          uint32_t nrows, const double *restrict X, uint32_t nterms)
 {
-#if defined(__GNUC__)
-#if HAVE_AVX2_VERSIONS
-    if (have_avx2()) {
-        combine_rows_4(out, w, wstride, nrows, X, nterms);
-        return;
-    }
-#endif
-    combine_rows_2(out, w, wstride, nrows, X, nterms);
-#else
-    for (uint32_t r = 0; r < nrows; r++)
-        for (uint32_t j = 0; j < PB; j++) {
-            double acc = 0.0;
-            for (uint32_t i = 0; i < nterms; i++)
-                acc += w[r * wstride + i] * X[(size_t)i * PB + j];
-            out[(size_t)r * PB + j] = acc;
-        }
-#endif
+    PICK_KERNEL(combine_d_base, combine_d_avx2, (out, w, wstride, nrows, X, nterms));
 }
 
 /* combine_rows() in float. */
 static void combine_rows_f(float *restrict out, const float *restrict w, size_t wstride,
                            uint32_t nrows, const float *restrict X, uint32_t nterms)
 {
-#if defined(__GNUC__)
-#if HAVE_AVX2_VERSIONS
-    if (have_avx2()) {
-        combine_rows_8f(out, w, wstride, nrows, X, nterms);
-        return;
-    }
-#endif
-    combine_rows_4f(out, w, wstride, nrows, X, nterms);
-#else
-    for (uint32_t r = 0; r < nrows; r++)
-        for (uint32_t j = 0; j < PB; j++) {
-            float acc = 0.0f;
-            for (uint32_t i = 0; i < nterms; i++)
-                acc += w[r * wstride + i] * X[(size_t)i * PB + j];
-            out[(size_t)r * PB + j] = acc;
-        }
-#endif
+    PICK_KERNEL(combine_f_base, combine_f_avx2, (out, w, wstride, nrows, X, nterms));
 }
 
 /*
@@ -1730,6 +1716,8 @@ ROW_KERNEL static void fit_samples(const pl_reducer *r, scratch *ws, uint32_t np
     }
 }
 
+/* pl_map_channel() without its call and check: the per-pixel stage writes
+ * a dozen channels a pixel. */
 static float *chan(const pl_reducer *r, int c)
 {
     return r->map->data + (size_t)c * r->npix;
@@ -1835,6 +1823,17 @@ static double d2_variance(const pl_reducer *r, const scratch *ws, uint32_t j, in
 /* Golden-section constant (3 - sqrt 5) / 2. */
 #define GOLDEN 0.38196601125010515
 
+/* The search grid of ln L for samples first..last: from a quarter of the
+ * depth whose t* is the first sample's time to four times the last's. */
+static void slab_grid(const pl_reducer *r, uint32_t first, uint32_t last, double lam[SLAB_GRID])
+{
+    double la = log(r->alpha);
+    double lo = 0.5 * (la + r->lnt[first] - log(16.0));
+    double hi = 0.5 * (la + r->lnt[last] + log(16.0));
+    for (int j = 0; j < SLAB_GRID; j++)
+        lam[j] = lo + (hi - lo) * j / (SLAB_GRID - 1);
+}
+
 static double slab_cost(const pl_reducer *r, const scratch *ws, double lam)
 {
     double s = 0.0, s2 = 0.0;
@@ -1854,7 +1853,7 @@ static double slab_cost(const pl_reducer *r, const scratch *ws, double lam)
  * NaN when the best grid point is an end of the search range. */
 static double slab_fit(const pl_reducer *r, const scratch *ws, int all_valid)
 {
-    double la = log(r->alpha), lam[SLAB_GRID], cost[SLAB_GRID];
+    double lam[SLAB_GRID], cost[SLAB_GRID];
     uint32_t first = 0, last = r->nused - 1;
     while (!ws->valid[first])
         first++;
@@ -1873,12 +1872,9 @@ static double slab_fit(const pl_reducer *r, const scratch *ws, int all_valid)
             cost[j] = s2 - s * s / r->nused;
         }
     } else {
-        double lo = 0.5 * (la + r->lnt[first] - log(16.0));
-        double hi = 0.5 * (la + r->lnt[last] + log(16.0));
-        for (int j = 0; j < SLAB_GRID; j++) {
-            lam[j] = lo + (hi - lo) * j / (SLAB_GRID - 1);
+        slab_grid(r, first, last, lam);
+        for (int j = 0; j < SLAB_GRID; j++)
             cost[j] = slab_cost(r, ws, lam[j]);
-        }
     }
     int jb = 0;
     for (int j = 1; j < SLAB_GRID; j++)
@@ -2025,7 +2021,7 @@ static double peak_d2(const pl_reducer *r, const scratch *ws, uint32_t j, const 
     double xlo = r->gx[0], xhi = r->gx[PEAK_GRID], eps = 1e-9 * (xhi - xlo);
     d2_profile pr;
     d2_profile_of(r, g3, stride, ws->pos[j], c2, 0, &pr);
-    if (r->rule == PL_PEAK_FIRST_SIGNIFICANT) {
+    if (r->opt.peak_rule == PL_PEAK_FIRST_SIGNIFICANT) {
         double s2 = r->scale * r->scale;
         double vmin = r->min_d2 * s2, snr[PEAK_GRID + 2], best = 0.0;
         for (int i = 1; i + 1 < pr.n; i++) {
@@ -2105,8 +2101,8 @@ static void pixel_outputs(pl_reducer *r, scratch *ws, size_t p, uint32_t j)
         for (uint32_t i = 0; i <= d; i++)
             coef[i] = ws->C[(size_t)i * PB + j];
         if (r->opt.ntimes) {
-            poly_deriv(c1, coef, d);
-            poly_deriv(c2, c1, d - 1);
+            deriv_coefs(c1, coef, d, 1);
+            deriv_coefs(c2, coef, d, 2);
         }
         double s = r->scale;
         for (uint32_t t = 0; t < r->opt.ntimes; t++) {
@@ -2168,7 +2164,7 @@ static void pixel_outputs(pl_reducer *r, scratch *ws, size_t p, uint32_t j)
 
 /* The third derivative of the block's fits on the peak-search grid, into
  * ws->G3 (degree >= 3). In float: it only locates the sign changes, each
- * of which is checked in double before it is refined (peak_bracket()). */
+ * of which is checked in double before it is refined (refine_root()). */
 ROW_KERNEL static void third_derivative_grid(const pl_reducer *r, scratch *ws)
 {
     uint32_t d = r->degree;
@@ -2277,7 +2273,6 @@ static void free_one_scratch(scratch *w)
     free(w->Id);
     free(w->A);
     free(w->z);
-    free(w->zz);
     free(w->v);
     free(w->valid);
     free(w->vals);
@@ -2316,7 +2311,6 @@ static int alloc_one_scratch(const pl_reducer *r, scratch *w)
     w->Id = alloc_array(n * n, sizeof *w->Id, &bad);
     w->A = alloc_array(n * r->k, sizeof *w->A, &bad);
     w->z = alloc_array(n, sizeof *w->z, &bad);
-    w->zz = alloc_array(n, sizeof *w->zz, &bad);
     w->v = alloc_array(n, sizeof *w->v, &bad);
     w->valid = alloc_array(n, 1, &bad);
     if (r->M && !r->direct) {
@@ -2341,6 +2335,17 @@ static int alloc_scratch(pl_reducer *r, pl_err *err)
     return PL_OK;
 }
 
+/* Sample q of every pixel, the log-spaced samples (q < nused: ln of the
+ * mean rise) first, then the uniform bins (bin q - nused); NULL for an
+ * empty uniform bin. */
+static const float *sample_row(const pl_reducer *r, uint32_t q)
+{
+    if (q < r->nused)
+        return r->bins_l + (size_t)q * r->npix;
+    uint32_t m = q - r->nused;
+    return r->pcount[m] ? r->bins_p + (size_t)m * r->npix : NULL;
+}
+
 /* Keep the pixels of pix[0..np) whose every log-spaced sample and every
  * filled uniform bin holds a number; returns how many remain. Reads bin
  * by bin, in pixel order. */
@@ -2349,12 +2354,9 @@ static size_t keep_valid_pixels(const pl_reducer *r, size_t *pix, size_t np,
 {
     memset(ok, 1, np);
     for (uint32_t q = 0; q < r->nused + r->M; q++) {
-        int log_sample = q < r->nused;
-        uint32_t m = q - (log_sample ? 0 : r->nused);
-        if (!log_sample && !r->pcount[m])
+        const float *row = sample_row(r, q);
+        if (!row)
             continue;
-        const float *row = log_sample ? r->bins_l + (size_t)q * r->npix
-                                      : r->bins_p + (size_t)m * r->npix;
         for (size_t i = 0; i < np; i++)
             ok[i] &= isfinite(row[pix[i]]) != 0;
     }
@@ -2375,11 +2377,9 @@ static void reference_job(pl_reducer *r, uint32_t part)
     for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
         uint32_t q = (uint32_t)unit;
         int log_sample = q < r->nused;
-        uint32_t m = q - (log_sample ? 0 : r->nused);
-        if (!log_sample && !r->pcount[m])
+        const float *row = sample_row(r, q);
+        if (!row)
             continue;
-        const float *row = log_sample ? r->bins_l + (size_t)q * r->npix
-                                      : r->bins_p + (size_t)m * r->npix;
         double v;
         if (r->ref_region) {
             double s = 0.0;
@@ -2394,7 +2394,7 @@ static void reference_job(pl_reducer *r, uint32_t part)
         if (log_sample)
             r->zref[q] = v;
         else
-            r->pref[m] = (float)v;
+            r->pref[q - r->nused] = (float)v;
     }
 }
 
@@ -2452,10 +2452,8 @@ static int make_reference(pl_reducer *r, pl_err *err)
             acc += r->pinv[(size_t)i * r->nused + b] * r->zref[b];
         r->cref[i] = acc;
     }
-    for (uint32_t b = 0; b < r->nused; b++) {
-        r->ref_rise[b] = exp(poly(r->cref, r->degree, r->xs[b]));
-        r->ref_risef[b] = (float)r->ref_rise[b];
-    }
+    for (uint32_t b = 0; b < r->nused; b++)
+        r->ref_risef[b] = (float)exp(poly(r->cref, r->degree, r->xs[b]));
     for (uint32_t j = 0; j < o->ntimes; j++)
         r->ref_at[j] = poly(r->cref, r->degree, r->xt[j]);
     if (r->M) {
@@ -2487,14 +2485,11 @@ static int plan_slab(pl_reducer *r, pl_err *err)
     if (!r->slab_G || !r->slab_lam)
         return pl__err(err, PL_ENOMEM, "reduction: out of memory");
     double la = log(r->alpha);
-    double lo = 0.5 * (la + r->lnt[0] - log(16.0));
-    double hi = 0.5 * (la + r->lnt[r->nused - 1] + log(16.0));
-    for (int j = 0; j < SLAB_GRID; j++) {
-        double lam = lo + (hi - lo) * j / (SLAB_GRID - 1);
-        r->slab_lam[j] = lam;
+    slab_grid(r, 0, r->nused - 1, r->slab_lam);
+    for (int j = 0; j < SLAB_GRID; j++)
         for (uint32_t b = 0; b < r->nused; b++)
-            r->slab_G[(size_t)j * r->nused + b] = slab_lnf(la + r->lnt[b] - 2.0 * lam);
-    }
+            r->slab_G[(size_t)j * r->nused + b] =
+                slab_lnf(la + r->lnt[b] - 2.0 * r->slab_lam[j]);
     return PL_OK;
 }
 
@@ -2507,13 +2502,11 @@ static int name_channels(pl_reducer *r, pl_err *err)
     const layout *l = &r->lay;
     pl_map *m = r->map;
     int rc = PL_OK;
-    char lab[PL_LABEL_SIZE];
-#define SET(c, q, u, ...)                                                \
-    do {                                                                 \
-        if (!rc)                                                         \
-            rc = pl_map_set_channel(m, (uint32_t)(c), q, u, err);        \
-        snprintf(lab, sizeof lab, __VA_ARGS__);                          \
-        memcpy(m->channels[c].label, lab, sizeof lab);                   \
+#define SET(c, q, u, ...)                                                         \
+    do {                                                                          \
+        if (!rc)                                                                  \
+            rc = pl_map_set_channel(m, (uint32_t)(c), q, u, err);                 \
+        snprintf(m->channels[c].label, sizeof m->channels[c].label, __VA_ARGS__); \
     } while (0)
     for (uint32_t j = 0; j < r->opt.ntimes; j++)
         for (int q = 0; q < 5; q++)
@@ -2545,7 +2538,9 @@ static cJSON *number_array(const double *v, size_t n)
     return a;
 }
 
-static char *parameters_json(const pl_reducer *r)
+/* The parameters record; for pl_reduce_sequence() (seq not NULL) also the
+ * sequence's acquisition object and the reader's saturation count. */
+static char *parameters_json(const pl_reducer *r, const pl_seq *seq, uint64_t saturated)
 {
     const pl_reduce_options *o = &r->opt;
     cJSON *j = cJSON_CreateObject();
@@ -2593,7 +2588,7 @@ static char *parameters_json(const pl_reducer *r)
         cJSON_AddStringToObject(j, "depth_formula_peak_d2", "L = sqrt(pi * alpha * t*)");
     }
     cJSON *pk = cJSON_AddObjectToObject(j, "peak_d2");
-    if (r->rule == PL_PEAK_FIRST_SIGNIFICANT) {
+    if (r->opt.peak_rule == PL_PEAK_FIRST_SIGNIFICANT) {
         cJSON_AddStringToObject(pk, "rule", "first significant interior maximum");
         cJSON_AddNumberToObject(pk, "min_d2", r->min_d2);
         cJSON_AddNumberToObject(pk, "min_snr", r->min_snr);
@@ -2640,12 +2635,20 @@ static char *parameters_json(const pl_reducer *r)
         cJSON_AddStringToObject(e, "label", r->map->channels[c].label);
         cJSON_AddItemToArray(ch, e);
     }
+    if (seq) {
+        cJSON *acq = cJSON_Parse(pl_seq_acquisition_json(seq));
+        cJSON_AddItemToObject(j, "acquisition", acq ? acq : cJSON_CreateObject());
+        cJSON_AddNumberToObject(j, "saturated_values", (double)saturated);
+    }
     char *s = cJSON_PrintUnformatted(j);
     cJSON_Delete(j);
     return s;
 }
 
-PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, pl_err *err)
+/* pl_reducer_finish(), and pl_reduce_sequence()'s when seq is not NULL
+ * (see parameters_json()). */
+static int finish(pl_reducer *r, pl_map **map, char **parameters, const pl_seq *seq,
+                  uint64_t saturated, pl_err *err)
 {
     assert(r && map);
     *map = NULL;
@@ -2695,7 +2698,7 @@ PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, 
         r->stats.samples_used = r->nused;
         r->map->pitch_u = r->map->pitch_v = NAN;
         if (parameters) {
-            *parameters = parameters_json(r);
+            *parameters = parameters_json(r, seq, saturated);
             if (!*parameters)
                 rc = pl__err(err, PL_ENOMEM, "reduction: out of memory");
         }
@@ -2713,6 +2716,11 @@ PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, 
     return PL_OK;
 }
 
+PL_EXPORT int pl_reducer_finish(pl_reducer *r, pl_map **map, char **parameters, pl_err *err)
+{
+    return finish(r, map, parameters, NULL, 0, err);
+}
+
 PL_EXPORT void pl_reducer_stats(const pl_reducer *r, pl_reduce_stats *stats)
 {
     assert(r && stats);
@@ -2724,19 +2732,25 @@ PL_EXPORT void pl_reducer_stats(const pl_reducer *r, pl_reduce_stats *stats)
 
 /* ---- test access ---------------------------------------------------------- */
 
+/* Fit pixel `pixel` alone into a fresh scratch `w` (block column 0), as the
+ * per-pixel stage did; PL_ENOMATCH when it is masked. Free `w` with
+ * free_one_scratch() whatever the outcome. */
+static int refit_pixel(const pl_reducer *r, uint32_t pixel, scratch *w)
+{
+    memset(w, 0, sizeof *w);
+    if (alloc_one_scratch(r, w))
+        return PL_ENOMEM;
+    fit_block(r, w, pixel, 1);
+    return w->status[0] < 0 ? PL_ENOMATCH : PL_OK;
+}
+
 int pl_reduce__pixel_fit(const pl_reducer *r, uint32_t pixel, double *x, double *z,
                          uint32_t *n, double *coef, double *centre, double *scale)
 {
     if (r->state != FINISHED || pixel >= r->npix)
         return PL_EINVAL;
     scratch w;
-    memset(&w, 0, sizeof w);
-    int rc = alloc_one_scratch(r, &w) ? PL_ENOMEM : PL_OK;
-    if (!rc) {
-        fit_block(r, &w, pixel, 1);
-        if (w.status[0] < 0)
-            rc = PL_ENOMATCH;
-    }
+    int rc = refit_pixel(r, pixel, &w);
     if (!rc) {
         uint32_t m = 0;
         for (uint32_t b = 0; b < r->nused; b++)
@@ -2760,23 +2774,15 @@ int pl_reduce__pixel_peaks(const pl_reducer *r, uint32_t pixel, pl_reduce__peak 
     if (r->state != FINISHED || pixel >= r->npix || r->degree < 3)
         return PL_EINVAL;
     scratch w;
-    memset(&w, 0, sizeof w);
-    int rc = alloc_one_scratch(r, &w) ? PL_ENOMEM : PL_OK;
-    if (!rc) {
-        fit_block(r, &w, pixel, 1);
-        if (w.status[0] < 0)
-            rc = PL_ENOMATCH;
-    }
+    int rc = refit_pixel(r, pixel, &w);
     if (!rc) {
         uint32_t d = r->degree;
-        double coef[PL_REDUCE_MAX_DEGREE + 1], c1[PL_REDUCE_MAX_DEGREE],
-            c2[PL_REDUCE_MAX_DEGREE];
+        double coef[PL_REDUCE_MAX_DEGREE + 1], c2[PL_REDUCE_MAX_DEGREE];
         for (uint32_t i = 0; i <= d; i++)
             coef[i] = w.C[(size_t)i * PB];
         third_derivative_grid(r, &w);
         fit_samples(r, &w, 1);
-        poly_deriv(c1, coef, d);
-        poly_deriv(c2, c1, d - 1);
+        deriv_coefs(c2, coef, d, 2); /* as peak_d2() */
         d2_profile pr;
         d2_profile_of(r, w.G3, PB, w.pos[0], c2, 1, &pr);
         double s2 = r->scale * r->scale;
@@ -2843,28 +2849,8 @@ PL_EXPORT int pl_reduce_sequence(pl_map **map, char **parameters, pl_seq *seq,
         saturated += nsat;
         rc = commit_frame(r, i, err);
     }
-    char *json = NULL;
     if (!rc)
-        rc = pl_reducer_finish(r, map, parameters ? &json : NULL, err);
-    if (!rc && parameters) {
-        /* add the acquisition record and the reader's saturation count */
-        cJSON *j = cJSON_Parse(json);
-        cJSON *acq = cJSON_Parse(pl_seq_acquisition_json(seq));
-        if (j) {
-            cJSON_AddItemToObject(j, "acquisition", acq ? acq : cJSON_CreateObject());
-            acq = NULL;
-            cJSON_AddNumberToObject(j, "saturated_values", (double)saturated);
-            *parameters = cJSON_PrintUnformatted(j);
-        }
-        cJSON_Delete(j);
-        cJSON_Delete(acq);
-        free(json);
-        if (!*parameters) {
-            pl_map_free(*map);
-            *map = NULL;
-            rc = pl__err(err, PL_ENOMEM, "reduction: out of memory");
-        }
-    }
+        rc = finish(r, map, parameters, seq, saturated, err);
     if (!rc && stats) {
         pl_reducer_stats(r, stats);
         stats->saturated_values = saturated;

@@ -463,7 +463,6 @@ typedef struct pc_ctx {
     fft2 plan;
     double *wx, *wy;  /* window weights */
     float *in;        /* ph x pw: the FFT input, then the correlation surface */
-    float *surf;      /* = in */
     kiss_fft_cpx *F, *M, *R; /* ph x wh each; M is overwritten by the inverse */
 } pc_ctx;
 
@@ -495,7 +494,6 @@ static int pc_init(pc_ctx *c, uint32_t w, uint32_t h, uint32_t pw, uint32_t ph, 
     c->wx = malloc(w * sizeof *c->wx);
     c->wy = malloc(h * sizeof *c->wy);
     c->in = malloc(n * sizeof *c->in);
-    c->surf = c->in;
     c->F = malloc(ns * sizeof *c->F);
     c->M = malloc(ns * sizeof *c->M);
     c->R = malloc(ns * sizeof *c->R);
@@ -608,11 +606,11 @@ static void pc_correlate(pc_ctx *c, pl_register__peak *pk, int limit_x)
     size_t n = (size_t)c->ph * c->wh, np = (size_t)c->ph * c->pw;
     pc_cross_power(c);
     memcpy(c->M, c->R, n * sizeof *c->M);
-    fft2_inverse(&c->plan, c->M, c->surf);
+    fft2_inverse(&c->plan, c->M, c->in);
     double scale = 1.0 / (double)np, best = -INFINITY;
     uint32_t by = 0, bx = 0;
     for (uint32_t y = 0; y < c->ph; y++) {
-        const float *s = c->surf + (size_t)y * c->pw;
+        const float *s = c->in + (size_t)y * c->pw;
         for (uint32_t x = 0; x < c->pw; x++) {
             if (limit_x >= 0 && labs(signed_bin(x, c->pw)) > limit_x)
                 continue;
@@ -630,7 +628,7 @@ static void pc_correlate(pc_ctx *c, pl_register__peak *pk, int limit_x)
         uint32_t dy = y > by ? y - by : by - y;
         if (c->ph - dy < dy)
             dy = c->ph - dy;
-        const float *s = c->surf + (size_t)y * c->pw;
+        const float *s = c->in + (size_t)y * c->pw;
         for (uint32_t x = 0; x < c->pw; x++) {
             if (dy <= PSR_HALF) {
                 uint32_t dx = x > bx ? x - bx : bx - x;
@@ -939,17 +937,15 @@ done:
     return rc;
 }
 
-/* The log-polar estimate between two images, their spectra taken under
- * the options' window (Hann when there is none: the borders' cross would
+/* The log-polar estimate between two images, their spectra taken under a
+ * Hann window (for spectra taken without one: the borders' cross would
  * pull the angle toward zero). */
 static int rotation_estimate(double *theta, double *scale, const float *fixed,
-                             const float *moving, uint32_t w, uint32_t h, pl_window window,
-                             double alpha, int want_scale, unsigned up, unsigned nt)
+                             const float *moving, uint32_t w, uint32_t h, int want_scale,
+                             unsigned up, unsigned nt)
 {
     pc_ctx c;
-    if (window == PL_WINDOW_NONE)
-        window = PL_WINDOW_HANN;
-    if (window_ctx(&c, w, h, window, alpha, nt))
+    if (window_ctx(&c, w, h, PL_WINDOW_HANN, 0.0, nt))
         return PL_ENOMEM;
     int rc = PL_EINVAL;
     if (pc_set_fixed(&c, fixed) && pc_set_moving(&c, moving))
@@ -962,8 +958,8 @@ int pl_register__logpolar(double *rotation_deg, double *scale, const float *fixe
                           const float *moving, uint32_t width, uint32_t height,
                           int want_scale, pl_err *err)
 {
-    int rc = rotation_estimate(rotation_deg, scale, fixed, moving, width, height, PL_WINDOW_HANN,
-                               0.0, want_scale, 100, thread_count((size_t)width * height));
+    int rc = rotation_estimate(rotation_deg, scale, fixed, moving, width, height, want_scale, 100,
+                               thread_count((size_t)width * height));
     if (rc == PL_EINVAL)
         return pl__err(err, rc, "registration: an image has no data");
     if (rc)
@@ -1388,12 +1384,33 @@ static void result_init(pl_register_result *res)
 
 /* ---- smoothing ----------------------------------------------------------------- */
 
+/* One value of a Gaussian pass (along a row when horizontal, else down a
+ * column) over the finite taps only, the weights renormalised over them:
+ * the general case, near NaN and the edges. NaN stays NaN. */
+static float blur_tap(const float *in, uint32_t w, uint32_t h, const float *k, int rad,
+                      uint32_t x, uint32_t y, int horizontal)
+{
+    if (!isfinite(in[(size_t)y * w + x]))
+        return NAN;
+    double acc = 0.0, ws = 0.0;
+    for (int i = -rad; i <= rad; i++) {
+        long xx = horizontal ? (long)x + i : (long)x;
+        long yy = horizontal ? (long)y : (long)y + i;
+        if (xx < 0 || yy < 0 || xx >= (long)w || yy >= (long)h)
+            continue;
+        float v = in[(size_t)yy * w + (size_t)xx];
+        if (isfinite(v)) {
+            acc += k[i + rad] * v;
+            ws += k[i + rad];
+        }
+    }
+    return (float)(acc / ws);
+}
+
 /* A separable Gaussian of `sigma` pixels over the pixels with data only
- * (the weights renormalised where neighbours lack data; NaN stays NaN).
- * [out] *out is malloc'd. */
-/* Separable Gaussian blur with NaN kept as NaN and the weights renormalised
- * over the finite neighbours near NaN and the edges. Rows and columns far
- * from both take a branch-free path (most of an image). */
+ * (the weights renormalised where neighbours lack data or lie outside;
+ * NaN stays NaN). Rows and columns far from both take a branch-free path
+ * (most of an image), the rest blur_tap(). [out] *out is malloc'd. */
 static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, double sigma)
 {
     int rad = (int)ceil(3.0 * sigma);
@@ -1421,28 +1438,6 @@ static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, dou
                 bad_row[y] = 1;
                 bad_col[x] = 1;
             }
-    /* the general (edge or NaN) case for one output value */
-    #define BLUR_AT(in, dst, x, y, horizontal)                                              \
-        do {                                                                                \
-            size_t p_ = (size_t)(y) * w + (x);                                              \
-            if (!isfinite(in[p_])) {                                                        \
-                dst[p_] = NAN;                                                              \
-                break;                                                                      \
-            }                                                                               \
-            double acc_ = 0.0, ws_ = 0.0;                                                   \
-            for (int i_ = -rad; i_ <= rad; i_++) {                                          \
-                long xx_ = (horizontal) ? (long)(x) + i_ : (long)(x);                       \
-                long yy_ = (horizontal) ? (long)(y) : (long)(y) + i_;                       \
-                if (xx_ < 0 || yy_ < 0 || xx_ >= (long)w || yy_ >= (long)h)                 \
-                    continue;                                                               \
-                float v_ = in[(size_t)yy_ * w + (size_t)xx_];                               \
-                if (isfinite(v_)) {                                                         \
-                    acc_ += k[i_ + rad] * v_;                                               \
-                    ws_ += k[i_ + rad];                                                     \
-                }                                                                           \
-            }                                                                               \
-            dst[p_] = (float)(acc_ / ws_);                                                  \
-        } while (0)
     /* rows: the interior of a row without NaN tap by tap (vectorisable),
      * its ends and rows with NaN by the general case */
     for (uint32_t y = 0; y < h; y++) {
@@ -1459,12 +1454,12 @@ static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, dou
                     d[x] += kk * ri[x];
             }
             for (uint32_t x = 0; x < x0; x++)
-                BLUR_AT(src, tmp, x, y, 1);
+                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
             for (uint32_t x = x1; x < w; x++)
-                BLUR_AT(src, tmp, x, y, 1);
+                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
         } else {
             for (uint32_t x = 0; x < w; x++)
-                BLUR_AT(src, tmp, x, y, 1);
+                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
         }
     }
     /* columns: interior rows by whole rows at a time (vectorisable) */
@@ -1483,18 +1478,178 @@ static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, dou
             /* redo the columns a NaN touches */
             for (uint32_t x = 0; x < w; x++)
                 if (bad_col[x])
-                    BLUR_AT(tmp, o, x, y, 0);
+                    d[x] = blur_tap(tmp, w, h, k, rad, x, y, 0);
         } else {
             for (uint32_t x = 0; x < w; x++)
-                BLUR_AT(tmp, o, x, y, 0);
+                d[x] = blur_tap(tmp, w, h, k, rad, x, y, 0);
         }
     }
-    #undef BLUR_AT
     free(tmp);
     free(k);
     free(bad_row);
     free(bad_col);
     *out = o;
+    return PL_OK;
+}
+
+/* ---- dead and hot pixels ----------------------------------------------------- */
+
+/*
+ * Dead and hot pixels sit still in the camera while the part moves, and
+ * phase correlation, which whitens the spectrum, weighs such single-pixel
+ * outliers as heavily as the texture. A pixel is taken for one when it lies
+ * more than DESPECKLE_K robust standard deviations, and more than
+ * DESPECKLE_RANGE of the image's 1st-99th percentile range, above the
+ * largest, or below the smallest, of its 8 neighbours; it is replaced by
+ * their median. (The range keeps a noiseless photograph's sharp texture,
+ * whose robust noise is near zero, out of reach.)
+ * An edge or a line has neighbours on both sides of its value, so real
+ * structure is never touched; the robust standard deviation is 1.4826 x the
+ * median absolute difference between a pixel and the median of its
+ * neighbours, from at most DESPECKLE_SAMPLES pixels (common practice for
+ * impulse noise).
+ */
+#define DESPECKLE_K 8.0
+#define DESPECKLE_RANGE 0.25
+#define DESPECKLE_SAMPLES 16384u
+
+static float median_small(float *v, int n)
+{
+    for (int i = 1; i < n; i++)
+        for (int j = i; j > 0 && v[j] < v[j - 1]; j--) {
+            float t = v[j];
+            v[j] = v[j - 1];
+            v[j - 1] = t;
+        }
+    return (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
+}
+
+static int cmp_float(const void *a, const void *b)
+{
+    float x = *(const float *)a, y = *(const float *)b;
+    return (x > y) - (x < y);
+}
+
+/* The finite 8-neighbours of (x, y) into v (unsorted); their count. */
+static int neighbours(float v[8], const float *src, uint32_t w, uint32_t h, uint32_t x,
+                      uint32_t y)
+{
+    int n = 0;
+    for (int dy = -1; dy <= 1; dy++)
+        for (int dx = -1; dx <= 1; dx++) {
+            long xx = (long)x + dx, yy = (long)y + dy;
+            if ((dx || dy) && xx >= 0 && yy >= 0 && xx < (long)w && yy < (long)h) {
+                float q = src[(size_t)yy * w + (size_t)xx];
+                if (isfinite(q))
+                    v[n++] = q;
+            }
+        }
+    return n;
+}
+
+static int despeckle(float **out, const float *src, uint32_t w, uint32_t h)
+{
+    size_t np = (size_t)w * h;
+    float *o = malloc(np * sizeof *o);
+    float *sample = malloc(2 * DESPECKLE_SAMPLES * sizeof *sample);
+    *out = NULL;
+    if (!o || !sample) {
+        free(o);
+        free(sample);
+        return PL_ENOMEM;
+    }
+    memcpy(o, src, np * sizeof *o);
+    /* the noise (residual from the neighbours' median) and the range of
+     * the values, from a sample of the pixels */
+    size_t step = np / DESPECKLE_SAMPLES + 1, k = 0, kv = 0;
+    float *vals = sample + DESPECKLE_SAMPLES;
+    for (size_t i = 0; i < np && k < DESPECKLE_SAMPLES; i += step) {
+        if (!isfinite(src[i]))
+            continue;
+        vals[kv++] = src[i];
+        float v[8];
+        int n = neighbours(v, src, w, h, (uint32_t)(i % w), (uint32_t)(i / w));
+        if (n)
+            sample[k++] = fabsf(src[i] - median_small(v, n));
+    }
+    double sigma = 0.0, range = 0.0;
+    if (k && kv) {
+        qsort(sample, k, sizeof *sample, cmp_float);
+        sigma = 1.4826 * sample[k / 2];
+        qsort(vals, kv, sizeof *vals, cmp_float);
+        range = (double)vals[(kv * 99) / 100] - (double)vals[kv / 100];
+    }
+    free(sample);
+    /* an impulse stands out from the noise and from the texture's range */
+    double lim = fmax(DESPECKLE_K * sigma, DESPECKLE_RANGE * range);
+    if (!(lim > 0.0)) {
+        *out = o;
+        return PL_OK;
+    }
+    int any_nan = 0;
+    for (size_t i = 0; i < np && !any_nan; i++)
+        any_nan = !isfinite(src[i]);
+    for (uint32_t y = 0; y < h; y++)
+        for (uint32_t x = 0; x < w; x++) {
+            size_t i = (size_t)y * w + x;
+            float c = src[i], q[8];
+            int n = 8;
+            if (!any_nan && x > 0 && y > 0 && x + 1 < w && y + 1 < h) {
+                /* the common case: all 8 neighbours there and finite */
+                const float *a = src + i - w, *b = src + i + w;
+                const float all[8] = { a[-1], a[0], a[1], src[i - 1],
+                                       src[i + 1], b[-1], b[0], b[1] };
+                memcpy(q, all, sizeof q);
+            } else {
+                if (!isfinite(c))
+                    continue;
+                n = neighbours(q, src, w, h, x, y);
+            }
+            if (n < 3)
+                continue;
+            float lo = q[0], hi = q[0];
+            for (int j = 1; j < n; j++) {
+                lo = q[j] < lo ? q[j] : lo;
+                hi = q[j] > hi ? q[j] : hi;
+            }
+            if (c > hi + lim || c < lo - lim)
+                o[i] = median_small(q, n);
+        }
+    *out = o;
+    return PL_OK;
+}
+
+/* Two images at once on two threads (large images): despeckle or blur. */
+typedef struct pair_job {
+    const float *src[2];
+    float *out[2];
+    uint32_t w, h;
+    double sigma;  /* > 0: blur, else despeckle */
+    int failed[2];
+} pair_job;
+
+static void pair_run(void *ctx, uint32_t b, uint32_t e, unsigned t)
+{
+    (void)t;
+    pair_job *j = ctx;
+    for (uint32_t k = b; k < e; k++)
+        j->failed[k] = j->sigma > 0.0 ? gauss_blur(&j->out[k], j->src[k], j->w, j->h, j->sigma)
+                                      : despeckle(&j->out[k], j->src[k], j->w, j->h);
+}
+
+static int pair_apply(float **a_out, float **b_out, const float *a, const float *b, uint32_t w,
+                      uint32_t h, double sigma)
+{
+    pair_job j = { { a, b }, { NULL, NULL }, w, h, sigma, { 0, 0 } };
+    parallel_for(thread_count((size_t)w * h) > 1 ? 2 : 1, 2, pair_run, &j);
+    if (j.failed[0] || j.failed[1]) {
+        free(j.out[0]);
+        free(j.out[1]);
+        *a_out = *b_out = NULL;
+        return PL_ENOMEM;
+    }
+    *a_out = j.out[0];
+    *b_out = j.out[1];
     return PL_OK;
 }
 
@@ -1521,10 +1676,11 @@ static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, dou
  * vision"; the forward-compositional form of Baker and Matthews 2004,
  * "Lucas-Kanade 20 years on: a unifying framework", IJCV 56(3)). A small
  * motion dT after T moves g by -grad g . u(p), u(p) = dtheta J (p - c) +
- * ds (p - c) + dd. Both images are first smoothed by a Gaussian of
- * GN_SIGMA pixels: it lowers the noise in the gradients and makes a
- * difference in how the two were sampled (a camera's pixel footprint, the
- * simulator's bilinear sampling) negligible. The result is kept only when
+ * ds (p - c) + dd. Both images come smoothed by a Gaussian of GN_SIGMA
+ * pixels (smooth_pair(), once per pair, however many starts are refined):
+ * it lowers the noise in the gradients and makes a difference in how the
+ * two were sampled (a camera's pixel footprint, the simulator's bilinear
+ * sampling) negligible. The result is kept only when
  * the iteration converges, stays within GN_MAX_MOVE of its start at the
  * image's corners and does not lower the correlation over the overlap.
  */
@@ -1619,19 +1775,16 @@ static double corner_move(const pl_transform *a, const pl_transform *b, uint32_t
     return worst;
 }
 
-static double pearson(const float *a, const float *b, size_t n, size_t *count);
-
-static int refine_rigid(pl_transform *t, const float *fixed, const float *moving, uint32_t w,
+/* fs, ms: the fixed and moving images smoothed by GN_SIGMA. */
+static int refine_rigid(pl_transform *t, const float *fs, const float *ms, uint32_t w,
                         uint32_t h, int want_scale, pl_interp interp, unsigned nt)
 {
     size_t np = (size_t)w * h, cnt0;
-    float *g = malloc(np * sizeof *g), *fs = NULL, *ms = NULL;
+    float *g = malloc(np * sizeof *g);
     gn_job *j = malloc(sizeof *j);
-    if (!g || !j || gauss_blur(&fs, fixed, w, h, GN_SIGMA)
-        || gauss_blur(&ms, moving, w, h, GN_SIGMA)) {
+    if (!g || !j) {
         free(g);
         free(j);
-        free(fs);
         return PL_ENOMEM;
     }
     pl_transform cur = *t;
@@ -1698,9 +1851,16 @@ static int refine_rigid(pl_transform *t, const float *fixed, const float *moving
     }
     free(g);
     free(j);
-    free(fs);
-    free(ms);
     return PL_OK;
+}
+
+/* Pearson's r of fixed and moving resampled through t (into buf); both:
+ * the pixels with data in both. */
+static double aligned_ncc(float *buf, const float *fixed, const float *moving, uint32_t w,
+                          uint32_t h, const pl_transform *t, pl_interp interp, size_t *both)
+{
+    resample_run(buf, w, h, moving, w, h, t, interp);
+    return pearson(fixed, buf, (size_t)w * h, both);
 }
 
 /* Phase-correlate `moving` de-rotated by (theta, s) against the fixed
@@ -1719,25 +1879,30 @@ static void derotated_peak(pc_ctx *c, pl_register__peak *pk, float *buf, const f
 }
 
 /*
- * The search: the transform carrying `moving` onto `fixed` (same size) and
- * the PSR of the translation search kept. Rotation off: the phase
- * correlation and its sub-pixel refinement. Rotation on: the log-polar
- * estimate theta (and s); three candidates, theta + 180 degrees (the
- * magnitudes cannot tell it from theta), no rotation (which the log-polar
- * stage resolves poorly on small maps) and theta, each de-rotated about
- * the centre and phase-correlated; those whose normalised peak reaches
- * CANDIDATE_RATIO of the best are refined (sub-pixel shift, then
- * refine_rigid()) and the one with the highest correlation over the
- * overlap kept. On a photograph one candidate stands out; on a small
- * noisy map of nearly symmetric structure (a stringer crossing a frame)
- * the peaks are close and the correlation after refinement decides.
+ * The search: the transform carrying `moving` onto `fixed` (same size),
+ * the PSR of the translation search kept and, rotation on, the
+ * correlation of the pair aligned by it (NaN with rotation off). Rotation
+ * off: the phase correlation and its sub-pixel refinement. Rotation on:
+ * the log-polar estimate theta (and s); three candidates, theta + 180
+ * degrees (the magnitudes cannot tell it from theta), no rotation (which
+ * the log-polar stage resolves poorly on small maps) and theta, each
+ * de-rotated about the centre and phase-correlated; those whose normalised
+ * peak reaches CANDIDATE_RATIO of the best (and whose turn is within
+ * max_rotation_deg) are refined (sub-pixel shift, then refine_rigid() on
+ * fs and ms, the pair smoothed by GN_SIGMA) and the one with the highest
+ * correlation over the overlap kept; then a start from no residual (see
+ * there). On a photograph one candidate stands out; on a small noisy map
+ * of nearly symmetric structure (a stringer crossing a frame) the peaks
+ * are close and the correlation after refinement decides.
  */
-static int search(pl_transform *t, double *psr, const float *fixed, const float *moving,
-                  uint32_t w, uint32_t h, const pl_register_options *o, pl_err *err)
+static int search(pl_transform *t, double *psr, double *ncc_out, const float *fixed,
+                  const float *moving, const float *fs, const float *ms, uint32_t w, uint32_t h,
+                  const pl_register_options *o, pl_err *err)
 {
     pc_ctx c;
     size_t np = (size_t)w * h;
     unsigned nt = thread_count(np);
+    *ncc_out = NAN;
     if (window_ctx(&c, w, h, o->window, o->tukey_alpha, nt))
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     int rc = PL_OK;
@@ -1762,10 +1927,14 @@ static int search(pl_transform *t, double *psr, const float *fixed, const float 
         *psr = pk.psr;
         goto done;
     }
+    /* the log-polar estimate from the spectra just taken, unless they were
+     * taken without a window (rotation_estimate() then takes its own) */
     double theta = 0.0, s = 1.0;
     buf = malloc(np * sizeof *buf);
-    if (!buf || rotation_estimate(&theta, &s, fixed, moving, w, h, o->window, o->tukey_alpha,
-                                  o->scale, o->upsample, nt)) {
+    if (!buf
+        || (o->window == PL_WINDOW_NONE
+                ? rotation_estimate(&theta, &s, fixed, moving, w, h, o->scale, o->upsample, nt)
+                : logpolar(&theta, &s, &c, o->scale, o->upsample))) {
         rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
         goto done;
     }
@@ -1790,6 +1959,7 @@ static int search(pl_transform *t, double *psr, const float *fixed, const float 
         goto done;
     }
     double best_ncc = -INFINITY;
+    size_t cnt;
     for (int r = 0; r < 3; r++) {
         int k = order[r];
         if (r > 0 && !(cp[k].peak >= CANDIDATE_RATIO * cp[order[0]].peak))
@@ -1802,48 +1972,47 @@ static int search(pl_transform *t, double *psr, const float *fixed, const float 
             goto done;
         }
         pl_transform tk = { cp[k].dx, cp[k].dy, cand[k][0], cand[k][1] };
-        if (refine_rigid(&tk, fixed, moving, w, h, o->scale, o->interp, nt)) {
+        if (refine_rigid(&tk, fs, ms, w, h, o->scale, o->interp, nt)) {
             rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
             goto done;
         }
-        size_t cnt;
-        resample_run(buf, w, h, moving, w, h, &tk, o->interp);
-        double ncc = pearson(fixed, buf, np, &cnt);
+        double ncc = aligned_ncc(buf, fixed, moving, w, h, &tk, o->interp, &cnt);
         if (r == 0 || ncc > best_ncc) {
             best_ncc = ncc;
             *t = tk;
             *psr = cp[k].psr;
         }
     }
-    /* One more start: no residual at all, refined coarse to fine. The
-     * nominal transform has already taken out what the placements record,
-     * so the truth lies near it; on smooth, nearly symmetric texture the
+    /* One more start: no residual at all, refined coarse (on the pair
+     * smoothed by START_SIGMA, then GN_SIGMA) to fine. The nominal
+     * transform has already taken out what the placements record, so the
+     * truth lies near it; on smooth, nearly symmetric texture the
      * correlation peak can lie elsewhere (measured on simulated 5-6 mm
      * skins: a peak 11 px off, while the truth was 1 px away). */
-    {
-        pl_transform t0 = { 0.0, 0.0, 0.0, 1.0 };
-        float *fb = NULL, *mb = NULL;
-        if (gauss_blur(&fb, fixed, w, h, START_SIGMA) || gauss_blur(&mb, moving, w, h, START_SIGMA)
-            || refine_rigid(&t0, fb, mb, w, h, o->scale, o->interp, nt)
-            || refine_rigid(&t0, fixed, moving, w, h, o->scale, o->interp, nt)) {
-            free(fb);
-            free(mb);
-            rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
-            goto done;
-        }
-        free(fb);
-        free(mb);
-        size_t cnt;
-        resample_run(buf, w, h, moving, w, h, &t0, o->interp);
-        double ncc0 = pearson(fixed, buf, np, &cnt);
-        if (ncc0 > best_ncc + START_GAIN && fabs(t0.rotation_deg) <= o->max_rotation_deg) {
-            *t = t0;
-            /* its PSR: the translation peak of the image turned by t0 */
-            pl_register__peak p0;
-            derotated_peak(&c, &p0, buf, moving, t0.rotation_deg, t0.scale, o->interp);
-            *psr = p0.psr;
-        }
+    pl_transform t0 = { 0.0, 0.0, 0.0, 1.0 };
+    float *fb = NULL, *mb = NULL, *fbs = NULL, *mbs = NULL;
+    int oom = pair_apply(&fb, &mb, fixed, moving, w, h, START_SIGMA)
+              || pair_apply(&fbs, &mbs, fb, mb, w, h, GN_SIGMA)
+              || refine_rigid(&t0, fbs, mbs, w, h, o->scale, o->interp, nt)
+              || refine_rigid(&t0, fs, ms, w, h, o->scale, o->interp, nt);
+    free(fb);
+    free(mb);
+    free(fbs);
+    free(mbs);
+    if (oom) {
+        rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
+        goto done;
     }
+    double ncc0 = aligned_ncc(buf, fixed, moving, w, h, &t0, o->interp, &cnt);
+    if (ncc0 > best_ncc + START_GAIN && fabs(t0.rotation_deg) <= o->max_rotation_deg) {
+        *t = t0;
+        best_ncc = ncc0;
+        /* its PSR: the translation peak of the image turned by t0 */
+        pl_register__peak p0;
+        derotated_peak(&c, &p0, buf, moving, t0.rotation_deg, t0.scale, o->interp);
+        *psr = p0.psr;
+    }
+    *ncc_out = best_ncc;
 done:
     free(buf);
     pc_free(&c);
@@ -1851,182 +2020,6 @@ done:
 }
 
 /* ---- robustness for inspection maps ------------------------------------------ */
-
-/*
- * Dead and hot pixels sit still in the camera while the part moves, and
- * phase correlation, which whitens the spectrum, weighs such single-pixel
- * outliers as heavily as the texture. A pixel is taken for one when it lies
- * more than DESPECKLE_K robust standard deviations, and more than
- * DESPECKLE_RANGE of the image's 1st-99th percentile range, above the
- * largest, or below the smallest, of its 8 neighbours; it is replaced by
- * their median. (The range keeps a noiseless photograph's sharp texture,
- * whose robust noise is near zero, out of reach.)
- * An edge or a line has neighbours on both sides of its value, so real
- * structure is never touched; the robust standard deviation is 1.4826 x the
- * median absolute difference between a pixel and the median of its
- * neighbours, from at most DESPECKLE_SAMPLES pixels (common practice for
- * impulse noise).
- */
-#define DESPECKLE_K 8.0
-#define DESPECKLE_RANGE 0.25
-#define DESPECKLE_SAMPLES 16384u
-
-static float median_small(float *v, int n)
-{
-    for (int i = 1; i < n; i++)
-        for (int j = i; j > 0 && v[j] < v[j - 1]; j--) {
-            float t = v[j];
-            v[j] = v[j - 1];
-            v[j - 1] = t;
-        }
-    return (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
-}
-
-static int cmp_float(const void *a, const void *b)
-{
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
-}
-
-/* The finite 8-neighbours of (x, y) into v (sorted); their count. */
-static int neighbours(float v[8], const float *src, uint32_t w, uint32_t h, uint32_t x,
-                      uint32_t y)
-{
-    int n = 0;
-    for (int dy = -1; dy <= 1; dy++)
-        for (int dx = -1; dx <= 1; dx++) {
-            long xx = (long)x + dx, yy = (long)y + dy;
-            if ((dx || dy) && xx >= 0 && yy >= 0 && xx < (long)w && yy < (long)h) {
-                float q = src[(size_t)yy * w + (size_t)xx];
-                if (isfinite(q))
-                    v[n++] = q;
-            }
-        }
-    if (n)
-        median_small(v, n);
-    return n;
-}
-
-static int despeckle(float **out, const float *src, uint32_t w, uint32_t h)
-{
-    size_t np = (size_t)w * h;
-    float *o = malloc(np * sizeof *o);
-    float *sample = malloc(2 * DESPECKLE_SAMPLES * sizeof *sample);
-    *out = NULL;
-    if (!o || !sample) {
-        free(o);
-        free(sample);
-        return PL_ENOMEM;
-    }
-    memcpy(o, src, np * sizeof *o);
-    /* the noise (residual from the neighbours' median) and the range of
-     * the values, from a sample of the pixels */
-    size_t step = np / DESPECKLE_SAMPLES + 1, k = 0, kv = 0;
-    float *vals = sample + DESPECKLE_SAMPLES;
-    for (size_t i = 0; i < np && k < DESPECKLE_SAMPLES; i += step) {
-        if (!isfinite(src[i]))
-            continue;
-        vals[kv++] = src[i];
-        float v[8];
-        int n = neighbours(v, src, w, h, (uint32_t)(i % w), (uint32_t)(i / w));
-        if (n)
-            sample[k++] = fabsf(src[i] - ((n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2])));
-    }
-    double sigma = 0.0, range = 0.0;
-    if (k && kv) {
-        qsort(sample, k, sizeof *sample, cmp_float);
-        sigma = 1.4826 * sample[k / 2];
-        qsort(vals, kv, sizeof *vals, cmp_float);
-        range = (double)vals[(kv * 99) / 100] - (double)vals[kv / 100];
-    }
-    free(sample);
-    /* an impulse stands out from the noise and from the texture's range */
-    double lim = fmax(DESPECKLE_K * sigma, DESPECKLE_RANGE * range);
-    if (!(lim > 0.0)) {
-        *out = o;
-        return PL_OK;
-    }
-    int any_nan = 0;
-    for (size_t i = 0; i < np && !any_nan; i++)
-        any_nan = !isfinite(src[i]);
-    for (uint32_t y = 0; y < h; y++)
-        for (uint32_t x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            float c = src[i];
-            float lo = INFINITY, hi = -INFINITY;
-            int n = 0;
-            if (!any_nan && x > 0 && y > 0 && x + 1 < w && y + 1 < h) {
-                /* the common case: all 8 neighbours there and finite */
-                const float *a = src + i - w, *b = src + i + w;
-                float q[8] = { a[-1], a[0], a[1], src[i - 1], src[i + 1], b[-1], b[0], b[1] };
-                for (int j = 0; j < 8; j++) {
-                    lo = q[j] < lo ? q[j] : lo;
-                    hi = q[j] > hi ? q[j] : hi;
-                }
-                n = 8;
-            } else {
-                if (!isfinite(c))
-                    continue;
-                for (int dy = -1; dy <= 1; dy++) {
-                    long yy = (long)y + dy;
-                    if (yy < 0 || yy >= (long)h)
-                        continue;
-                    for (int dx = -1; dx <= 1; dx++) {
-                        long xx = (long)x + dx;
-                        if ((!dx && !dy) || xx < 0 || xx >= (long)w)
-                            continue;
-                        float q = src[(size_t)yy * w + (size_t)xx];
-                        if (isfinite(q)) {
-                            lo = q < lo ? q : lo;
-                            hi = q > hi ? q : hi;
-                            n++;
-                        }
-                    }
-                }
-            }
-            if (n < 3 || !(c > hi + lim || c < lo - lim))
-                continue;
-            float v[8];
-            n = neighbours(v, src, w, h, x, y);
-            o[i] = (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
-        }
-    *out = o;
-    return PL_OK;
-}
-
-/* Two images at once on two threads (large images): despeckle or blur. */
-typedef struct pair_job {
-    const float *src[2];
-    float *out[2];
-    uint32_t w, h;
-    double sigma;  /* > 0: blur, else despeckle */
-    int failed[2];
-} pair_job;
-
-static void pair_run(void *ctx, uint32_t b, uint32_t e, unsigned t)
-{
-    (void)t;
-    pair_job *j = ctx;
-    for (uint32_t k = b; k < e; k++)
-        j->failed[k] = j->sigma > 0.0 ? gauss_blur(&j->out[k], j->src[k], j->w, j->h, j->sigma)
-                                      : despeckle(&j->out[k], j->src[k], j->w, j->h);
-}
-
-static int pair_apply(float **a_out, float **b_out, const float *a, const float *b, uint32_t w,
-                      uint32_t h, double sigma)
-{
-    pair_job j = { { a, b }, { NULL, NULL }, w, h, sigma, { 0, 0 } };
-    parallel_for(thread_count((size_t)w * h) > 1 ? 2 : 1, 2, pair_run, &j);
-    if (j.failed[0] || j.failed[1]) {
-        free(j.out[0]);
-        free(j.out[1]);
-        *a_out = *b_out = NULL;
-        return PL_ENOMEM;
-    }
-    *a_out = j.out[0];
-    *b_out = j.out[1];
-    return PL_OK;
-}
 
 /*
  * Maps of thick laminates hold smooth texture under camera noise, where
@@ -2042,62 +2035,69 @@ static int pair_apply(float **a_out, float **b_out, const float *a, const float 
 #define SMOOTH_SIGMA 1.5
 #define SMOOTH_GAIN 0.02 /* the retry must correlate this much better to win */
 
-static double aligned_ncc(float *buf, const float *fixed, const float *moving, uint32_t w,
-                          uint32_t h, const pl_transform *t, pl_interp interp, size_t *both)
-{
-    resample_run(buf, w, h, moving, w, h, t, interp);
-    return pearson(fixed, buf, (size_t)w * h, both);
-}
-
 /* The search made robust for inspection maps (see above): despeckle, search,
  * and (rotation on) when the answer correlates poorly, search again on
  * smoothed images and keep the clearly better. [out] fd: the despeckled
- * fixed image; al: the despeckled moving image resampled through the
- * answer (both malloc'd, for the quality figure). */
+ * fixed image; al (may be NULL): the despeckled moving image resampled
+ * through the answer (both malloc'd, for the quality figure). */
 static int robust_search(pl_transform *t, double *psr, float **fd_out, float **al_out,
                          const float *fixed, const float *moving, uint32_t w, uint32_t h,
                          const pl_register_options *o, pl_err *err)
 {
     size_t np = (size_t)w * h, both = 0;
-    float *fd = NULL, *md = NULL, *al = NULL, *fb = NULL, *mb = NULL;
+    float *fd = NULL, *md = NULL, *fds = NULL, *mds = NULL, *al = NULL;
+    float *fb = NULL, *mb = NULL, *fbs = NULL, *mbs = NULL;
+    double ncc = NAN;
     int rc = PL_OK;
-    *fd_out = *al_out = NULL;
-    if (pair_apply(&fd, &md, fixed, moving, w, h, 0.0) || !(al = malloc(np * sizeof *al))) {
+    *fd_out = NULL;
+    if (al_out)
+        *al_out = NULL;
+    /* the refinement (rotation on) works on the pair smoothed by GN_SIGMA */
+    if (pair_apply(&fd, &md, fixed, moving, w, h, 0.0)
+        || (o->rotation && pair_apply(&fds, &mds, fd, md, w, h, GN_SIGMA))
+        || !(al = malloc(np * sizeof *al))) {
         rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
         goto done;
     }
-    if ((rc = search(t, psr, fd, md, w, h, o, err)))
+    if ((rc = search(t, psr, &ncc, fd, md, fds, mds, w, h, o, err)))
         goto done;
-    double ncc = o->rotation ? aligned_ncc(al, fd, md, w, h, t, o->interp, &both) : 1.0;
-    if (!(ncc >= SMOOTH_RETRY_NCC)) {
+    if (o->rotation && !(ncc >= SMOOTH_RETRY_NCC)) {
         pl_transform t2;
-        double psr2 = NAN;
-        if (pair_apply(&fb, &mb, fd, md, w, h, SMOOTH_SIGMA)) {
+        double psr2 = NAN, ncc2;
+        if (pair_apply(&fb, &mb, fd, md, w, h, SMOOTH_SIGMA)
+            || pair_apply(&fbs, &mbs, fb, mb, w, h, GN_SIGMA)) {
             rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
             goto done;
         }
-        if ((rc = search(&t2, &psr2, fb, mb, w, h, o, err)))
+        if ((rc = search(&t2, &psr2, &ncc2, fb, mb, fbs, mbs, w, h, o, err)))
             goto done;
-        if (refine_rigid(&t2, fd, md, w, h, o->scale, o->interp, thread_count(np))) {
+        if (refine_rigid(&t2, fds, mds, w, h, o->scale, o->interp, thread_count(np))) {
             rc = pl__err(err, PL_ENOMEM, "registration: out of memory");
             goto done;
         }
-        double ncc2 = aligned_ncc(al, fd, md, w, h, &t2, o->interp, &both);
+        ncc2 = aligned_ncc(al, fd, md, w, h, &t2, o->interp, &both);
         if (ncc2 > ncc + SMOOTH_GAIN || (isnan(ncc) && !isnan(ncc2))) {
             *t = t2;
             *psr = psr2;
         }
     }
-    resample_run(al, w, h, md, w, h, t, o->interp);
+    if (al_out) {
+        resample_run(al, w, h, md, w, h, t, o->interp);
+        *al_out = al;
+        al = NULL;
+    }
     *fd_out = fd;
-    *al_out = al;
-    fd = al = NULL;
+    fd = NULL;
 done:
     free(fd);
     free(md);
+    free(fds);
+    free(mds);
     free(al);
     free(fb);
     free(mb);
+    free(fbs);
+    free(mbs);
     return rc;
 }
 
@@ -2119,14 +2119,11 @@ static double structure_ncc(const float *fd, const float *al, uint32_t w, uint32
     float *fs = NULL, *as = NULL;
     double r = NAN;
     *oom = 0;
-    if (pair_apply(&fs, &as, fd, al, w, h, QUALITY_SIGMA)) {
+    /* the blur keeps NaN where its input has it: the overlap is theirs */
+    if (pair_apply(&fs, &as, fd, al, w, h, QUALITY_SIGMA))
         *oom = 1;
-    } else {
-        for (size_t i = 0; i < np; i++)
-            if (!isfinite(fd[i]) || !isfinite(al[i]))
-                fs[i] = NAN;
+    else
         r = pearson(fs, as, np, both);
-    }
     free(fs);
     free(as);
     return r;
@@ -2276,33 +2273,25 @@ static int find_channel(const pl_map *m, const char *quantity, const char *label
 static int choose_channels(int *ib, int *ic, const pl_map *b, const pl_map *c,
                            const char *quantity, const char *label, pl_err *err)
 {
-    if (quantity || label) {
-        if (!quantity) {
-            static const char *const pref[] = { "phase", "temperature-contrast" };
-            for (size_t k = 0; k < 2; k++) {
-                *ib = find_channel(b, pref[k], label);
-                *ic = find_channel(c, pref[k], label);
-                if (*ib >= 0 && *ic >= 0)
-                    return PL_OK;
-            }
+    static const char *const pref[] = { "phase", "temperature-contrast" };
+    if (!quantity)
+        for (size_t k = 0; k < sizeof pref / sizeof pref[0]; k++) {
+            *ib = find_channel(b, pref[k], label);
+            *ic = find_channel(c, pref[k], label);
+            if (*ib >= 0 && *ic >= 0)
+                return PL_OK;
         }
-        *ib = find_channel(b, quantity, label);
-        *ic = find_channel(c, quantity, label);
-        if (*ib < 0 || *ic < 0)
-            return pl__err(err, PL_ENOTFOUND, "%s map has no channel%s%s%s%s%s",
-                           *ib < 0 ? "baseline" : "current", quantity ? " of quantity \"" : "",
-                           quantity ? quantity : "", quantity ? "\"" : "",
-                           label ? " labelled " : "", label ? label : "");
+    if (!quantity && !label) {
+        *ib = *ic = 0;
         return PL_OK;
     }
-    static const char *const pref[] = { "phase", "temperature-contrast" };
-    for (size_t k = 0; k < 2; k++) {
-        *ib = find_channel(b, pref[k], NULL);
-        *ic = find_channel(c, pref[k], NULL);
-        if (*ib >= 0 && *ic >= 0)
-            return PL_OK;
-    }
-    *ib = *ic = 0;
+    *ib = find_channel(b, quantity, label);
+    *ic = find_channel(c, quantity, label);
+    if (*ib < 0 || *ic < 0)
+        return pl__err(err, PL_ENOTFOUND, "%s map has no channel%s%s%s%s%s",
+                       *ib < 0 ? "baseline" : "current", quantity ? " of quantity \"" : "",
+                       quantity ? quantity : "", quantity ? "\"" : "",
+                       label ? " labelled " : "", label ? label : "");
     return PL_OK;
 }
 
@@ -2320,48 +2309,36 @@ static int prefilter(float **out, const float *src, uint32_t w, uint32_t h, doub
     return gauss_blur(out, src, w, h, sqrt(1.0 / (scale * scale) - 1.0) / 2.0);
 }
 
-/* Resample channel ch of `cur` onto the baseline grid through t. */
-static int resample_channel(float *out, const pl_map *b, const pl_map *cur, uint32_t ch,
-                            const pl_transform *t, pl_interp interp)
+/* Resample src (sw x sh, a plane of the current map) onto the baseline
+ * grid through t. */
+static int resample_plane(float *out, const pl_map *b, const float *src, uint32_t sw,
+                          uint32_t sh, const pl_transform *t, pl_interp interp)
 {
     float *pre;
-    const float *src = pl_map_channel(cur, ch);
-    if (prefilter(&pre, src, cur->width, cur->height, t->scale))
+    if (prefilter(&pre, src, sw, sh, t->scale))
         return PL_ENOMEM;
-    resample_run(out, b->width, b->height, pre ? pre : src, cur->width, cur->height, t, interp);
+    resample_run(out, b->width, b->height, pre ? pre : src, sw, sh, t, interp);
     free(pre);
     return PL_OK;
 }
 
 /* The scores of a transform: ncc and overlap over the registered
- * channels, the shift in mm; then the aligned map when asked for. */
+ * channels, the shift in mm. bd: the baseline's channel ib despeckled, or
+ * NULL to despeckle it here. */
 static int finish(pl_register_result *res, const pl_map *b, const pl_map *cur, int ib, int ic,
-                  pl_interp interp, pl_err *err)
+                  const float *bd, pl_interp interp, pl_err *err)
 {
     size_t np = (size_t)b->width * b->height, both = 0;
-    float *al = malloc(np * sizeof *al), *cd = NULL;
+    float *al = malloc(np * sizeof *al), *cd = NULL, *own = NULL;
     /* despeckle before resampling: a resampled dead pixel is a blob */
-    pl_map one = *cur;
-    one.nchannels = 1;
-    if (!al || despeckle(&cd, pl_map_channel(cur, (uint32_t)ic), cur->width, cur->height)) {
-        free(al);
-        return pl__err(err, PL_ENOMEM, "registration: out of memory");
-    }
-    one.data = cd;
-    int rrc = resample_channel(al, b, &one, 0, &res->transform, interp);
-    free(cd);
-    if (rrc) {
-        free(al);
-        return pl__err(err, PL_ENOMEM, "registration: out of memory");
-    }
-    int oom = 0;
-    float *bd = NULL;
-    if (despeckle(&bd, pl_map_channel(b, (uint32_t)ib), b->width, b->height))
-        oom = 1;
-    else
-        res->ncc = structure_ncc(bd, al, b->width, b->height, &both, &oom);
-    free(bd);
+    int oom = !al || despeckle(&cd, pl_map_channel(cur, (uint32_t)ic), cur->width, cur->height)
+              || resample_plane(al, b, cd, cur->width, cur->height, &res->transform, interp)
+              || (!bd && despeckle(&own, pl_map_channel(b, (uint32_t)ib), b->width, b->height));
+    if (!oom)
+        res->ncc = structure_ncc(bd ? bd : own, al, b->width, b->height, &both, &oom);
     free(al);
+    free(cd);
+    free(own);
     if (oom)
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     res->overlap_fraction = (double)both / (double)np;
@@ -2383,7 +2360,8 @@ static int make_aligned(pl_map **aligned, const pl_map *b, const pl_map *cur,
     m->placement = b->placement;
     memcpy(m->channels, cur->channels, cur->nchannels * sizeof *m->channels);
     for (uint32_t ch = 0; ch < cur->nchannels; ch++)
-        if (resample_channel(pl_map_channel(m, ch), b, cur, ch, t, interp)) {
+        if (resample_plane(pl_map_channel(m, ch), b, pl_map_channel(cur, ch), cur->width,
+                           cur->height, t, interp)) {
             pl_map_free(m);
             return pl__err(err, PL_ENOMEM, "registration: out of memory");
         }
@@ -2430,23 +2408,24 @@ int pl_register_maps(pl_register_result *res, pl_map **aligned, const pl_map *ba
         return pl__err(err, PL_EINVAL, "registration: baseline map %ux%u smaller than %ux%u", w,
                        h, MIN_SIDE, MIN_SIDE);
     float *mov = malloc((size_t)w * h * sizeof *mov);
-    if (!mov || resample_channel(mov, baseline, current, (uint32_t)ic, &res->nominal, o.interp)) {
+    if (!mov || resample_plane(mov, baseline, pl_map_channel(current, (uint32_t)ic),
+                               current->width, current->height, &res->nominal, o.interp)) {
         free(mov);
         return pl__err(err, PL_ENOMEM, "registration: out of memory");
     }
     pl_transform r;
     double psr = NAN;
-    float *fd = NULL, *al = NULL;
-    rc = robust_search(&r, &psr, &fd, &al, pl_map_channel(baseline, (uint32_t)ib), mov, w, h, &o,
-                       err);
-    free(fd);
-    free(al);
+    float *fd = NULL; /* the baseline's channel despeckled, for the score too */
+    rc = robust_search(&r, &psr, &fd, NULL, pl_map_channel(baseline, (uint32_t)ib), mov, w, h,
+                       &o, err);
     free(mov);
+    if (!rc) {
+        res->transform = compose(&r, &res->nominal);
+        res->psr = psr;
+        rc = finish(res, baseline, current, ib, ic, fd, o.interp, err);
+    }
+    free(fd);
     if (rc)
-        return rc;
-    res->transform = compose(&r, &res->nominal);
-    res->psr = psr;
-    if ((rc = finish(res, baseline, current, ib, ic, o.interp, err)))
         return rc;
     judge(res, o.min_ncc, o.min_psr);
     if (!res->refused && aligned)
@@ -2475,7 +2454,7 @@ int pl_register_apply(pl_register_result *res, pl_map **aligned, const pl_map *b
         res->nominal.rotation_deg = res->nominal.scale = NAN;
     }
     res->transform = *t;
-    if ((rc = finish(res, baseline, current, ib, ic, interp, err)))
+    if ((rc = finish(res, baseline, current, ib, ic, NULL, interp, err)))
         return rc;
     if (aligned)
         return make_aligned(aligned, baseline, current, t, interp, err);

@@ -8,6 +8,7 @@
 #include "render_int.h"
 
 #include "common_int.h"
+#include "png_int.h"
 #include "plyledger/version.h"
 
 #include <assert.h>
@@ -16,9 +17,7 @@
 #include <inttypes.h>
 #include <limits.h>
 #include <math.h>
-#include <png.h>
 #include <pthread.h>
-#include <setjmp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -45,26 +44,24 @@ static const double RGB_FROM_XYZ[3][3] = {
  * (CIE 15:2004, table T.3). */
 static const double WHITE[3] = {0.95047, 1.0, 1.08883};
 
+/* v clamped to [0, 1], NaN to 0. */
+static double unit_clamp(double v)
+{
+    return !(v > 0.0) ? 0.0 : v < 1.0 ? v : 1.0;
+}
+
 double pl_render__srgb_encode(double linear)
 {
-    if (!(linear > 0.0))
-        return 0.0;
-    if (linear >= 1.0)
-        return 1.0;
-    if (linear <= 0.0031308)
-        return 12.92 * linear;
-    return 1.055 * pow(linear, 1.0 / 2.4) - 0.055;
+    double v = unit_clamp(linear);
+    if (v == 1.0)
+        return 1.0; /* 1.055 - 0.055 misses 1 by one ulp */
+    return v <= 0.0031308 ? 12.92 * v : 1.055 * pow(v, 1.0 / 2.4) - 0.055;
 }
 
 double pl_render__srgb_decode(double encoded)
 {
-    if (!(encoded > 0.0))
-        return 0.0;
-    if (encoded >= 1.0)
-        return 1.0;
-    if (encoded <= 0.04045)
-        return encoded / 12.92;
-    return pow((encoded + 0.055) / 1.055, 2.4);
+    double v = unit_clamp(encoded);
+    return v <= 0.04045 ? v / 12.92 : pow((v + 0.055) / 1.055, 2.4);
 }
 
 /* CIE 15:2004 eq. 8.6: the cube root with its linear toe below (6/29)^3. */
@@ -615,12 +612,6 @@ static void outline(pl_image *img, int x, int y, int w, int h, const unsigned ch
 #define AUTO_ZOOM_WIDTH 256u  /* auto zoom: smallest making the map this wide */
 #define AUTO_ZOOM_SIDE 4096u  /* ... unless its longer side would pass this */
 
-static uint32_t text_width(const char *s, unsigned scale)
-{
-    size_t n = strlen(s);
-    return n ? (uint32_t)(n * PL_FONT_ADVANCE * scale - scale) : 0;
-}
-
 /* Value -> position in [0, 1] on the colour map (unclamped, NaN kept). */
 static double value_to_t(double v, double vmin, double vmax)
 {
@@ -704,7 +695,7 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
     int y = margin;
     lay->caption_x = margin;
     lay->caption_y = y;
-    right = margin + (int64_t)text_width(lay->caption, lay->text_scale);
+    right = margin + (int64_t)pl_render__text_width(lay->caption, lay->text_scale);
     y += gh + gap;
 
     int row_top = y;
@@ -731,9 +722,8 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
         lay->scale_label_x = lay->scale_x;
         lay->scale_label_y = lay->scale_y + lay->scale_h + 2 * s;
         bottom = (int64_t)lay->scale_label_y + gh;
-        int64_t w = 1 + (int64_t)(lay->scale_w > (int)text_width(lay->scale_label, lay->text_scale)
-                                      ? (uint32_t)lay->scale_w
-                                      : text_width(lay->scale_label, lay->text_scale));
+        int64_t label_w = pl_render__text_width(lay->scale_label, lay->text_scale);
+        int64_t w = 1 + (lay->scale_w > label_w ? lay->scale_w : label_w);
         if (w > col1_w)
             col1_w = w;
     }
@@ -748,8 +738,9 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
         lay->unit_y = row_top;
         if (lay->unit[0]) {
             next += gh + gap;
-            if (x2 + (int64_t)text_width(lay->unit, lay->text_scale) > right)
-                right = x2 + (int64_t)text_width(lay->unit, lay->text_scale);
+            int64_t unit_right = x2 + (int64_t)pl_render__text_width(lay->unit, lay->text_scale);
+            if (unit_right > right)
+                right = unit_right;
         }
         lay->bar_x = x2 + 1;
         lay->bar_y = next + gh / 2 + 1;
@@ -763,8 +754,9 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
         uint32_t widest = 0;
         for (int i = 0; i < 3; i++) {
             lay->label_y[i] = lay->tick_y[i] - gh / 2;
-            if (text_width(lay->labels[i], lay->text_scale) > widest)
-                widest = text_width(lay->labels[i], lay->text_scale);
+            uint32_t label_w = pl_render__text_width(lay->labels[i], lay->text_scale);
+            if (label_w > widest)
+                widest = label_w;
         }
         if (lay->label_x + (int64_t)widest > right)
             right = lay->label_x + (int64_t)widest;
@@ -776,6 +768,19 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
     }
     *img_w = (uint64_t)(right + margin);
     *img_h = (uint64_t)(bottom + margin);
+    return PL_OK;
+}
+
+/* The caller's options (checked for their version), or the defaults. */
+static int options_of(pl_render_options *o, const pl_render_options *opts, pl_err *err)
+{
+    *o = (pl_render_options)PL_RENDER_OPTIONS_INIT;
+    if (!opts)
+        return PL_OK;
+    if (opts->version != PL_RENDER_OPTIONS_VERSION)
+        return pl__err(err, PL_EINVAL, "render options version %u is not %u", opts->version,
+                       PL_RENDER_OPTIONS_VERSION);
+    *o = *opts;
     return PL_OK;
 }
 
@@ -807,13 +812,10 @@ int pl_render__map(pl_image **out, pl_render_layout *layout, const pl_map *map, 
 {
     assert(out && map);
     *out = NULL;
-    pl_render_options o = PL_RENDER_OPTIONS_INIT;
-    if (opts) {
-        if (opts->version != PL_RENDER_OPTIONS_VERSION)
-            return pl__err(err, PL_EINVAL, "render options version %u is not %u",
-                           opts->version, PL_RENDER_OPTIONS_VERSION);
-        o = *opts;
-    }
+    pl_render_options o;
+    int rc = options_of(&o, opts, err);
+    if (rc)
+        return rc;
     if (o.colormap != PL_COLORMAP_LEDGER && o.colormap != PL_COLORMAP_GREY)
         return pl__err(err, PL_EINVAL, "unknown colour map %d", (int)o.colormap);
     if (!map->data || !map->channels || map->width == 0 || map->height == 0)
@@ -830,7 +832,7 @@ int pl_render__map(pl_image **out, pl_render_layout *layout, const pl_map *map, 
     pl_render_layout lay;
     memset(&lay, 0, sizeof lay);
     int has_data = 0;
-    int rc = value_range(&lay.vmin, &lay.vmax, &has_data, data, npix, &o, err);
+    rc = value_range(&lay.vmin, &lay.vmax, &has_data, data, npix, &o, err);
     if (rc)
         return rc;
 
@@ -954,11 +956,6 @@ static int joint_range(double *lo, double *hi, const float *x, const float *y, s
     return PL_OK;
 }
 
-static double unit_clamp(double v)
-{
-    return v < 0.0 ? 0.0 : v > 1.0 ? 1.0 : v;
-}
-
 PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const pl_map *b,
                              uint32_t cb, pl_pair_mode mode, unsigned tile,
                              const pl_render_options *opts, pl_err *err)
@@ -968,17 +965,18 @@ PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const
     if (a->width != b->width || a->height != b->height)
         return pl__err(err, PL_EINVAL, "maps of %" PRIu32 "x%" PRIu32 " and %" PRIu32 "x%" PRIu32
                        " px cannot be shown together", a->width, a->height, b->width, b->height);
-    if (ca >= a->nchannels || cb >= b->nchannels)
-        return pl__err(err, PL_EINVAL, "channel out of range");
+    if (ca >= a->nchannels)
+        return pl__err(err, PL_EINVAL, "channel %" PRIu32 " of the first map is out of range "
+                       "(it has %" PRIu32 ")", ca, a->nchannels);
+    if (cb >= b->nchannels)
+        return pl__err(err, PL_EINVAL, "channel %" PRIu32 " of the second map is out of range "
+                       "(it has %" PRIu32 ")", cb, b->nchannels);
     if (mode != PL_PAIR_CHECKERBOARD && mode != PL_PAIR_BLEND)
         return pl__err(err, PL_EINVAL, "unknown pair mode %d", (int)mode);
-    pl_render_options o = PL_RENDER_OPTIONS_INIT;
-    if (opts) {
-        if (opts->version != PL_RENDER_OPTIONS_VERSION)
-            return pl__err(err, PL_EINVAL, "render options version %u is not %u",
-                           opts->version, PL_RENDER_OPTIONS_VERSION);
-        o = *opts;
-    }
+    pl_render_options o;
+    int rc = options_of(&o, opts, err);
+    if (rc)
+        return rc;
     const size_t n = (size_t)a->width * a->height;
     const float *x = a->data + (size_t)ca * n, *y = b->data + (size_t)cb * n;
     if (tile == 0) {
@@ -989,7 +987,6 @@ PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const
     if (!mix)
         return pl__err(err, PL_ENOMEM, "out of memory for a paired rendering");
     double lo_a = 0, hi_a = 1, lo_b = 0, hi_b = 1;
-    int rc;
     if (mode == PL_PAIR_CHECKERBOARD) {
         rc = joint_range(&lo_a, &hi_a, x, y, n, err);
         if (!rc && isnan(o.vmin))
@@ -1055,52 +1052,18 @@ PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const
 
 /* ---- PNG output -------------------------------------------------------- */
 
-/* libpng reports errors through a callback that must not return; it
- * longjmps back to write_png() with the message kept here. */
+/* The libpng part of writing; errors longjmp back here (png_int.h), so
+ * this function only fills `job`, which its caller frees. */
 typedef struct png_job {
-    jmp_buf jump;
     png_structp png;
     png_infop info;
-    char msg[200];
+    char msg[PL_PNG_MSG_SIZE];
 } png_job;
 
-static void png_job_error(png_structp png, png_const_charp msg)
+static int write_png(png_job *job, FILE *fp, const pl_image *img)
 {
-    png_job *job = png_get_error_ptr(png);
-    snprintf(job->msg, sizeof job->msg, "%s", msg ? msg : "libpng error");
-    longjmp(job->jump, 1);
-}
-
-static void png_job_warning(png_structp png, png_const_charp msg)
-{
-    (void)png;
-    (void)msg;
-}
-
-static void write_rows(png_structp png, const pl_image *img)
-{
-    for (uint32_t y = 0; y < img->height; y++)
-        png_write_row(png, img->rgb + (size_t)y * img->width * 3);
-}
-
-static int write_png(FILE *fp, const pl_image *img, png_job *job)
-{
-    job->png = png_create_write_struct(PNG_LIBPNG_VER_STRING, job, png_job_error,
-                                       png_job_warning);
-    if (!job->png) {
-        snprintf(job->msg, sizeof job->msg, "out of memory for the PNG writer");
+    if (setjmp(png_jmpbuf(job->png)))
         return -1;
-    }
-    job->info = png_create_info_struct(job->png);
-    if (!job->info) {
-        png_destroy_write_struct(&job->png, NULL);
-        snprintf(job->msg, sizeof job->msg, "out of memory for the PNG writer");
-        return -1;
-    }
-    if (setjmp(job->jump)) {
-        png_destroy_write_struct(&job->png, &job->info);
-        return -1;
-    }
     png_init_io(job->png, fp);
     png_set_IHDR(job->png, job->info, img->width, img->height, 8, PNG_COLOR_TYPE_RGB,
                  PNG_INTERLACE_NONE, PNG_COMPRESSION_TYPE_DEFAULT, PNG_FILTER_TYPE_DEFAULT);
@@ -1112,9 +1075,9 @@ static int write_png(FILE *fp, const pl_image *img, png_job *job)
     text.text_length = strlen(text.text);
     png_set_text(job->png, job->info, &text, 1);
     png_write_info(job->png, job->info);
-    write_rows(job->png, img);
+    for (uint32_t y = 0; y < img->height; y++)
+        png_write_row(job->png, img->rgb + (size_t)y * img->width * 3);
     png_write_end(job->png, NULL);
-    png_destroy_write_struct(&job->png, &job->info);
     return 0;
 }
 
@@ -1126,7 +1089,14 @@ PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *e
         return pl__err(err, PL_EIO, "%s: cannot create the file (%s)", path, strerror(errno));
     png_job job;
     memset(&job, 0, sizeof job);
-    int rc = write_png(fp, img, &job);
+    int rc;
+    if (pl_png__create(&job.png, &job.info, 1, job.msg)) {
+        snprintf(job.msg, sizeof job.msg, "out of memory for the PNG writer");
+        rc = -1;
+    } else {
+        rc = write_png(&job, fp, img);
+    }
+    pl_png__destroy(&job.png, &job.info, 1);
     if (rc == 0 && fflush(fp) != 0) {
         snprintf(job.msg, sizeof job.msg, "write failed (%s)", strerror(errno));
         rc = -1;

@@ -791,6 +791,13 @@ int pl_render__glyph(int ch, unsigned char rows[PL_FONT_HEIGHT])
     return 0;
 }
 
+uint32_t pl_render__text_width(const char *text, unsigned scale)
+{
+    uint64_t n = strlen(text);
+    uint64_t w = n ? n * PL_FONT_ADVANCE * scale - scale : 0;
+    return w > UINT32_MAX ? UINT32_MAX : (uint32_t)w;
+}
+
 PL_EXPORT uint32_t pl_image_text(pl_image *img, int x, int y, const char *text,
                                  unsigned scale, const unsigned char rgb[3])
 {
@@ -812,6 +819,5 @@ PL_EXPORT uint32_t pl_image_text(pl_image *img, int x, int y, const char *text,
                     pl_render__fill(img, left + (int64_t)col * scale,
                                     (int64_t)y + (int64_t)r * scale, scale, scale, rgb);
     }
-    uint64_t w = (uint64_t)n * PL_FONT_ADVANCE * scale - scale;
-    return w > UINT32_MAX ? UINT32_MAX : (uint32_t)w;
+    return pl_render__text_width(text, scale);
 }

@@ -30,6 +30,10 @@
  */
 int pl_render__glyph(int ch, unsigned char rows[PL_FONT_HEIGHT]);
 
+/* Width in image pixels of `text` drawn by pl_image_text() at `scale`:
+ * (PL_FONT_ADVANCE n - 1) * scale for n characters, 0 for none. */
+uint32_t pl_render__text_width(const char *text, unsigned scale);
+
 /* Fill the rectangle (x, y, w, h), clipped to the image. */
 void pl_render__fill(pl_image *img, int64_t x, int64_t y, int64_t w, int64_t h,
                      const unsigned char rgb[3]);

@@ -51,7 +51,6 @@ struct pl_seq {
     uint32_t preflash;
     double pitch_u, pitch_v;
     char *acquisition;
-    cal_kind cal;
     uint32_t saturation;    /* counts at or above are saturated */
     float *lut;             /* count -> kelvin, NaN when saturated */
     size_t npixels;
@@ -534,53 +533,26 @@ static int parse_manifest(manifest *m, const cJSON *root, const char *path, pl_e
 static int load_json(cJSON **out, const char *path, pl_err *err)
 {
     *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot open: %s", path, strerror(errno));
-    size_t cap = 4096, n = 0;
-    char *text = malloc(cap);
-    int rc = text ? PL_OK : pl__err(err, PL_ENOMEM, "%s: out of memory", path);
-    while (rc == PL_OK) {
-        if (n == cap) {
-            if (cap >= PL_SEQ__MAX_MANIFEST_BYTES) {
-                rc = pl__err(err, PL_EFORMAT, "%s: manifest larger than %u bytes", path,
-                             PL_SEQ__MAX_MANIFEST_BYTES);
+    char *text;
+    size_t n;
+    int rc = pl__read_text(&text, &n, path, PL_SEQ__MAX_MANIFEST_BYTES, err);
+    if (rc)
+        return rc;
+    const char *end = NULL;
+    *out = cJSON_ParseWithLengthOpts(text, n, &end, 0);
+    if (!*out) {
+        size_t at = end && end >= text && end <= text + n ? (size_t)(end - text) : 0;
+        rc = pl__err(err, PL_EFORMAT, "%s: not valid JSON (at byte %zu)", path, at);
+    } else {
+        /* only blanks may follow the object */
+        for (const char *p = end; p && p < text + n; p++)
+            if (*p != ' ' && *p != '\t' && *p != '\n' && *p != '\r') {
+                cJSON_Delete(*out);
+                *out = NULL;
+                rc = pl__err(err, PL_EFORMAT, "%s: not valid JSON (text after the object "
+                             "at byte %zu)", path, (size_t)(p - text));
                 break;
             }
-            char *grown = realloc(text, cap * 2);
-            if (!grown) {
-                rc = pl__err(err, PL_ENOMEM, "%s: out of memory", path);
-                break;
-            }
-            text = grown;
-            cap *= 2;
-        }
-        size_t got = fread(text + n, 1, cap - n, f);
-        n += got;
-        if (got == 0) {
-            if (ferror(f))
-                rc = pl__err(err, PL_EIO, "%s: cannot read: %s", path, strerror(errno));
-            break;
-        }
-    }
-    fclose(f);
-    if (rc == PL_OK) {
-        const char *end = NULL;
-        *out = cJSON_ParseWithLengthOpts(text, n, &end, 0);
-        if (!*out) {
-            size_t at = end && end >= text && end <= text + n ? (size_t)(end - text) : 0;
-            rc = pl__err(err, PL_EFORMAT, "%s: not valid JSON (at byte %zu)", path, at);
-        } else {
-            /* only blanks may follow the object */
-            for (const char *p = end; p && p < text + n; p++)
-                if (*p != ' ' && *p != '\t' && *p != '\n' && *p != '\r') {
-                    cJSON_Delete(*out);
-                    *out = NULL;
-                    rc = pl__err(err, PL_EFORMAT, "%s: not valid JSON (text after the object "
-                                 "at byte %zu)", path, (size_t)(p - text));
-                    break;
-                }
-        }
     }
     free(text);
     return rc;
@@ -862,7 +834,6 @@ static int open_seq(pl_seq *s, const cJSON *root, pl_err *err)
     }
     if (rc == PL_OK) {
         s->is_png = m.folder != NULL;
-        s->cal = m.cal.kind;
         s->saturation = m.saturation >= 0 ? (uint32_t)m.saturation : 65535u;
         s->pitch_u = m.pitch_u;
         s->pitch_v = m.pitch_v;
@@ -870,7 +841,7 @@ static int open_seq(pl_seq *s, const cJSON *root, pl_err *err)
     }
     if (rc == PL_OK)
         rc = set_times(s, &m, err);
-    if (rc == PL_OK && s->cal != CAL_KELVIN)
+    if (rc == PL_OK && m.cal.kind != CAL_KELVIN)
         rc = build_lut(s, &m.cal, err);
     if (rc == PL_OK) {
         /* copied, so that everything the pl_seq holds goes back through free() */
@@ -1008,11 +979,12 @@ static int read_cube_frame(pl_seq *s, uint32_t index, float *dst, uint32_t *nsat
     return PL_OK;
 }
 
+/* One libpng session, reading or writing a frame. */
 typedef struct png_job {
     FILE *f;
     png_structp png;
     png_infop info;
-    char msg[160];
+    char msg[160];          /* libpng's own complaint */
 } png_job;
 
 static void on_png_error(png_structp png, png_const_charp msg)
@@ -1141,6 +1113,20 @@ static int create_temp(char **out, const char *dir, const char *name, int folder
     return -1;
 }
 
+/* Is `n` a frame file name the writer makes: prefix, digits, suffix? */
+static int is_frame_name(const char *n)
+{
+    size_t np = strlen(WRITER_PATTERN_PREFIX), ns = strlen(WRITER_PATTERN_SUFFIX);
+    size_t len = strlen(n);
+    if (len <= np + ns || strncmp(n, WRITER_PATTERN_PREFIX, np) != 0 ||
+        strcmp(n + len - ns, WRITER_PATTERN_SUFFIX) != 0)
+        return 0;
+    for (size_t i = np; i < len - ns; i++)
+        if (n[i] < '0' || n[i] > '9')
+            return 0;
+    return 1;
+}
+
 /* Remove a frames folder the writer made: its frame files, then itself.
  * Anything else inside makes rmdir() fail, and the folder stays. */
 static int remove_frames_folder(const char *path)
@@ -1149,19 +1135,10 @@ static int remove_frames_folder(const char *path)
     if (!d)
         return -1;
     struct dirent *e;
-    size_t np = strlen(WRITER_PATTERN_PREFIX), ns = strlen(WRITER_PATTERN_SUFFIX);
     while ((e = readdir(d)) != NULL) {
-        const char *n = e->d_name;
-        size_t len = strlen(n);
-        if (len <= np + ns || strncmp(n, WRITER_PATTERN_PREFIX, np) != 0 ||
-            strcmp(n + len - ns, WRITER_PATTERN_SUFFIX) != 0)
+        if (!is_frame_name(e->d_name))
             continue;
-        size_t digits = 0;
-        for (const char *p = n + np; p < n + len - ns && *p >= '0' && *p <= '9'; p++)
-            digits++;
-        if (digits != len - np - ns)
-            continue;
-        char *fp = join_path(path, n);
+        char *fp = join_path(path, e->d_name);
         if (fp)
             unlink(fp);
         free(fp);
@@ -1179,16 +1156,10 @@ static int only_frames(const char *path)
         return 0;
     int ok = 1;
     struct dirent *e;
-    size_t np = strlen(WRITER_PATTERN_PREFIX), ns = strlen(WRITER_PATTERN_SUFFIX);
     while (ok && (e = readdir(d)) != NULL) {
         const char *n = e->d_name;
-        if (strcmp(n, ".") == 0 || strcmp(n, "..") == 0)
-            continue;
-        size_t len = strlen(n);
-        ok = len > np + ns && strncmp(n, WRITER_PATTERN_PREFIX, np) == 0 &&
-             strcmp(n + len - ns, WRITER_PATTERN_SUFFIX) == 0;
-        for (size_t i = np; ok && i < len - ns; i++)
-            ok = n[i] >= '0' && n[i] <= '9';
+        if (strcmp(n, ".") != 0 && strcmp(n, "..") != 0)
+            ok = is_frame_name(n);
     }
     closedir(d);
     return ok;
@@ -1219,6 +1190,15 @@ static void free_writer(pl_seq_writer *w)
     free(w->buf);
     free(w->frame_path);
     free(w);
+}
+
+/* Frames before the flash, as the reader counts them from a uniform rate. */
+static uint32_t frames_before_flash(const pl_seq_info *in)
+{
+    uint32_t before = 0;
+    while (before < in->frame_count && (double)before / in->frame_rate_hz < in->flash_time_s)
+        before++;
+    return before;
 }
 
 static int check_info(const pl_seq_info *in, const char *path, pl_err *err)
@@ -1252,9 +1232,7 @@ static int check_info(const pl_seq_info *in, const char *path, pl_err *err)
     if ((pu != pv) || (!pu && !(isnan(in->pitch_u) && isnan(in->pitch_v))))
         return pl__err(err, PL_EINVAL, "%s: pitch must be two numbers > 0, or both NaN", path);
     /* the times the reader will compute, with its rules */
-    uint32_t before = 0;
-    while (before < in->frame_count && (double)before / in->frame_rate_hz < in->flash_time_s)
-        before++;
+    uint32_t before = frames_before_flash(in);
     if (before == 0)
         return pl__err(err, PL_EINVAL, "%s: no frame before the flash at %s s", path,
                        num(in->flash_time_s).s);
@@ -1309,12 +1287,8 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
         return pl__err(err, PL_ENOMEM, "%s: out of memory", manifest_path);
     w->info = *info;
     w->info.acquisition_json = NULL;
-    if (w->info.preflash_frames == 0) {
-        uint32_t before = 0;
-        while ((double)before / info->frame_rate_hz < info->flash_time_s)
-            before++;
-        w->info.preflash_frames = before;
-    }
+    if (w->info.preflash_frames == 0)
+        w->info.preflash_frames = frames_before_flash(info);
     char *stem = NULL;
     if (info->acquisition_json) {
         cJSON *a = cJSON_Parse(info->acquisition_json);
@@ -1383,21 +1357,8 @@ static unsigned to_count(float k, double offset, double gain, unsigned saturatio
     return (unsigned)q;
 }
 
-typedef struct png_wjob {
-    FILE *f;
-    png_structp png;
-    png_infop info;
-    char msg[160];
-} png_wjob;
-
-static void on_png_write_error(png_structp png, png_const_charp msg)
-{
-    png_wjob *j = png_get_error_ptr(png);
-    snprintf(j->msg, sizeof j->msg, "%s", msg ? msg : "unknown error");
-    png_longjmp(png, 1);
-}
-
-static int encode_png(png_wjob *j, const pl_seq_writer *w, pl_err *err)
+/* The libpng part of writing a frame; see the introduction. */
+static int encode_png(png_job *j, const pl_seq_writer *w, pl_err *err)
 {
     if (setjmp(png_jmpbuf(j->png)))
         return pl__err(err, PL_EIO, "%s: cannot write PNG (%s)", w->frame_path, j->msg);
@@ -1422,14 +1383,13 @@ static int write_png_frame(pl_seq_writer *w, pl_err *err)
     free(w->frame_path);
     if (!(w->frame_path = join_path(w->data_tmp, name)))
         return pl__err(err, PL_ENOMEM, "%s: out of memory", w->manifest_path);
-    png_wjob j;
+    png_job j;
     memset(&j, 0, sizeof j);
     j.f = fopen(w->frame_path, "wb");
     if (!j.f)
         return pl__err(err, PL_EIO, "%s: cannot create: %s", w->frame_path, strerror(errno));
     int rc;
-    j.png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &j, on_png_write_error,
-                                    on_png_warning);
+    j.png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &j, on_png_error, on_png_warning);
     j.info = j.png ? png_create_info_struct(j.png) : NULL;
     if (!j.png || !j.info)
         rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG writer", w->frame_path);

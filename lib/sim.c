@@ -451,16 +451,19 @@ static int choice(jctx *c, const cJSON *obj, const char *where, const char *key,
                    "%s: %s: \"%s\" must be one of %s", c->file, where, key, list);
 }
 
-static int label(jctx *c, const cJSON *obj, const char *where, char *dst, size_t cap)
+/* An optional string key copied into a fixed buffer; absent keeps *dst. */
+static int text(jctx *c, const cJSON *obj, const char *where, const char *key, char *dst,
+                size_t cap)
 {
-    const cJSON *v = item(obj, "label");
+    const cJSON *v = item(obj, key);
     if (!v)
         return PL_OK;
     if (!cJSON_IsString(v))
-        return pl__err(c->err, PL_EFORMAT, "%s: %s: \"label\" must be a string", c->file, where);
+        return pl__err(c->err, PL_EFORMAT, "%s: %s: \"%s\" must be a string", c->file, where,
+                       key);
     if (strlen(v->valuestring) >= cap)
-        return pl__err(c->err, PL_EINVAL, "%s: %s: \"label\" is longer than %zu characters",
-                       c->file, where, cap - 1);
+        return pl__err(c->err, PL_EINVAL, "%s: %s: \"%s\" is longer than %zu characters",
+                       c->file, where, key, cap - 1);
     memcpy(dst, v->valuestring, strlen(v->valuestring) + 1);
     return PL_OK;
 }
@@ -730,7 +733,7 @@ static int parse_defect(jctx *c, const cJSON *obj, const char *where, pl_sim__de
     if (!cJSON_IsObject(obj))
         return pl__err(c->err, PL_EFORMAT, "%s: %s must be an object", c->file, where);
     int rc = choice(c, obj, where, "kind", &d->kind, kinds, 1);
-    if (rc || (rc = label(c, obj, where, d->label, sizeof d->label)))
+    if (rc || (rc = text(c, obj, where, "label", d->label, sizeof d->label)))
         return rc;
     d->resistance_m2k_w = AIR_GAP_RESISTANCE;
     switch (d->kind) {
@@ -761,10 +764,6 @@ static int parse_defect(jctx *c, const cJSON *obj, const char *where, pl_sim__de
             || (rc = num(c, obj, where, "resistance_m2k_w", &d->resistance_m2k_w,
                          r_closed(0, 1e6), 0)))
             return rc;
-        if (!(d->bottom_depth_mm >= d->depth_mm + 0.001))
-            return pl__err(c->err, PL_EINVAL,
-                           "%s: %s: \"bottom_depth_mm\" must exceed \"top_depth_mm\" by 0.001 "
-                           "or more", c->file, where);
         d->layers = (unsigned)layers;
         d->outline.shape = PL_SIM__CIRCLE;
         d->outline.cx = xy[0];
@@ -784,13 +783,15 @@ static int parse_defect(jctx *c, const cJSON *obj, const char *where, pl_sim__de
                          (range){ 0, 1, 1, 0 }, 1))
             || (rc = parse_outline(c, item(obj, "outline"), where, &d->outline)))
             return rc;
-        if (!(d->bottom_depth_mm >= d->depth_mm + 0.001))
-            return pl__err(c->err, PL_EINVAL,
-                           "%s: %s: \"bottom_depth_mm\" must exceed \"top_depth_mm\" by 0.001 "
-                           "or more", c->file, where);
         break;
     }
     }
+    /* impact and porosity span a depth range */
+    if ((d->kind == PL_SIM__IMPACT || d->kind == PL_SIM__POROSITY)
+        && !(d->bottom_depth_mm >= d->depth_mm + 0.001))
+        return pl__err(c->err, PL_EINVAL,
+                       "%s: %s: \"bottom_depth_mm\" must exceed \"top_depth_mm\" by 0.001 "
+                       "or more", c->file, where);
     return PL_OK;
 }
 
@@ -801,7 +802,7 @@ static int parse_sub(jctx *c, const cJSON *obj, const char *where, pl_sim__sub *
     if (!cJSON_IsObject(obj))
         return pl__err(c->err, PL_EFORMAT, "%s: %s must be an object", c->file, where);
     int rc = choice(c, obj, where, "kind", &u->kind, kinds, 1);
-    if (rc || (rc = label(c, obj, where, u->label, sizeof u->label)))
+    if (rc || (rc = text(c, obj, where, "label", u->label, sizeof u->label)))
         return rc;
     u->material = s->laminate;
     if (u->kind == PL_SIM__FLANGE) {
@@ -893,13 +894,8 @@ static int parse_root(jctx *c, const cJSON *root, pl_sim_scene *s)
     if (f && (!cJSON_IsString(f) || strcmp(f->valuestring, SCENE_FORMAT) != 0))
         return pl__err(c->err, PL_EFORMAT, "%s: scene: \"format\" must be \"%s\"", c->file,
                        SCENE_FORMAT);
-    const cJSON *name = item(root, "name");
-    if (name) {
-        if (!cJSON_IsString(name))
-            return pl__err(c->err, PL_EFORMAT, "%s: scene: \"name\" must be a string", c->file);
-        if ((rc = pl__copy_text(s->name, sizeof s->name, name->valuestring, "scene name", c->err)))
-            return rc;
-    }
+    if ((rc = text(c, root, "scene", "name", s->name, sizeof s->name)))
+        return rc;
     double seed = 1;
     if ((rc = whole(c, root, "scene", "seed", &seed, 0, 9007199254740992.0, 0)))
         return rc;
@@ -1077,11 +1073,27 @@ void pl_sim__site_to_pixel(const pl_sim_scene *s, double x, double y, double *co
 
 /* ---- the model ----------------------------------------------------------- */
 
+/* Time of frame `f` after the flash, s. */
+static double frame_time(const pl_sim_scene *s, uint32_t f)
+{
+    return (double)f / s->frame_rate_hz - s->flash_time_s;
+}
+
 /* Times of the first and last frames after the flash, s. */
 static void frame_window(const pl_sim_scene *s, double *first, double *last)
 {
-    *first = (double)s->preflash_frames / s->frame_rate_hz - s->flash_time_s;
-    *last = ((double)s->frame_count - 1) / s->frame_rate_hz - s->flash_time_s;
+    *first = frame_time(s, s->preflash_frames);
+    *last = frame_time(s, s->frame_count - 1);
+}
+
+/* Layer `l` of an impact's stack of delaminations: its depth and diameter,
+ * mm, from the top layer to the bottom one in equal steps. */
+static void impact_layer(const pl_sim__defect *d, unsigned l, double *depth_mm,
+                         double *diameter_mm)
+{
+    double w = (double)l / (d->layers - 1);
+    *depth_mm = d->depth_mm + (d->bottom_depth_mm - d->depth_mm) * w;
+    *diameter_mm = d->top_diameter_mm + (d->bottom_diameter_mm - d->top_diameter_mm) * w;
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -1101,8 +1113,10 @@ static size_t interface_depths(const pl_sim_scene *s, double *z)
     for (size_t i = 0; i < s->ndefects; i++) {
         const pl_sim__defect *d = &s->defects[i];
         if (d->kind == PL_SIM__IMPACT) {
-            for (unsigned l = 0; l < d->layers; l++)
-                z[n++] = d->depth_mm + (d->bottom_depth_mm - d->depth_mm) * l / (d->layers - 1);
+            for (unsigned l = 0; l < d->layers; l++) {
+                double dia;
+                impact_layer(d, l, &z[n++], &dia);
+            }
         } else {
             z[n++] = d->depth_mm;
             if (d->kind == PL_SIM__POROSITY)
@@ -1112,9 +1126,9 @@ static size_t interface_depths(const pl_sim_scene *s, double *z)
     for (size_t i = 0; i < s->nsubs; i++)
         z[n++] = s->thickness_mm + s->subs[i].thickness_mm;
     qsort(z, n, sizeof *z, cmp_double);
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++)
-        if (m == 0 || z[i] - z[m - 1] > PLANE_TOLERANCE_MM)
+    size_t m = 1;
+    for (size_t i = 1; i < n; i++)
+        if (z[i] - z[m - 1] > PLANE_TOLERANCE_MM)
             z[m++] = z[i];
     return m;
 }
@@ -1147,10 +1161,12 @@ static double cell_size(double z, const double *planes, size_t np, double hf)
 }
 
 /* Faces of the layers through the thickness (mm, nz + 1 values into
- * *faces, malloc'd). Each interval between interfaces gets a share of the
- * layers in proportion to the integral of 1 / cell_size over it (at least
- * one), and its faces sit at equal steps of that integral. */
-static int build_layers(const pl_sim_scene *s, double hf, double **faces, size_t *nz)
+ * *faces, malloc'd) and the depth of the first interface below the heated
+ * face (mm). Each interval between interfaces gets a share of the layers
+ * in proportion to the integral of 1 / cell_size over it (at least one),
+ * and its faces sit at equal steps of that integral. */
+static int build_layers(const pl_sim_scene *s, double hf, double **faces, size_t *nz,
+                        double *first_interface)
 {
     double *planes = malloc(max_interfaces(s) * sizeof *planes);
     if (!planes)
@@ -1229,6 +1245,7 @@ static int build_layers(const pl_sim_scene *s, double hf, double **faces, size_t
         }
     }
     zf[k] = planes[np - 1];
+    *first_interface = planes[1];
     free(planes);
     free(integral);
     free(count);
@@ -1541,14 +1558,14 @@ static void planar_defects(pl_sim__model *m, const pl_sim_scene *s, cells *c)
             continue;
         }
         for (unsigned l = 0; l < def->layers; l++) {
-            double w = (double)l / (def->layers - 1);
+            double depth;
             pl_sim__outline o = def->outline;
-            o.a = o.b = def->top_diameter_mm + (def->bottom_diameter_mm - def->top_diameter_mm) * w;
+            impact_layer(def, l, &depth, &o.a);
+            o.b = o.a;
             o.pts = NULL;
             outline_finish(&o);
             coverage(m, &o, c->cover);
-            add_resistance(m, c, def->depth_mm + (def->bottom_depth_mm - def->depth_mm) * w,
-                           def->resistance_m2k_w, c->cover);
+            add_resistance(m, c, depth, def->resistance_m2k_w, c->cover);
         }
     }
     for (size_t u = 0; u < s->nsubs; u++) {
@@ -1609,7 +1626,8 @@ int pl_sim__model_new(pl_sim__model **out, const pl_sim_scene *s, pl_err *err)
     pl_sim__model *m = calloc(1, sizeof *m);
     if (!m)
         return pl__err(err, PL_ENOMEM, "out of memory");
-    if (build_layers(s, hf, &m->zf, &m->nz)) {
+    double zmin;
+    if (build_layers(s, hf, &m->zf, &m->nz, &zmin)) {
         pl_sim__model_free(m);
         return pl__err(err, PL_ENOMEM, "out of memory");
     }
@@ -1656,18 +1674,6 @@ int pl_sim__model_new(pl_sim__model **out, const pl_sim_scene *s, pl_err *err)
     /* start when the plane source has spread over a few first layers, well
      * before the first frame and the first interface */
     double dz0 = (m->zf[1] - m->zf[0]) * 1e3;
-    double zmin = m->zf[m->nz] * 1e3;
-    {
-        double *planes = malloc(max_interfaces(s) * sizeof *planes);
-        if (!planes) {
-            pl_sim__model_free(m);
-            return pl__err(err, PL_ENOMEM, "out of memory");
-        }
-        size_t np = interface_depths(s, planes);
-        if (np > 1)
-            zmin = planes[1];
-        free(planes);
-    }
     m->t0 = fmin(fmin(6.25 * dz0 * dz0 / az, t_first / 2), zmin * zmin / (16 * az));
 
     cells c = { 0 };
@@ -1871,11 +1877,6 @@ typedef struct worker_arg {
     run *r;
     unsigned tid;
 } worker_arg;
-
-static double frame_time(const pl_sim_scene *s, uint32_t f)
-{
-    return (double)f / s->frame_rate_hz - s->flash_time_s;
-}
 
 /* Stop the run with `code` (thread 0 only). */
 static void halt(run *r, int code)
@@ -2349,10 +2350,8 @@ static cJSON *truth_tree(const pl_sim_scene *s, jb *b)
         cJSON *mtx = jadd(b, pe, "site_to_pixel", cJSON_CreateArray());
         if (mtx) {
             double rows[2][3] = { { c1 - c0, c2 - c0, c0 }, { r1 - r0, r2 - r0, r0 } };
-            for (int i = 0; i < 2; i++) {
-                cJSON *row = jadd(b, mtx, NULL, cJSON_CreateDoubleArray(rows[i], 3));
-                (void)row;
-            }
+            for (int i = 0; i < 2; i++)
+                jadd(b, mtx, NULL, cJSON_CreateDoubleArray(rows[i], 3));
         }
     }
     cJSON *lam = jadd(b, root, "laminate", cJSON_CreateObject());
@@ -2391,12 +2390,12 @@ static cJSON *truth_tree(const pl_sim_scene *s, jb *b)
         if (d->kind == PL_SIM__IMPACT) {
             cJSON *ls = jadd(b, o, "layers", cJSON_CreateArray());
             for (unsigned l = 0; ls && l < d->layers; l++) {
-                double w = (double)l / (d->layers - 1);
-                double dia = d->top_diameter_mm + (d->bottom_diameter_mm - d->top_diameter_mm) * w;
+                double depth, dia;
+                impact_layer(d, l, &depth, &dia);
                 cJSON *e = jadd(b, ls, NULL, cJSON_CreateObject());
                 if (!e)
                     break;
-                jnum(b, e, "depth_mm", d->depth_mm + (d->bottom_depth_mm - d->depth_mm) * w);
+                jnum(b, e, "depth_mm", depth);
                 jnum(b, e, "diameter_mm", dia);
                 jnum(b, e, "area_mm2", M_PI * dia * dia / 4);
             }

@@ -1,6 +1,7 @@
 /*
  * store.c - the inspection record over SQLite: life and migrations,
- * transactions, airframes, sites, inspections, maps and the summary.
+ * transactions, airframes, sites, inspections, maps, registrations,
+ * comparisons and the summary.
  *
  * Every statement is prepared with bound parameters. Every writing call runs
  * inside a savepoint (pl_store__write_begin/_end) so it lands whole or not
@@ -263,24 +264,21 @@ static char *col_dup(sqlite3_stmt *st, int i, int *oom)
 }
 
 /*
- * Run a statement that returns at most one row holding one integer. Returns
- * PL_OK with *found set (and *value when found), or the failure.
+ * Run a statement that returns at most one row holding one integer, and
+ * finalize it. Returns PL_OK with *found set (and *value when found), or the
+ * failure.
  */
-static int step_int(pl_store *s, sqlite3_stmt *st, int *found, int64_t *value, pl_err *err,
-                    const char *label)
+static int finish_int(pl_store *s, sqlite3_stmt *st, int *found, int64_t *value,
+                      pl_err *err, const char *label)
 {
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW) {
-        *found = 1;
-        if (value)
-            *value = sqlite3_column_int64(st, 0);
-        return PL_OK;
-    }
-    if (r == SQLITE_DONE) {
-        *found = 0;
-        return PL_OK;
-    }
-    return db_fail(s, err, label);
+    int r = sqlite3_step(st), rc = PL_OK;
+    *found = r == SQLITE_ROW;
+    if (*found && value)
+        *value = sqlite3_column_int64(st, 0);
+    else if (r != SQLITE_ROW && r != SQLITE_DONE)
+        rc = db_fail(s, err, label);
+    sqlite3_finalize(st);
+    return rc;
 }
 
 /* Run an INSERT; *id (may be NULL) gets the new rowid. */
@@ -291,6 +289,34 @@ static int step_insert(pl_store *s, sqlite3_stmt *st, pl_id *id, pl_err *err, co
     if (id)
         *id = sqlite3_last_insert_rowid(s->db);
     return PL_OK;
+}
+
+/* Run a one-row INSERT whose bind calls' results, OR-ed together, are
+ * `bound`; *id (may be NULL) gets the new rowid. Finalizes the statement. */
+static int finish_insert(pl_store *s, sqlite3_stmt *st, int bound, pl_id *id, pl_err *err,
+                         const char *label)
+{
+    int rc = bound != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* End a listing whose last sqlite3_step() gave `r`: unless `rc` already
+ * holds a failure, a step that neither gave a row nor finished is one.
+ * Finalizes the statement. */
+static int finish_listing(pl_store *s, sqlite3_stmt *st, int r, int rc, pl_err *err,
+                          const char *label)
+{
+    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
+        rc = db_fail(s, err, label);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* The software version a record names: the one given, or this library's. */
+static const char *software_version(const char *given)
+{
+    return given[0] ? given : pl_version();
 }
 
 /* ---- transactions ------------------------------------------------------------ */
@@ -391,15 +417,15 @@ PL_EXPORT void *pl_store_db(pl_store *s)
     return s->db;
 }
 
-static int pragma_int(pl_store *s, const char *sql, int64_t *value, pl_err *err)
+/* The integer a one-value statement (a PRAGMA, a count) gives; 0 for no row. */
+static int query_int(pl_store *s, const char *sql, int64_t *value, pl_err *err)
 {
     sqlite3_stmt *st;
     int rc = prepare(s, &st, sql, err);
     if (rc)
         return rc;
     int found = 0;
-    rc = step_int(s, st, &found, value, err, s->path);
-    sqlite3_finalize(st);
+    rc = finish_int(s, st, &found, value, err, s->path);
     if (!rc && !found)
         *value = 0;
     return rc;
@@ -427,10 +453,8 @@ static int ensure_identity(pl_store *s, pl_err *err)
     sqlite3_stmt *st;
     int found = 0;
     rc = prepare(s, &st, "SELECT 1 FROM store_info WHERE name = 'store_id'", err);
-    if (!rc) {
-        rc = step_int(s, st, &found, NULL, err, s->path);
-        sqlite3_finalize(st);
-    }
+    if (!rc)
+        rc = finish_int(s, st, &found, NULL, err, s->path);
     if (!rc && !found) {
         unsigned char rnd[16];
         char id[33], now[PL_DATE_SIZE];
@@ -464,7 +488,7 @@ static int migrate(pl_store *s, pl_err *err)
         if (rc)
             return rc;
         int64_t uv = 0;
-        rc = pragma_int(s, "PRAGMA user_version", &uv, err);
+        rc = query_int(s, "PRAGMA user_version", &uv, err);
         if (!rc && uv < m->version) {
             if (uv != m->version - 1) {
                 rc = pl__err(err, PL_EDB, "%s: store schema version %lld cannot take migration %s",
@@ -589,16 +613,15 @@ static int identify(pl_store *s, int64_t *user_version, pl_err *err)
         return db_fail(s, err, s->path);
     }
     int found = 0;
-    int rc = step_int(s, st, &found, &app, err, s->path);
-    sqlite3_finalize(st);
+    int rc = finish_int(s, st, &found, &app, err, s->path);
     if (rc == PL_ENOTSTORE)
         return pl__err(err, PL_ENOTSTORE, "%s: not a plyledger store (file is not a database)",
                        s->path);
     if (rc)
         return rc;
-    rc = pragma_int(s, "PRAGMA user_version", user_version, err);
+    rc = query_int(s, "PRAGMA user_version", user_version, err);
     if (!rc)
-        rc = pragma_int(s, "SELECT count(*) FROM sqlite_master", &tables, err);
+        rc = query_int(s, "SELECT count(*) FROM sqlite_master", &tables, err);
     if (rc)
         return rc;
     if (app == PL_STORE_APPLICATION_ID)
@@ -765,9 +788,7 @@ static int insert_airframe(pl_store *s, const pl_airframe *af, pl_id key, pl_id 
             sqlite3_bind_text(st, 5, af->aircraft_type, -1, SQLITE_STATIC) |
             bind_opt_text(st, 6, af->manufactured) | bind_opt_text(st, 7, af->notes) |
             sqlite3_bind_text(st, 8, now, -1, SQLITE_STATIC);
-    rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_insert(s, st, b, id, err, label);
 }
 
 static int insert_operator(pl_store *s, pl_id af_key, const char *name, const char *since,
@@ -826,8 +847,7 @@ PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *i
     rc = prepare(s, &st, "SELECT 1 FROM airframe WHERE serial = ?1", err);
     if (!rc) {
         sqlite3_bind_text(st, 1, af->serial, -1, SQLITE_STATIC);
-        rc = step_int(s, st, &found, NULL, err, label);
-        sqlite3_finalize(st);
+        rc = finish_int(s, st, &found, NULL, err, label);
     }
     if (!rc && found)
         rc = pl__err(err, PL_EEXISTS, "%s: serial already registered", label);
@@ -933,10 +953,7 @@ PL_EXPORT int pl_store_list_operators(pl_store *s, const char *serial, pl_operat
                (const char *)sqlite3_column_text(st, 2)))
             break;
     }
-    if (r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, label);
 }
 
 PL_EXPORT int pl_store_list_airframes(pl_store *s, const pl_airframe_filter *filter,
@@ -961,10 +978,7 @@ PL_EXPORT int pl_store_list_airframes(pl_store *s, const pl_airframe_filter *fil
         if (fn(ud, &af))
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, s->path);
 }
 
 PL_EXPORT int pl_store_correct_airframe(pl_store *s, const pl_airframe *af, const char *reason,
@@ -1140,9 +1154,7 @@ static int insert_site(pl_store *s, const pl_site *site, pl_id af_key, pl_id key
     b |= sqlite3_bind_int64(st, 25, site->width_px) | sqlite3_bind_int64(st, 26, site->height_px) |
          sqlite3_bind_double(st, 27, site->pitch_u) | sqlite3_bind_double(st, 28, site->pitch_v) |
          sqlite3_bind_text(st, 29, now, -1, SQLITE_STATIC);
-    rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_insert(s, st, b, id, err, label);
 }
 
 PL_EXPORT int pl_store_add_site(pl_store *s, const pl_site *site, pl_id *id, pl_err *err)
@@ -1168,8 +1180,7 @@ PL_EXPORT int pl_store_add_site(pl_store *s, const pl_site *site, pl_id *id, pl_
         if (!rc) {
             sqlite3_bind_int64(st, 1, af);
             sqlite3_bind_text(st, 2, site->code, -1, SQLITE_STATIC);
-            rc = step_int(s, st, &found, NULL, err, label);
-            sqlite3_finalize(st);
+            rc = finish_int(s, st, &found, NULL, err, label);
         }
         if (!rc && found)
             rc = pl__err(err, PL_EEXISTS, "%s: code already exists on this airframe", label);
@@ -1259,10 +1270,7 @@ PL_EXPORT int pl_store_list_sites(pl_store *s, const pl_site_filter *filter, pl_
         if (fn(ud, &site))
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, s->path);
 }
 
 /* ---- inspections ------------------------------------------------------------------- */
@@ -1386,7 +1394,7 @@ static int insert_inspection(pl_store *s, const pl_inspection *in, pl_id site, p
     if (rc)
         return rc;
     now_utc(now);
-    const char *sw = in->software_version[0] ? in->software_version : pl_version();
+    const char *sw = software_version(in->software_version);
     int b = bind_opt_id(st, 1, key) | bind_opt_id(st, 2, supersedes) |
             bind_opt_text(st, 3, reason) | sqlite3_bind_int64(st, 4, site) |
             sqlite3_bind_text(st, 5, in->kind, -1, SQLITE_STATIC) |
@@ -1402,13 +1410,9 @@ static int insert_inspection(pl_store *s, const pl_inspection *in, pl_id site, p
             sqlite3_bind_text(st, 14, in->inspector, -1, SQLITE_STATIC) |
             sqlite3_bind_text(st, 15, in->inspector_level, -1, SQLITE_STATIC) |
             sqlite3_bind_text(st, 16, sw, -1, SQLITE_STATIC) |
-            (in->parameters_json ? sqlite3_bind_text(st, 17, in->parameters_json, -1,
-                                                     SQLITE_STATIC)
-                                 : sqlite3_bind_null(st, 17)) |
+            bind_opt_text(st, 17, in->parameters_json) |
             bind_opt_text(st, 18, in->notes) | sqlite3_bind_text(st, 19, now, -1, SQLITE_STATIC);
-    rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_insert(s, st, b, id, err, label);
 }
 
 /* Refuse a second current baseline of a site, naming the one that exists. */
@@ -1581,10 +1585,7 @@ PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter 
         if (stop)
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, s->path);
 }
 
 /* ---- maps -------------------------------------------------------------------------- */
@@ -1642,9 +1643,10 @@ static int check_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
     for (uint32_t c = 0; c < map->nchannels; c++) {
         const pl_channel *ch = &map->channels[c];
         if (strnlen(ch->quantity, PL_QUANTITY_SIZE) == PL_QUANTITY_SIZE ||
-            strnlen(ch->unit, PL_UNIT_SIZE) == PL_UNIT_SIZE)
-            return pl__err(err, PL_EINVAL, "%s: channel %u: quantity or unit is not terminated",
-                           label, c);
+            strnlen(ch->unit, PL_UNIT_SIZE) == PL_UNIT_SIZE ||
+            strnlen(ch->label, PL_LABEL_SIZE) == PL_LABEL_SIZE)
+            return pl__err(err, PL_EINVAL,
+                           "%s: channel %u: quantity, unit or label is not terminated", label, c);
         if (pl_quantity_check(ch->quantity, ch->unit, &e))
             return pl__err(err, PL_EINVAL, "%s: channel %u: %s", label, c, e.msg);
     }
@@ -1687,14 +1689,12 @@ static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
         return rc;
     now_utc(now);
     const pl_placement *p = &map->placement;
-    const char *sw = rec->software_version[0] ? rec->software_version : pl_version();
+    const char *sw = software_version(rec->software_version);
     int b = sqlite3_bind_int64(st, 1, rec->inspection_key) |
             bind_opt_text(st, 2, rec->source[0] ? pl__basename(rec->source) : NULL) |
             sqlite3_bind_text(st, 3, rec->origin, -1, SQLITE_STATIC) |
             sqlite3_bind_text(st, 4, sw, -1, SQLITE_STATIC) |
-            (rec->parameters_json ? sqlite3_bind_text(st, 5, rec->parameters_json, -1,
-                                                      SQLITE_STATIC)
-                                  : sqlite3_bind_null(st, 5)) |
+            bind_opt_text(st, 5, rec->parameters_json) |
             sqlite3_bind_int64(st, 6, map->width) | sqlite3_bind_int64(st, 7, map->height) |
             sqlite3_bind_int64(st, 8, map->nchannels) |
             sqlite3_bind_double(st, 9, map->pitch_u) | sqlite3_bind_double(st, 10, map->pitch_v) |
@@ -1706,8 +1706,7 @@ static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
     b |= sqlite3_bind_blob64(st, 22, blob, blob_len, SQLITE_STATIC) |
          sqlite3_bind_text(st, 23, hex, -1, SQLITE_STATIC) |
          sqlite3_bind_text(st, 24, now, -1, SQLITE_STATIC);
-    rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-    sqlite3_finalize(st);
+    rc = finish_insert(s, st, b, id, err, label);
     if (rc)
         return rc;
     rc = prepare(s, &st, "INSERT INTO map_channel (map_id, idx, quantity, unit, label) "
@@ -1767,8 +1766,7 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
             int64_t other = 0;
             sqlite3_bind_int64(st, 1, rec->inspection_key);
             sqlite3_bind_text(st, 2, hex, -1, SQLITE_STATIC);
-            rc = step_int(s, st, &found, &other, err, label);
-            sqlite3_finalize(st);
+            rc = finish_int(s, st, &found, &other, err, label);
             if (!rc && found)
                 rc = pl__err(err, PL_EEXISTS, "%s: the same content is already stored as map %lld",
                              label, (long long)other);
@@ -1787,7 +1785,11 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     "SELECT m.id, m.inspection_key, m.source, m.made_by, m.software_version, "             \
     "m.parameters_json, m.width, m.height, m.nchannels, m.pitch_u_mm, m.pitch_v_mm, "      \
     "m.coord_system, m.coord_unit, m.origin_x, m.origin_y, m.origin_z, m.u_x, m.u_y, "     \
-    "m.u_z, m.v_x, m.v_y, m.v_z, m.sha256, length(m.data), m.recorded_at, m.data "
+    "m.u_z, m.v_x, m.v_y, m.v_z, m.sha256, length(m.data), m.recorded_at "
+
+/* Column of the data blob in a MAP_SELECT ", m.data" row: only a load reads
+ * the blob, a listing leaves it on disk. */
+#define MAP_DATA_COLUMN 25
 
 /* The record part of a MAP_SELECT row (channels and parameters left alone). */
 static void read_map_record(sqlite3_stmt *st, pl_map_record *rec)
@@ -1839,11 +1841,9 @@ static int read_channels(pl_store *s, pl_id id, pl_channel *ch, uint32_t n, pl_e
         col_text(st, 3, ch[got].label, sizeof ch[got].label);
         got++;
     }
-    if (!rc && r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
+    rc = finish_listing(s, st, r, rc, err, label);
     if (!rc && got != n)
         rc = pl__err(err, PL_EFORMAT, "%s: %u channel records for %u channels", label, got, n);
-    sqlite3_finalize(st);
     return rc;
 }
 
@@ -1855,7 +1855,7 @@ PL_EXPORT int pl_store_load_map(pl_store *s, pl_id id, pl_map **out, pl_map_reco
     char label[LABEL_SIZE];
     snprintf(label, sizeof label, "%s: map %lld", s->path, (long long)id);
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, MAP_SELECT "FROM map m WHERE m.id = ?1", err);
+    int rc = prepare(s, &st, MAP_SELECT ", m.data FROM map m WHERE m.id = ?1", err);
     if (rc)
         return rc;
     sqlite3_bind_int64(st, 1, id);
@@ -1883,8 +1883,8 @@ PL_EXPORT int pl_store_load_map(pl_store *s, pl_id id, pl_map **out, pl_map_reco
     if (!rc && pl_sha256_from_hex(digest, tmp.sha256) != PL_OK)
         rc = pl__err(err, PL_EFORMAT, "%s: stored digest is not SHA-256 hex", label);
     if (!rc) {
-        const void *blob = sqlite3_column_blob(st, 25);
-        size_t len = (size_t)sqlite3_column_bytes(st, 25);
+        const void *blob = sqlite3_column_blob(st, MAP_DATA_COLUMN);
+        size_t len = (size_t)sqlite3_column_bytes(st, MAP_DATA_COLUMN);
         rc = pl_map_decode(map, blob, len, digest, &e);
         if (rc == PL_ENOMATCH)
             pl__err(err, rc, "%s: content does not match its stored SHA-256 (%s)", label, e.msg);
@@ -1943,17 +1943,21 @@ PL_EXPORT int pl_store_list_maps(pl_store *s, pl_id inspection_key, pl_map_fn fn
         if (rc || stop)
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, label);
 }
 
 /* ---- registrations and comparisons --------------------------------------------- */
 
-/* The site key and inspection kind/date of the inspection a map belongs to. */
-static int map_owner(pl_store *s, pl_id map_id, pl_id *site, pl_id *insp, char *kind,
-                     char *date, const char *label, pl_err *err)
+/* Where a map stands in its site's history: the site, and the key, kind and
+ * date of the inspection it belongs to. */
+typedef struct map_owner {
+    pl_id site, inspection;
+    char kind[PL_WORD_SIZE];
+    char performed_on[PL_DATE_SIZE];
+} map_owner;
+
+static int find_map_owner(pl_store *s, pl_id map_id, map_owner *o, const char *label,
+                          pl_err *err)
 {
     sqlite3_stmt *st;
     int rc = prepare(s, &st,
@@ -1965,10 +1969,10 @@ static int map_owner(pl_store *s, pl_id map_id, pl_id *site, pl_id *insp, char *
     sqlite3_bind_int64(st, 1, map_id);
     int r = sqlite3_step(st);
     if (r == SQLITE_ROW) {
-        *site = sqlite3_column_int64(st, 0);
-        *insp = sqlite3_column_int64(st, 1);
-        col_text(st, 2, kind, PL_WORD_SIZE);
-        col_text(st, 3, date, PL_DATE_SIZE);
+        o->site = sqlite3_column_int64(st, 0);
+        o->inspection = sqlite3_column_int64(st, 1);
+        col_text(st, 2, o->kind, sizeof o->kind);
+        col_text(st, 3, o->performed_on, sizeof o->performed_on);
     } else if (r == SQLITE_DONE) {
         rc = pl__err(err, PL_ENOTFOUND, "%s: no map %lld", label, (long long)map_id);
     } else {
@@ -1976,6 +1980,14 @@ static int map_owner(pl_store *s, pl_id map_id, pl_id *site, pl_id *insp, char *
     }
     sqlite3_finalize(st);
     return rc;
+}
+
+/* Whether inspection `a` comes before `b` in a site's history: by date,
+ * then as recorded (the order of pl_store_list_inspections()). */
+static int inspected_before(const map_owner *a, const map_owner *b)
+{
+    int d = strcmp(a->performed_on, b->performed_on);
+    return d < 0 || (d == 0 && a->inspection < b->inspection);
 }
 
 static int finite_all(const double *v, size_t n)
@@ -1995,8 +2007,18 @@ static int check_registration(pl_store *s, const pl_registration_record *r, cons
     if (!aligned && !manual && !refused)
         return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not aligned, refused or manual",
                        label, FLD(r->status));
-    int rc;
-    if ((rc = check_name(err, label, "method", r->method, sizeof r->method, 1)))
+    int rc = check_name(err, label, "method", r->method, sizeof r->method, 1);
+    if (!rc)
+        rc = check_text(err, label, "refusal", r->refusal, sizeof r->refusal, 0);
+    if (!rc)
+        rc = check_name(err, label, "supplied_by", r->supplied_by, sizeof r->supplied_by, 0);
+    if (!rc)
+        rc = check_text(err, label, "supplied_reason", r->supplied_reason,
+                        sizeof r->supplied_reason, 0);
+    if (!rc)
+        rc = check_name(err, label, "software_version", r->software_version,
+                        sizeof r->software_version, 0);
+    if (rc)
         return rc;
     if (refused && !r->refusal[0])
         return pl__err(err, PL_EINVAL, "%s: a refused registration needs its reason", label);
@@ -2026,19 +2048,24 @@ PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_recor
     int rc = check_registration(s, r, label, err);
     if (rc)
         return rc;
-    pl_id bsite, csite, binsp, cinsp;
-    char bkind[PL_WORD_SIZE], ckind[PL_WORD_SIZE], bdate[PL_DATE_SIZE], cdate[PL_DATE_SIZE];
-    if ((rc = map_owner(s, r->baseline_map_id, &bsite, &binsp, bkind, bdate, label, err))
-        || (rc = map_owner(s, r->current_map_id, &csite, &cinsp, ckind, cdate, label, err)))
+    map_owner base, cur;
+    if ((rc = find_map_owner(s, r->baseline_map_id, &base, label, err)) ||
+        (rc = find_map_owner(s, r->current_map_id, &cur, label, err)))
         return rc;
-    if (bsite != csite)
+    if (base.site != cur.site)
         return pl__err(err, PL_ENOMATCH, "%s: the maps belong to different sites", label);
     if (r->baseline_map_id == r->current_map_id)
         return pl__err(err, PL_EINVAL, "%s: a map cannot be registered onto itself", label);
+    if (strcmp(base.kind, "baseline") != 0 && !inspected_before(&base, &cur))
+        return pl__err(err, PL_EINVAL,
+                       "%s: map %lld is of a %s inspection (%s) that is not earlier than map "
+                       "%lld's (%s)", label, (long long)r->baseline_map_id, base.kind,
+                       base.performed_on, (long long)r->current_map_id, cur.performed_on);
     int owned;
     if ((rc = pl_store__write_begin(s, &owned, err)))
         return rc;
     sqlite3_stmt *st;
+    pl_id newid = 0;
     rc = prepare(s, &st,
                  "INSERT INTO registration (baseline_map_id, current_map_id, method, status, "
                  "refusal, shift_col_px, shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, "
@@ -2049,7 +2076,6 @@ PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_recor
     if (!rc) {
         char now[PL_DATE_SIZE];
         now_utc(now);
-        const char *ver = r->software_version[0] ? r->software_version : pl_version();
         int b = sqlite3_bind_int64(st, 1, r->baseline_map_id)
                 | sqlite3_bind_int64(st, 2, r->current_map_id)
                 | sqlite3_bind_text(st, 3, r->method, -1, SQLITE_STATIC)
@@ -2063,12 +2089,45 @@ PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_recor
                 | bind_opt_real(st, 15, r->overlap_mm2) | bind_opt_text(st, 16, r->supplied_by)
                 | bind_opt_text(st, 17, r->supplied_reason)
                 | bind_opt_text(st, 18, r->parameters_json)
-                | sqlite3_bind_text(st, 19, ver, -1, SQLITE_STATIC)
-                | sqlite3_bind_text(st, 20, now, -1, SQLITE_TRANSIENT);
-        rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-        sqlite3_finalize(st);
+                | sqlite3_bind_text(st, 19, software_version(r->software_version), -1,
+                                    SQLITE_STATIC)
+                | sqlite3_bind_text(st, 20, now, -1, SQLITE_STATIC);
+        rc = finish_insert(s, st, b, &newid, err, label);
     }
-    return pl_store__write_end(s, owned, rc, err);
+    rc = pl_store__write_end(s, owned, rc, err);
+    if (!rc && id)
+        *id = newid;
+    return rc;
+}
+
+#define REGISTRATION_SELECT                                                                 \
+    "SELECT id, baseline_map_id, current_map_id, method, status, refusal, shift_col_px, "  \
+    "shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, scale, ncc, peak_sidelobe, "      \
+    "overlap_fraction, overlap_mm2, supplied_by, supplied_reason, parameters_json, "       \
+    "software_version, recorded_at FROM registration "
+
+/* Fill `g` from a row of REGISTRATION_SELECT; parameters_json is malloc'd. */
+static int read_registration(sqlite3_stmt *st, pl_registration_record *g)
+{
+    memset(g, 0, sizeof *g);
+    g->id = sqlite3_column_int64(st, 0);
+    g->baseline_map_id = sqlite3_column_int64(st, 1);
+    g->current_map_id = sqlite3_column_int64(st, 2);
+    col_text(st, 3, g->method, sizeof g->method);
+    col_text(st, 4, g->status, sizeof g->status);
+    col_text(st, 5, g->refusal, sizeof g->refusal);
+    double *nums[] = { &g->shift_col_px, &g->shift_row_px, &g->shift_u_mm, &g->shift_v_mm,
+                       &g->rotation_deg, &g->scale, &g->ncc, &g->peak_sidelobe,
+                       &g->overlap_fraction, &g->overlap_mm2 };
+    for (int k = 0; k < 10; k++)
+        *nums[k] = col_real(st, 6 + k);
+    col_text(st, 16, g->supplied_by, sizeof g->supplied_by);
+    col_text(st, 17, g->supplied_reason, sizeof g->supplied_reason);
+    int oom = 0;
+    g->parameters_json = col_dup(st, 18, &oom);
+    col_text(st, 19, g->software_version, sizeof g->software_version);
+    col_text(st, 20, g->recorded_at, sizeof g->recorded_at);
+    return oom ? PL_ENOMEM : PL_OK;
 }
 
 PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
@@ -2076,38 +2135,16 @@ PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
 {
     assert(s && fn);
     sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT id, baseline_map_id, current_map_id, method, status, refusal, "
-                     "shift_col_px, shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, scale, "
-                     "ncc, peak_sidelobe, overlap_fraction, overlap_mm2, supplied_by, "
-                     "supplied_reason, parameters_json, software_version, recorded_at "
-                     "FROM registration WHERE ?1 = 0 OR current_map_id = ?1 ORDER BY id", err);
+    int rc = prepare(s, &st, REGISTRATION_SELECT "WHERE ?1 = 0 OR current_map_id = ?1 "
+                     "ORDER BY id", err);
     if (rc)
         return rc;
     sqlite3_bind_int64(st, 1, current_map_id);
+    pl_registration_record g;
     int r;
     while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        pl_registration_record g;
-        memset(&g, 0, sizeof g);
-        g.id = sqlite3_column_int64(st, 0);
-        g.baseline_map_id = sqlite3_column_int64(st, 1);
-        g.current_map_id = sqlite3_column_int64(st, 2);
-        col_text(st, 3, g.method, sizeof g.method);
-        col_text(st, 4, g.status, sizeof g.status);
-        col_text(st, 5, g.refusal, sizeof g.refusal);
-        double *nums[] = { &g.shift_col_px, &g.shift_row_px, &g.shift_u_mm, &g.shift_v_mm,
-                           &g.rotation_deg, &g.scale, &g.ncc, &g.peak_sidelobe,
-                           &g.overlap_fraction, &g.overlap_mm2 };
-        for (int k = 0; k < 10; k++)
-            *nums[k] = col_real(st, 6 + k);
-        col_text(st, 16, g.supplied_by, sizeof g.supplied_by);
-        col_text(st, 17, g.supplied_reason, sizeof g.supplied_reason);
-        int oom = 0;
-        g.parameters_json = col_dup(st, 18, &oom);
-        col_text(st, 19, g.software_version, sizeof g.software_version);
-        col_text(st, 20, g.recorded_at, sizeof g.recorded_at);
-        if (oom) {
-            rc = pl__err(err, PL_ENOMEM, "out of memory");
+        if (read_registration(st, &g)) {
+            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
             break;
         }
         int stop = fn(ud, &g);
@@ -2115,10 +2152,7 @@ PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
         if (stop)
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, s->path);
 }
 
 /* The site key of an inspection (by key). */
@@ -2132,12 +2166,32 @@ static int inspection_site_key(pl_store *s, pl_id key, pl_id *site, const char *
     sqlite3_bind_int64(st, 1, key);
     int found = 0;
     int64_t v = 0;
-    rc = step_int(s, st, &found, &v, err, label);
-    sqlite3_finalize(st);
+    rc = finish_int(s, st, &found, &v, err, label);
     if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "%s: no inspection with key %lld", label, (long long)key);
     *site = v;
     return rc;
+}
+
+static int check_comparison(pl_store *s, const pl_comparison_record *c, const char *label,
+                            pl_err *err)
+{
+    int done = strcmp(c->status, "done") == 0, not_done = strcmp(c->status, "not-done") == 0;
+    if (!done && !not_done)
+        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not done or not-done", label,
+                       FLD(c->status));
+    int rc = check_text(err, label, "not_done_reason", c->not_done_reason,
+                        sizeof c->not_done_reason, 0);
+    if (!rc)
+        rc = check_name(err, label, "software_version", c->software_version,
+                        sizeof c->software_version, 0);
+    if (rc)
+        return rc;
+    if (not_done && !c->not_done_reason[0])
+        return pl__err(err, PL_EINVAL, "%s: a comparison not done needs its reason", label);
+    if (c->baseline_inspection == c->current_inspection)
+        return pl__err(err, PL_EINVAL, "%s: an inspection cannot be compared with itself", label);
+    return check_json_object(s, err, label, "parameters_json", c->parameters_json);
 }
 
 PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c, pl_id *id,
@@ -2147,15 +2201,7 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
     char label[LABEL_SIZE];
     snprintf(label, sizeof label, "comparison of inspection %lld with %lld",
              (long long)c->current_inspection, (long long)c->baseline_inspection);
-    int done = strcmp(c->status, "done") == 0, not_done = strcmp(c->status, "not-done") == 0;
-    if (!done && !not_done)
-        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not done or not-done", label,
-                       FLD(c->status));
-    if (not_done && !c->not_done_reason[0])
-        return pl__err(err, PL_EINVAL, "%s: a comparison not done needs its reason", label);
-    if (c->baseline_inspection == c->current_inspection)
-        return pl__err(err, PL_EINVAL, "%s: an inspection cannot be compared with itself", label);
-    int rc = check_json_object(s, err, label, "parameters_json", c->parameters_json);
+    int rc = check_comparison(s, c, label, err);
     pl_id bsite = 0, csite = 0;
     if (!rc)
         rc = inspection_site_key(s, c->baseline_inspection, &bsite, label, err);
@@ -2169,6 +2215,7 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
     if ((rc = pl_store__write_begin(s, &owned, err)))
         return rc;
     sqlite3_stmt *st;
+    pl_id newid = 0;
     rc = prepare(s, &st,
                  "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, "
                  "registration_id, status, not_done_reason, uncompared_mm2, uncompared_fraction, "
@@ -2177,7 +2224,6 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
     if (!rc) {
         char now[PL_DATE_SIZE];
         now_utc(now);
-        const char *ver = c->software_version[0] ? c->software_version : pl_version();
         int b = sqlite3_bind_int64(st, 1, bsite) | sqlite3_bind_int64(st, 2, c->baseline_inspection)
                 | sqlite3_bind_int64(st, 3, c->current_inspection)
                 | bind_opt_id(st, 4, c->registration_id)
@@ -2186,12 +2232,39 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
                 | bind_opt_real(st, 7, c->uncompared_mm2)
                 | bind_opt_real(st, 8, c->uncompared_fraction)
                 | bind_opt_text(st, 9, c->parameters_json)
-                | sqlite3_bind_text(st, 10, ver, -1, SQLITE_STATIC)
-                | sqlite3_bind_text(st, 11, now, -1, SQLITE_TRANSIENT);
-        rc = b != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-        sqlite3_finalize(st);
+                | sqlite3_bind_text(st, 10, software_version(c->software_version), -1,
+                                    SQLITE_STATIC)
+                | sqlite3_bind_text(st, 11, now, -1, SQLITE_STATIC);
+        rc = finish_insert(s, st, b, &newid, err, label);
     }
-    return pl_store__write_end(s, owned, rc, err);
+    rc = pl_store__write_end(s, owned, rc, err);
+    if (!rc && id)
+        *id = newid;
+    return rc;
+}
+
+#define COMPARISON_SELECT                                                                   \
+    "SELECT id, baseline_inspection, current_inspection, registration_id, status, "        \
+    "not_done_reason, uncompared_mm2, uncompared_fraction, parameters_json, "              \
+    "software_version, recorded_at FROM comparison "
+
+/* Fill `c` from a row of COMPARISON_SELECT; parameters_json is malloc'd. */
+static int read_comparison(sqlite3_stmt *st, pl_comparison_record *c)
+{
+    memset(c, 0, sizeof *c);
+    c->id = sqlite3_column_int64(st, 0);
+    c->baseline_inspection = sqlite3_column_int64(st, 1);
+    c->current_inspection = sqlite3_column_int64(st, 2);
+    c->registration_id = sqlite3_column_int64(st, 3);
+    col_text(st, 4, c->status, sizeof c->status);
+    col_text(st, 5, c->not_done_reason, sizeof c->not_done_reason);
+    c->uncompared_mm2 = col_real(st, 6);
+    c->uncompared_fraction = col_real(st, 7);
+    int oom = 0;
+    c->parameters_json = col_dup(st, 8, &oom);
+    col_text(st, 9, c->software_version, sizeof c->software_version);
+    col_text(st, 10, c->recorded_at, sizeof c->recorded_at);
+    return oom ? PL_ENOMEM : PL_OK;
 }
 
 PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
@@ -2199,32 +2272,16 @@ PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
 {
     assert(s && fn);
     sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT id, baseline_inspection, current_inspection, registration_id, status, "
-                     "not_done_reason, uncompared_mm2, uncompared_fraction, parameters_json, "
-                     "software_version, recorded_at FROM comparison "
-                     "WHERE ?1 = 0 OR current_inspection = ?1 ORDER BY id", err);
+    int rc = prepare(s, &st, COMPARISON_SELECT "WHERE ?1 = 0 OR current_inspection = ?1 "
+                     "ORDER BY id", err);
     if (rc)
         return rc;
     sqlite3_bind_int64(st, 1, current_inspection);
+    pl_comparison_record c;
     int r;
     while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        pl_comparison_record c;
-        memset(&c, 0, sizeof c);
-        c.id = sqlite3_column_int64(st, 0);
-        c.baseline_inspection = sqlite3_column_int64(st, 1);
-        c.current_inspection = sqlite3_column_int64(st, 2);
-        c.registration_id = sqlite3_column_int64(st, 3);
-        col_text(st, 4, c.status, sizeof c.status);
-        col_text(st, 5, c.not_done_reason, sizeof c.not_done_reason);
-        c.uncompared_mm2 = col_real(st, 6);
-        c.uncompared_fraction = col_real(st, 7);
-        int oom = 0;
-        c.parameters_json = col_dup(st, 8, &oom);
-        col_text(st, 9, c.software_version, sizeof c.software_version);
-        col_text(st, 10, c.recorded_at, sizeof c.recorded_at);
-        if (oom) {
-            rc = pl__err(err, PL_ENOMEM, "out of memory");
+        if (read_comparison(st, &c)) {
+            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
             break;
         }
         int stop = fn(ud, &c);
@@ -2232,18 +2289,10 @@ PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
         if (stop)
             break;
     }
-    if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
-    return rc;
+    return finish_listing(s, st, r, rc, err, s->path);
 }
 
 /* ---- summary ----------------------------------------------------------------------- */
-
-static int count_into(pl_store *s, const char *sql, int64_t *out, pl_err *err)
-{
-    return pragma_int(s, sql, out, err);
-}
 
 static int info_value(pl_store *s, const char *name, char *dst, size_t cap, pl_err *err)
 {
@@ -2301,7 +2350,7 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT coalesce(sum(length(data)), 0) FROM map", &sum->map_bytes },
     };
     for (size_t i = 0; !rc && i < sizeof counts / sizeof counts[0]; i++)
-        rc = count_into(s, counts[i].sql, counts[i].out, err);
+        rc = query_int(s, counts[i].sql, counts[i].out, err);
     if (rc)
         return rc;
     sqlite3_stmt *st;

@@ -23,39 +23,6 @@
 
 /* ---- helpers ---------------------------------------------------------- */
 
-static double *read_f8(const char *path, size_t *n)
-{
-    size_t len = 0;
-    unsigned char *b = tu_read_file(path, &len);
-    assert_non_null(b);
-    assert_int_equal(len % 8, 0);
-    *n = len / 8;
-    double *v = malloc((*n ? *n : 1) * sizeof *v);
-    assert_non_null(v);
-    for (size_t i = 0; i < *n; i++) {
-        uint64_t u = 0;
-        for (int k = 7; k >= 0; k--)
-            u = u << 8 | b[8 * i + (size_t)k];
-        memcpy(&v[i], &u, sizeof u);
-    }
-    free(b);
-    return v;
-}
-
-static void write_f4(const char *path, const float *v, size_t n)
-{
-    unsigned char *b = malloc(4 * n);
-    assert_non_null(b);
-    for (size_t i = 0; i < n; i++) {
-        uint32_t u;
-        memcpy(&u, &v[i], 4);
-        for (int k = 0; k < 4; k++)
-            b[4 * i + (size_t)k] = (unsigned char)(u >> (8 * k));
-    }
-    assert_int_equal(tu_write_file(path, b, 4 * n), 0);
-    free(b);
-}
-
 static uint32_t bits_of(float f)
 {
     uint32_t u;
@@ -68,19 +35,6 @@ static float float_of(uint32_t u)
     float f;
     memcpy(&f, &u, 4);
     return f;
-}
-
-static void assert_close(double got, double want, double tol)
-{
-    if (!(fabs(got - want) <= tol))
-        fail_msg("%.17g, %.17g expected (within %g)", got, want, tol);
-}
-
-static void assert_msg_has(const pl_err *err, const char *part)
-{
-    if (!strstr(err->msg, part))
-        fail_msg("message \"%s\" lacks \"%s\"", err->msg, part);
-    assert_null(strchr(err->msg, '\n'));
 }
 
 /* The test map of blob-check in map_ref.py: (c*1000 + j*10 + i)*0.25 - 7,
@@ -150,7 +104,7 @@ static void test_map__new_refuses_bad_sizes(void **state)
                          PL_EINVAL);
         assert_null(m);
         assert_int_equal(err.code, PL_EINVAL);
-        assert_msg_has(&err, "cannot be made");
+        tu_assert_msg_has(err.msg, "cannot be made");
     }
     size_t n;
     assert_int_equal(pl_map__count(&n, PL_MAP_MAX_SIDE, PL_MAP_MAX_SIDE, 1), PL_OK);
@@ -197,7 +151,7 @@ static void test_map__channels_by_quantity(void **state)
     assert_int_equal(pl_map_find_channel(m, "depth"), PL_ENOTFOUND);
     pl_err err = {0};
     assert_int_equal(pl_map_set_channel(m, 3, "depth", "mm", &err), PL_EINVAL);
-    assert_msg_has(&err, "channel 3");
+    tu_assert_msg_has(err.msg, "channel 3");
     assert_int_equal(pl_map_set_channel(m, 0, "depth", "K", &err), PL_EINVAL);
     assert_string_equal(m->channels[0].quantity, "phase"); /* unchanged */
     assert_string_equal(m->channels[0].unit, "deg");
@@ -300,7 +254,7 @@ static void test_map__quantity_check_rules(void **state)
         } else {
             if (rc != PL_EINVAL)
                 fail_msg("case %zu accepted", k);
-            assert_msg_has(&err, cases[k].says);
+            tu_assert_msg_has(err.msg, cases[k].says);
         }
     }
 }
@@ -317,7 +271,7 @@ static void test_map__pitch_must_be_finite_and_positive(void **state)
     for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
         pl_err err = {0};
         assert_int_equal(pl_map_set_pitch(m, bad[k][0], bad[k][1], &err), PL_EINVAL);
-        assert_msg_has(&err, "pitch");
+        tu_assert_msg_has(err.msg, "pitch");
         assert_true(m->pitch_u == 1.0 && m->pitch_v == 1.0);
     }
     assert_int_equal(pl_map_set_pitch(m, 0.125, 0.5, NULL), PL_OK);
@@ -358,7 +312,7 @@ static void test_map__placement_checks(void **state)
         pl_err err = {0};
         if (pl_placement_check(&bad[k].p, &err) != PL_EINVAL)
             fail_msg("case %zu accepted", k);
-        assert_msg_has(&err, bad[k].says);
+        tu_assert_msg_has(err.msg, bad[k].says);
     }
     /* within the documented 1e-3 tolerances */
     pl_placement near = good;
@@ -381,14 +335,14 @@ static void test_map__pixel_to_part(void **state)
     double xyz[3];
     pl_map_pixel_to_part(m, 4, 8, xyz);
     /* 4*0.5 = 2 along u, 8*0.25 = 2 along v: (1000, 200+1.2-1.6, 50+1.6+1.2) */
-    assert_close(xyz[0], 1000.0, 1e-12);
-    assert_close(xyz[1], 199.6, 1e-12);
-    assert_close(xyz[2], 52.8, 1e-12);
+    tu_assert_close(xyz[0], 1000.0, 1e-12, NULL);
+    tu_assert_close(xyz[1], 199.6, 1e-12, NULL);
+    tu_assert_close(xyz[2], 52.8, 1e-12, NULL);
     pl_map_pixel_to_part(m, 0, 0, xyz);
     assert_true(xyz[0] == 1000 && xyz[1] == 200 && xyz[2] == 50);
     pl_map_pixel_to_part(m, -1.5, 0.5, xyz);  /* fractional, outside the grid */
-    assert_close(xyz[1], 200 - 0.45 - 0.1, 1e-12);
-    assert_close(xyz[2], 50 - 0.6 + 0.075, 1e-12);
+    tu_assert_close(xyz[1], 200 - 0.45 - 0.1, 1e-12, NULL);
+    tu_assert_close(xyz[2], 50 - 0.6 + 0.075, 1e-12, NULL);
     pl_map_free(m);
 }
 
@@ -491,7 +445,7 @@ static void test_map__decode_detects_digest_mismatch(void **state)
     memcpy(wrong, sha, 32);
     wrong[17] ^= 0x40;
     assert_int_equal(pl_map_decode(d, blob, len, wrong, &err), PL_ENOMATCH);
-    assert_msg_has(&err, "digest");
+    tu_assert_msg_has(err.msg, "digest");
     for (size_t i = 0; i < 64; i++) /* nothing that passes for content is left */
         assert_true(isnan(d->data[i]));
     /* a well-formed blob of other content, same length, same recorded digest */
@@ -531,20 +485,20 @@ static void test_map__decode_detects_wrong_length(void **state)
     assert_int_equal(pl_map_new(&longer, 4, 5, 1, NULL), PL_OK);
     pl_err err = {0};
     assert_int_equal(pl_map_decode(shorter, blob, len, NULL, &err), PL_EFORMAT);
-    assert_msg_has(&err, "more than the 48 bytes");
+    tu_assert_msg_has(err.msg, "more than the 48 bytes");
     assert_int_equal(pl_map_decode(longer, blob, len, NULL, &err), PL_EFORMAT);
-    assert_msg_has(&err, "64 bytes, 80 expected");
+    tu_assert_msg_has(err.msg, "64 bytes, 80 expected");
     /* a cut blob, an empty one, and bytes that are not zlib at all */
     assert_int_equal(pl_map_decode(m, blob, len - 3, NULL, &err), PL_EFORMAT);
     assert_int_equal(pl_map_decode(m, blob, 0, NULL, &err), PL_EFORMAT);
     assert_int_equal(pl_map_decode(m, "not a zlib stream", 17, NULL, &err), PL_EFORMAT);
-    assert_msg_has(&err, "corrupt");
+    tu_assert_msg_has(err.msg, "corrupt");
     /* trailing bytes after the stream */
     unsigned char *padded = malloc(len + 2);
     memcpy(padded, blob, len);
     padded[len] = padded[len + 1] = 0;
     assert_int_equal(pl_map_decode(m, padded, len + 2, NULL, &err), PL_EFORMAT);
-    assert_msg_has(&err, "after the compressed data");
+    tu_assert_msg_has(err.msg, "after the compressed data");
     free(padded);
     free(blob);
     pl_map_free(m);
@@ -607,20 +561,20 @@ static void test_map__png_written_reads_in_pypng(void **state)
     char *png = tu_path(dir, "c0.png"), *raw = tu_path(dir, "c0.raw");
     pl_err err = {0};
     assert_int_equal(pl_map_save_png(m, 0, png, &err), PL_OK);
-    write_f4(raw, m->data, 19 * 13);
+    tu_write_f4(raw, m->data, 19 * 13);
     assert_int_equal(tu_python("map_ref.py", "png-check", png, raw, "temperature-contrast", "K",
                                "0.25 0.5", NULL), 0);
     /* the check can fail: values moved by more than half a step */
     double lo, hi;
     pl_map_range(m, 0, &lo, &hi);
     m->data[7] += (float)((hi - lo) / 65534 * 3);
-    write_f4(raw, m->data, 19 * 13);
+    tu_write_f4(raw, m->data, 19 * 13);
     assert_int_not_equal(tu_python("map_ref.py", "png-check", png, raw, "temperature-contrast",
                                    "K", "0.25 0.5", NULL), 0);
     /* a constant channel: scale 1, offset the value */
     char *png1 = tu_path(dir, "c1.png"), *raw1 = tu_path(dir, "c1.raw");
     assert_int_equal(pl_map_save_png(m, 1, png1, &err), PL_OK);
-    write_f4(raw1, m->data + 19 * 13, 19 * 13);
+    tu_write_f4(raw1, m->data + 19 * 13, 19 * 13);
     assert_int_equal(tu_python("map_ref.py", "png-check", png1, raw1, "depth", "mm", "0.25 0.5",
                                NULL), 0);
     pl_map_free(m);
@@ -669,15 +623,10 @@ static void test_map__pypng_written_png_loads(void **state)
         else
             assert_true(m->pitch_u == files[k].pu && m->pitch_v == files[k].pv);
         size_t n;
-        double *want = read_f8(raw, &n);
+        double *want = tu_read_f8(raw, &n);
         assert_int_equal(n, (size_t)files[k].w * files[k].h);
-        for (size_t i = 0; i < n; i++) {
-            if (isnan(want[i]))
-                assert_true(isnan(m->data[i]));
-            else if (m->data[i] != (float)want[i])
-                fail_msg("%s value %zu: %.9g, %.9g expected", files[k].name, i,
-                         (double)m->data[i], want[i]);
-        }
+        for (size_t i = 0; i < n; i++)
+            tu_assert_same_float(m->data[i], (float)want[i], files[k].name, i);
         free(want);
         pl_map_free(m);
         free(png);
@@ -729,9 +678,9 @@ static void test_map__png_round_trip(void **state)
     assert_int_equal(pl_map_range(back, 0, NULL, NULL), 0);
     pl_map_free(back);
     assert_int_equal(pl_map_save_png(m, 2, png, &err), PL_EINVAL);
-    assert_msg_has(&err, "channel 2");
+    tu_assert_msg_has(err.msg, "channel 2");
     assert_int_equal(pl_map_save_png(m, 0, "/nonexistent-dir/x.png", &err), PL_EIO);
-    assert_msg_has(&err, "/nonexistent-dir/x.png");
+    tu_assert_msg_has(err.msg, "/nonexistent-dir/x.png");
     pl_map_free(m);
     free(png);
     tu_rmtree(dir);
@@ -833,8 +782,8 @@ static void test_map__png_refusals(void **state)
             fail_msg("%s: code %d, %d expected (%s)", cases[k].file, rc, cases[k].code,
                      err.msg);
         assert_null(out);
-        assert_msg_has(&err, path);
-        assert_msg_has(&err, cases[k].says);
+        tu_assert_msg_has(err.msg, path);
+        tu_assert_msg_has(err.msg, cases[k].says);
         free(path);
     }
     pl_map_free(m);
@@ -865,14 +814,10 @@ static void test_map__csv_from_numpy_savetxt(void **state)
     assert_int_equal(m->width, 9);
     assert_int_equal(m->height, 6);
     size_t n;
-    double *want = read_f8(raw, &n);
+    double *want = tu_read_f8(raw, &n);
     assert_int_equal(n, 54);
-    for (size_t i = 0; i < n; i++) {
-        if (isnan(want[i]))
-            assert_true(isnan(m->data[i]));
-        else
-            assert_int_equal(bits_of(m->data[i]), bits_of((float)want[i]));
-    }
+    for (size_t i = 0; i < n; i++)
+        tu_assert_same_float(m->data[i], (float)want[i], "grid.csv", i);
     free(want);
     pl_map_free(m);
     free(csv);
@@ -943,15 +888,15 @@ static void test_map__csv_refusals(void **state)
         if (rc != cases[k].code)
             fail_msg("%s: code %d (%s)", cases[k].file, rc, err.msg);
         assert_null(m);
-        assert_msg_has(&err, path);
-        assert_msg_has(&err, cases[k].says);
+        tu_assert_msg_has(err.msg, path);
+        tu_assert_msg_has(err.msg, cases[k].says);
         free(path);
     }
     char *missing = tu_path(dir, "missing.csv");
     pl_map *m;
     pl_err err = {0};
     assert_int_equal(pl_map_load_csv(&m, missing, &err), PL_EIO);
-    assert_msg_has(&err, "missing.csv");
+    tu_assert_msg_has(err.msg, "missing.csv");
     free(missing);
     tu_rmtree(dir);
 }
@@ -983,9 +928,9 @@ static void test_map__load_chooses_by_ending(void **state)
     pl_map_free(out);
     assert_int_equal(pl_map_load(&out, tif, &err), PL_EFORMAT);
     assert_null(out);
-    assert_msg_has(&err, "c.tif: unknown map file type");
+    tu_assert_msg_has(err.msg, "c.tif: unknown map file type");
     assert_int_equal(pl_map_load(&out, none, &err), PL_EFORMAT);
-    assert_msg_has(&err, "noext");
+    tu_assert_msg_has(err.msg, "noext");
     pl_map_free(m);
     free(png);
     free(npy);

@@ -24,13 +24,6 @@
 #include "plyledger/store.h"
 #include "testutil.h"
 
-#define OK(call)                                                                 \
-    do {                                                                         \
-        int ok_rc_ = (call);                                                     \
-        if (ok_rc_ != PL_OK)                                                     \
-            fail_msg("%s -> %d: %s", #call, ok_rc_, err.msg);                    \
-    } while (0)
-
 typedef struct fixture {
     char *dir;
 } fixture;
@@ -100,7 +93,7 @@ static void test_plan__loads_sites_with_exact_values(void **state)
         "# a comment between sites, with \"quotes\", commas, and all\n"
         "571,W01,,ultrasound-pulse-echo,1e4,2.5E1,-0.125,0,1,0,0,0,1,2,,,,,LOCAL,in,,,,\n");
     pl_plan *plan = NULL;
-    OK(pl_plan_load(&plan, path, &err));
+    TU_OK(pl_plan_load(&plan, path, &err));
     assert_int_equal(plan->nsites, 3);
 
     const pl_site *s = &plan->sites[0];
@@ -200,7 +193,7 @@ static void test_plan__agrees_with_python_csv(void **state)
         "3,\"\",\"\",\"\"\r\n"
         "D4,\"tab\there\",,eddy-current,1,1,1,1,0,0,0,1,0,1,,,\n");
     pl_plan *plan = NULL;
-    OK(pl_plan_load(&plan, path, &err));
+    TU_OK(pl_plan_load(&plan, path, &err));
     assert_int_equal(plan->nsites, 4);
     assert_string_equal(plan->sites[0].code, "A,1");
     assert_string_equal(plan->sites[2].description, "two\r\nlines, CRLF");
@@ -212,20 +205,25 @@ static void test_plan__agrees_with_python_csv(void **state)
     free(path);
 }
 
-/* The sample fleet's plan loads, and every site passes the checks. */
+/* The sample fleet's plan loads, every site passes the checks, and Python's
+ * csv module reads the same sites from it (tests/ref/store_plan_ref.py). */
 static void test_plan__loads_the_sample_fleet_plan(void **state)
 {
-    (void)state;
+    fixture *f = *state;
     pl_err err = { 0 };
     const char *root = getenv("PL_SOURCE_ROOT");
     assert_non_null(root);
     char *path = tu_path(root, "sample-fleet/plan-cr7.csv");
     pl_plan *plan = NULL;
-    OK(pl_plan_load(&plan, path, &err));
+    TU_OK(pl_plan_load(&plan, path, &err));
     assert_true(plan->nsites >= 1);
     for (size_t i = 0; i < plan->nsites; i++)
-        OK(pl_site_check(&plan->sites[i], &err));
+        TU_OK(pl_site_check(&plan->sites[i], &err));
+    char *json = tu_path(f->dir, "parsed.json");
+    write_parsed(plan, json);
+    assert_int_equal(tu_python("store_plan_ref.py", path, json, NULL), 0);
     pl_plan_free(plan);
+    free(json);
     free(path);
 }
 
@@ -394,24 +392,24 @@ static void test_plan__apply_is_all_or_none(void **state)
     pl_err err = { 0 };
     char *db = tu_path(f->dir, "fleet.db");
     pl_store *st = NULL;
-    OK(pl_store_create(&st, db, &err));
+    TU_OK(pl_store_create(&st, db, &err));
     pl_airframe af;
     memset(&af, 0, sizeof af);
     snprintf(af.serial, sizeof af.serial, "PLX-0001");
     snprintf(af.aircraft_type, sizeof af.aircraft_type, "PLX-T1");
-    OK(pl_store_add_airframe(st, &af, NULL, &err));
+    TU_OK(pl_store_add_airframe(st, &af, NULL, &err));
 
     char *path = plan_file(f, "plan.csv", HEADER
                            "F01,flash-thermography,0,0,0,1,0,0,0,1,0,0.5\n"
                            "F02,flash-thermography,10,0,0,1,0,0,0,1,0,0.5\n"
                            "F03,flash-thermography,20,0,0,1,0,0,0,1,0,0.5\n");
     pl_plan *plan = NULL;
-    OK(pl_plan_load(&plan, path, &err));
+    TU_OK(pl_plan_load(&plan, path, &err));
 
     /* F03 already exists on the airframe: the first two must not land either */
     pl_site s = plan->sites[2];
     snprintf(s.airframe_serial, sizeof s.airframe_serial, "PLX-0001");
-    OK(pl_store_add_site(st, &s, NULL, &err));
+    TU_OK(pl_store_add_site(st, &s, NULL, &err));
     char *before = dump(db);
     size_t added = 99;
     int rc = pl_plan_apply(st, plan, "PLX-0001", &added, &err);
@@ -434,30 +432,30 @@ static void test_plan__apply_is_all_or_none(void **state)
     memset(&af, 0, sizeof af);
     snprintf(af.serial, sizeof af.serial, "PLX-0002");
     snprintf(af.aircraft_type, sizeof af.aircraft_type, "PLX-T1");
-    OK(pl_store_add_airframe(st, &af, NULL, &err));
+    TU_OK(pl_store_add_airframe(st, &af, NULL, &err));
     free(before);
     before = dump(db);
-    OK(pl_store_begin(st, &err));
-    OK(pl_plan_apply(st, plan, "PLX-0002", &added, &err));
+    TU_OK(pl_store_begin(st, &err));
+    TU_OK(pl_plan_apply(st, plan, "PLX-0002", &added, &err));
     assert_int_equal(added, 3);
     pl_store_rollback(st);
     after = dump(db);
     assert_string_equal(before, after);
     free(after);
 
-    OK(pl_plan_apply(st, plan, "PLX-0002", &added, &err));
+    TU_OK(pl_plan_apply(st, plan, "PLX-0002", &added, &err));
     assert_int_equal(added, 3);
     pl_site got;
-    OK(pl_store_get_site(st, "PLX-0002", "F02", &got, &err));
+    TU_OK(pl_store_get_site(st, "PLX-0002", "F02", &got, &err));
     assert_true(got.map_frame.origin[0] == 10 && got.pitch_v == 0.5);
     int n = 0;
     pl_site_filter filter = { .airframe_serial = "PLX-0002" };
-    OK(pl_store_list_sites(st, &filter, count_sites, &n, &err));
+    TU_OK(pl_store_list_sites(st, &filter, count_sites, &n, &err));
     assert_int_equal(n, 3);
     /* applying it twice adds nothing */
     assert_int_equal(pl_plan_apply(st, plan, "PLX-0002", NULL, &err), PL_EEXISTS);
     n = 0;
-    OK(pl_store_list_sites(st, &filter, count_sites, &n, &err));
+    TU_OK(pl_store_list_sites(st, &filter, count_sites, &n, &err));
     assert_int_equal(n, 3);
 
     pl_store_close(st);

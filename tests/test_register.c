@@ -615,7 +615,7 @@ static void test_register__dead_pixels_do_not_mislead(void **state)
  * reinspections of the sample fleet's thick skins (5-6 mm: smooth
  * substructure under camera noise) then correlated only 0.3-0.5 when
  * aligned to 0.05 mm, so the NCC reported and judged is now taken after
- * despeckling and a Gaussian of 1 px (register.c, quality_ncc): in this
+ * despeckling and a Gaussian of 1 px (register.c, structure_ncc()): in this
  * test's run genuine pairs at SNR 3 give 0.991 and pairs without common
  * content at most 0.33 (camera against coffee; noise 0.004-0.014), so the
  * limit 0.6 still lies between the classes.

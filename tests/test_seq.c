@@ -166,6 +166,24 @@ static void test_frame(float *v, uint32_t w, uint32_t h, uint32_t k, int with_ex
         *nextreme_high = high;
 }
 
+/* A 5 x 3 PNG sequence of 4 frames of `frame` at 10 Hz, the flash at
+ * 0.15 s (frames at 0 and 0.1 s before it), written by plyledger. */
+static void write_small_png_sequence(const char *manifest, const float *frame)
+{
+    pl_seq_info info = PL_SEQ_INFO_INIT;
+    info.width = 5;
+    info.height = 3;
+    info.frame_count = 4;
+    info.frame_rate_hz = 10;
+    info.flash_time_s = 0.15;
+    info.storage = PL_SEQ_PNG16;
+    pl_seq_writer *w = NULL;
+    assert_int_equal(pl_seq_writer_open(&w, manifest, &info, NULL), PL_OK);
+    for (int k = 0; k < 4; k++)
+        assert_int_equal(pl_seq_writer_frame(w, frame, NULL), PL_OK);
+    assert_int_equal(pl_seq_writer_close(w, NULL), PL_OK);
+}
+
 /* ---- round trips ------------------------------------------------------ */
 
 static pl_seq_info round_trip_info(pl_seq_storage storage)
@@ -697,22 +715,11 @@ static void test_seq__bad_png_folders_refused(void **state)
     (void)state;
     char *dir = tu_tmpdir();
     /* frames 0..3 of 5 x 3 written by plyledger: seq-frames/frame-0000N.png */
-    pl_seq_info info = PL_SEQ_INFO_INIT;
-    info.width = 5;
-    info.height = 3;
-    info.frame_count = 4;
-    info.frame_rate_hz = 10;
-    info.flash_time_s = 0.15;
-    info.storage = PL_SEQ_PNG16;
     float frame[15];
     test_frame(frame, 5, 3, 0, 0, NULL);
     for (int pass = 0; pass < 2; pass++) {
         char *man = tu_path(dir, pass ? "miss.json" : "seq.json");
-        pl_seq_writer *w = NULL;
-        assert_int_equal(pl_seq_writer_open(&w, man, &info, NULL), PL_OK);
-        for (int k = 0; k < 4; k++)
-            assert_int_equal(pl_seq_writer_frame(w, frame, NULL), PL_OK);
-        assert_int_equal(pl_seq_writer_close(w, NULL), PL_OK);
+        write_small_png_sequence(man, frame);
         free(man);
     }
     char *gone = tu_path(dir, "miss-frames/frame-00002.png");
@@ -798,19 +805,8 @@ static void test_seq__files_changed_after_open(void **state)
     pl_seq_close(s);
 
     char *pman = tu_path(dir, "p.json");
-    pl_seq_info info = PL_SEQ_INFO_INIT;
-    info.width = 5;
-    info.height = 3;
-    info.frame_count = 4;
-    info.frame_rate_hz = 10;
-    info.flash_time_s = 0.15;
-    info.storage = PL_SEQ_PNG16;
     test_frame(v, 5, 3, 0, 0, NULL);
-    pl_seq_writer *w = NULL;
-    assert_int_equal(pl_seq_writer_open(&w, pman, &info, NULL), PL_OK);
-    for (int k = 0; k < 4; k++)
-        assert_int_equal(pl_seq_writer_frame(w, v, NULL), PL_OK);
-    assert_int_equal(pl_seq_writer_close(w, NULL), PL_OK);
+    write_small_png_sequence(pman, v);
     assert_int_equal(pl_seq_open(&s, pman, &err), PL_OK);
     char *f1 = tu_path(dir, "p-frames/frame-00001.png");
     char *f2 = tu_path(dir, "p-frames/frame-00002.png");

@@ -285,7 +285,8 @@ static void test_sim__slab_conserves_energy(void **state)
     assert_int_equal(rc, PL_OK);
     print_message("energy over %d steps: largest relative drift %.3g\n", e.steps, e.worst);
     assert_true(e.steps > 50);
-    /* within 0.5% (the brief); the scheme keeps it to rounding */
+    /* within 0.5% (the acceptance limit set for this check); the scheme
+     * keeps it to rounding */
     assert_true(e.worst < 0.005);
     assert_true(e.worst < 1e-9);
     pl_sim_scene_free(s);
@@ -615,8 +616,9 @@ static void test_sim__same_seed_same_output(void **state)
         }
     assert_int_equal(dead, 12);
 
-    /* temporal noise from successive pre-flash frames: var(a - b) = 2 NETD^2;
-     * the fixed pattern cancels there and shows in the per-pixel mean */
+    /* temporal noise from successive pre-flash frames: var(a - b) = 2 NETD^2
+     * for independent draws (common practice); the fixed pattern cancels
+     * there and shows in the per-pixel mean */
     double s2 = 0, m1 = 0, m2 = 0;
     size_t cnt = 0, live = 0;
     for (size_t p = 0; p < (size_t)ma.w * ma.h; p++) {
@@ -780,7 +782,7 @@ static void test_sim__scene_file_loads_and_refuses_bad_input(void **state)
     assert_string_equal(s->defects[1].label, "defect-2");
     assert_string_equal(s->subs[0].label, "stringer 4");
     assert_float_equal(s->subs[0].material.k[1], 150, 0);
-    /* defaults */
+    /* defaults; a 25 um air gap, air 0.026 W/m/K at 20 C (from memory) */
     assert_float_equal(s->defects[0].resistance_m2k_w, 25e-6 / 0.026, 1e-12);
     assert_float_equal(s->dead_k, 250, 0);
     assert_non_null(strstr(s->acquisition_json, "\"lamps\":2"));
@@ -833,6 +835,9 @@ static void test_sim__scene_file_loads_and_refuses_bad_input(void **state)
           PL_EFORMAT, "defects[0]: unknown key \"x\"" },
         { "\"acquisition\": {", "\"acquisition\": [1], \"z\": {", PL_EFORMAT, "unknown key \"z\"" },
         { "{\n", "[\n", PL_EFORMAT, "not valid JSON" },
+        { "\"name\": \"site-12\"",
+          "\"name\": \"site-12-0123456789012345678901234567890123456789012345678901234567\"",
+          PL_EINVAL, "scene: \"name\" is longer than 63" },
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         char *text = edited(bad[i].from, bad[i].to);
@@ -898,10 +903,11 @@ static void test_sim__truth_areas_are_exact(void **state)
     assert_string_equal(get(circle, "kind")->valuestring, "delamination");
     assert_string_equal(get(circle, "label")->valuestring, "D1");
     assert_float_equal(numk(circle, "depth_mm"), 1.0, 0);
-    /* pi r^2 */
+    /* pi r^2 (common practice) */
     assert_float_equal(numk(circle, "area_mm2"), M_PI * 3 * 3, 1e-9);
     /* pixels are 1.0 x 1.2 mm */
     assert_float_equal(numk(circle, "area_px"), M_PI * 9 / 1.2, 1e-9);
+    /* pi a b over the semi-axes (common practice) */
     assert_float_equal(numk(ell, "area_mm2"), M_PI * 5 * 2, 1e-9);
     assert_string_equal(get(ell, "kind")->valuestring, "disbond");
     /* the impact's projected outline is its widest layer; layers listed */
@@ -912,7 +918,8 @@ static void test_sim__truth_areas_are_exact(void **state)
     assert_float_equal(numk(cJSON_GetArrayItem(layers, 1), "depth_mm"), 0.5 + 2.5 / 3, 1e-12);
     assert_float_equal(numk(cJSON_GetArrayItem(layers, 3), "diameter_mm"), 9, 1e-12);
 
-    /* the shoelace area by hand: vertices (3,1) (9,2) (11,7) (7,11) (2,8) */
+    /* the shoelace formula (common practice) by hand: vertices (3,1) (9,2)
+     * (11,7) (7,11) (2,8) */
     double shoelace = 0.5 * fabs((3.0 * 2 - 9 * 1) + (9 * 7 - 11 * 2) + (11 * 11 - 7 * 7)
                                  + (7 * 8 - 2 * 11) + (2 * 1 - 3 * 8));
     assert_float_equal(numk(poly, "area_mm2"), shoelace, 1e-9);

@@ -61,23 +61,12 @@ static int teardown(void **state)
     return 0;
 }
 
-/* Fail the test with the message in `err` (which every test names so) when
- * a call does not return PL_OK. */
-#define OK(call)                                                                 \
-    do {                                                                         \
-        int ok_rc_ = (call);                                                     \
-        if (ok_rc_ != PL_OK)                                                     \
-            fail_msg("%s -> %d: %s", #call, ok_rc_, err.msg);                    \
-    } while (0)
-
 static void expect_fail(int rc, int code, const pl_err *err, const char *needle)
 {
     if (rc != code)
         fail_msg("expected %d, got %d (%s)", code, rc, err->msg);
     assert_int_equal(err->code, code);
-    if (!strstr(err->msg, needle))
-        fail_msg("message '%s' lacks '%s'", err->msg, needle);
-    assert_null(strchr(err->msg, '\n'));
+    tu_assert_msg_has(err->msg, needle);
 }
 
 static sqlite3 *raw_open(const char *path)
@@ -338,7 +327,7 @@ static void test_store__create_and_reopen(void **state)
     assert_int_equal(pl_store_schema_version(f->st), PL_STORE_SCHEMA_VERSION);
     add_airframe(f->st, "PLX-0001", "PLX-T1");
     pl_store_summary sum;
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(strlen(sum.store_id), 32);
     assert_int_equal(strspn(sum.store_id, "0123456789abcdef"), 32);
     assert_string_equal(sum.created_by, pl_version());
@@ -363,19 +352,19 @@ static void test_store__create_and_reopen(void **state)
     assert_string_equal(before, after);
     free(after);
 
-    OK(pl_store_open(&f->st, f->path, 0, &err));
+    TU_OK(pl_store_open(&f->st, f->path, 0, &err));
     pl_airframe af;
-    OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
+    TU_OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
     assert_string_equal(af.aircraft_type, "PLX-T1");
     pl_store_summary again;
-    OK(pl_store_summarize(f->st, &again, &err));
+    TU_OK(pl_store_summarize(f->st, &again, &err));
     assert_string_equal(again.store_id, sum.store_id);
     assert_int_equal(again.airframes, 1);
     pl_store_close(f->st);
 
     /* read-only: reads work, writes are refused and change nothing */
-    OK(pl_store_open(&f->st, f->path, PL_STORE_READONLY, &err));
-    OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
+    TU_OK(pl_store_open(&f->st, f->path, PL_STORE_READONLY, &err));
+    TU_OK(pl_store_get_airframe(f->st, "PLX-0001", &af, &err));
     pl_airframe b = airframe("PLX-0002", "PLX-T1");
     expect_fail(pl_store_add_airframe(f->st, &b, NULL, &err), PL_EDB, &err, "read-only");
     pl_store_close(f->st);
@@ -517,10 +506,10 @@ static void test_store__migrates_from_version_zero(void **state)
     expect_fail(pl_store_open(&st, zero, PL_STORE_READONLY, &err), PL_EVERSION, &err,
                 "older");
     assert_null(st);
-    OK(pl_store_open(&st, zero, 0, &err));
+    TU_OK(pl_store_open(&st, zero, 0, &err));
     assert_int_equal(pl_store_schema_version(st), PL_STORE_SCHEMA_VERSION);
     pl_store_summary sum;
-    OK(pl_store_summarize(st, &sum, &err));
+    TU_OK(pl_store_summarize(st, &sum, &err));
     assert_int_equal(strlen(sum.store_id), 32);
     add_airframe(st, "PLX-0001", "PLX-T1");
     pl_store_close(st);
@@ -551,16 +540,16 @@ static void fill_every_table(fixture *f)
     pl_err err = { 0 };
     pl_airframe af = airframe("PLX-0001", "PLX-T1");
     snprintf(af.operator_name, sizeof af.operator_name, "Operator A");
-    OK(pl_store_add_airframe(f->st, &af, NULL, &err));
+    TU_OK(pl_store_add_airframe(f->st, &af, NULL, &err));
     add_site(f->st, "PLX-0001", "F01");
     pl_id base = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
     pl_id next = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
     pl_map *m = test_map(8, 6, 1, 1.0f);
     pl_map_record r = map_record(base);
-    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
     m->data[0] += 1.0f;
     r.inspection_key = next;
-    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
     pl_map_free(m);
     pl_store_close(f->st);
     f->st = NULL;
@@ -646,7 +635,7 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
     add_site(f->st, "PLX-0001", "F01");
     add_site(f->st, "PLX-0001", "F02");
     pl_site first;
-    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &first, &err));
+    TU_OK(pl_store_get_site(f->st, "PLX-0001", "F01", &first, &err));
     assert_int_equal(first.id, first.key);
 
     /* a site */
@@ -662,18 +651,17 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
                     "reason");
     }
     pl_id sid = 0;
-    OK(pl_store_correct_site(f->st, &s, "wrong description and pitch in the plan", &sid, &err));
+    TU_OK(pl_store_correct_site(f->st, &s, "wrong description and pitch in the plan", &sid, &err));
     pl_site now;
-    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
+    TU_OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
     assert_int_equal(now.id, sid);
     assert_int_equal(now.key, first.key);
     assert_string_equal(now.description, "crown skin, antenna doubler");
     assert_true(now.pitch_u == 0.25 && now.width_px == 16);
-    int nsites = 0;
     /* a correction of a correction keeps the key */
     s.thickness_mm = 3.0;
-    OK(pl_store_correct_site(f->st, &s, "thickness from the drawing", &sid, &err));
-    OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
+    TU_OK(pl_store_correct_site(f->st, &s, "thickness from the drawing", &sid, &err));
+    TU_OK(pl_store_get_site(f->st, "PLX-0001", "F01", &now, &err));
     assert_int_equal(now.key, first.key);
     assert_true(now.thickness_mm == 3.0);
     /* an unknown site cannot be corrected */
@@ -691,11 +679,11 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
     expect_fail(pl_store_correct_inspection(f->st, key, &in, "", NULL, &err), PL_EINVAL, &err,
                 "reason");
     pl_id iid = 0;
-    OK(pl_store_correct_inspection(f->st, key, &in, "date misread from the work card", &iid,
+    TU_OK(pl_store_correct_inspection(f->st, key, &in, "date misread from the work card", &iid,
                                    &err));
     assert_true(iid != key);
     pl_inspection got;
-    OK(pl_store_get_inspection(f->st, key, &got, &err));
+    TU_OK(pl_store_get_inspection(f->st, key, &got, &err));
     assert_int_equal(got.id, iid);
     assert_int_equal(got.key, key);
     assert_string_equal(got.performed_on, "2022-03-02");
@@ -714,14 +702,14 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
 
     /* an airframe */
     pl_airframe af = airframe("PLX-0001", "PLX-T1B");
-    OK(pl_store_correct_airframe(f->st, &af, "type designation corrected", NULL, &err));
+    TU_OK(pl_store_correct_airframe(f->st, &af, "type designation corrected", NULL, &err));
     pl_airframe a;
-    OK(pl_store_get_airframe(f->st, "PLX-0001", &a, &err));
+    TU_OK(pl_store_get_airframe(f->st, "PLX-0001", &a, &err));
     assert_string_equal(a.aircraft_type, "PLX-T1B");
     assert_true(a.id != a.key);
 
     pl_store_summary sum;
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(sum.corrections, 4);
     assert_int_equal(sum.sites, 2);
     assert_int_equal(sum.airframes, 1);
@@ -734,7 +722,7 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
     char sql[1024];
     snprintf(sql, sizeof sql, "SELECT count(*) FROM site WHERE coalesce(key, id) = %lld",
              (long long)first.key);
-    nsites = (int)raw_int(db, sql);
+    int nsites = (int)raw_int(db, sql);
     assert_int_equal(nsites, 3);
     snprintf(sql, sizeof sql, "SELECT description FROM site WHERE id = %lld",
              (long long)first.id);
@@ -778,6 +766,9 @@ static void test_store__refuses_duplicates(void **state)
     int rc = pl_store_add_airframe(f->st, &af, NULL, &err);
     assert_int_equal(rc, PL_EEXISTS);
     assert_string_equal(err.msg, "airframe PLX-0001: serial already registered");
+    char *after = dump(f->path); /* the refusal wrote nothing */
+    assert_string_equal(before, after);
+    free(after);
 
     add_site(f->st, "PLX-0001", "F01");
     pl_site s = site("PLX-0001", "F01");
@@ -797,7 +788,7 @@ static void test_store__refuses_duplicates(void **state)
     expect_fail(pl_store_correct_inspection(f->st, sched, &in, "x", NULL, &err), PL_EEXISTS,
                 &err, "already has a baseline");
     /* ...but the baseline itself can be corrected */
-    OK(pl_store_correct_inspection(f->st, base, &in, "year typed wrong", NULL, &err));
+    TU_OK(pl_store_correct_inspection(f->st, base, &in, "year typed wrong", NULL, &err));
     /* and a baseline on the other airframe's F01 is its own */
     add_inspection(f->st, "PLX-0002", "F01", "baseline", "2016-02-10");
     free(before);
@@ -866,11 +857,11 @@ static void test_store__validates_records_with_clear_messages(void **state)
     s.thickness_mm = -1;
     expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "thickness_mm");
     s = site("", "S07");
-    OK(pl_site_check(&s, &err)); /* a plan's site has no airframe yet */
+    TU_OK(pl_site_check(&s, &err)); /* a plan's site has no airframe yet */
     expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_EINVAL, &err, "airframe_serial");
-    OK(pl_method_check("eddy-current", &err));
+    TU_OK(pl_method_check("eddy-current", &err));
     expect_fail(pl_method_check("thermography", &err), PL_EINVAL, &err, "thermography");
-    OK(pl_inspection_kind_check("post-repair", &err));
+    TU_OK(pl_inspection_kind_check("post-repair", &err));
     expect_fail(pl_inspection_kind_check("annual", &err), PL_EINVAL, &err, "annual");
 
     add_site(f->st, "PLX-0001", "S07");
@@ -929,7 +920,9 @@ static void test_store__dates_agree_with_sqlite_calendar(void **state)
                     fail_msg("%s: library %d, SQLite %d", s, pl_store__valid_date(s), ref);
                 valid += ref;
             }
-    /* 14 years, 5 of them leap (1600, 2000, 2004, 2024, 2400) */
+    /* 14 years, 5 of them leap (1600, 2000, 2004, 2024, 2400) by the Gregorian
+     * rule: every fourth year, centuries only when divisible by 400 (common
+     * practice) */
     assert_int_equal(valid, 14 * 365 + 5);
     sqlite3_finalize(st);
     sqlite3_close(db);
@@ -998,21 +991,6 @@ static void test_store__sqlite_refusals_map_to_status_codes(void **state)
 
 /* ---- maps ------------------------------------------------------------------------------ */
 
-static void write_f32le(const char *path, const pl_map *m)
-{
-    size_t n = (size_t)m->width * m->height * m->nchannels;
-    unsigned char *b = malloc(4 * n);
-    assert_non_null(b);
-    for (size_t i = 0; i < n; i++) {
-        uint32_t u;
-        memcpy(&u, &m->data[i], 4);
-        for (int k = 0; k < 4; k++)
-            b[4 * i + k] = (unsigned char)(u >> (8 * k));
-    }
-    assert_int_equal(tu_write_file(path, b, 4 * n), 0);
-    free(b);
-}
-
 static void test_store__map_round_trip_is_bit_exact(void **state)
 {
     fixture *f = *state;
@@ -1025,7 +1003,7 @@ static void test_store__map_round_trip_is_bit_exact(void **state)
     char params[] = "{\"order\": 7}";
     r.parameters_json = params;
     pl_id id = 0;
-    OK(pl_store_add_map(f->st, &r, m, &id, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &id, &err));
     assert_true(id > 0);
 
     /* the same content again is refused, even under another name */
@@ -1040,7 +1018,7 @@ static void test_store__map_round_trip_is_bit_exact(void **state)
 
     pl_map *back = NULL;
     pl_map_record rec;
-    OK(pl_store_load_map(f->st, id, &back, &rec, &err));
+    TU_OK(pl_store_load_map(f->st, id, &back, &rec, &err));
     assert_int_equal(back->width, 8);
     assert_int_equal(back->height, 6);
     assert_int_equal(back->nchannels, 2);
@@ -1081,7 +1059,7 @@ static void test_store__map_round_trip_is_bit_exact(void **state)
     /* a second, different map of the same inspection; listing keeps order */
     m->data[10] = 99.0f;
     pl_id id2 = 0;
-    OK(pl_store_add_map(f->st, &r, m, &id2, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &id2, &err));
     assert_true(id2 > id);
     pl_store_close(f->st);
     f->st = NULL;
@@ -1091,11 +1069,11 @@ static void test_store__map_round_trip_is_bit_exact(void **state)
      * values are the map's and NaN is the quiet NaN 0x7fc00000 (map.h). */
     char *raw = tu_path(f->dir, "map.f32");
     pl_store *st = NULL;
-    OK(pl_store_open(&st, f->path, PL_STORE_READONLY, &err));
-    OK(pl_store_load_map(st, id2, &back, NULL, &err));
+    TU_OK(pl_store_open(&st, f->path, PL_STORE_READONLY, &err));
+    TU_OK(pl_store_load_map(st, id2, &back, NULL, &err));
     assert_true(back->data[10] == 99.0f);
     pl_store_close(st);
-    write_f32le(raw, m);
+    tu_write_f4(raw, m->data, (size_t)m->width * m->height * m->nchannels);
     char ids[32];
     snprintf(ids, sizeof ids, "%lld", (long long)id2);
     assert_int_equal(tu_python("store_map_ref.py", f->path, ids, raw, "8", "6", "2", NULL), 0);
@@ -1131,9 +1109,9 @@ static void test_store__load_map_detects_tampering(void **state)
     pl_map *m = test_map(8, 6, 1, 2.0f);
     pl_map_record r = map_record(key);
     pl_id id = 0;
-    OK(pl_store_add_map(f->st, &r, m, &id, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &id, &err));
     int nmaps = 0;
-    OK(pl_store_list_maps(f->st, key, count_maps, &nmaps, &err));
+    TU_OK(pl_store_list_maps(f->st, key, count_maps, &nmaps, &err));
     assert_int_equal(nmaps, 1);
     pl_store_close(f->st);
     f->st = NULL;
@@ -1143,7 +1121,7 @@ static void test_store__load_map_detects_tampering(void **state)
     unsigned char *other = NULL;
     size_t other_len = 0;
     unsigned char digest[PL_SHA256_SIZE];
-    OK(pl_map_encode(&other, &other_len, digest, m, &err));
+    TU_OK(pl_map_encode(&other, &other_len, digest, m, &err));
 
     const char *damage[3] = { "sha256", "data", "corrupt" };
     const int expect[3] = { PL_ENOMATCH, PL_ENOMATCH, PL_EFORMAT };
@@ -1194,7 +1172,7 @@ static void test_store__load_map_detects_tampering(void **state)
         sqlite3_close(db);
         pl_store *cs = NULL;
         pl_map *back = (pl_map *)&err;
-        OK(pl_store_open(&cs, copy, PL_STORE_READONLY, &err));
+        TU_OK(pl_store_open(&cs, copy, PL_STORE_READONLY, &err));
         int rc = pl_store_load_map(cs, id, &back, NULL, &err);
         if (rc != expect[k])
             fail_msg("%s: expected %d, got %d (%s)", damage[k], expect[k], rc, err.msg);
@@ -1247,7 +1225,7 @@ static void test_store__map_must_fit_its_site(void **state)
     /* within 0.1 % is the same pitch */
     r = map_record(key);
     m->pitch_u = 0.5 * 1.0005;
-    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
     pl_map_free(m);
     check_integrity(f->path);
 }
@@ -1262,17 +1240,17 @@ static void test_store__rollback_leaves_the_store_as_it_was(void **state)
     add_site(f->st, "PLX-0001", "F01");
     char *before = dump(f->path);
 
-    OK(pl_store_begin(f->st, &err));
+    TU_OK(pl_store_begin(f->st, &err));
     add_airframe(f->st, "PLX-0002", "PLX-T1");
     add_site(f->st, "PLX-0002", "F01");
     add_site(f->st, "PLX-0001", "F02");
     pl_id key = add_inspection(f->st, "PLX-0002", "F01", "baseline", "2016-01-10");
     pl_map *m = test_map(8, 6, 1, 0.0f);
     pl_map_record r = map_record(key);
-    OK(pl_store_add_map(f->st, &r, m, NULL, &err));
-    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2020-01-01", &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
+    TU_OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2020-01-01", &err));
     pl_site s = site("PLX-0001", "F01");
-    OK(pl_store_correct_site(f->st, &s, "checking rollback", NULL, &err));
+    TU_OK(pl_store_correct_site(f->st, &s, "checking rollback", NULL, &err));
     pl_store_rollback(f->st);
     pl_store_rollback(f->st); /* harmless when none is open */
     char *after = dump(f->path);
@@ -1280,23 +1258,23 @@ static void test_store__rollback_leaves_the_store_as_it_was(void **state)
     free(after);
 
     /* a failing call inside a transaction undoes only itself */
-    OK(pl_store_begin(f->st, &err));
+    TU_OK(pl_store_begin(f->st, &err));
     add_airframe(f->st, "PLX-0003", "PLX-T1");
     pl_site bad = site("PLX-0003", "F01");
     bad.pitch_u = 0.7;
-    OK(pl_store_add_site(f->st, &bad, NULL, &err));
+    TU_OK(pl_store_add_site(f->st, &bad, NULL, &err));
     pl_id k3 = add_inspection(f->st, "PLX-0003", "F01", "baseline", "2016-01-10");
     r = map_record(k3);
     expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ENOMATCH, &err, "pitch_u");
-    OK(pl_store_commit(f->st, &err));
+    TU_OK(pl_store_commit(f->st, &err));
     pl_store_summary sum;
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(sum.airframes, 2);
     assert_int_equal(sum.inspections, 1);
     assert_int_equal(sum.maps, 0);
 
     /* a transaction cannot be opened twice */
-    OK(pl_store_begin(f->st, &err));
+    TU_OK(pl_store_begin(f->st, &err));
     expect_fail(pl_store_begin(f->st, &err), PL_EDB, &err, f->path);
     pl_store_rollback(f->st);
     pl_map_free(m);
@@ -1364,9 +1342,9 @@ static void test_store__listings_filter_and_order(void **state)
     add_airframe(f->st, "PLX-0003", "PLX-T2");
     add_airframe(f->st, "PLX-0001", "PLX-T1");
     add_airframe(f->st, "PLX-0002", "PLX-T1");
-    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator A", "2016-01-01", &err));
-    OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2019-05-01", &err));
-    OK(pl_store_add_operator(f->st, "PLX-0002", "Operator A", "2017-01-01", &err));
+    TU_OK(pl_store_add_operator(f->st, "PLX-0001", "Operator A", "2016-01-01", &err));
+    TU_OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2019-05-01", &err));
+    TU_OK(pl_store_add_operator(f->st, "PLX-0002", "Operator A", "2017-01-01", &err));
     expect_fail(pl_store_add_operator(f->st, "PLX-0001", "Operator C", "2018-01-01", &err),
                 PL_EINVAL, &err, "goes back");
     expect_fail(pl_store_add_operator(f->st, "PLX-0003", "Operator C", "2015-01-01", &err),
@@ -1375,25 +1353,25 @@ static void test_store__listings_filter_and_order(void **state)
                 PL_ENOTFOUND, &err, "PLX-0009");
 
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_operators(f->st, "PLX-0001", on_operator, &c, &err));
+    TU_OK(pl_store_list_operators(f->st, "PLX-0001", on_operator, &c, &err));
     assert_string_equal(c.out, "Operator A@2016-01-01 Operator B@2019-05-01");
 
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_airframes(f->st, NULL, on_airframe, &c, &err));
+    TU_OK(pl_store_list_airframes(f->st, NULL, on_airframe, &c, &err));
     assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A PLX-0003/-");
     memset(&c, 0, sizeof c);
     pl_airframe_filter af = { .aircraft_type = "PLX-T1" };
-    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    TU_OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
     assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A");
     /* operator filter: the current operator only */
     memset(&c, 0, sizeof c);
     af = (pl_airframe_filter){ .operator_name = "Operator A" };
-    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    TU_OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
     assert_string_equal(c.out, "PLX-0002/Operator A");
     memset(&c, 0, sizeof c);
     af = (pl_airframe_filter){ .aircraft_type = "", .operator_name = "" };
     c.stop_after = 2;
-    OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
+    TU_OK(pl_store_list_airframes(f->st, &af, on_airframe, &c, &err));
     assert_string_equal(c.out, "PLX-0001/Operator B PLX-0002/Operator A");
 
     add_site(f->st, "PLX-0002", "F02");
@@ -1402,17 +1380,17 @@ static void test_store__listings_filter_and_order(void **state)
     pl_site s = site("PLX-0001", "W01");
     snprintf(s.zone, sizeof s.zone, "571");
     snprintf(s.method, sizeof s.method, "ultrasound-pulse-echo");
-    OK(pl_store_add_site(f->st, &s, NULL, &err));
+    TU_OK(pl_store_add_site(f->st, &s, NULL, &err));
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_sites(f->st, NULL, on_site, &c, &err));
+    TU_OK(pl_store_list_sites(f->st, NULL, on_site, &c, &err));
     assert_string_equal(c.out, "PLX-0001:F01 PLX-0001:F02 PLX-0001:W01 PLX-0002:F02");
     pl_site_filter sf = { .airframe_serial = "PLX-0001", .zone = "231" };
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
+    TU_OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
     assert_string_equal(c.out, "PLX-0001:F01 PLX-0001:F02");
     sf = (pl_site_filter){ .method = "ultrasound-pulse-echo" };
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
+    TU_OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
     assert_string_equal(c.out, "PLX-0001:W01");
 
     add_inspection(f->st, "PLX-0001", "F02", "scheduled", "2022-03-01");
@@ -1421,7 +1399,7 @@ static void test_store__listings_filter_and_order(void **state)
     add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2019-07-15");
     add_inspection(f->st, "PLX-0001", "F01", "post-repair", "2019-08-01");
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_inspections(f->st, NULL, on_inspection, &c, &err));
+    TU_OK(pl_store_list_inspections(f->st, NULL, on_inspection, &c, &err));
     /* same date: in key order (PLX-0001:F01 was recorded before PLX-0002:F02) */
     assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10 "
                         "PLX-0001:F01@2019-07-15 PLX-0001:F01@2019-08-01 "
@@ -1429,15 +1407,15 @@ static void test_store__listings_filter_and_order(void **state)
     pl_inspection_filter inf = { .airframe_serial = "PLX-0001", .site_code = "F01",
                                  .from = "2019-01-01", .to = "2019-07-31" };
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    TU_OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
     assert_string_equal(c.out, "PLX-0001:F01@2019-07-15");
     inf = (pl_inspection_filter){ .kind = "baseline" };
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    TU_OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
     assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10");
     inf = (pl_inspection_filter){ .to = "2016-01-10" };
     memset(&c, 0, sizeof c);
-    OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
+    TU_OK(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err));
     assert_string_equal(c.out, "PLX-0001:F01@2016-01-10 PLX-0002:F02@2016-01-10");
     inf = (pl_inspection_filter){ .from = "2019-02-30" };
     expect_fail(pl_store_list_inspections(f->st, &inf, on_inspection, &c, &err), PL_EINVAL,
@@ -1454,7 +1432,7 @@ static void test_store__summary_counts_the_record(void **state)
     fixture *f = *state;
     pl_err err = { 0 };
     pl_store_summary sum;
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(sum.schema_version, PL_STORE_SCHEMA_VERSION);
     assert_int_equal(sum.airframes + sum.sites + sum.inspections + sum.maps, 0);
     assert_string_equal(sum.first_inspection, "");
@@ -1472,20 +1450,20 @@ static void test_store__summary_counts_the_record(void **state)
     pl_map_record r = map_record(b1);
     pl_map_record out1, out2;
     pl_id id1 = 0, id2 = 0;
-    OK(pl_store_add_map(f->st, &r, m, &id1, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &id1, &err));
     r.inspection_key = s1;
-    OK(pl_store_add_map(f->st, &r, m, &id2, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &id2, &err));
     pl_map *tmp = NULL;
-    OK(pl_store_load_map(f->st, id1, &tmp, &out1, &err));
+    TU_OK(pl_store_load_map(f->st, id1, &tmp, &out1, &err));
     pl_map_free(tmp);
-    OK(pl_store_load_map(f->st, id2, &tmp, &out2, &err));
+    TU_OK(pl_store_load_map(f->st, id2, &tmp, &out2, &err));
     pl_map_free(tmp);
     free(out1.parameters_json);
     free(out2.parameters_json);
     pl_inspection in = inspection("PLX-0001", "F01", "unscheduled", "2021-06-02");
-    OK(pl_store_correct_inspection(f->st, s1, &in, "it was an unscheduled check", NULL, &err));
+    TU_OK(pl_store_correct_inspection(f->st, s1, &in, "it was an unscheduled check", NULL, &err));
 
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(sum.airframes, 2);
     assert_int_equal(sum.sites, 3);
     assert_int_equal(sum.inspections, 4);
@@ -1506,7 +1484,8 @@ static void test_store__summary_counts_the_record(void **state)
 typedef struct reg_list {
     int n;
     pl_registration_record last;
-    char params[128];
+    char params[128];        /* of the last */
+    char first_params[128];  /* of the first */
 } reg_list;
 
 static int on_registration(void *ud, const pl_registration_record *r)
@@ -1515,6 +1494,8 @@ static int on_registration(void *ud, const pl_registration_record *r)
     l->n++;
     l->last = *r;
     snprintf(l->params, sizeof l->params, "%s", r->parameters_json ? r->parameters_json : "");
+    if (l->n == 1)
+        snprintf(l->first_params, sizeof l->first_params, "%s", l->params);
     l->last.parameters_json = NULL;
     return 0;
 }
@@ -1543,13 +1524,13 @@ static void test_store__registrations_and_comparisons(void **state)
     pl_map *m = test_map(8, 6, 1, 1.0f);
     pl_map_record r = map_record(base);
     pl_id mb = 0, mc = 0, mo = 0;
-    OK(pl_store_add_map(f->st, &r, m, &mb, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &mb, &err));
     m->data[0] += 1.0f;
     r.inspection_key = next;
-    OK(pl_store_add_map(f->st, &r, m, &mc, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &mc, &err));
     m->data[0] += 1.0f;
     r.inspection_key = other;
-    OK(pl_store_add_map(f->st, &r, m, &mo, &err));
+    TU_OK(pl_store_add_map(f->st, &r, m, &mo, &err));
     pl_map_free(m);
 
     pl_registration_record g;
@@ -1571,7 +1552,7 @@ static void test_store__registrations_and_comparisons(void **state)
     char params[] = "{\"upsample\":100}";
     g.parameters_json = params;
     pl_id gid = 0;
-    OK(pl_store_add_registration(f->st, &g, &gid, &err));
+    TU_OK(pl_store_add_registration(f->st, &g, &gid, &err));
     assert_true(gid > 0);
 
     /* what is refused, and why */
@@ -1599,6 +1580,20 @@ static void test_store__registrations_and_comparisons(void **state)
     snprintf(bad.status, sizeof bad.status, "maybe");
     expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
                 "'maybe'");
+    bad = g;
+    snprintf(bad.supplied_by, sizeof bad.supplied_by, "A. Engineer ");
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "supplied_by 'A. Engineer ' has leading or trailing spaces");
+    bad = g;
+    memset(bad.refusal, 'r', sizeof bad.refusal); /* not terminated */
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "refusal is too long");
+    /* the baseline map must come first: the scheduled map onto the baseline's */
+    bad = g;
+    bad.baseline_map_id = mc;
+    bad.current_map_id = mb;
+    expect_fail(pl_store_add_registration(f->st, &bad, NULL, &err), PL_EINVAL, &err,
+                "is of a scheduled inspection (2022-03-01) that is not earlier");
 
     /* a refusal, then a manual transform */
     pl_registration_record refused;
@@ -1613,7 +1608,7 @@ static void test_store__registrations_and_comparisons(void **state)
     refused.ncc = 0.12;
     refused.peak_sidelobe = NAN;
     pl_id rid = 0;
-    OK(pl_store_add_registration(f->st, &refused, &rid, &err));
+    TU_OK(pl_store_add_registration(f->st, &refused, &rid, &err));
     pl_registration_record manual = g;
     snprintf(manual.status, sizeof manual.status, "manual");
     snprintf(manual.method, sizeof manual.method, "manual");
@@ -1621,18 +1616,28 @@ static void test_store__registrations_and_comparisons(void **state)
     snprintf(manual.supplied_reason, sizeof manual.supplied_reason, "repainted surface");
     manual.peak_sidelobe = NAN;
     manual.parameters_json = NULL;
-    OK(pl_store_add_registration(f->st, &manual, NULL, &err));
+    TU_OK(pl_store_add_registration(f->st, &manual, NULL, &err));
 
     reg_list l;
     memset(&l, 0, sizeof l);
-    OK(pl_store_list_registrations(f->st, mc, on_registration, &l, &err));
+    TU_OK(pl_store_list_registrations(f->st, mc, on_registration, &l, &err));
     assert_int_equal(l.n, 3);
     assert_string_equal(l.last.status, "manual");
     assert_string_equal(l.last.supplied_by, "A. Engineer");
     assert_true(isnan(l.last.peak_sidelobe));
+    assert_string_equal(l.last.supplied_reason, "repainted surface");
+    assert_true(l.last.shift_col_px == 2.25 && l.last.shift_v_mm == -0.75);
+    assert_true(l.last.rotation_deg == 0.4 && l.last.overlap_mm2 == 10.8);
+    assert_string_equal(l.last.software_version, pl_version());
+    assert_string_equal(l.params, "");
+    assert_string_equal(l.first_params, "{\"upsample\":100}");
     memset(&l, 0, sizeof l);
-    OK(pl_store_list_registrations(f->st, 0, on_registration, &l, &err));
+    TU_OK(pl_store_list_registrations(f->st, 0, on_registration, &l, &err));
     assert_int_equal(l.n, 3);
+    /* the filter is on the current map: none has the baseline map there */
+    memset(&l, 0, sizeof l);
+    TU_OK(pl_store_list_registrations(f->st, mb, on_registration, &l, &err));
+    assert_int_equal(l.n, 0);
 
     /* the comparison that needed the refused registration is not done */
     pl_comparison_record c;
@@ -1650,20 +1655,56 @@ static void test_store__registrations_and_comparisons(void **state)
     wrong.current_inspection = other;
     expect_fail(pl_store_add_comparison(f->st, &wrong, NULL, &err), PL_ENOMATCH, &err,
                 "different sites");
+    wrong = c;
+    memset(wrong.not_done_reason, 'x', sizeof wrong.not_done_reason); /* not terminated */
+    expect_fail(pl_store_add_comparison(f->st, &wrong, NULL, &err), PL_EINVAL, &err,
+                "not_done_reason is too long");
     pl_id cid = 0;
-    OK(pl_store_add_comparison(f->st, &c, &cid, &err));
+    TU_OK(pl_store_add_comparison(f->st, &c, &cid, &err));
     pl_comparison_record back;
     memset(&back, 0, sizeof back);
-    OK(pl_store_list_comparisons(f->st, next, on_comparison, &back, &err));
+    TU_OK(pl_store_list_comparisons(f->st, next, on_comparison, &back, &err));
     assert_int_equal(back.id, cid);
     assert_string_equal(back.status, "not-done");
     assert_int_equal(back.registration_id, rid);
     assert_non_null(strstr(back.not_done_reason, "ncc 0.12"));
+    /* the filter is on the current inspection: the baseline is none's */
+    memset(&back, 0, sizeof back);
+    TU_OK(pl_store_list_comparisons(f->st, base, on_comparison, &back, &err));
+    assert_int_equal(back.id, 0);
 
     pl_store_summary sum;
-    OK(pl_store_summarize(f->st, &sum, &err));
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
     assert_int_equal(sum.registrations, 3);
     assert_int_equal(sum.comparisons, 1);
+
+    /* between two later inspections the earlier one is the baseline map's,
+     * and on the same date the one recorded first */
+    pl_id later = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2024-05-02");
+    pl_id same_day = add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2024-05-02");
+    m = test_map(8, 6, 1, 5.0f);
+    r.inspection_key = later;
+    pl_id ml = 0, ms = 0;
+    TU_OK(pl_store_add_map(f->st, &r, m, &ml, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = same_day;
+    TU_OK(pl_store_add_map(f->st, &r, m, &ms, &err));
+    pl_map_free(m);
+    pl_registration_record step = g;
+    step.baseline_map_id = mc;
+    step.current_map_id = ml;
+    TU_OK(pl_store_add_registration(f->st, &step, NULL, &err));
+    step.baseline_map_id = ml;
+    step.current_map_id = ms;
+    TU_OK(pl_store_add_registration(f->st, &step, NULL, &err));
+    step.baseline_map_id = ms;
+    step.current_map_id = ml;
+    expect_fail(pl_store_add_registration(f->st, &step, NULL, &err), PL_EINVAL, &err,
+                "not earlier");
+    step.baseline_map_id = ml;
+    step.current_map_id = mc;
+    expect_fail(pl_store_add_registration(f->st, &step, NULL, &err), PL_EINVAL, &err,
+                "not earlier");
     check_integrity(f->path);
 }
 

@@ -32,4 +32,40 @@ unsigned char *tu_read_file(const char *path, size_t *len);
 /* Write bytes to a file; returns 0 on success. */
 int tu_write_file(const char *path, const void *data, size_t len);
 
+/* The helpers below check as they go: a failure fails the running cmocka
+ * test (fail_msg) instead of returning. */
+
+/* Little-endian float64 values of a file (as numpy's
+ * ndarray.astype('<f8').tofile() writes them), whatever the host's byte
+ * order. Returns malloc'd values and their count in *n; fails the test when
+ * the file cannot be read or its size is not a multiple of 8. */
+double *tu_read_f8(const char *path, size_t *n);
+
+/* Write n float32 values little-endian, bit for bit (what
+ * numpy.fromfile(path, dtype='<f4') reads); fails the test on error. */
+void tu_write_f4(const char *path, const float *v, size_t n);
+
+/* Fails the test unless |got - want| <= tol (NaN never passes). `what`
+ * (may be NULL) names the value in the failure message. */
+void tu_assert_close(double got, double want, double tol, const char *what);
+
+/* Fails the test unless got equals want bit for bit, any NaN matching any
+ * NaN. `what` (may be NULL) and the index i name the value in the failure
+ * message. */
+void tu_assert_same_float(float got, float want, const char *what, size_t i);
+
+/* Fails the test unless the error message `msg` contains `part` and is a
+ * single line. */
+void tu_assert_msg_has(const char *msg, const char *part);
+
+/* Fails the test unless `call` returns PL_OK, quoting the call, its status
+ * and the message of the caller's `pl_err err` (a macro: plyledger/common.h
+ * must be included where it is used). */
+#define TU_OK(call)                                                              \
+    do {                                                                         \
+        int tu_ok_rc_ = (call);                                                  \
+        if (tu_ok_rc_ != PL_OK)                                                  \
+            fail_msg("%s -> %d: %s", #call, tu_ok_rc_, err.msg);                 \
+    } while (0)
+
 #endif

@@ -44,8 +44,9 @@ All binary files are raw little-endian arrays.
       arg coth((1+i)) = -14.075 degrees and arg coth((1+i) pi/2) = 0.
 
   reduce_ref.py rfft IN K OUT
-      IN holds float32 samples; OUT receives float64 pairs (real, imag) of
-      numpy.fft.rfft(samples) at bins 0..K.
+      IN holds float64 samples (float32 values, widened exactly); OUT
+      receives float64 pairs (real, imag) of numpy.fft.rfft(samples) at
+      bins 0..K.
 """
 import sys
 
@@ -160,7 +161,7 @@ def phase(args):
 
 def rfft(args):
     path, k, out = args[0], int(args[1]), args[2]
-    x = np.fromfile(path, dtype='<f4').astype(np.float64)
+    x = np.fromfile(path, dtype='<f8')
     f = np.fft.rfft(x)[:k + 1]
     np.column_stack([f.real, f.imag]).astype('<f8').tofile(out)
 

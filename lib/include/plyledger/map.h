@@ -224,9 +224,10 @@ PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err);
  * 1 for a constant map); NaN is written as code 65535, the nodata code and
  * an infinity as the nearest end code. The round trip through
  * pl_map_load_png() is exact to scale / 2 (plus the float rounding of the
- * decoded value). All six plyledger.* chunks are written as tEXt before
- * the image data (quantity and unit may be empty). A failed write removes
- * the file.
+ * decoded value). The plyledger.* chunks are written as tEXt before the
+ * image data: scale, offset, nodata, quantity and unit (these two may be
+ * empty), and pitch when both pitches are finite (a pitch not known is
+ * left out). A failed write removes the file.
  * @return PL_OK, PL_EINVAL (c out of range), PL_EIO, PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err);

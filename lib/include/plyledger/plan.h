@@ -50,7 +50,7 @@ typedef struct pl_plan {
  *         value that is not a number), PL_EINVAL (a site that fails
  *         pl_site_check(), a pitch that is NaN or not > 0, a number that is
  *         not finite, text too long for its field), PL_EEXISTS (duplicate
- *         site code), PL_ENOMEM.
+ *         site code), PL_ENOMEM (out of memory, or a file of 64 MiB or more).
  */
 PL_EXPORT int pl_plan_load(pl_plan **out, const char *path, pl_err *err);
 

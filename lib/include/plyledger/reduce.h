@@ -291,9 +291,11 @@ PL_EXPORT int pl_reducer_frame_needed(const pl_reducer *r, uint32_t index);
  *                saturated or dead pixels; copied before the call returns
  * @return PL_OK; PL_EINVAL (index out of range or not after the previous
  *         one, a needed frame skipped, the reducer already finished);
- *         PL_ECANCELED (the progress callback asked to stop). After a
- *         failure the reducer stops: further calls, and pl_reducer_finish(),
- *         return the same code.
+ *         PL_ECANCELED (the progress callback asked to stop). A refused
+ *         index (out of range, not after the previous one, after the
+ *         finish) leaves the reducer as it was; after any other failure
+ *         it stops: further calls, and pl_reducer_finish(), return the
+ *         same code.
  */
 PL_EXPORT int pl_reducer_frame(pl_reducer *r, uint32_t index, const float *kelvin,
                                pl_err *err);

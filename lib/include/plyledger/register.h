@@ -46,9 +46,14 @@
  *    on small maps they resolve angles of a degree or so poorly, so three
  *    candidates are tried: theta, theta + 180 and no rotation. For each,
  *    the current map is de-rotated and the translation found as above;
- *    every candidate whose translation peak reaches 0.7 of the best is
- *    then refined, and the one with the highest correlation after
- *    refinement kept.
+ *    every candidate whose translation peak reaches 0.7 of the best (and
+ *    whose turn is within max_rotation_deg) is then refined, and the one
+ *    with the highest correlation after refinement kept. A last start, no
+ *    residual at all, is refined coarse to fine (the maps smoothed by a
+ *    Gaussian of 3 pixels, then as they are) and replaces it when it
+ *    correlates better by more than 0.01: after the nominal transform the
+ *    truth lies near no residual, while on smooth, nearly symmetric
+ *    texture the correlation peak can lie pixels away.
  *  - Refinement (rotation on): Gauss-Newton minimisation over the overlap
  *    of the squared difference between the baseline and the resampled
  *    current map, with a gain and an offset, in rotation, shift (and
@@ -164,11 +169,11 @@ typedef struct pl_register_options {
  * was at least 0.90 and the PSR at least 4.9; over pairs without common
  * content (noise against a photograph or a map, two unrelated photographs,
  * two noise fields) the correlation was at most 0.44 while the PSR reached
- * 12.6 (periodic photographs) and 8.2 (noise). The smoothed correlation
- * now reported gives 0.99 on genuine pairs at SNR 3 and at most 0.33
- * without common content. The correlation separates
- * them: its limit sits between, low enough for real pairs whose levels
- * differ more than these. The PSR does not: its limit sits below every
+ * 12.6 (periodic photographs) and 8.2 (noise). The correlation reported
+ * (smoothed, see Quality above) gives 0.99 on genuine pairs at SNR 3 and
+ * at most 0.33 without common content. The correlation separates them:
+ * its limit sits between, low enough for real pairs whose levels differ
+ * more than these. The PSR does not: its limit sits below every
  * genuine pair, to refuse only a surface without a peak.
  */
 #define PL_REGISTER_DEFAULT_MIN_NCC 0.6

@@ -2,9 +2,10 @@
  * plyledger/store.h - the inspection record: one SQLite file per fleet.
  *
  * A store holds airframes (by serial), their inspection sites (by code,
- * unique per airframe), the inspections of each site and the maps each
- * inspection produced; the schema also holds the tables that indication,
- * comparison and disposition work fills (see the schema folder).
+ * unique per airframe), the inspections of each site, the maps each
+ * inspection produced, and the registrations and comparisons made between
+ * them; the schema also holds the tables that indication and disposition
+ * work fills (see the schema folder).
  *
  * Append-only. Recorded rows are never updated or deleted; SQLite triggers
  * refuse it. A correction is a new row that supersedes the current version
@@ -382,12 +383,13 @@ typedef struct pl_registration_record {
 
 /**
  * Record a registration. Both maps must exist and belong to inspections of
- * the same site, the baseline map to the earlier inspection or a baseline;
+ * the same site, the baseline map to a baseline inspection or to one
+ * earlier than the current map's (by date, then as recorded);
  * "aligned" and "manual" need the transform (finite shift, rotation, scale
  * > 0) and the overlap; "refused" needs the refusal; "manual" needs who and
  * why.
- * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (a map), PL_ENOMATCH (maps of
- *         different sites), PL_EDB.
+ * @return PL_OK, PL_EINVAL (including a baseline map that is not earlier),
+ *         PL_ENOTFOUND (a map), PL_ENOMATCH (maps of different sites), PL_EDB.
  */
 PL_EXPORT int pl_store_add_registration(pl_store *store, const pl_registration_record *reg,
                                         pl_id *id, pl_err *err);
