@@ -4,9 +4,9 @@
  * Fourier magnitudes, resampling and the quality figures (see
  * plyledger/register.h for the conventions and the sources).
  */
-#include "register_int.h"
+#include "image/register_int.h"
 
-#include "common_int.h"
+#include "common/common_int.h"
 
 #include <assert.h>
 #include <float.h>

@@ -7,7 +7,7 @@
  * x-height's bottom rows. Each glyph is 7 rows of 5 pixels, '#' on and '.'
  * off, top row first.
  */
-#include "render_int.h"
+#include "image/render_int.h"
 
 #include <assert.h>
 #include <string.h>

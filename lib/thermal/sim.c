@@ -3,9 +3,9 @@
  * model of the part, the Douglas ADI time stepping, the camera and the
  * ground truth.
  */
-#include "sim_int.h"
+#include "thermal/sim_int.h"
 
-#include "common_int.h"
+#include "common/common_int.h"
 
 #include <cjson/cJSON.h>
 

@@ -13,10 +13,10 @@
  * keeps what it owns in a struct in the caller's frame, and the function
  * that calls setjmp() only fills that struct.
  */
-#include "seq_int.h"
+#include "thermal/seq_int.h"
 
-#include "common_int.h"
-#include "npy_int.h"
+#include "common/common_int.h"
+#include "image/npy_int.h"
 
 #include <cjson/cJSON.h>
 #include <dirent.h>

@@ -4,7 +4,7 @@
  */
 #include "plyledger/record.h"
 
-#include "common_int.h"
+#include "common/common_int.h"
 
 #include <cjson/cJSON.h>
 #include <math.h>

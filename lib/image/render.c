@@ -5,10 +5,10 @@
  * transfer function) and CIE 15:2004 (CIELAB, the CIE 1976 colour
  * difference Delta E*ab).
  */
-#include "render_int.h"
+#include "image/render_int.h"
 
-#include "common_int.h"
-#include "png_int.h"
+#include "common/common_int.h"
+#include "common/png_int.h"
 #include "plyledger/version.h"
 
 #include <assert.h>

@@ -7,9 +7,9 @@
  * that calls setjmp() only fills that struct, so after a longjmp nothing
  * lives in clobbered locals and job_end() frees it all on one path.
  */
-#include "map_int.h"
-#include "common_int.h"
-#include "png_int.h"
+#include "image/map_int.h"
+#include "common/common_int.h"
+#include "common/png_int.h"
 
 #include <errno.h>
 #include <math.h>

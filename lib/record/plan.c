@@ -8,8 +8,8 @@
  */
 #include "plyledger/plan.h"
 
-#include "common_int.h"
-#include "store_int.h"
+#include "common/common_int.h"
+#include "record/store_int.h"
 
 #include <assert.h>
 #include <csv.h>

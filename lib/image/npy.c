@@ -9,8 +9,8 @@
  * the subset numpy writes; it streams from the FILE so that nothing is
  * allocated and a hostile length cannot make it buffer more than it reads.
  */
-#include "npy_int.h"
-#include "common_int.h"
+#include "image/npy_int.h"
+#include "common/common_int.h"
 
 #include <errno.h>
 #include <math.h>

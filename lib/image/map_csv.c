@@ -4,8 +4,8 @@
  * The grammar is small enough that a plain line reader is clearer than a
  * general CSV parser: no quoting, no embedded commas, numbers only.
  */
-#include "map_int.h"
-#include "common_int.h"
+#include "image/map_int.h"
+#include "common/common_int.h"
 
 #include <errno.h>
 #include <float.h>

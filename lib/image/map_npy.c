@@ -1,9 +1,9 @@
 /*
  * map_npy.c - maps to and from NumPy .npy files.
  */
-#include "map_int.h"
-#include "npy_int.h"
-#include "common_int.h"
+#include "image/map_int.h"
+#include "image/npy_int.h"
+#include "common/common_int.h"
 
 #include <errno.h>
 #include <math.h>

@@ -3,8 +3,8 @@
  * encoding (zlib-compressed little-endian float32 with a SHA-256 digest).
  */
 #define ZLIB_CONST
-#include "map_int.h"
-#include "common_int.h"
+#include "image/map_int.h"
+#include "common/common_int.h"
 #include "plyledger/hash.h"
 
 #include <assert.h>

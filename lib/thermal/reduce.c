@@ -35,9 +35,9 @@
  * matrix products, the peak search and the outputs about evenly), page
  * faults and unmapping a tenth, waking threads between batches a tenth.
  */
-#include "reduce_int.h"
+#include "thermal/reduce_int.h"
 
-#include "common_int.h"
+#include "common/common_int.h"
 
 #include <assert.h>
 #include <cjson/cJSON.h>

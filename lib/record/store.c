@@ -10,9 +10,9 @@
  * CHECK constraints and triggers stay behind as the last word, and their
  * refusals are mapped to status codes by pl_store__status().
  */
-#include "store_int.h"
+#include "record/store_int.h"
 
-#include "common_int.h"
+#include "common/common_int.h"
 #include "plyledger/hash.h"
 
 #include <assert.h>

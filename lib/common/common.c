@@ -1,7 +1,7 @@
 /*
  * common.c - status text, error buffers and small string helpers.
  */
-#include "common_int.h"
+#include "common/common_int.h"
 #include "plyledger/version.h"
 
 #include <errno.h>
