@@ -10,7 +10,7 @@
 #include <stdio.h>
 #include <string.h>
 
-#include "common_int.h"
+#include "common/common_int.h"
 #include "plyledger/version.h"
 
 /* Every code has its own text, and codes keep their published values. */

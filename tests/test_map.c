@@ -17,7 +17,7 @@
 #include <string.h>
 #include <zlib.h>
 
-#include "map_int.h"
+#include "image/map_int.h"
 #include "plyledger/hash.h"
 #include "testutil.h"
 

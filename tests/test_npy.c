@@ -15,7 +15,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "npy_int.h"
+#include "image/npy_int.h"
 #include "plyledger/map.h"
 #include "testutil.h"
 

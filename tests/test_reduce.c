@@ -23,7 +23,7 @@
 
 #include "plyledger/seq.h"
 #include "plyledger/sim.h"
-#include "reduce_int.h"
+#include "thermal/reduce_int.h"
 #include "testutil.h"
 
 #ifndef M_PI

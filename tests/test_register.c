@@ -23,7 +23,7 @@
 
 #include "plyledger/reduce.h"
 #include "plyledger/sim.h"
-#include "register_int.h"
+#include "image/register_int.h"
 #include "testutil.h"
 
 #ifndef M_PI

@@ -18,7 +18,7 @@
 #include <string.h>
 
 #include "plyledger/render.h"
-#include "render_int.h"
+#include "image/render_int.h"
 #include "testutil.h"
 
 /* ---- helpers ----------------------------------------------------------- */

@@ -22,7 +22,7 @@
 #include <unistd.h>
 
 #include "plyledger/npy.h"
-#include "seq_int.h"
+#include "thermal/seq_int.h"
 #include "testutil.h"
 
 /* ---- helpers ---------------------------------------------------------- */

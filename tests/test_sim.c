@@ -22,7 +22,7 @@
 
 #include "plyledger/seq.h"
 #include "plyledger/sim.h"
-#include "sim_int.h"
+#include "thermal/sim_int.h"
 #include "testutil.h"
 
 #ifndef M_PI

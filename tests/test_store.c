@@ -23,7 +23,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "store_int.h"
+#include "record/store_int.h"
 #include "plyledger/hash.h"
 #include "plyledger/map.h"
 #include "plyledger/store.h"

@@ -22,7 +22,7 @@
 #define _GNU_SOURCE
 #include "plyledger/reduce.h"
 #include "plyledger/seq.h"
-#include "reduce_int.h"
+#include "thermal/reduce_int.h"
 
 #include <errno.h>
 #include <fcntl.h>

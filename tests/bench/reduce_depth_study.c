@@ -15,7 +15,7 @@
  *   reduce_depth_study [frame_rate_hz [netd_k [reps]]]   (defaults 200 0.02 24)
  */
 #include "plyledger/reduce.h"
-#include "reduce_int.h"
+#include "thermal/reduce_int.h"
 
 #include <math.h>
 #include <stdint.h>

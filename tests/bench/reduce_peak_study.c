@@ -37,7 +37,7 @@
  */
 #include "plyledger/reduce.h"
 #include "plyledger/sim.h"
-#include "reduce_int.h"
+#include "thermal/reduce_int.h"
 
 #include <math.h>
 #include <stdint.h>
