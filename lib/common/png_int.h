@@ -8,8 +8,6 @@
  * warnings are dropped. The function that calls setjmp() should only fill
  * a struct owned by its caller, so that after a longjmp nothing lives in
  * clobbered locals and the caller frees it all with pl_png__destroy().
- *
- * Defined in map_png.c.
  */
 #ifndef PLYLEDGER_PNG_INT_H
 #define PLYLEDGER_PNG_INT_H
@@ -29,5 +27,8 @@ int pl_png__create(png_structp *png, png_infop *info, int writing, char *msg);
 
 /* Free what pl_png__create() made (NULLs are accepted) and clear both. */
 void pl_png__destroy(png_structp *png, png_infop *info, int writing);
+
+/* The name of a PNG colour type, for messages ("palette"). */
+const char *pl_png__colour_type_name(int colour_type);
 
 #endif

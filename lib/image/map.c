@@ -5,6 +5,7 @@
 #define ZLIB_CONST
 #include "image/map_int.h"
 #include "common/common_int.h"
+#include "common/num_int.h"
 #include "plyledger/hash.h"
 
 #include <assert.h>
@@ -279,23 +280,18 @@ PL_EXPORT int pl_map_set_pitch(pl_map *map, double pitch_u, double pitch_v, pl_e
     return PL_OK;
 }
 
-static double dot3(const double a[3], const double b[3])
-{
-    return a[0] * b[0] + a[1] * b[1] + a[2] * b[2];
-}
-
 PL_EXPORT int pl_placement_check(const pl_placement *p, pl_err *err)
 {
     assert(p);
     for (int k = 0; k < 3; k++)
         if (!isfinite(p->origin[k]) || !isfinite(p->u[k]) || !isfinite(p->v[k]))
             return pl__err(err, PL_EINVAL, "placement has a non-finite coordinate");
-    double nu = sqrt(dot3(p->u, p->u)), nv = sqrt(dot3(p->v, p->v));
+    double nu = sqrt(pl__dot3(p->u, p->u)), nv = sqrt(pl__dot3(p->v, p->v));
     if (fabs(nu - 1) >= 1e-3)
         return pl__err(err, PL_EINVAL, "placement axis u has length %.6g, not 1", nu);
     if (fabs(nv - 1) >= 1e-3)
         return pl__err(err, PL_EINVAL, "placement axis v has length %.6g, not 1", nv);
-    double c = dot3(p->u, p->v);
+    double c = pl__dot3(p->u, p->v);
     if (fabs(c) >= 1e-3)
         return pl__err(err, PL_EINVAL,
                        "placement axes u and v are not perpendicular (u.v = %.6g)", c);

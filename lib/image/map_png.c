@@ -1,6 +1,5 @@
 /*
- * map_png.c - maps to and from grayscale PNG with plyledger.* text chunks;
- * also the libpng set-up of png_int.h, shared with render.c and seq.c.
+ * map_png.c - maps to and from grayscale PNG with plyledger.* text chunks.
  *
  * libpng reports errors by longjmp. Each libpng session keeps everything
  * it allocates in a `png_job` owned by the caller's frame; the function
@@ -20,45 +19,6 @@
 
 #define NODATA_CODE 65535
 #define MAX_CODE 65534
-
-/* ---- libpng set-up (png_int.h) ---------------------------------------- */
-
-static void on_error(png_structp png, png_const_charp msg)
-{
-    char *buf = png_get_error_ptr(png);
-    snprintf(buf, PL_PNG_MSG_SIZE, "%s", msg ? msg : "unknown error");
-    png_longjmp(png, 1);
-}
-
-static void on_warning(png_structp png, png_const_charp msg)
-{
-    (void)png;
-    (void)msg;
-}
-
-int pl_png__create(png_structp *png, png_infop *info, int writing, char *msg)
-{
-    msg[0] = '\0';
-    *png = writing ? png_create_write_struct(PNG_LIBPNG_VER_STRING, msg, on_error, on_warning)
-                   : png_create_read_struct(PNG_LIBPNG_VER_STRING, msg, on_error, on_warning);
-    *info = *png ? png_create_info_struct(*png) : NULL;
-    if (*info)
-        return 0;
-    pl_png__destroy(png, info, writing);
-    return -1;
-}
-
-void pl_png__destroy(png_structp *png, png_infop *info, int writing)
-{
-    if (*png) {
-        if (writing)
-            png_destroy_write_struct(png, *info ? info : NULL);
-        else
-            png_destroy_read_struct(png, *info ? info : NULL, NULL);
-    }
-    *png = NULL;
-    *info = NULL;
-}
 
 /* ---- one file --------------------------------------------------------- */
 
@@ -105,18 +65,6 @@ static int job_end(png_job *j, int rc, pl_err *err)
     if (rc && j->writing)
         remove(j->path);
     return rc;
-}
-
-static const char *colour_type_name(int ctype)
-{
-    switch (ctype) {
-    case PNG_COLOR_TYPE_GRAY: return "grayscale";
-    case PNG_COLOR_TYPE_GRAY_ALPHA: return "grayscale with alpha";
-    case PNG_COLOR_TYPE_RGB: return "RGB";
-    case PNG_COLOR_TYPE_RGB_ALPHA: return "RGB with alpha";
-    case PNG_COLOR_TYPE_PALETTE: return "palette";
-    default: return "unknown";
-    }
 }
 
 /* ---- reading ---------------------------------------------------------- */
@@ -212,7 +160,7 @@ static int read_png(png_job *j, pl_map **out, pl_err *err)
     png_get_IHDR(j->png, j->info, &w, &h, &depth, &ctype, &interlace, NULL, NULL);
     if (ctype != PNG_COLOR_TYPE_GRAY)
         return pl__err(err, PL_EFORMAT, "%s: not a grayscale PNG (colour type %d, %s)",
-                       j->path, ctype, colour_type_name(ctype));
+                       j->path, ctype, pl_png__colour_type_name(ctype));
     if (depth != 8 && depth != 16)
         return pl__err(err, PL_EFORMAT, "%s: PNG bit depth %d not supported (8 or 16 expected)",
                        j->path, depth);
@@ -337,7 +285,7 @@ static unsigned code_of(float v, double offset, double scale)
     return (unsigned)q;
 }
 
-static int write_png(png_job *j, const pl_map *map, uint32_t c, png_texts *t, double offset,
+static int write_gray_png(png_job *j, const pl_map *map, uint32_t c, png_texts *t, double offset,
                      double scale, pl_err *err)
 {
     if (setjmp(png_jmpbuf(j->png)))
@@ -395,6 +343,6 @@ PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, p
     png_job j;
     int rc = job_begin(&j, path, 1, err);
     if (rc == PL_OK)
-        rc = write_png(&j, map, c, &t, offset, scale, err);
+        rc = write_gray_png(&j, map, c, &t, offset, scale, err);
     return job_end(&j, rc, err);
 }

@@ -11,6 +11,8 @@
  */
 #include "image/npy_int.h"
 #include "common/common_int.h"
+#include "common/num_int.h"
+#include "common/strbuf_int.h"
 
 #include <errno.h>
 #include <math.h>
@@ -23,14 +25,6 @@ static const unsigned char npy_magic[6] = {0x93, 'N', 'U', 'M', 'P', 'Y'};
  * rewritten in place (GROWTH_AXIS_MAX_DIGITS in numpy.lib.format). */
 #define GROWTH_AXIS_MAX_DIGITS 21
 #define ARRAY_ALIGN 64
-
-static int host_big_endian(void)
-{
-    const uint16_t one = 1;
-    unsigned char first;
-    memcpy(&first, &one, 1);
-    return first == 0;
-}
 
 PL_EXPORT const char *pl_npy_dtype_name(pl_npy_dtype dtype)
 {
@@ -217,7 +211,7 @@ static void classify_descr(pl_npy_header *hdr)
     int ok = split_descr(hdr->descr, &order, &kind, &size) == 0;
     hdr->dtype = PL_NPY_UNSUPPORTED;
     hdr->itemsize = ok ? size : 0;
-    hdr->big_endian = order == '>' || (order == '=' && host_big_endian());
+    hdr->big_endian = order == '>' || (order == '=' && pl__host_big_endian());
     if (!ok)
         return;
     if (kind == 'u' && size == 1)
@@ -472,35 +466,33 @@ PL_EXPORT int pl_npy_write_header(FILE *f, const char *descr, int ndim,
                        ndim, PL_NPY_MAX_DIMS);
     if (!descr || !valid_descr(descr))
         return pl__err(err, PL_EINVAL, "%s: invalid dtype string for a .npy header", name);
-    /* Room for the dict, 8 dimensions of 20 digits, growth space and the
-     * padding up to the next 64-byte boundary. */
-    char text[512];
-    int n = snprintf(text, sizeof text, "{'descr': '%s', 'fortran_order': False, 'shape': (",
-                     descr);
+    pl_strbuf h = PL_STRBUF_INIT;
+    pl_strbuf__printf(&h, "{'descr': '%s', 'fortran_order': False, 'shape': (", descr);
     for (int i = 0; i < ndim; i++)
-        n += snprintf(text + n, sizeof text - (size_t)n, "%s%llu", i ? ", " : "",
-                      (unsigned long long)shape[i]);
-    n += snprintf(text + n, sizeof text - (size_t)n, "%s), }", ndim == 1 ? "," : "");
+        pl_strbuf__printf(&h, "%s%llu", i ? ", " : "", (unsigned long long)shape[i]);
+    pl_strbuf__printf(&h, "%s), }", ndim == 1 ? "," : "");
     if (ndim > 0) {
         char first[24];
         int digits = snprintf(first, sizeof first, "%llu", (unsigned long long)shape[0]);
-        for (int i = digits; i < GROWTH_AXIS_MAX_DIGITS; i++)
-            text[n++] = ' ';
+        pl_strbuf__repeat(&h, ' ', (size_t)(GROWTH_AXIS_MAX_DIGITS - digits));
     }
     /* magic (6) + version (2) + length (2) + dict + padding + '\n' */
-    size_t hlen = (size_t)n + 1;
-    size_t pad = ARRAY_ALIGN - ((10 + hlen) % ARRAY_ALIGN);
-    memset(text + n, ' ', pad);
-    n += (int)pad;
-    text[n++] = '\n';
+    pl_strbuf__repeat(&h, ' ', ARRAY_ALIGN - (10 + pl_strbuf__len(&h) + 1) % ARRAY_ALIGN);
+    pl_strbuf__append(&h, "\n");
+    if (pl_strbuf__failed(&h))
+        return pl__err(err, PL_ENOMEM, "%s: out of memory for a .npy header", name);
+    size_t n = pl_strbuf__len(&h);
 
     unsigned char pre[10];
     memcpy(pre, npy_magic, sizeof npy_magic);
     pre[6] = 1;
     pre[7] = 0;
     pre[8] = (unsigned char)(n & 0xff);
-    pre[9] = (unsigned char)((unsigned)n >> 8);
-    if (fwrite(pre, 1, sizeof pre, f) != sizeof pre || fwrite(text, 1, (size_t)n, f) != (size_t)n)
+    pre[9] = (unsigned char)(n >> 8);
+    int ok = fwrite(pre, 1, sizeof pre, f) == sizeof pre
+             && fwrite(pl_strbuf__str(&h), 1, n, f) == n;
+    pl_strbuf__release(&h);
+    if (!ok)
         return pl__err(err, PL_EIO, "%s: cannot write: %s", name, strerror(errno));
     return PL_OK;
 }

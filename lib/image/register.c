@@ -7,28 +7,22 @@
 #include "image/register_int.h"
 
 #include "common/common_int.h"
+#include "common/fft_int.h"
+#include "common/filter_int.h"
+#include "common/num_int.h"
+#include "common/threads_int.h"
 
 #include <assert.h>
 #include <float.h>
-#include <kiss_fft.h>
-#include <kiss_fftr.h>
 #include <math.h>
-#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <unistd.h>
-
-#ifndef M_PI
-#define M_PI 3.14159265358979323846
-#endif
 
 #define MIN_SIDE 16u
 #define MAX_UPSAMPLE 1000u
-#define MAX_THREADS 4u
 #define PARALLEL_MIN_PIXELS 32768u /* below this one thread is quicker */
 #define PSR_HALF 5                 /* the 11 x 11 window around the peak */
-#define COL_BLOCK 8u               /* columns transformed together */
 
 /* Log-polar grid: radii from LP_RMAX / LP_RANGE to LP_RMAX cycles per
  * pixel, LP_RADII of them, and at least LP_MIN_ANGLES angles over 180
@@ -57,11 +51,6 @@
 #define GEMM_KERNEL
 #endif
 
-static double deg2rad(double d)
-{
-    return d * (M_PI / 180.0);
-}
-
 /* Wrap an angle in degrees to (-180, 180]. */
 static double wrap180(double a)
 {
@@ -73,223 +62,11 @@ static double wrap180(double a)
     return a;
 }
 
-/* ---- threads ------------------------------------------------------------- */
-
-typedef void (*range_fn)(void *ctx, uint32_t begin, uint32_t end, unsigned worker);
-
-typedef struct range_job {
-    range_fn fn;
-    void *ctx;
-    uint32_t begin, end;
-    unsigned worker;
-} range_job;
-
-static void *range_main(void *p)
-{
-    range_job *j = p;
-    j->fn(j->ctx, j->begin, j->end, j->worker);
-    return NULL;
-}
-
-/* Run fn over [0, n) in nt slices, the caller taking the first; a slice
- * whose thread cannot start runs in the caller afterwards (with its own
- * worker index, so per-worker scratch is never shared). */
-static void parallel_for(unsigned nt, uint32_t n, range_fn fn, void *ctx)
-{
-    if (nt > MAX_THREADS)
-        nt = MAX_THREADS;
-    if (nt > n)
-        nt = n ? n : 1;
-    range_job jobs[MAX_THREADS];
-    pthread_t th[MAX_THREADS];
-    int started[MAX_THREADS] = { 0 };
-    for (unsigned t = 0; t < nt; t++) {
-        jobs[t].fn = fn;
-        jobs[t].ctx = ctx;
-        jobs[t].begin = (uint32_t)((uint64_t)n * t / nt);
-        jobs[t].end = (uint32_t)((uint64_t)n * (t + 1) / nt);
-        jobs[t].worker = t;
-    }
-    for (unsigned t = 1; t < nt; t++)
-        started[t] = pthread_create(&th[t], NULL, range_main, &jobs[t]) == 0;
-    fn(ctx, jobs[0].begin, jobs[0].end, 0);
-    for (unsigned t = 1; t < nt; t++) {
-        if (started[t])
-            pthread_join(th[t], NULL);
-        else
-            fn(ctx, jobs[t].begin, jobs[t].end, t);
-    }
-}
-
-/* Threads for work over `pixels` values: one per online processor (at
- * most MAX_THREADS) for large images. */
+/* Threads for work over `pixels` values: one per online processor for
+ * large images. */
 static unsigned thread_count(size_t pixels)
 {
-    if (pixels < PARALLEL_MIN_PIXELS)
-        return 1;
-    long n = sysconf(_SC_NPROCESSORS_ONLN);
-    if (n < 1)
-        n = 1;
-    return n > (long)MAX_THREADS ? MAX_THREADS : (unsigned)n;
-}
-
-/* ---- the 2-D real FFT ---------------------------------------------------- */
-
-/*
- * A real 2-D transform of h x w values into h x (w/2 + 1) complex ones:
- * real FFTs along the rows (kiss_fftr when w is even, a complex kiss_fft
- * when it is odd), then complex FFTs down the columns, COL_BLOCK columns
- * gathered at a time so that every cache line read is used. Each worker
- * has its own kissfft states (kiss_fftr keeps scratch in its state).
- * kissfft's transforms are unnormalised both ways.
- */
-typedef struct fft2 {
-    uint32_t h, w, wh;
-    unsigned nt;
-    kiss_fftr_cfg rf[MAX_THREADS], ri[MAX_THREADS];
-    kiss_fft_cfg rcf[MAX_THREADS], rci[MAX_THREADS];
-    kiss_fft_cfg cf[MAX_THREADS], ci[MAX_THREADS];
-    kiss_fft_cpx *scratch[MAX_THREADS];
-} fft2;
-
-static void fft2_free(fft2 *p)
-{
-    for (unsigned t = 0; t < MAX_THREADS; t++) {
-        kiss_fftr_free(p->rf[t]);
-        kiss_fftr_free(p->ri[t]);
-        kiss_fft_free(p->rcf[t]);
-        kiss_fft_free(p->rci[t]);
-        kiss_fft_free(p->cf[t]);
-        kiss_fft_free(p->ci[t]);
-        free(p->scratch[t]);
-    }
-    memset(p, 0, sizeof *p);
-}
-
-static int fft2_init(fft2 *p, uint32_t h, uint32_t w, unsigned nt)
-{
-    memset(p, 0, sizeof *p);
-    p->h = h;
-    p->w = w;
-    p->wh = w / 2 + 1;
-    p->nt = nt < 1 ? 1 : nt > MAX_THREADS ? MAX_THREADS : nt;
-    for (unsigned t = 0; t < p->nt; t++) {
-        if (w % 2 == 0) {
-            p->rf[t] = kiss_fftr_alloc((int)w, 0, NULL, NULL);
-            p->ri[t] = kiss_fftr_alloc((int)w, 1, NULL, NULL);
-            if (!p->rf[t] || !p->ri[t])
-                goto fail;
-        } else {
-            p->rcf[t] = kiss_fft_alloc((int)w, 0, NULL, NULL);
-            p->rci[t] = kiss_fft_alloc((int)w, 1, NULL, NULL);
-            if (!p->rcf[t] || !p->rci[t])
-                goto fail;
-        }
-        p->cf[t] = kiss_fft_alloc((int)h, 0, NULL, NULL);
-        p->ci[t] = kiss_fft_alloc((int)h, 1, NULL, NULL);
-        size_t n = 2 * (size_t)COL_BLOCK * h + 2 * (size_t)w;
-        p->scratch[t] = malloc(n * sizeof *p->scratch[t]);
-        if (!p->cf[t] || !p->ci[t] || !p->scratch[t])
-            goto fail;
-    }
-    return PL_OK;
-fail:
-    fft2_free(p);
-    return PL_ENOMEM;
-}
-
-typedef struct fft_job {
-    fft2 *p;
-    const float *in;
-    kiss_fft_cpx *spec;
-    float *out;
-    int inverse;
-} fft_job;
-
-static void rows_forward(void *ctx, uint32_t b, uint32_t e, unsigned t)
-{
-    fft_job *j = ctx;
-    fft2 *p = j->p;
-    for (uint32_t i = b; i < e; i++) {
-        const float *row = j->in + (size_t)i * p->w;
-        kiss_fft_cpx *o = j->spec + (size_t)i * p->wh;
-        if (p->w % 2 == 0) {
-            kiss_fftr(p->rf[t], row, o);
-        } else {
-            kiss_fft_cpx *a = p->scratch[t], *z = a + p->w;
-            for (uint32_t x = 0; x < p->w; x++) {
-                a[x].r = row[x];
-                a[x].i = 0.0f;
-            }
-            kiss_fft(p->rcf[t], a, z);
-            memcpy(o, z, p->wh * sizeof *o);
-        }
-    }
-}
-
-static void rows_inverse(void *ctx, uint32_t b, uint32_t e, unsigned t)
-{
-    fft_job *j = ctx;
-    fft2 *p = j->p;
-    for (uint32_t i = b; i < e; i++) {
-        const kiss_fft_cpx *s = j->spec + (size_t)i * p->wh;
-        float *o = j->out + (size_t)i * p->w;
-        if (p->w % 2 == 0) {
-            kiss_fftri(p->ri[t], s, o);
-        } else {
-            /* the whole row's spectrum from its Hermitian half */
-            kiss_fft_cpx *a = p->scratch[t], *z = a + p->w;
-            memcpy(a, s, p->wh * sizeof *a);
-            for (uint32_t l = p->wh; l < p->w; l++) {
-                a[l].r = s[p->w - l].r;
-                a[l].i = -s[p->w - l].i;
-            }
-            kiss_fft(p->rci[t], a, z);
-            for (uint32_t x = 0; x < p->w; x++)
-                o[x] = z[x].r;
-        }
-    }
-}
-
-/* Column blocks [b, e) of COL_BLOCK columns each. */
-static void columns(void *ctx, uint32_t b, uint32_t e, unsigned t)
-{
-    fft_job *j = ctx;
-    fft2 *p = j->p;
-    kiss_fft_cfg cfg = j->inverse ? p->ci[t] : p->cf[t];
-    kiss_fft_cpx *buf = p->scratch[t], *res = buf + (size_t)COL_BLOCK * p->h;
-    for (uint32_t blk = b; blk < e; blk++) {
-        uint32_t j0 = blk * COL_BLOCK;
-        uint32_t nb = p->wh - j0 < COL_BLOCK ? p->wh - j0 : COL_BLOCK;
-        for (uint32_t i = 0; i < p->h; i++) {
-            const kiss_fft_cpx *s = j->spec + (size_t)i * p->wh + j0;
-            for (uint32_t c = 0; c < nb; c++)
-                buf[(size_t)c * p->h + i] = s[c];
-        }
-        for (uint32_t c = 0; c < nb; c++)
-            kiss_fft(cfg, buf + (size_t)c * p->h, res + (size_t)c * p->h);
-        for (uint32_t i = 0; i < p->h; i++) {
-            kiss_fft_cpx *s = j->spec + (size_t)i * p->wh + j0;
-            for (uint32_t c = 0; c < nb; c++)
-                s[c] = res[(size_t)c * p->h + i];
-        }
-    }
-}
-
-/* h x w reals -> h x wh spectrum. */
-static void fft2_forward(fft2 *p, const float *in, kiss_fft_cpx *spec)
-{
-    fft_job j = { p, in, spec, NULL, 0 };
-    parallel_for(p->nt, p->h, rows_forward, &j);
-    parallel_for(p->nt, (p->wh + COL_BLOCK - 1) / COL_BLOCK, columns, &j);
-}
-
-/* h x wh spectrum (overwritten) -> h x w reals, times h * w. */
-static void fft2_inverse(fft2 *p, kiss_fft_cpx *spec, float *out)
-{
-    fft_job j = { p, NULL, spec, out, 1 };
-    parallel_for(p->nt, (p->wh + COL_BLOCK - 1) / COL_BLOCK, columns, &j);
-    parallel_for(p->nt, p->h, rows_inverse, &j);
+    return pixels < PARALLEL_MIN_PIXELS ? 1 : pl_threads__count(0);
 }
 
 /* ---- small matrix products ----------------------------------------------- */
@@ -395,7 +172,7 @@ static void gemm_slice(void *ctx, uint32_t b, uint32_t e, unsigned t)
 
 static void gemm(gemm_job *g, unsigned nt)
 {
-    parallel_for(nt, (g->m + 3) / 4, gemm_slice, g);
+    pl_threads__for(nt, (g->m + 3) / 4, gemm_slice, g);
 }
 
 static size_t round16(size_t n)
@@ -460,15 +237,15 @@ typedef struct pc_ctx {
     uint32_t wh;      /* pw / 2 + 1 */
     unsigned nt;
     int centre;       /* subtract the mean before the window */
-    fft2 plan;
+    pl_fft__rfft2 *plan;
     double *wx, *wy;  /* window weights */
     float *in;        /* ph x pw: the FFT input, then the correlation surface */
-    kiss_fft_cpx *F, *M, *R; /* ph x wh each; M is overwritten by the inverse */
+    pl_fft__cpx *F, *M, *R; /* ph x wh each; M is overwritten by the inverse */
 } pc_ctx;
 
 static void pc_free(pc_ctx *c)
 {
-    fft2_free(&c->plan);
+    pl_fft__rfft2_free(c->plan);
     free(c->wx);
     free(c->wy);
     free(c->in);
@@ -498,7 +275,7 @@ static int pc_init(pc_ctx *c, uint32_t w, uint32_t h, uint32_t pw, uint32_t ph, 
     c->M = malloc(ns * sizeof *c->M);
     c->R = malloc(ns * sizeof *c->R);
     if (!c->wx || !c->wy || !c->in || !c->F || !c->M || !c->R
-        || fft2_init(&c->plan, ph, pw, nt)) {
+        || pl_fft__rfft2_new(&c->plan, ph, pw, nt)) {
         pc_free(c);
         return PL_ENOMEM;
     }
@@ -544,7 +321,7 @@ static size_t pc_set_fixed(pc_ctx *c, const float *img)
 {
     size_t n = pc_prepare(c, img);
     if (n)
-        fft2_forward(&c->plan, c->in, c->F);
+        pl_fft__rfft2_forward(c->plan, c->in, c->F);
     return n;
 }
 
@@ -552,7 +329,7 @@ static size_t pc_set_moving(pc_ctx *c, const float *img)
 {
     size_t n = pc_prepare(c, img);
     if (n)
-        fft2_forward(&c->plan, c->in, c->M);
+        pl_fft__rfft2_forward(c->plan, c->in, c->M);
     return n;
 }
 
@@ -606,7 +383,7 @@ static void pc_correlate(pc_ctx *c, pl_register__peak *pk, int limit_x)
     size_t n = (size_t)c->ph * c->wh, np = (size_t)c->ph * c->pw;
     pc_cross_power(c);
     memcpy(c->M, c->R, n * sizeof *c->M);
-    fft2_inverse(&c->plan, c->M, c->in);
+    pl_fft__rfft2_inverse(c->plan, c->M, c->in);
     double scale = 1.0 / (double)np, best = -INFINITY;
     uint32_t by = 0, bx = 0;
     for (uint32_t y = 0; y < c->ph; y++) {
@@ -722,7 +499,7 @@ static int pc_refine(pc_ctx *c, pl_register__peak *pk, unsigned up)
     /* B = [[Re R, Im R], [-Im R, Re R]], padded with zeros */
     for (uint32_t k = 0; k < H; k++) {
         float *b0 = B + (size_t)k * ldb, *b1 = B + (size_t)(k + H) * ldb;
-        const kiss_fft_cpx *r = c->R + (size_t)k * wh;
+        const pl_fft__cpx *r = c->R + (size_t)k * wh;
         for (uint32_t l = 0; l < wh; l++) {
             b0[l] = r[l].r;
             b0[wh + l] = r[l].i;
@@ -807,7 +584,7 @@ int pl_register__translation(pl_register__peak *out, const float *fixed, const f
 /* ---- rotation and scale: log-polar Fourier magnitudes ----------------------- */
 
 /* The magnitude of a half spectrum (ph x wh of a ph x pw transform). */
-static void magnitude(float *mag, const kiss_fft_cpx *F, size_t n)
+static void magnitude(float *mag, const pl_fft__cpx *F, size_t n)
 {
     for (size_t k = 0; k < n; k++)
         mag[k] = sqrtf(F[k].r * F[k].r + F[k].i * F[k].i);
@@ -908,10 +685,10 @@ static int logpolar(double *theta, double *scale, const pc_ctx *c, int want_scal
     double rmin = LP_RMAX / LP_RANGE, lstep = log(LP_RANGE) / (nr - 1);
     lp_job j = { mag, c->ph, c->pw, c->wh, na, nr, rmin, lstep, l1 };
     magnitude(mag, c->F, nm);
-    parallel_for(c->nt, na, lp_rows, &j);
+    pl_threads__for(c->nt, na, lp_rows, &j);
     magnitude(mag, c->M, nm);
     j.out = l2;
-    parallel_for(c->nt, na, lp_rows, &j);
+    pl_threads__for(c->nt, na, lp_rows, &j);
     pl_register__window(wr, nr, PL_WINDOW_HANN, 0.0);
     if (pc_init(&lc, nr, na, nr, na, wr, NULL, 1, c->nt))
         goto done;
@@ -1243,7 +1020,7 @@ static int transform_ok(const pl_transform *t)
 static void resample_run(float *out, uint32_t fw, uint32_t fh, const float *moving, uint32_t mw,
                          uint32_t mh, const pl_transform *t, pl_interp interp)
 {
-    double th = deg2rad(t->rotation_deg), cs = cos(th) / t->scale, sn = sin(th) / t->scale;
+    double th = pl__deg2rad(t->rotation_deg), cs = cos(th) / t->scale, sn = sin(th) / t->scale;
     if (t->rotation_deg == 0.0) {
         cs = 1.0 / t->scale;
         sn = 0.0;
@@ -1261,8 +1038,8 @@ static void resample_run(float *out, uint32_t fw, uint32_t fh, const float *movi
                 j.ix[x] = locate(j.cx + j.m00 * px, mw, &fx);
                 cubic_weights(j.wx + 4 * (size_t)x, j.ix[x] < 0 ? 0.0 : fx);
             }
-            parallel_for(nt, mh, rs_shift_rows, &j);
-            parallel_for(nt, fh, rs_shift_cols, &j);
+            pl_threads__for(nt, mh, rs_shift_rows, &j);
+            pl_threads__for(nt, fh, rs_shift_cols, &j);
             free(j.ix);
             free(j.wx);
             free(j.tmp);
@@ -1272,7 +1049,7 @@ static void resample_run(float *out, uint32_t fw, uint32_t fh, const float *movi
         free(j.wx);
         free(j.tmp);
     }
-    parallel_for(nt, fh, rs_rows, &j);
+    pl_threads__for(nt, fh, rs_rows, &j);
 }
 
 int pl_register_resample(float *out, uint32_t fw, uint32_t fh, const float *moving, uint32_t mw,
@@ -1382,242 +1159,7 @@ static void result_init(pl_register_result *res)
     res->overlap_mm2 = NAN;
 }
 
-/* ---- smoothing ----------------------------------------------------------------- */
-
-/* One value of a Gaussian pass (along a row when horizontal, else down a
- * column) over the finite taps only, the weights renormalised over them:
- * the general case, near NaN and the edges. NaN stays NaN. */
-static float blur_tap(const float *in, uint32_t w, uint32_t h, const float *k, int rad,
-                      uint32_t x, uint32_t y, int horizontal)
-{
-    if (!isfinite(in[(size_t)y * w + x]))
-        return NAN;
-    double acc = 0.0, ws = 0.0;
-    for (int i = -rad; i <= rad; i++) {
-        long xx = horizontal ? (long)x + i : (long)x;
-        long yy = horizontal ? (long)y : (long)y + i;
-        if (xx < 0 || yy < 0 || xx >= (long)w || yy >= (long)h)
-            continue;
-        float v = in[(size_t)yy * w + (size_t)xx];
-        if (isfinite(v)) {
-            acc += k[i + rad] * v;
-            ws += k[i + rad];
-        }
-    }
-    return (float)(acc / ws);
-}
-
-/* A separable Gaussian of `sigma` pixels over the pixels with data only
- * (the weights renormalised where neighbours lack data or lie outside;
- * NaN stays NaN). Rows and columns far from both take a branch-free path
- * (most of an image), the rest blur_tap(). [out] *out is malloc'd. */
-static int gauss_blur(float **out, const float *src, uint32_t w, uint32_t h, double sigma)
-{
-    int rad = (int)ceil(3.0 * sigma);
-    size_t np = (size_t)w * h;
-    float *tmp = malloc(np * sizeof *tmp), *o = malloc(np * sizeof *o);
-    float *k = malloc((size_t)(2 * rad + 1) * sizeof *k);
-    unsigned char *bad_row = calloc(h, 1), *bad_col = calloc(w, 1);
-    *out = NULL;
-    if (!tmp || !o || !k || !bad_row || !bad_col) {
-        free(tmp);
-        free(o);
-        free(k);
-        free(bad_row);
-        free(bad_col);
-        return PL_ENOMEM;
-    }
-    double ksum = 0.0;
-    for (int i = -rad; i <= rad; i++)
-        ksum += exp(-0.5 * i * i / (sigma * sigma));
-    for (int i = -rad; i <= rad; i++)
-        k[i + rad] = (float)(exp(-0.5 * i * i / (sigma * sigma)) / ksum);
-    for (uint32_t y = 0; y < h; y++)
-        for (uint32_t x = 0; x < w; x++)
-            if (!isfinite(src[(size_t)y * w + x])) {
-                bad_row[y] = 1;
-                bad_col[x] = 1;
-            }
-    /* rows: the interior of a row without NaN tap by tap (vectorisable),
-     * its ends and rows with NaN by the general case */
-    for (uint32_t y = 0; y < h; y++) {
-        const float *r = src + (size_t)y * w;
-        float *d = tmp + (size_t)y * w;
-        if (!bad_row[y] && (long)w > 2L * rad) {
-            uint32_t x0 = (uint32_t)rad, x1 = w - (uint32_t)rad;
-            for (uint32_t x = x0; x < x1; x++)
-                d[x] = 0.0f;
-            for (int i = -rad; i <= rad; i++) {
-                float kk = k[i + rad];
-                const float *ri = r + i;
-                for (uint32_t x = x0; x < x1; x++)
-                    d[x] += kk * ri[x];
-            }
-            for (uint32_t x = 0; x < x0; x++)
-                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
-            for (uint32_t x = x1; x < w; x++)
-                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
-        } else {
-            for (uint32_t x = 0; x < w; x++)
-                d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
-        }
-    }
-    /* columns: interior rows by whole rows at a time (vectorisable) */
-    for (uint32_t y = 0; y < h; y++) {
-        float *d = o + (size_t)y * w;
-        int inside = (long)y >= rad && (long)y + rad < (long)h;
-        if (inside) {
-            for (uint32_t x = 0; x < w; x++)
-                d[x] = 0.0f;
-            for (int i = -rad; i <= rad; i++) {
-                const float *r = tmp + (size_t)((long)y + i) * w;
-                float kk = k[i + rad];
-                for (uint32_t x = 0; x < w; x++)
-                    d[x] += kk * r[x];
-            }
-            /* redo the columns a NaN touches */
-            for (uint32_t x = 0; x < w; x++)
-                if (bad_col[x])
-                    d[x] = blur_tap(tmp, w, h, k, rad, x, y, 0);
-        } else {
-            for (uint32_t x = 0; x < w; x++)
-                d[x] = blur_tap(tmp, w, h, k, rad, x, y, 0);
-        }
-    }
-    free(tmp);
-    free(k);
-    free(bad_row);
-    free(bad_col);
-    *out = o;
-    return PL_OK;
-}
-
-/* ---- dead and hot pixels ----------------------------------------------------- */
-
-/*
- * Dead and hot pixels sit still in the camera while the part moves, and
- * phase correlation, which whitens the spectrum, weighs such single-pixel
- * outliers as heavily as the texture. A pixel is taken for one when it lies
- * more than DESPECKLE_K robust standard deviations, and more than
- * DESPECKLE_RANGE of the image's 1st-99th percentile range, above the
- * largest, or below the smallest, of its 8 neighbours; it is replaced by
- * their median. (The range keeps a noiseless photograph's sharp texture,
- * whose robust noise is near zero, out of reach.)
- * An edge or a line has neighbours on both sides of its value, so real
- * structure is never touched; the robust standard deviation is 1.4826 x the
- * median absolute difference between a pixel and the median of its
- * neighbours, from at most DESPECKLE_SAMPLES pixels (common practice for
- * impulse noise).
- */
-#define DESPECKLE_K 8.0
-#define DESPECKLE_RANGE 0.25
-#define DESPECKLE_SAMPLES 16384u
-
-static float median_small(float *v, int n)
-{
-    for (int i = 1; i < n; i++)
-        for (int j = i; j > 0 && v[j] < v[j - 1]; j--) {
-            float t = v[j];
-            v[j] = v[j - 1];
-            v[j - 1] = t;
-        }
-    return (n & 1) ? v[n / 2] : 0.5f * (v[n / 2 - 1] + v[n / 2]);
-}
-
-static int cmp_float(const void *a, const void *b)
-{
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
-}
-
-/* The finite 8-neighbours of (x, y) into v (unsorted); their count. */
-static int neighbours(float v[8], const float *src, uint32_t w, uint32_t h, uint32_t x,
-                      uint32_t y)
-{
-    int n = 0;
-    for (int dy = -1; dy <= 1; dy++)
-        for (int dx = -1; dx <= 1; dx++) {
-            long xx = (long)x + dx, yy = (long)y + dy;
-            if ((dx || dy) && xx >= 0 && yy >= 0 && xx < (long)w && yy < (long)h) {
-                float q = src[(size_t)yy * w + (size_t)xx];
-                if (isfinite(q))
-                    v[n++] = q;
-            }
-        }
-    return n;
-}
-
-static int despeckle(float **out, const float *src, uint32_t w, uint32_t h)
-{
-    size_t np = (size_t)w * h;
-    float *o = malloc(np * sizeof *o);
-    float *sample = malloc(2 * DESPECKLE_SAMPLES * sizeof *sample);
-    *out = NULL;
-    if (!o || !sample) {
-        free(o);
-        free(sample);
-        return PL_ENOMEM;
-    }
-    memcpy(o, src, np * sizeof *o);
-    /* the noise (residual from the neighbours' median) and the range of
-     * the values, from a sample of the pixels */
-    size_t step = np / DESPECKLE_SAMPLES + 1, k = 0, kv = 0;
-    float *vals = sample + DESPECKLE_SAMPLES;
-    for (size_t i = 0; i < np && k < DESPECKLE_SAMPLES; i += step) {
-        if (!isfinite(src[i]))
-            continue;
-        vals[kv++] = src[i];
-        float v[8];
-        int n = neighbours(v, src, w, h, (uint32_t)(i % w), (uint32_t)(i / w));
-        if (n)
-            sample[k++] = fabsf(src[i] - median_small(v, n));
-    }
-    double sigma = 0.0, range = 0.0;
-    if (k && kv) {
-        qsort(sample, k, sizeof *sample, cmp_float);
-        sigma = 1.4826 * sample[k / 2];
-        qsort(vals, kv, sizeof *vals, cmp_float);
-        range = (double)vals[(kv * 99) / 100] - (double)vals[kv / 100];
-    }
-    free(sample);
-    /* an impulse stands out from the noise and from the texture's range */
-    double lim = fmax(DESPECKLE_K * sigma, DESPECKLE_RANGE * range);
-    if (!(lim > 0.0)) {
-        *out = o;
-        return PL_OK;
-    }
-    int any_nan = 0;
-    for (size_t i = 0; i < np && !any_nan; i++)
-        any_nan = !isfinite(src[i]);
-    for (uint32_t y = 0; y < h; y++)
-        for (uint32_t x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            float c = src[i], q[8];
-            int n = 8;
-            if (!any_nan && x > 0 && y > 0 && x + 1 < w && y + 1 < h) {
-                /* the common case: all 8 neighbours there and finite */
-                const float *a = src + i - w, *b = src + i + w;
-                const float all[8] = { a[-1], a[0], a[1], src[i - 1],
-                                       src[i + 1], b[-1], b[0], b[1] };
-                memcpy(q, all, sizeof q);
-            } else {
-                if (!isfinite(c))
-                    continue;
-                n = neighbours(q, src, w, h, x, y);
-            }
-            if (n < 3)
-                continue;
-            float lo = q[0], hi = q[0];
-            for (int j = 1; j < n; j++) {
-                lo = q[j] < lo ? q[j] : lo;
-                hi = q[j] > hi ? q[j] : hi;
-            }
-            if (c > hi + lim || c < lo - lim)
-                o[i] = median_small(q, n);
-        }
-    *out = o;
-    return PL_OK;
-}
+/* ---- smoothing and despeckling ------------------------------------------------ */
 
 /* Two images at once on two threads (large images): despeckle or blur. */
 typedef struct pair_job {
@@ -1633,15 +1175,16 @@ static void pair_run(void *ctx, uint32_t b, uint32_t e, unsigned t)
     (void)t;
     pair_job *j = ctx;
     for (uint32_t k = b; k < e; k++)
-        j->failed[k] = j->sigma > 0.0 ? gauss_blur(&j->out[k], j->src[k], j->w, j->h, j->sigma)
-                                      : despeckle(&j->out[k], j->src[k], j->w, j->h);
+        j->failed[k] = j->sigma > 0.0
+                           ? pl_filter__gauss(&j->out[k], j->src[k], j->w, j->h, j->sigma)
+                           : pl_filter__despeckle(&j->out[k], j->src[k], j->w, j->h);
 }
 
 static int pair_apply(float **a_out, float **b_out, const float *a, const float *b, uint32_t w,
                       uint32_t h, double sigma)
 {
     pair_job j = { { a, b }, { NULL, NULL }, w, h, sigma, { 0, 0 } };
-    parallel_for(thread_count((size_t)w * h) > 1 ? 2 : 1, 2, pair_run, &j);
+    pl_threads__for(thread_count((size_t)w * h) > 1 ? 2 : 1, 2, pair_run, &j);
     if (j.failed[0] || j.failed[1]) {
         free(j.out[0]);
         free(j.out[1]);
@@ -1677,7 +1220,7 @@ static int pair_apply(float **a_out, float **b_out, const float *a, const float 
  * "Lucas-Kanade 20 years on: a unifying framework", IJCV 56(3)). A small
  * motion dT after T moves g by -grad g . u(p), u(p) = dtheta J (p - c) +
  * ds (p - c) + dd. Both images come smoothed by a Gaussian of GN_SIGMA
- * pixels (smooth_pair(), once per pair, however many starts are refined):
+ * pixels (pair_apply(), once per pair, however many starts are refined):
  * it lowers the noise in the gradients and makes a difference in how the
  * two were sampled (a camera's pixel footprint, the simulator's bilinear
  * sampling) negligible. The result is kept only when
@@ -1690,20 +1233,31 @@ static int pair_apply(float **a_out, float **b_out, const float *a, const float 
 #define GN_MAX_MOVE 0.1     /* of the smaller side, in pixels at the corners */
 #define GN_NPAR 6           /* theta, dx, dy, a, b, s */
 
+/*
+ * The normal equations are summed over GN_SLICES fixed slices of the rows
+ * (one slice for images too small to share out), row by row within a
+ * slice and then slice by slice, whatever thread takes a slice: the
+ * result never depends on the thread count. Two halves: the split that
+ * two threads made when it followed the thread count, so that results
+ * computed then on two processors stay as they were.
+ */
+#define GN_SLICES 2u
+
 typedef struct gn_job {
     const float *f, *g;
     uint32_t w, h;
     double cx, cy, a, b;
     int npar;
-    double sums[MAX_THREADS][GN_NPAR * GN_NPAR + GN_NPAR + 1];
+    uint32_t slices;
+    double sums[GN_SLICES][GN_NPAR * GN_NPAR + GN_NPAR + 1];
 } gn_job;
 
-static void gn_rows(void *ctx, uint32_t y0, uint32_t y1, unsigned t)
+/* Rows [y0, y1) into the sums of slice `slice`. */
+static void gn_rows(gn_job *j, uint32_t slice, uint32_t y0, uint32_t y1)
 {
-    gn_job *j = ctx;
     int np = j->npar;
-    double *H = j->sums[t], *v = H + GN_NPAR * GN_NPAR;
-    memset(j->sums[t], 0, sizeof j->sums[t]);
+    double *H = j->sums[slice], *v = H + GN_NPAR * GN_NPAR;
+    memset(j->sums[slice], 0, sizeof j->sums[slice]);
     for (uint32_t y = y0 < 1 ? 1 : y0; y < y1 && y + 1 < j->h; y++)
         for (uint32_t x = 1; x + 1 < j->w; x++) {
             size_t p = (size_t)y * j->w + x;
@@ -1723,6 +1277,15 @@ static void gn_rows(void *ctx, uint32_t y0, uint32_t y1, unsigned t)
             }
             v[GN_NPAR] += 1.0;
         }
+}
+
+static void gn_slices(void *ctx, uint32_t b, uint32_t e, unsigned t)
+{
+    (void)t;
+    gn_job *j = ctx;
+    for (uint32_t s = b; s < e; s++)
+        gn_rows(j, s, (uint32_t)((uint64_t)j->h * s / j->slices),
+                (uint32_t)((uint64_t)j->h * (s + 1) / j->slices));
 }
 
 /* Solve the n x n system H x = v (lower triangle of H filled) by
@@ -1766,7 +1329,7 @@ static double corner_move(const pl_transform *a, const pl_transform *b, uint32_t
         double px = (k & 1) ? cx : -cx, py = (k & 2) ? cy : -cy, q[2][2];
         const pl_transform *t[2] = { a, b };
         for (int i = 0; i < 2; i++) {
-            double th = deg2rad(t[i]->rotation_deg), s = t[i]->scale;
+            double th = pl__deg2rad(t[i]->rotation_deg), s = t[i]->scale;
             q[i][0] = s * (cos(th) * px - sin(th) * py) + t[i]->dx;
             q[i][1] = s * (sin(th) * px + cos(th) * py) + t[i]->dy;
         }
@@ -1797,6 +1360,7 @@ static int refine_rigid(pl_transform *t, const float *fs, const float *ms, uint3
     j->cx = (w - 1.0) / 2.0;
     j->cy = (h - 1.0) / 2.0;
     j->npar = want_scale ? 6 : 5;
+    j->slices = np < PARALLEL_MIN_PIXELS ? 1 : GN_SLICES;
     resample_run(g, w, h, ms, w, h, &cur, interp);
     double ncc0 = pearson(fs, g, np, &cnt0);
     /* gain and offset to start from: least squares of f on g */
@@ -1815,9 +1379,9 @@ static int refine_rigid(pl_transform *t, const float *fs, const float *ms, uint3
     for (int it = 0; it < GN_MAX_ITER && var > 0.0 && !converged; it++) {
         if (it)
             resample_run(g, w, h, ms, w, h, &cur, interp);
-        parallel_for(nt, h, gn_rows, j);
+        pl_threads__for(nt, j->slices, gn_slices, j);
         double H[GN_NPAR * GN_NPAR] = { 0 }, v[GN_NPAR] = { 0 }, x[GN_NPAR], cnt = 0;
-        for (unsigned k = 0; k < (nt < 1 ? 1 : nt > MAX_THREADS ? MAX_THREADS : nt); k++) {
+        for (uint32_t k = 0; k < j->slices; k++) {
             for (int q = 0; q < GN_NPAR * GN_NPAR; q++)
                 H[q] += j->sums[k][q];
             for (int q = 0; q < GN_NPAR; q++)
@@ -1834,7 +1398,7 @@ static int refine_rigid(pl_transform *t, const float *fs, const float *ms, uint3
         double ndx = cs * cur.dx - sn * cur.dy + x[1], ndy = sn * cur.dx + cs * cur.dy + x[2];
         cur.dx = ndx;
         cur.dy = ndy;
-        cur.rotation_deg = wrap180(cur.rotation_deg + dth * 180.0 / M_PI);
+        cur.rotation_deg = wrap180(cur.rotation_deg + pl__rad2deg(dth));
         cur.scale *= 1.0 + ds;
         j->a += x[3];
         j->b += x[4];
@@ -2176,18 +1740,6 @@ static double unit_mm(const char *unit)
     return NAN;
 }
 
-static double dot3(const double a[3], const double b[3])
-{
-    return a[0] * b[0] + a[1] * b[1] + a[2] * b[2];
-}
-
-static void cross3(double o[3], const double a[3], const double b[3])
-{
-    o[0] = a[1] * b[2] - a[2] * b[1];
-    o[1] = a[2] * b[0] - a[0] * b[2];
-    o[2] = a[0] * b[1] - a[1] * b[0];
-}
-
 static int pitch_ok(const pl_map *m)
 {
     return isfinite(m->pitch_u) && isfinite(m->pitch_v) && m->pitch_u > 0.0 && m->pitch_v > 0.0;
@@ -2219,27 +1771,29 @@ int pl_register__nominal(pl_transform *t, const pl_map *b, const pl_map *c, pl_e
         return pl__err(err, PL_EINVAL, "%s map's pitch not known", pitch_ok(b) ? "current"
                                                                                  : "baseline");
     double nb[3], nc[3];
-    cross3(nb, pb->u, pb->v);
-    cross3(nc, pc->u, pc->v);
-    double cosn = dot3(nb, nc) / sqrt(dot3(nb, nb) * dot3(nc, nc));
-    if (!(cosn >= cos(deg2rad(1.0))))
+    pl__cross3(nb, pb->u, pb->v);
+    pl__cross3(nc, pc->u, pc->v);
+    double cosn = pl__dot3(nb, nc) / sqrt(pl__dot3(nb, nb) * pl__dot3(nc, nc));
+    if (!(cosn >= cos(pl__deg2rad(1.0))))
         return pl__err(err, PL_EINVAL,
                        "placements not coplanar: the map planes' normals differ by %.1f deg",
-                       acos(cosn < -1 ? -1 : cosn > 1 ? 1 : cosn) * 180.0 / M_PI);
+                       pl__rad2deg(acos(cosn < -1 ? -1 : cosn > 1 ? 1 : cosn)));
     double off[3];
     for (int k = 0; k < 3; k++)
         off[k] = pc->origin[k] * uc - pb->origin[k] * ub;
-    double lenb = sqrt(dot3(nb, nb)), normal = dot3(off, nb) / lenb;
+    double lenb = sqrt(pl__dot3(nb, nb)), normal = pl__dot3(off, nb) / lenb;
     double tol = fmax(1.0, 2.0 * fmax(b->pitch_u, b->pitch_v));
     if (fabs(normal) > tol)
         return pl__err(err, PL_EINVAL,
                        "placements not coplanar: origins %.2f mm apart along the normal "
                        "(at most %.2f mm)", fabs(normal), tol);
     double A[2][2] = {
-        { dot3(pb->u, pc->u) * c->pitch_u / b->pitch_u, dot3(pb->u, pc->v) * c->pitch_v / b->pitch_u },
-        { dot3(pb->v, pc->u) * c->pitch_u / b->pitch_v, dot3(pb->v, pc->v) * c->pitch_v / b->pitch_v },
+        { pl__dot3(pb->u, pc->u) * c->pitch_u / b->pitch_u,
+          pl__dot3(pb->u, pc->v) * c->pitch_v / b->pitch_u },
+        { pl__dot3(pb->v, pc->u) * c->pitch_u / b->pitch_v,
+          pl__dot3(pb->v, pc->v) * c->pitch_v / b->pitch_v },
     };
-    double tx = dot3(off, pb->u) / b->pitch_u, ty = dot3(off, pb->v) / b->pitch_v;
+    double tx = pl__dot3(off, pb->u) / b->pitch_u, ty = pl__dot3(off, pb->v) / b->pitch_v;
     double th = atan2(A[1][0] - A[0][1], A[0][0] + A[1][1]);
     double det = A[0][0] * A[1][1] - A[0][1] * A[1][0];
     if (!(det > 0.0))
@@ -2253,7 +1807,7 @@ int pl_register__nominal(pl_transform *t, const pl_map *b, const pl_map *c, pl_e
                        "(pitches %g x %g and %g x %g mm)",
                        c->pitch_u, c->pitch_v, b->pitch_u, b->pitch_v);
     double cx = ((double)b->width - 1.0) / 2.0, cy = ((double)b->height - 1.0) / 2.0;
-    t->rotation_deg = th * 180.0 / M_PI;
+    t->rotation_deg = pl__rad2deg(th);
     t->scale = s;
     t->dx = A[0][0] * cx + A[0][1] * cy + tx - cx;
     t->dy = A[1][0] * cx + A[1][1] * cy + ty - cy;
@@ -2306,7 +1860,7 @@ static int prefilter(float **out, const float *src, uint32_t w, uint32_t h, doub
     *out = NULL;
     if (!(scale < 0.95))
         return PL_OK;
-    return gauss_blur(out, src, w, h, sqrt(1.0 / (scale * scale) - 1.0) / 2.0);
+    return pl_filter__gauss(out, src, w, h, sqrt(1.0 / (scale * scale) - 1.0) / 2.0);
 }
 
 /* Resample src (sw x sh, a plane of the current map) onto the baseline
@@ -2331,9 +1885,12 @@ static int finish(pl_register_result *res, const pl_map *b, const pl_map *cur, i
     size_t np = (size_t)b->width * b->height, both = 0;
     float *al = malloc(np * sizeof *al), *cd = NULL, *own = NULL;
     /* despeckle before resampling: a resampled dead pixel is a blob */
-    int oom = !al || despeckle(&cd, pl_map_channel(cur, (uint32_t)ic), cur->width, cur->height)
+    int oom = !al
+              || pl_filter__despeckle(&cd, pl_map_channel(cur, (uint32_t)ic), cur->width,
+                                      cur->height)
               || resample_plane(al, b, cd, cur->width, cur->height, &res->transform, interp)
-              || (!bd && despeckle(&own, pl_map_channel(b, (uint32_t)ib), b->width, b->height));
+              || (!bd && pl_filter__despeckle(&own, pl_map_channel(b, (uint32_t)ib), b->width,
+                                              b->height));
     if (!oom)
         res->ncc = structure_ncc(bd ? bd : own, al, b->width, b->height, &both, &oom);
     free(al);
@@ -2380,7 +1937,7 @@ static int maps_ok(const pl_map *b, const pl_map *c, pl_err *err)
 /* The total transform: the residual r found after the nominal n. */
 static pl_transform compose(const pl_transform *r, const pl_transform *n)
 {
-    double th = deg2rad(r->rotation_deg), cs = cos(th), sn = sin(th);
+    double th = pl__deg2rad(r->rotation_deg), cs = cos(th), sn = sin(th);
     pl_transform t;
     t.rotation_deg = wrap180(r->rotation_deg + n->rotation_deg);
     t.scale = r->scale * n->scale;

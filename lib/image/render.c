@@ -8,6 +8,8 @@
 #include "image/render_int.h"
 
 #include "common/common_int.h"
+#include "common/filter_int.h"
+#include "common/num_int.h"
 #include "common/png_int.h"
 #include "plyledger/version.h"
 
@@ -21,10 +23,6 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-#ifndef M_PI
-#define M_PI 3.14159265358979323846
-#endif
 
 /* ---- colour science ---------------------------------------------------- */
 
@@ -458,53 +456,6 @@ PL_EXPORT void pl_colormap_rgb(pl_colormap cmap, double t, unsigned char rgb[3])
 
 /* ---- numbers for the labels ------------------------------------------- */
 
-static void swap_float(float *a, float *b)
-{
-    float t = *a;
-    *a = *b;
-    *b = t;
-}
-
-static float median_of_three(float a, float b, float c)
-{
-    if (a > b)
-        swap_float(&a, &b);
-    if (b > c)
-        swap_float(&b, &c);
-    if (a > b)
-        swap_float(&a, &b);
-    return b;
-}
-
-/*
- * The k-th smallest of v[0..n), leaving smaller values before index k and
- * larger ones after it (C. A. R. Hoare, 1961, "Algorithm 65: Find", with a
- * three-way partition so that a map full of equal values costs one pass).
- */
-static float select_kth(float *v, size_t n, size_t k)
-{
-    size_t lo = 0, hi = n;
-    while (hi - lo > 1) {
-        float pivot = median_of_three(v[lo], v[lo + (hi - lo) / 2], v[hi - 1]);
-        size_t lt = lo, i = lo, gt = hi;
-        while (i < gt) {
-            if (v[i] < pivot)
-                swap_float(&v[lt++], &v[i++]);
-            else if (v[i] > pivot)
-                swap_float(&v[i], &v[--gt]);
-            else
-                i++;
-        }
-        if (k < lt)
-            hi = lt;
-        else if (k >= gt)
-            lo = gt;
-        else
-            return pivot;
-    }
-    return v[k];
-}
-
 double pl_render__percentile(float *values, size_t n, double p)
 {
     assert(values && n > 0);
@@ -515,7 +466,7 @@ double pl_render__percentile(float *values, size_t n, double p)
         pos = (double)(n - 1);
     size_t k = (size_t)pos;
     double frac = pos - (double)k;
-    double lo = select_kth(values, n, k);
+    double lo = pl_filter__select_float(values, n, k);
     if (frac == 0.0 || k + 1 >= n)
         return lo;
     /* After selection everything past k is >= v[k]: the next order
@@ -1060,7 +1011,7 @@ typedef struct png_job {
     char msg[PL_PNG_MSG_SIZE];
 } png_job;
 
-static int write_png(png_job *job, FILE *fp, const pl_image *img)
+static int write_rgb_png(png_job *job, FILE *fp, const pl_image *img)
 {
     if (setjmp(png_jmpbuf(job->png)))
         return -1;
@@ -1094,7 +1045,7 @@ PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *e
         snprintf(job.msg, sizeof job.msg, "out of memory for the PNG writer");
         rc = -1;
     } else {
-        rc = write_png(&job, fp, img);
+        rc = write_rgb_png(&job, fp, img);
     }
     pl_png__destroy(&job.png, &job.info, 1);
     if (rc == 0 && fflush(fp) != 0) {

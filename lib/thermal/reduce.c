@@ -38,24 +38,21 @@
 #include "thermal/reduce_int.h"
 
 #include "common/common_int.h"
+#include "common/fft_int.h"
+#include "common/filter_int.h"
+#include "common/num_int.h"
+#include "common/threads_int.h"
 
 #include <assert.h>
 #include <cjson/cJSON.h>
 #include <float.h>
 #include <inttypes.h>
-#include <kiss_fftr.h>
 #include <math.h>
 #include <pthread.h>
-#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/mman.h>
-#include <unistd.h>
-
-#ifndef M_PI
-#define M_PI 3.14159265358979323846
-#endif
 
 #define BATCH_FRAMES 2u
 #define BLOCK_PIXELS 1024u
@@ -65,7 +62,6 @@
 #define SLAB_GOLDEN_STEPS 30
 #define FINISH_CHUNKS 32u
 #define FINISH_UNIT 16u /* blocks of PB pixels a unit of the per-pixel stage */
-#define MAX_THREADS 256u
 #define STREAM_SHARE 0.8 /* share of the progress fraction taken by the frames */
 
 /*
@@ -410,55 +406,6 @@ static int lsq(double *A, uint32_t m, uint32_t k, double *Z, uint32_t nrhs, doub
     return 0;
 }
 
-/* The kth smallest of a[0..n-1] (kth < n), reordering a so that no value
- * before position kth exceeds it: Hoare's selection (Hoare 1961,
- * "Algorithm 65: FIND", CACM 4(7)). */
-static double select_kth(double *a, size_t n, size_t kth)
-{
-    size_t lo = 0, hi = n - 1;
-    while (lo < hi) {
-        double pivot = a[lo + (hi - lo) / 2];
-        size_t i = lo, j = hi;
-        while (i <= j) {
-            while (a[i] < pivot)
-                i++;
-            while (a[j] > pivot)
-                j--;
-            if (i <= j) {
-                double t = a[i];
-                a[i] = a[j];
-                a[j] = t;
-                i++;
-                if (j == 0)
-                    break;
-                j--;
-            }
-        }
-        if (kth <= j)
-            hi = j;
-        else if (kth >= i)
-            lo = i;
-        else
-            break;
-    }
-    return a[kth];
-}
-
-/* The median of a[0..n-1] (n > 0), reordering a; for an even count the
- * mean of the two middle values, the lower being the largest value left
- * before the upper one by select_kth(). */
-static double median(double *a, size_t n)
-{
-    double hi = select_kth(a, n, n / 2);
-    if (n % 2)
-        return hi;
-    double lo = a[0];
-    for (size_t i = 1; i < n / 2; i++)
-        if (a[i] > lo)
-            lo = a[i];
-    return 0.5 * (lo + hi);
-}
-
 /* ---- the reducer ------------------------------------------------------- */
 
 typedef struct frame_role {
@@ -509,17 +456,10 @@ typedef struct scratch {
     unsigned char *valid;
     double *vals;   /* reference medians */
     float *fft_in;
-    kiss_fft_cpx *fft_out;
-    kiss_fftr_cfg fft;
+    pl_fft__cpx *fft_out;
+    pl_fft__rfft *fft;
     uint32_t masked, partial, no_phase;
 } scratch;
-
-typedef void (*job_fn)(pl_reducer *r, uint32_t part);
-
-typedef struct worker_arg {
-    pl_reducer *r;
-    uint32_t part;
-} worker_arg;
 
 /* Channel indices of the output map (-1: not produced). */
 typedef struct layout {
@@ -587,18 +527,9 @@ struct pl_reducer {
     frame_batch batch[2];
     uint32_t cur, job_batch;
 
-    /* worker threads */
-    uint32_t nthreads, started;
-    pthread_t *threads;
-    worker_arg *args;
-    pthread_mutex_t mu;
-    pthread_cond_t go, done;
-    uint64_t gen;
-    uint32_t busy;
-    int quit;
-    job_fn fn;
-    atomic_size_t next_unit; /* the running job's next unit */
-    size_t units;            /* and its count */
+    /* worker threads: the pool's participants, scratch ws[part] each */
+    pl_threads__pool *pool;
+    uint32_t nthreads;
 
     /* per-pixel stage */
     layout lay;
@@ -620,157 +551,83 @@ struct pl_reducer {
 
 /* ---- worker threads -----------------------------------------------------
  *
- * A job is a set of units (blocks of pixels, samples) handed out one at a
- * time through an atomic counter. The caller's thread starts the job on
- * the nthreads - 1 workers and works on it too, as participant
- * nthreads - 1: while streaming it first reads the next frames, then joins
- * in on what is left of the running batch, so reading and accumulating
- * share the cores without a third thread in the way. Which thread takes a
- * unit never changes what the unit computes.
+ * The work goes to a pool (common/threads_int.h) in units: blocks of
+ * pixels, samples. The caller's thread starts a job on the workers and
+ * works on it too, as the pool's last participant: while streaming it
+ * first reads the next frames, then joins in on what is left of the
+ * running batch, so reading and accumulating share the cores without a
+ * third thread in the way. Which thread takes a unit never changes what
+ * the unit computes.
  */
-
-static void *worker_main(void *p)
-{
-    worker_arg *a = p;
-    pl_reducer *r = a->r;
-    uint64_t seen = 0;
-    pthread_mutex_lock(&r->mu);
-    for (;;) {
-        while (!r->quit && r->gen == seen)
-            pthread_cond_wait(&r->go, &r->mu);
-        if (r->quit)
-            break;
-        seen = r->gen;
-        job_fn fn = r->fn;
-        pthread_mutex_unlock(&r->mu);
-        fn(r, a->part);
-        pthread_mutex_lock(&r->mu);
-        if (--r->busy == 0)
-            pthread_cond_broadcast(&r->done);
-    }
-    pthread_mutex_unlock(&r->mu);
-    return NULL;
-}
-
-/* Wait until the workers have left the running job (the caller's share
- * must be done: call pool_help() first). */
-static void pool_wait(pl_reducer *r)
-{
-    pthread_mutex_lock(&r->mu);
-    while (r->busy)
-        pthread_cond_wait(&r->done, &r->mu);
-    r->fn = NULL;
-    pthread_mutex_unlock(&r->mu);
-}
-
-/* Start `fn` over `units` units on every worker and return at once;
- * pool_help() and pool_wait() finish it. */
-static void pool_start(pl_reducer *r, job_fn fn, size_t units)
-{
-    pthread_mutex_lock(&r->mu);
-    while (r->busy)
-        pthread_cond_wait(&r->done, &r->mu);
-    atomic_store(&r->next_unit, 0);
-    r->units = units;
-    r->fn = fn;
-    r->busy = r->started;
-    r->gen++;
-    pthread_cond_broadcast(&r->go);
-    pthread_mutex_unlock(&r->mu);
-}
-
-/* The caller's share of the running job, if any: units until none is left. */
-static void pool_help(pl_reducer *r)
-{
-    pthread_mutex_lock(&r->mu);
-    job_fn fn = r->fn;
-    pthread_mutex_unlock(&r->mu);
-    if (fn)
-        fn(r, r->nthreads - 1);
-}
-
-static void pool_run(pl_reducer *r, job_fn fn, size_t units)
-{
-    pool_start(r, fn, units);
-    pool_help(r);
-    pool_wait(r);
-}
-
-/* The next unit of the running job, or SIZE_MAX when none is left. */
-static size_t take_unit(pl_reducer *r)
-{
-    size_t u = atomic_fetch_add(&r->next_unit, 1);
-    return u < r->units ? u : SIZE_MAX;
-}
 
 /* ---- streaming ---------------------------------------------------------- */
 
-ROW_KERNEL static void batch_job(pl_reducer *r, uint32_t part)
+/* One block of BLOCK_PIXELS pixels of the batch being accumulated. */
+ROW_KERNEL static void batch_unit(void *ctx, size_t unit, unsigned part)
 {
     (void)part;
+    pl_reducer *r = ctx;
     const frame_batch *b = &r->batch[r->job_batch];
     size_t npix = r->npix;
-    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
-        size_t q0 = unit * BLOCK_PIXELS, q1 = q0 + BLOCK_PIXELS < npix ? q0 + BLOCK_PIXELS : npix;
-        for (uint32_t f = 0; f < b->count; f++) {
-            const frame_role *ro = &r->role[b->index[f]];
-            const float *restrict v = b->frames + (size_t)f * npix;
-            if (ro->pre) {
+    size_t q0 = unit * BLOCK_PIXELS, q1 = q0 + BLOCK_PIXELS < npix ? q0 + BLOCK_PIXELS : npix;
+    for (uint32_t f = 0; f < b->count; f++) {
+        const frame_role *ro = &r->role[b->index[f]];
+        const float *restrict v = b->frames + (size_t)f * npix;
+        if (ro->pre) {
+            for (size_t p = q0; p < q1; p++)
+                if (isfinite(v[p])) {
+                    r->cold_sum[p] += v[p];
+                    r->cold_n[p]++;
+                }
+            if (ro->last_pre)
                 for (size_t p = q0; p < q1; p++)
-                    if (isfinite(v[p])) {
-                        r->cold_sum[p] += v[p];
-                        r->cold_n[p]++;
-                    }
-                if (ro->last_pre)
-                    for (size_t p = q0; p < q1; p++)
-                        r->cold[p] = r->cold_n[p] ? (float)(r->cold_sum[p] / r->cold_n[p]) : NAN;
-                continue;
-            }
-            float *restrict al = r->acc_l, *restrict ap = r->acc_p, *restrict as = r->acc_s;
-            const float *restrict cold = r->cold;
-            /* two frames of one segment in one pass, the sums in the same
-             * order as one frame at a time */
-            const frame_role *next = f + 1 < b->count ? &r->role[b->index[f + 1]] : NULL;
-            if (next && !ro->close_s && !next->pre) {
-                const float *restrict v1 = v + npix;
-                for (size_t p = q0; p < q1; p++)
-                    as[p] = (as[p] + (v[p] - cold[p])) + (v1[p] - cold[p]);
-                ro = next;
-                f++;
+                    r->cold[p] = r->cold_n[p] ? (float)(r->cold_sum[p] / r->cold_n[p]) : NAN;
+            continue;
+        }
+        float *restrict al = r->acc_l, *restrict ap = r->acc_p, *restrict as = r->acc_s;
+        const float *restrict cold = r->cold;
+        /* two frames of one segment in one pass, the sums in the same
+         * order as one frame at a time */
+        const frame_role *next = f + 1 < b->count ? &r->role[b->index[f + 1]] : NULL;
+        if (next && !ro->close_s && !next->pre) {
+            const float *restrict v1 = v + npix;
+            for (size_t p = q0; p < q1; p++)
+                as[p] = (as[p] + (v[p] - cold[p])) + (v1[p] - cold[p]);
+            ro = next;
+            f++;
+        } else {
+            for (size_t p = q0; p < q1; p++)
+                as[p] += v[p] - cold[p];
+        }
+        if (ro->close_s) {
+            if (ro->lbin >= 0 && ro->pbin >= 0) {
+                for (size_t p = q0; p < q1; p++) {
+                    al[p] += as[p];
+                    ap[p] += as[p];
+                    as[p] = 0.0f;
+                }
             } else {
-                for (size_t p = q0; p < q1; p++)
-                    as[p] += v[p] - cold[p];
-            }
-            if (ro->close_s) {
-                if (ro->lbin >= 0 && ro->pbin >= 0) {
-                    for (size_t p = q0; p < q1; p++) {
-                        al[p] += as[p];
-                        ap[p] += as[p];
-                        as[p] = 0.0f;
-                    }
-                } else {
-                    float *restrict acc = ro->lbin >= 0 ? al : ap;
-                    for (size_t p = q0; p < q1; p++) {
-                        acc[p] += as[p];
-                        as[p] = 0.0f;
-                    }
-                }
-            }
-            if (ro->close_l) {
-                float inv = r->inv_l[ro->lbin];
-                float *restrict dst = r->bins_l + (size_t)ro->lbin * npix;
+                float *restrict acc = ro->lbin >= 0 ? al : ap;
                 for (size_t p = q0; p < q1; p++) {
-                    dst[p] = fast_logf(al[p] * inv);
-                    al[p] = 0.0f;
+                    acc[p] += as[p];
+                    as[p] = 0.0f;
                 }
             }
-            if (ro->close_p) {
-                float inv = r->inv_p[ro->pbin];
-                float *restrict dst = r->bins_p + (size_t)ro->pbin * npix;
-                for (size_t p = q0; p < q1; p++) {
-                    dst[p] = ap[p] * inv;
-                    ap[p] = 0.0f;
-                }
+        }
+        if (ro->close_l) {
+            float inv = r->inv_l[ro->lbin];
+            float *restrict dst = r->bins_l + (size_t)ro->lbin * npix;
+            for (size_t p = q0; p < q1; p++) {
+                dst[p] = fast_logf(al[p] * inv);
+                al[p] = 0.0f;
+            }
+        }
+        if (ro->close_p) {
+            float inv = r->inv_p[ro->pbin];
+            float *restrict dst = r->bins_p + (size_t)ro->pbin * npix;
+            for (size_t p = q0; p < q1; p++) {
+                dst[p] = ap[p] * inv;
+                ap[p] = 0.0f;
             }
         }
     }
@@ -781,10 +638,10 @@ ROW_KERNEL static void batch_job(pl_reducer *r, uint32_t part)
  * reading into the other buffer. */
 static void submit_batch(pl_reducer *r)
 {
-    pool_help(r);
-    pool_wait(r);
+    pl_threads__pool_help(r->pool);
+    pl_threads__pool_wait(r->pool);
     r->job_batch = r->cur;
-    pool_start(r, batch_job, (r->npix + BLOCK_PIXELS - 1) / BLOCK_PIXELS);
+    pl_threads__pool_start(r->pool, batch_unit, r, (r->npix + BLOCK_PIXELS - 1) / BLOCK_PIXELS);
     r->cur ^= 1u;
     r->batch[r->cur].count = 0;
 }
@@ -852,7 +709,7 @@ static int commit_frame(pl_reducer *r, uint32_t index, pl_err *err)
         submit_batch(r);
         if (r->opt.progress &&
             r->opt.progress(r->opt.progress_data, STREAM_SHARE * r->fed / r->nneeded)) {
-            pool_wait(r);
+            pl_threads__pool_wait(r->pool);
             pl__err(err, PL_ECANCELED, "reduction: cancelled at frame %u", index);
             return fail(r, PL_ECANCELED);
         }
@@ -1243,29 +1100,16 @@ static void make_layout(pl_reducer *r)
     l->nchannels = (uint32_t)c;
 }
 
+/* The pool: opt.threads participants (0: one per online processor), no
+ * more than rows. */
 static int start_threads(pl_reducer *r, pl_err *err)
 {
-    uint32_t n = r->opt.threads;
-    if (n == 0) {
-        long cpus = sysconf(_SC_NPROCESSORS_ONLN);
-        n = cpus > 0 ? (uint32_t)cpus : 1u;
-    }
-    if (n > MAX_THREADS)
-        n = MAX_THREADS;
+    unsigned n = pl_threads__count(r->opt.threads);
     if (n > r->height)
         n = r->height;
-    r->nthreads = n;
-    r->threads = calloc(n, sizeof *r->threads);
-    r->args = calloc(n, sizeof *r->args);
-    if (!r->threads || !r->args)
+    if (pl_threads__pool_new(&r->pool, n))
         return pl__err(err, PL_ENOMEM, "reduction: out of memory");
-    for (uint32_t i = 0; i + 1 < n; i++) { /* the caller's thread is participant n - 1 */
-        r->args[i].r = r;
-        r->args[i].part = i;
-        if (pthread_create(&r->threads[i], NULL, worker_main, &r->args[i]))
-            return pl__err(err, PL_ENOMEM, "reduction: cannot start worker thread %u", i + 1);
-        r->started++;
-    }
+    r->nthreads = pl_threads__pool_size(r->pool);
     return PL_OK;
 }
 
@@ -1343,9 +1187,6 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     pl_reducer *r = calloc(1, sizeof *r);
     if (!r)
         return pl__err(err, PL_ENOMEM, "reduction: out of memory");
-    pthread_mutex_init(&r->mu, NULL);
-    pthread_cond_init(&r->go, NULL);
-    pthread_cond_init(&r->done, NULL);
     r->width = width;
     r->height = height;
     r->npix = (size_t)width * height;
@@ -1438,20 +1279,7 @@ PL_EXPORT void pl_reducer_free(pl_reducer *r)
 {
     if (!r)
         return;
-    if (r->started) {
-        pool_wait(r);
-        pthread_mutex_lock(&r->mu);
-        r->quit = 1;
-        pthread_cond_broadcast(&r->go);
-        pthread_mutex_unlock(&r->mu);
-        for (uint32_t i = 0; i < r->started; i++)
-            pthread_join(r->threads[i], NULL);
-    }
-    pthread_mutex_destroy(&r->mu);
-    pthread_cond_destroy(&r->go);
-    pthread_cond_destroy(&r->done);
-    free(r->threads);
-    free(r->args);
+    pl_threads__pool_free(r->pool);
     free(r->times);
     free(r->role);
     free(r->edges);
@@ -1748,7 +1576,7 @@ ROW_KERNEL static void phase_block(const pl_reducer *r, scratch *ws, size_t p0, 
             for (uint32_t m = 0; m < M; m++)
                 ws->fft_in[m] = (float)ws->Ud[(size_t)m * PB + j];
             fill_phase(r, ws->fft_in);
-            kiss_fftr(ws->fft, ws->fft_in, ws->fft_out);
+            pl_fft__rfft_forward(ws->fft, ws->fft_in, ws->fft_out);
             for (uint32_t f = 0; f < nf; f++) {
                 ws->F[(size_t)(2 * f) * PB + j] = ws->fft_out[f + 1].r;
                 ws->F[(size_t)(2 * f + 1) * PB + j] = ws->fft_out[f + 1].i;
@@ -2246,13 +2074,12 @@ static void finish_pixels(pl_reducer *r, uint32_t part, size_t p0, size_t p1)
 
 /* One unit of the per-pixel stage: FINISH_UNIT blocks of PB pixels of the
  * chunk [r->chunk0, r->chunk1). */
-static void finish_job(pl_reducer *r, uint32_t part)
+static void finish_unit(void *ctx, size_t unit, unsigned part)
 {
-    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
-        size_t p0 = r->chunk0 + unit * FINISH_UNIT * PB;
-        size_t p1 = p0 + FINISH_UNIT * PB < r->chunk1 ? p0 + FINISH_UNIT * PB : r->chunk1;
-        finish_pixels(r, part, p0, p1);
-    }
+    pl_reducer *r = ctx;
+    size_t p0 = r->chunk0 + unit * FINISH_UNIT * PB;
+    size_t p1 = p0 + FINISH_UNIT * PB < r->chunk1 ? p0 + FINISH_UNIT * PB : r->chunk1;
+    finish_pixels(r, part, p0, p1);
 }
 
 static void free_one_scratch(scratch *w)
@@ -2278,7 +2105,7 @@ static void free_one_scratch(scratch *w)
     free(w->vals);
     free(w->fft_in);
     free(w->fft_out);
-    kiss_fftr_free(w->fft);
+    pl_fft__rfft_free(w->fft);
 }
 
 static void free_scratch(pl_reducer *r)
@@ -2316,8 +2143,7 @@ static int alloc_one_scratch(const pl_reducer *r, scratch *w)
     if (r->M && !r->direct) {
         w->fft_in = alloc_array(r->M, sizeof *w->fft_in, &bad);
         w->fft_out = alloc_array(r->M / 2 + 1, sizeof *w->fft_out, &bad);
-        w->fft = kiss_fftr_alloc((int)r->M, 0, NULL, NULL);
-        bad |= !w->fft;
+        bad |= pl_fft__rfft_new(&w->fft, r->M) != PL_OK;
     }
     return bad ? -1 : 0;
 }
@@ -2369,33 +2195,32 @@ static size_t keep_valid_pixels(const pl_reducer *r, size_t *pix, size_t np,
 
 /* One sample of the reference curve a unit: log-spaced samples first,
  * then the filled uniform bins. */
-static void reference_job(pl_reducer *r, uint32_t part)
+static void reference_unit(void *ctx, size_t unit, unsigned part)
 {
+    pl_reducer *r = ctx;
     size_t np = r->ref_np;
     const size_t *pix = r->ref_pix;
     double *vals = r->ws[part].vals;
-    for (size_t unit; (unit = take_unit(r)) != SIZE_MAX;) {
-        uint32_t q = (uint32_t)unit;
-        int log_sample = q < r->nused;
-        const float *row = sample_row(r, q);
-        if (!row)
-            continue;
-        double v;
-        if (r->ref_region) {
-            double s = 0.0;
-            for (size_t i = 0; i < np; i++)
-                s += log_sample ? exp((double)row[pix[i]]) : row[pix[i]];
-            v = log_sample ? log(s / np) : s / np;
-        } else {
-            for (size_t i = 0; i < np; i++)
-                vals[i] = row[pix[i]];
-            v = median(vals, np);
-        }
-        if (log_sample)
-            r->zref[q] = v;
-        else
-            r->pref[q - r->nused] = (float)v;
+    uint32_t q = (uint32_t)unit;
+    int log_sample = q < r->nused;
+    const float *row = sample_row(r, q);
+    if (!row)
+        return;
+    double v;
+    if (r->ref_region) {
+        double s = 0.0;
+        for (size_t i = 0; i < np; i++)
+            s += log_sample ? exp((double)row[pix[i]]) : row[pix[i]];
+        v = log_sample ? log(s / np) : s / np;
+    } else {
+        for (size_t i = 0; i < np; i++)
+            vals[i] = row[pix[i]];
+        v = pl_filter__median_double(vals, np);
     }
+    if (log_sample)
+        r->zref[q] = v;
+    else
+        r->pref[q - r->nused] = (float)v;
 }
 
 /* The sound reference: per sample, the mean rise over the region, or the
@@ -2445,7 +2270,7 @@ static int make_reference(pl_reducer *r, pl_err *err)
         return pl__err(err, PL_EINVAL,
                        r->ref_region ? "reduction: the reference region holds no valid pixel"
                                      : "reduction: no pixel has a valid cooling curve");
-    pool_run(r, reference_job, r->nused + r->M);
+    pl_threads__pool_run(r->pool, reference_unit, r, r->nused + r->M);
     for (uint32_t i = 0; i < r->k; i++) {
         double acc = 0.0;
         for (uint32_t b = 0; b < r->nused; b++)
@@ -2468,8 +2293,8 @@ static int make_reference(pl_reducer *r, pl_err *err)
                 r->ref_phase[f] = atan2(im, re);
             }
         } else {
-            kiss_fft_cpx *F = r->ws[0].fft_out;
-            kiss_fftr(r->ws[0].fft, r->pref, F);
+            pl_fft__cpx *F = r->ws[0].fft_out;
+            pl_fft__rfft_forward(r->ws[0].fft, r->pref, F);
             for (uint32_t f = 0; f < r->nfreq; f++)
                 r->ref_phase[f] = atan2(F[f + 1].i, F[f + 1].r);
         }
@@ -2660,8 +2485,8 @@ static int finish(pl_reducer *r, pl_map **map, char **parameters, const pl_seq *
         return pl__err(err, PL_EINVAL, "reduction: already finished");
     if (r->batch[r->cur].count)
         submit_batch(r);
-    pool_help(r);
-    pool_wait(r);
+    pl_threads__pool_help(r->pool);
+    pl_threads__pool_wait(r->pool);
     if (r->next_needed < r->nframes) {
         pl__err(err, PL_EINVAL, "reduction: frame %u (t = %.6g s) and later needed frames missing",
                 r->next_needed, r->times[r->next_needed]);
@@ -2682,7 +2507,7 @@ static int finish(pl_reducer *r, pl_map **map, char **parameters, const pl_seq *
         if (r->chunk1 == r->chunk0)
             continue;
         size_t unit = (size_t)FINISH_UNIT * PB;
-        pool_run(r, finish_job, (r->chunk1 - r->chunk0 + unit - 1) / unit);
+        pl_threads__pool_run(r->pool, finish_unit, r, (r->chunk1 - r->chunk0 + unit - 1) / unit);
         if (r->opt.progress &&
             r->opt.progress(r->opt.progress_data,
                             STREAM_SHARE + (1.0 - STREAM_SHARE) * (c + 1) / FINISH_CHUNKS))

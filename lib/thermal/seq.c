@@ -9,13 +9,15 @@
  * saturation folded in), so a frame costs one read and one table look-up
  * per pixel.
  *
- * libpng reports errors by longjmp. As in map_png.c, each libpng session
- * keeps what it owns in a struct in the caller's frame, and the function
- * that calls setjmp() only fills that struct.
+ * libpng reports errors by longjmp (common/png_int.h sets it up): each
+ * libpng session keeps what it owns in a struct in the caller's frame,
+ * and the function that calls setjmp() only fills that struct.
  */
 #include "thermal/seq_int.h"
 
 #include "common/common_int.h"
+#include "common/num_int.h"
+#include "common/png_int.h"
 #include "image/npy_int.h"
 
 #include <cjson/cJSON.h>
@@ -23,7 +25,6 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <math.h>
-#include <png.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -67,14 +68,6 @@ struct pl_seq {
     size_t frame_path_cap;
     unsigned char **rows;   /* row pointers into raw */
 };
-
-static int host_big_endian(void)
-{
-    const uint16_t one = 1;
-    unsigned char b;
-    memcpy(&b, &one, 1);
-    return b == 0;
-}
 
 /* dir + "/" + name; a name that is absolute, or a dir that is empty, is
  * used as is. */
@@ -637,7 +630,7 @@ static int open_cube(pl_seq *s, const manifest *m, pl_err *err)
         return pl__err(err, PL_EFORMAT,
                        "%s: %llu bytes after the end of the %u x %u x %u cube", dp,
                        (unsigned long long)(have - need), s->nframes, s->height, s->width);
-    s->cube_native_f32 = h->dtype == PL_NPY_F32 && h->big_endian == host_big_endian();
+    s->cube_native_f32 = h->dtype == PL_NPY_F32 && h->big_endian == pl__host_big_endian();
     if (!s->cube_native_f32) {
         s->raw = malloc(s->frame_bytes);
         if (!s->raw)
@@ -652,18 +645,6 @@ static int open_cube(pl_seq *s, const manifest *m, pl_err *err)
 static uint32_t be32(const unsigned char *p)
 {
     return (uint32_t)p[0] << 24 | (uint32_t)p[1] << 16 | (uint32_t)p[2] << 8 | p[3];
-}
-
-static const char *colour_type_name(int ctype)
-{
-    switch (ctype) {
-    case 0: return "grayscale";
-    case 2: return "RGB";
-    case 3: return "palette";
-    case 4: return "grayscale with alpha";
-    case 6: return "RGB with alpha";
-    default: return "unknown";
-    }
 }
 
 static int set_frame_path(pl_seq *s, uint32_t index, pl_err *err)
@@ -717,7 +698,7 @@ static int check_png_frame(pl_seq *s, uint32_t index, pl_err *err)
     int depth = b[24], ctype = b[25], interlace = b[28];
     if (ctype != 0)
         return pl__err(err, PL_EFORMAT, "%s: frame %u: not a grayscale PNG (colour type %d, %s)",
-                       fp, index, ctype, colour_type_name(ctype));
+                       fp, index, ctype, pl_png__colour_type_name(ctype));
     if (depth != 16)
         return pl__err(err, PL_EFORMAT, "%s: frame %u: PNG bit depth %d; 16 expected", fp,
                        index, depth);
@@ -984,21 +965,8 @@ typedef struct png_job {
     FILE *f;
     png_structp png;
     png_infop info;
-    char msg[160];          /* libpng's own complaint */
+    char msg[PL_PNG_MSG_SIZE]; /* libpng's own complaint */
 } png_job;
-
-static void on_png_error(png_structp png, png_const_charp msg)
-{
-    png_job *j = png_get_error_ptr(png);
-    snprintf(j->msg, sizeof j->msg, "%s", msg ? msg : "unknown error");
-    png_longjmp(png, 1);
-}
-
-static void on_png_warning(png_structp png, png_const_charp msg)
-{
-    (void)png;
-    (void)msg;
-}
 
 /* The libpng part of reading a frame; see the introduction. */
 static int decode_png(png_job *j, pl_seq *s, uint32_t index, pl_err *err)
@@ -1037,14 +1005,11 @@ static int read_png_frame(pl_seq *s, uint32_t index, float *dst, uint32_t *nsat,
     if (!j.f)
         return pl__err(err, PL_EIO, "%s: frame %u: cannot open: %s", s->frame_path, index,
                        strerror(errno));
-    j.png = png_create_read_struct(PNG_LIBPNG_VER_STRING, &j, on_png_error, on_png_warning);
-    j.info = j.png ? png_create_info_struct(j.png) : NULL;
-    if (!j.png || !j.info)
+    if (pl_png__create(&j.png, &j.info, 0, j.msg))
         rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG reader", s->frame_path);
     else
         rc = decode_png(&j, s, index, err);
-    if (j.png)
-        png_destroy_read_struct(&j.png, j.info ? &j.info : NULL, NULL);
+    pl_png__destroy(&j.png, &j.info, 0);
     fclose(j.f);
     if (rc == PL_OK)
         *nsat = convert_counts(dst, s->raw, s->npixels, 1, s->lut, s->saturation);
@@ -1389,14 +1354,11 @@ static int write_png_frame(pl_seq_writer *w, pl_err *err)
     if (!j.f)
         return pl__err(err, PL_EIO, "%s: cannot create: %s", w->frame_path, strerror(errno));
     int rc;
-    j.png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &j, on_png_error, on_png_warning);
-    j.info = j.png ? png_create_info_struct(j.png) : NULL;
-    if (!j.png || !j.info)
+    if (pl_png__create(&j.png, &j.info, 1, j.msg))
         rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG writer", w->frame_path);
     else
         rc = encode_png(&j, w, err);
-    if (j.png)
-        png_destroy_write_struct(&j.png, j.info ? &j.info : NULL);
+    pl_png__destroy(&j.png, &j.info, 1);
     if (fclose(j.f) != 0 && rc == PL_OK)
         rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->frame_path, strerror(errno));
     return rc;

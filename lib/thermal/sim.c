@@ -6,20 +6,17 @@
 #include "thermal/sim_int.h"
 
 #include "common/common_int.h"
+#include "common/num_int.h"
+#include "common/strbuf_int.h"
+#include "common/threads_int.h"
 
 #include <cjson/cJSON.h>
 
 #include <errno.h>
 #include <math.h>
-#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <unistd.h>
-
-#ifndef M_PI
-#define M_PI 3.14159265358979323846
-#endif
 
 #define SCENE_FORMAT "plyledger-scene-1"
 #define TRUTH_FORMAT "plyledger-truth-1"
@@ -442,13 +439,14 @@ static int choice(jctx *c, const cJSON *obj, const char *where, const char *key,
                 *dst = i;
                 return PL_OK;
             }
-    char list[256] = "";
-    for (int i = 0; choices[i]; i++) {
-        size_t n = strlen(list);
-        snprintf(list + n, sizeof list - n, "%s\"%s\"", i ? ", " : "", choices[i]);
-    }
-    return pl__err(c->err, cJSON_IsString(v) ? PL_EINVAL : PL_EFORMAT,
-                   "%s: %s: \"%s\" must be one of %s", c->file, where, key, list);
+    pl_strbuf list = PL_STRBUF_INIT;
+    for (int i = 0; choices[i]; i++)
+        pl_strbuf__printf(&list, "%s\"%s\"", i ? ", " : "", choices[i]);
+    int rc = pl__err(c->err, cJSON_IsString(v) ? PL_EINVAL : PL_EFORMAT,
+                     "%s: %s: \"%s\" must be one of %s", c->file, where, key,
+                     pl_strbuf__str(&list));
+    pl_strbuf__release(&list);
+    return rc;
 }
 
 /* An optional string key copied into a fixed buffer; absent keeps *dst. */
@@ -1847,12 +1845,10 @@ typedef struct run {
     pl_sim__model *m;
     double *times;           /* times[0] = t0 ... times[nsteps] = last frame */
     size_t nsteps;
-    unsigned nthreads;
+    pl_threads__pool *pool;
+    unsigned nthreads;       /* scratch[nthreads], one per participant */
     double **scratch;
-    pthread_barrier_t barrier;
-    pthread_mutex_t gate_lock;
-    pthread_cond_t gate_cond;
-    int gate_open, gate_abandon;
+    double dt, theta;        /* the step being taken */
     int stop, status;
 
     pl_sim_frame_fn frame;
@@ -1873,12 +1869,7 @@ typedef struct run {
     uint32_t next_frame;
 } run;
 
-typedef struct worker_arg {
-    run *r;
-    unsigned tid;
-} worker_arg;
-
-/* Stop the run with `code` (thread 0 only). */
+/* Stop the run with `code` (the caller's thread only). */
 static void halt(run *r, int code)
 {
     if (!r->stop) {
@@ -1902,9 +1893,10 @@ static void deliver(run *r, uint32_t f, const double *dt)
         halt(r, rc < 0 ? rc : PL_ECANCELED);
 }
 
-/* Thread 0, with the model at times[st]: sample the viewed face, hand over
- * every frame up to this time (interpolated from the previous state, in
- * log rise against log time where both are positive), report progress. */
+/* The caller's thread, with the model at times[st]: sample the viewed
+ * face, hand over every frame up to this time (interpolated from the
+ * previous state, in log rise against log time where both are positive),
+ * report progress. */
 static void emit(run *r, size_t st)
 {
     const pl_sim__model *m = r->m;
@@ -1949,42 +1941,42 @@ static void emit(run *r, size_t st)
         halt(r, PL_ECANCELED);
 }
 
-static void advance(run *r, unsigned tid)
+/* One plane's sweeps along x and y in the step being taken. */
+static void plane_unit(void *ctx, size_t k, unsigned part)
 {
-    pl_sim__model *m = r->m;
-    unsigned n = r->nthreads;
-    size_t k0 = m->nz * tid / n, k1 = m->nz * (tid + 1) / n;
-    size_t y0 = m->ny * tid / n, y1 = m->ny * (tid + 1) / n;
-    double *cp = r->scratch[tid];
-    for (size_t st = 1; st <= r->nsteps; st++) {
-        if (tid == 0)
-            emit(r, st - 1);
-        double dt = r->times[st] - r->times[st - 1];
-        double theta = st <= 2 ? 1.0 : 0.5;
-        for (size_t k = k0; k < k1; k++)
-            plane_sweeps(m, k, dt, theta, cp);
-        pthread_barrier_wait(&r->barrier);
-        if (r->stop)
-            return;
-        column_sweeps(m, y0, y1, dt, theta, cp);
-        pthread_barrier_wait(&r->barrier);
-    }
-    if (tid == 0)
-        emit(r, r->nsteps);
+    run *r = ctx;
+    plane_sweeps(r->m, k, r->dt, r->theta, r->scratch[part]);
 }
 
-static void *worker_main(void *p)
+/* One row of grid columns swept through the thickness. */
+static void column_unit(void *ctx, size_t y, unsigned part)
 {
-    worker_arg *a = p;
-    run *r = a->r;
-    pthread_mutex_lock(&r->gate_lock);
-    while (!r->gate_open && !r->gate_abandon)
-        pthread_cond_wait(&r->gate_cond, &r->gate_lock);
-    int go = r->gate_open && a->tid < r->nthreads;
-    pthread_mutex_unlock(&r->gate_lock);
-    if (go)
-        advance(r, a->tid);
-    return NULL;
+    run *r = ctx;
+    column_sweeps(r->m, y, y + 1, r->dt, r->theta, r->scratch[part]);
+}
+
+/*
+ * The time steps on the pool. Each step's plane sweeps start on the
+ * workers while the caller's thread hands over the frames up to the
+ * step's start (emit() only reads the temperatures, which the plane
+ * sweeps leave as they are), then joins them; the column sweeps follow.
+ * Planes and rows are independent, so the result does not depend on the
+ * thread count.
+ */
+static void advance(run *r)
+{
+    for (size_t st = 1; st <= r->nsteps; st++) {
+        r->dt = r->times[st] - r->times[st - 1];
+        r->theta = st <= 2 ? 1.0 : 0.5;
+        pl_threads__pool_start(r->pool, plane_unit, r, r->m->nz);
+        emit(r, st - 1);
+        pl_threads__pool_help(r->pool);
+        pl_threads__pool_wait(r->pool);
+        if (r->stop)
+            return;
+        pl_threads__pool_run(r->pool, column_unit, r, r->m->ny);
+    }
+    emit(r, r->nsteps);
 }
 
 /* Mark exactly round(fraction * pixels) dead pixels, drawn from the seed
@@ -2128,13 +2120,7 @@ int pl_sim__run(const pl_sim_scene *scene, pl_sim_frame_fn frame, void *frame_ud
     int rc = pl_sim__model_new(&r.m, scene, err);
     if (rc)
         return rc;
-    unsigned want = scene->threads;
-    if (want == 0) {
-        long cpus = sysconf(_SC_NPROCESSORS_ONLN);
-        want = cpus < 1 ? 1 : cpus > 8 ? 8 : (unsigned)cpus;
-    }
-    if (want > 8)
-        want = 8;
+    unsigned want = pl_threads__count(scene->threads);
     if (want > r.m->nz)
         want = (unsigned)r.m->nz;
     if (want > r.m->ny)
@@ -2152,50 +2138,15 @@ int pl_sim__run(const pl_sim_scene *scene, pl_sim_frame_fn frame, void *frame_ud
             run_release(&r);
             return pl__err(err, PL_ENOMEM, "out of memory");
         }
-
-    /* Workers wait at a gate until the team is complete; if a thread
-     * cannot be started, the run goes on with those that were. */
-    pthread_t th[8];
-    worker_arg args[8];
-    unsigned started = 0;
-    pthread_mutex_init(&r.gate_lock, NULL);
-    pthread_cond_init(&r.gate_cond, NULL);
-    for (unsigned i = 1; i < want; i++) {
-        args[i].r = &r;
-        args[i].tid = i;
-        if (pthread_create(&th[i], NULL, worker_main, &args[i]) != 0)
-            break;
-        started++;
+    /* a worker that cannot be started leaves the pool smaller */
+    if (pl_threads__pool_new(&r.pool, want)) {
+        run_release(&r);
+        return pl__err(err, PL_ENOMEM, "out of memory");
     }
-    pthread_mutex_lock(&r.gate_lock);
-    r.nthreads = started + 1;
-    int barrier_rc = pthread_barrier_init(&r.barrier, NULL, r.nthreads);
-    if (barrier_rc != 0 && started > 0) {
-        /* no barrier for the team: send the workers home, go alone */
-        r.nthreads = 1;
-        barrier_rc = pthread_barrier_init(&r.barrier, NULL, 1);
-    }
-    if (barrier_rc == 0)
-        r.gate_open = 1;
-    else
-        r.gate_abandon = 1;
-    pthread_cond_broadcast(&r.gate_cond);
-    pthread_mutex_unlock(&r.gate_lock);
-
-    if (barrier_rc == 0)
-        advance(&r, 0);
-
-    for (unsigned i = 1; i <= started; i++)
-        pthread_join(th[i], NULL);
-    if (barrier_rc == 0)
-        pthread_barrier_destroy(&r.barrier);
-    pthread_cond_destroy(&r.gate_cond);
-    pthread_mutex_destroy(&r.gate_lock);
-    r.nthreads = want; /* for releasing the scratch */
-    rc = barrier_rc == 0 ? r.status : PL_ENOMEM;
+    advance(&r);
+    pl_threads__pool_free(r.pool);
+    rc = r.status;
     run_release(&r);
-    if (barrier_rc != 0)
-        return pl__err(err, rc, "%s: cannot synchronise worker threads", scene->name);
     if (rc == PL_ECANCELED)
         return pl__err(err, rc, "%s: simulation canceled", scene->name);
     if (rc)

@@ -67,7 +67,7 @@ PL_EXPORT int pl_npy_read_header(pl_npy_header *hdr, FILE *f, const char *name, 
  * numpy's spare room for a growing first axis) and a newline so the data
  * starts on a 64-byte boundary.
  * @return PL_OK, PL_EINVAL (ndim out of range, descr empty, longer than 15
- *         characters or holding a quote), PL_EIO.
+ *         characters or holding a quote), PL_ENOMEM, PL_EIO.
  */
 PL_EXPORT int pl_npy_write_header(FILE *f, const char *descr, int ndim,
                                   const uint64_t *shape, const char *name, pl_err *err);

@@ -93,9 +93,8 @@
  * is otherwise whitened into noise), refined on the unsmoothed maps, and
  * replaces the first answer only when it correlates clearly better.
  *
- * Work on images of 32768 pixels or more is shared by up to 4 threads
- * (one per online processor); results do not depend on their number
- * beyond float rounding.
+ * Work on images of 32768 pixels or more is shared by one thread per
+ * online processor (at most 256); results do not depend on their number.
  *
  * No-data (NaN) pixels are filled with the map's mean before the FFTs (so
  * they carry no structure); they never enter the refinement or the

@@ -197,7 +197,7 @@ PL_EXPORT void pl_sim_scene_info(const pl_sim_scene *scene, pl_sim_info *info);
 
 /**
  * Worker threads for runs of this scene: 0 (the default) uses one per
- * online processor, at most 8. The output does not depend on it.
+ * online processor, at most 256. The output does not depend on it.
  */
 PL_EXPORT void pl_sim_scene_set_threads(pl_sim_scene *scene, unsigned threads);
 
