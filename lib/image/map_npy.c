@@ -140,15 +140,14 @@ static int write_npy(const pl_map *map, FILE *f, const char *path, pl_err *err)
     return PL_OK;
 }
 
+PL_EXPORT int pl_map_write_npy(const pl_map *map, pl_outfile *of, pl_err *err)
+{
+    return write_npy(map, pl_outfile_stream(of), pl_outfile_path(of), err);
+}
+
 PL_EXPORT int pl_map_save_npy(const pl_map *map, const char *path, pl_err *err)
 {
-    FILE *f = fopen(path, "wb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot create: %s", path, strerror(errno));
-    int rc = write_npy(map, f, path, err);
-    if (fclose(f) != 0 && rc == PL_OK)
-        rc = pl__err(err, PL_EIO, "%s: cannot write: %s", path, strerror(errno));
-    if (rc)
-        remove(path);
-    return rc;
+    pl_outfile *of;
+    int rc = pl_outfile_open(&of, path, err);
+    return rc ? rc : pl_outfile_finish(of, write_npy(map, pl_outfile_stream(of), path, err), err);
 }

@@ -34,36 +34,32 @@ typedef struct png_job {
     char msg[PL_PNG_MSG_SIZE]; /* libpng's own complaint */
 } png_job;
 
-/* Open `path` for reading or writing and make libpng's structs for it.
- * Whatever the outcome, the job is then ready for job_end(). */
-static int job_begin(png_job *j, const char *path, int writing, pl_err *err)
+/* Open `path` for reading, or take the stream `wf` of an output file for
+ * writing, and make libpng's structs. Whatever the outcome, the job is
+ * then ready for job_end(). */
+static int job_begin(png_job *j, const char *path, FILE *wf, pl_err *err)
 {
     memset(j, 0, sizeof *j);
     j->path = path;
-    j->writing = writing;
-    j->f = fopen(path, writing ? "wb" : "rb");
+    j->writing = wf != NULL;
+    j->f = wf ? wf : fopen(path, "rb");
     if (!j->f)
-        return pl__err(err, PL_EIO, "%s: cannot %s: %s", path, writing ? "create" : "open",
-                       strerror(errno));
-    if (pl_png__create(&j->png, &j->info, writing, j->msg))
+        return pl__err(err, PL_EIO, "%s: cannot open: %s", path, strerror(errno));
+    if (pl_png__create(&j->png, &j->info, j->writing, j->msg))
         return pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG %s", path,
-                       writing ? "writer" : "reader");
+                       j->writing ? "writer" : "reader");
     return PL_OK;
 }
 
-/* Free the job and close its file; a written file must close cleanly, and
- * one whose writing failed is removed. Returns `rc` or the close error. */
-static int job_end(png_job *j, int rc, pl_err *err)
+/* Free the job and close a file it opened for reading; the output file a
+ * writing job borrowed stays with its owner. Returns `rc`. */
+static int job_end(png_job *j, int rc)
 {
     pl_png__destroy(&j->png, &j->info, j->writing);
     free(j->rows);
     free(j->image);
-    if (!j->f)
-        return rc;
-    if (fclose(j->f) != 0 && rc == PL_OK && j->writing)
-        rc = pl__err(err, PL_EIO, "%s: cannot write: %s", j->path, strerror(errno));
-    if (rc && j->writing)
-        remove(j->path);
+    if (j->f && !j->writing)
+        fclose(j->f);
     return rc;
 }
 
@@ -238,12 +234,12 @@ PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err)
 {
     *out = NULL;
     png_job j;
-    int rc = job_begin(&j, path, 0, err);
+    int rc = job_begin(&j, path, NULL, err);
     if (rc == PL_OK)
         rc = read_signature(&j, err);
     if (rc == PL_OK)
         rc = read_png(&j, out, err);
-    return job_end(&j, rc, err);
+    return job_end(&j, rc);
 }
 
 /* ---- writing ---------------------------------------------------------- */
@@ -312,8 +308,9 @@ static int write_gray_png(png_job *j, const pl_map *map, uint32_t c, png_texts *
     return PL_OK;
 }
 
-PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err)
+PL_EXPORT int pl_map_write_png(const pl_map *map, uint32_t c, pl_outfile *of, pl_err *err)
 {
+    const char *path = pl_outfile_path(of);
     if (c >= map->nchannels)
         return pl__err(err, PL_EINVAL, "%s: channel %lu does not exist (the map has %lu)",
                        path, (unsigned long)c, (unsigned long)map->nchannels);
@@ -341,8 +338,15 @@ PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, p
     }
 
     png_job j;
-    int rc = job_begin(&j, path, 1, err);
+    int rc = job_begin(&j, path, pl_outfile_stream(of), err);
     if (rc == PL_OK)
         rc = write_gray_png(&j, map, c, &t, offset, scale, err);
-    return job_end(&j, rc, err);
+    return job_end(&j, rc);
+}
+
+PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err)
+{
+    pl_outfile *of;
+    int rc = pl_outfile_open(&of, path, err);
+    return rc ? rc : pl_outfile_finish(of, pl_map_write_png(map, c, of, err), err);
 }

@@ -1032,12 +1032,9 @@ static int write_rgb_png(png_job *job, FILE *fp, const pl_image *img)
     return 0;
 }
 
-PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *err)
+PL_EXPORT int pl_image_write_png(const pl_image *img, pl_outfile *of, pl_err *err)
 {
-    assert(img && img->rgb && img->width > 0 && img->height > 0 && path);
-    FILE *fp = fopen(path, "wb");
-    if (!fp)
-        return pl__err(err, PL_EIO, "%s: cannot create the file (%s)", path, strerror(errno));
+    assert(img && img->rgb && img->width > 0 && img->height > 0 && of);
     png_job job;
     memset(&job, 0, sizeof job);
     int rc;
@@ -1045,18 +1042,18 @@ PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *e
         snprintf(job.msg, sizeof job.msg, "out of memory for the PNG writer");
         rc = -1;
     } else {
-        rc = write_rgb_png(&job, fp, img);
+        rc = write_rgb_png(&job, pl_outfile_stream(of), img);
     }
     pl_png__destroy(&job.png, &job.info, 1);
-    if (rc == 0 && fflush(fp) != 0) {
-        snprintf(job.msg, sizeof job.msg, "write failed (%s)", strerror(errno));
-        rc = -1;
-    }
-    if (fclose(fp) != 0 && rc == 0) {
-        snprintf(job.msg, sizeof job.msg, "write failed (%s)", strerror(errno));
-        rc = -1;
-    }
     if (rc)
-        return pl__err(err, PL_EIO, "%s: cannot write PNG: %s", path, job.msg);
+        return pl__err(err, PL_EIO, "%s: cannot write PNG: %s", pl_outfile_path(of), job.msg);
     return PL_OK;
+}
+
+PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *err)
+{
+    assert(img && img->rgb && img->width > 0 && img->height > 0 && path);
+    pl_outfile *of;
+    int rc = pl_outfile_open(&of, path, err);
+    return rc ? rc : pl_outfile_finish(of, pl_image_write_png(img, of, err), err);
 }

@@ -17,6 +17,7 @@
 
 #include "common/common_int.h"
 #include "common/num_int.h"
+#include "common/outfile_int.h"
 #include "common/png_int.h"
 #include "image/npy_int.h"
 
@@ -68,35 +69,6 @@ struct pl_seq {
     size_t frame_path_cap;
     unsigned char **rows;   /* row pointers into raw */
 };
-
-/* dir + "/" + name; a name that is absolute, or a dir that is empty, is
- * used as is. */
-static char *join_path(const char *dir, const char *name)
-{
-    if (name[0] == '/' || !dir || !dir[0])
-        return pl__strdup(name);
-    size_t n = strlen(dir) + strlen(name) + 2;
-    char *p = malloc(n);
-    if (p)
-        snprintf(p, n, "%s/%s", dir, name);
-    return p;
-}
-
-/* The folder part of a path ("a/b.json" -> "a", "b.json" -> "",
- * "/b.json" -> "/"). */
-static char *dir_of(const char *path)
-{
-    const char *slash = strrchr(path, '/');
-    if (!slash)
-        return pl__strdup("");
-    size_t n = slash == path ? 1 : (size_t)(slash - path);
-    char *d = malloc(n + 1);
-    if (d) {
-        memcpy(d, path, n);
-        d[n] = '\0';
-    }
-    return d;
-}
 
 /* The shortest of %.15g, %.16g, %.17g that reads back as `v`, for
  * messages: 0.1 rather than 0.10000000000000001. */
@@ -806,9 +778,9 @@ static int open_seq(pl_seq *s, const cJSON *root, pl_err *err)
     memset(&m, 0, sizeof m);
     int rc = parse_manifest(&m, root, s->path, err);
     if (rc == PL_OK) {
-        char *dir = dir_of(s->path);
+        char *dir = pl__path_dir(s->path);
         if (dir)
-            s->data_path = join_path(dir, m.data_file ? m.data_file : m.folder);
+            s->data_path = pl__path_join(dir, m.data_file ? m.data_file : m.folder);
         free(dir);
         if (!s->data_path)
             rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
@@ -1039,44 +1011,13 @@ struct pl_seq_writer {
     char *dir;              /* the manifest's folder ("" for the current one) */
     char *data_name;        /* name.npy or name-frames, as the manifest gives it */
     char *data_final;       /* dir + data_name */
-    char *data_tmp;         /* the file or folder being written */
-    FILE *f;                /* the cube being written */
+    char *data_tmp;         /* the frames folder being written */
+    pl_outfile *cube;       /* the cube being written */
     unsigned char *buf;     /* one frame, encoded */
     char *frame_path;       /* scratch */
     uint32_t written;
     int failed;
 };
-
-/* A new file or folder beside `final`, named so that nobody mistakes it for
- * a finished one; O_EXCL (or mkdir) makes the name ours. Returns the open
- * descriptor for a file, 0 for a folder, -1 with errno. */
-static int create_temp(char **out, const char *dir, const char *name, int folder)
-{
-    *out = NULL;
-    for (int k = 0; k < 1000; k++) {
-        char leaf[512];
-        snprintf(leaf, sizeof leaf, ".%s.%ld-%d.partial", name, (long)getpid(), k);
-        char *p = join_path(dir, leaf);
-        if (!p) {
-            errno = ENOMEM;
-            return -1;
-        }
-        int fd;
-        if (folder)
-            fd = mkdir(p, 0777);
-        else
-            fd = open(p, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
-        if (fd >= 0) {
-            *out = p;
-            return fd;
-        }
-        free(p);
-        if (errno != EEXIST)
-            return -1;
-    }
-    errno = EEXIST;
-    return -1;
-}
 
 /* Is `n` a frame file name the writer makes: prefix, digits, suffix? */
 static int is_frame_name(const char *n)
@@ -1103,7 +1044,7 @@ static int remove_frames_folder(const char *path)
     while ((e = readdir(d)) != NULL) {
         if (!is_frame_name(e->d_name))
             continue;
-        char *fp = join_path(path, e->d_name);
+        char *fp = pl__path_join(path, e->d_name);
         if (fp)
             unlink(fp);
         free(fp);
@@ -1132,16 +1073,10 @@ static int only_frames(const char *path)
 
 static void remove_temp(pl_seq_writer *w)
 {
-    if (w->f) {
-        fclose(w->f);
-        w->f = NULL;
-    }
-    if (w->data_tmp) {
-        if (w->info.storage == PL_SEQ_PNG16)
-            remove_frames_folder(w->data_tmp);
-        else
-            unlink(w->data_tmp);
-    }
+    pl_outfile_abort(w->cube);
+    w->cube = NULL;
+    if (w->data_tmp)
+        remove_frames_folder(w->data_tmp);
 }
 
 static void free_writer(pl_seq_writer *w)
@@ -1225,19 +1160,14 @@ static char *stem_of(const char *path)
 static int begin_cube(pl_seq_writer *w, pl_err *err)
 {
     const pl_seq_info *in = &w->info;
-    int fd = create_temp(&w->data_tmp, w->dir, w->data_name, 0);
-    if (fd < 0)
-        return pl__err(err, PL_EIO, "%s: cannot create a file beside it: %s", w->manifest_path,
-                       strerror(errno));
-    w->f = fdopen(fd, "wb");
-    if (!w->f) {
-        int e = errno;
-        close(fd);
-        return pl__err(err, PL_EIO, "%s: cannot write: %s", w->data_tmp, strerror(e));
-    }
+    pl_err oerr = {0};
+    int rc = pl_outfile_open(&w->cube, w->data_final, &oerr);
+    if (rc)
+        return pl__err(err, rc, "%s: %s", w->manifest_path, oerr.msg);
     uint64_t shape[3] = {in->frame_count, in->height, in->width};
-    return pl_npy_write_header(w->f, in->storage == PL_SEQ_NPY_FLOAT32 ? "<f4" : "<u2", 3,
-                               shape, w->data_tmp, err);
+    return pl_npy_write_header(pl_outfile_stream(w->cube),
+                               in->storage == PL_SEQ_NPY_FLOAT32 ? "<f4" : "<u2", 3, shape,
+                               w->data_final, err);
 }
 
 PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
@@ -1270,7 +1200,7 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
     }
     if (rc == PL_OK) {
         w->manifest_path = pl__strdup(manifest_path);
-        w->dir = dir_of(manifest_path);
+        w->dir = pl__path_dir(manifest_path);
         stem = stem_of(manifest_path);
         if (stem) {
             size_t n = strlen(stem) + 8;
@@ -1283,7 +1213,7 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
                        (info->storage == PL_SEQ_NPY_FLOAT32 ? 4 : 2);
         w->buf = malloc(bytes);
         if (!w->manifest_path || !w->dir || !w->data_name || !w->buf ||
-            !(w->data_final = join_path(w->dir, w->data_name)))
+            !(w->data_final = pl__path_join(w->dir, w->data_name)))
             rc = pl__err(err, PL_ENOMEM, "%s: out of memory", manifest_path);
     }
     if (rc == PL_OK && strcmp(pl__basename(manifest_path), w->data_name) == 0)
@@ -1294,7 +1224,7 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
         if (lstat(w->data_final, &st) == 0 && (!S_ISDIR(st.st_mode) || !only_frames(w->data_final)))
             rc = pl__err(err, PL_EEXISTS, "%s: %s exists and holds other files than frames",
                          manifest_path, w->data_final);
-        else if (create_temp(&w->data_tmp, w->dir, w->data_name, 1) < 0)
+        else if (pl__temp_create(&w->data_tmp, w->dir, w->data_name, 1) < 0)
             rc = pl__err(err, PL_EIO, "%s: cannot create a folder beside it: %s",
                          manifest_path, strerror(errno));
     } else if (rc == PL_OK) {
@@ -1346,22 +1276,21 @@ static int write_png_frame(pl_seq_writer *w, pl_err *err)
     char name[64];
     snprintf(name, sizeof name, WRITER_PATTERN, (int)w->written);
     free(w->frame_path);
-    if (!(w->frame_path = join_path(w->data_tmp, name)))
+    if (!(w->frame_path = pl__path_join(w->data_tmp, name)))
         return pl__err(err, PL_ENOMEM, "%s: out of memory", w->manifest_path);
+    pl_outfile *of;
+    int rc = pl_outfile_open(&of, w->frame_path, err);
+    if (rc)
+        return rc;
     png_job j;
     memset(&j, 0, sizeof j);
-    j.f = fopen(w->frame_path, "wb");
-    if (!j.f)
-        return pl__err(err, PL_EIO, "%s: cannot create: %s", w->frame_path, strerror(errno));
-    int rc;
+    j.f = pl_outfile_stream(of);
     if (pl_png__create(&j.png, &j.info, 1, j.msg))
         rc = pl__err(err, PL_ENOMEM, "%s: out of memory for the PNG writer", w->frame_path);
     else
         rc = encode_png(&j, w, err);
     pl_png__destroy(&j.png, &j.info, 1);
-    if (fclose(j.f) != 0 && rc == PL_OK)
-        rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->frame_path, strerror(errno));
-    return rc;
+    return pl_outfile_finish(of, rc, err);
 }
 
 PL_EXPORT int pl_seq_writer_frame(pl_seq_writer *w, const float *kelvin, pl_err *err)
@@ -1397,9 +1326,9 @@ PL_EXPORT int pl_seq_writer_frame(pl_seq_writer *w, const float *kelvin, pl_err 
         rc = write_png_frame(w, err);
     } else {
         size_t bytes = n * (in->storage == PL_SEQ_NPY_FLOAT32 ? 4 : 2);
-        if (fwrite(b, 1, bytes, w->f) != bytes)
-            rc = pl__err(err, PL_EIO, "%s: cannot write frame %u: %s", w->data_tmp, w->written,
-                         strerror(errno));
+        if (fwrite(b, 1, bytes, pl_outfile_stream(w->cube)) != bytes)
+            rc = pl__err(err, PL_EIO, "%s: cannot write frame %u: %s", w->data_final,
+                         w->written, strerror(errno));
     }
     if (rc) {
         w->failed = 1;
@@ -1462,43 +1391,20 @@ static cJSON *manifest_json(const pl_seq_writer *w)
     return root;
 }
 
-/* Write the manifest to a temporary file beside it and flush it to disk;
- * the caller renames it into place last. */
-static int write_manifest_tmp(char **tmp, const pl_seq_writer *w, pl_err *err)
+/* Write the manifest into its output file, not yet committed: the caller
+ * puts it in place last. */
+static int write_manifest(pl_outfile **of, const pl_seq_writer *w, pl_err *err)
 {
-    *tmp = NULL;
+    *of = NULL;
     cJSON *root = manifest_json(w);
     char *text = root ? cJSON_Print(root) : NULL;
     cJSON_Delete(root);
     if (!text)
         return pl__err(err, PL_ENOMEM, "%s: out of memory", w->manifest_path);
-    int rc = PL_OK;
-    int fd = create_temp(tmp, w->dir, pl__basename(w->manifest_path), 0);
-    if (fd < 0) {
-        rc = pl__err(err, PL_EIO, "%s: cannot create: %s", w->manifest_path, strerror(errno));
-    } else {
-        size_t len = strlen(text), done = 0;
-        while (rc == PL_OK && done < len) {
-            ssize_t put = write(fd, text + done, len - done);
-            if (put < 0 && errno == EINTR)
-                continue;
-            if (put <= 0)
-                rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->manifest_path,
-                             strerror(errno));
-            else
-                done += (size_t)put;
-        }
-        if (rc == PL_OK && (write(fd, "\n", 1) != 1 || fsync(fd) != 0))
-            rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->manifest_path,
-                         strerror(errno));
-        if (close(fd) != 0 && rc == PL_OK)
-            rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->manifest_path,
-                         strerror(errno));
-        if (rc) {
-            unlink(*tmp);
-            free(*tmp);
-            *tmp = NULL;
-        }
+    int rc = pl_outfile_open(of, w->manifest_path, err);
+    if (rc == PL_OK && (rc = pl__outfile_put_line(*of, text, err))) {
+        pl_outfile_abort(*of);
+        *of = NULL;
     }
     cJSON_free(text);
     return rc;
@@ -1509,10 +1415,9 @@ static int write_manifest_tmp(char **tmp, const pl_seq_writer *w, pl_err *err)
 static int install_data(pl_seq_writer *w, pl_err *err)
 {
     if (w->info.storage != PL_SEQ_PNG16) {
-        if (rename(w->data_tmp, w->data_final) != 0)
-            return pl__err(err, PL_EIO, "%s: cannot rename into place: %s", w->data_final,
-                           strerror(errno));
-        return PL_OK;
+        int rc = pl_outfile_commit(w->cube, err);
+        w->cube = NULL;
+        return rc;
     }
     char *old = NULL;
     struct stat st;
@@ -1521,7 +1426,7 @@ static int install_data(pl_seq_writer *w, pl_err *err)
             return pl__err(err, PL_EEXISTS, "%s: exists and holds other files than frames",
                            w->data_final);
         /* reserve a name, then move the old folder onto it */
-        if (create_temp(&old, w->dir, w->data_name, 1) < 0 || rename(w->data_final, old) != 0) {
+        if (pl__temp_create(&old, w->dir, w->data_name, 1) < 0 || rename(w->data_final, old) != 0) {
             int e = errno;
             if (old)
                 rmdir(old);
@@ -1555,35 +1460,24 @@ PL_EXPORT int pl_seq_writer_close(pl_seq_writer *w, pl_err *err)
     else if (w->written != w->info.frame_count)
         rc = pl__err(err, PL_EINVAL, "%s: %u of %u frames written", w->manifest_path,
                      w->written, w->info.frame_count);
-    if (rc == PL_OK && w->f) {
-        int bad = fflush(w->f) != 0 || fsync(fileno(w->f)) != 0;
-        int e = errno;
-        bad |= fclose(w->f) != 0;
-        w->f = NULL;
-        if (bad)
-            rc = pl__err(err, PL_EIO, "%s: cannot write: %s", w->data_tmp, strerror(e));
-    }
-    char *manifest_tmp = NULL;
+    pl_outfile *mf = NULL;
     if (rc == PL_OK)
-        rc = write_manifest_tmp(&manifest_tmp, w, err);
+        rc = write_manifest(&mf, w, err);
     if (rc == PL_OK) {
         rc = install_data(w, err);
         if (rc == PL_OK) {
             free(w->data_tmp);
             w->data_tmp = NULL; /* now the finished data */
-            if (rename(manifest_tmp, w->manifest_path) != 0) {
-                rc = pl__err(err, PL_EIO, "%s: cannot rename into place: %s",
-                             w->manifest_path, strerror(errno));
+            if ((rc = pl_outfile_commit(mf, err))) {
                 if (w->info.storage == PL_SEQ_PNG16)
                     remove_frames_folder(w->data_final);
                 else
                     unlink(w->data_final);
             }
+        } else {
+            pl_outfile_abort(mf);
         }
-        if (rc)
-            unlink(manifest_tmp);
     }
-    free(manifest_tmp);
     if (rc)
         remove_temp(w);
     free_writer(w);

@@ -7,6 +7,7 @@
 
 #include "common/common_int.h"
 #include "common/num_int.h"
+#include "common/outfile_int.h"
 #include "common/strbuf_int.h"
 #include "common/threads_int.h"
 
@@ -2441,19 +2442,22 @@ static char *acquisition_text(const pl_sim_scene *s)
     return out;
 }
 
-static int write_text(const char *path, const char *text, pl_err *err)
+/* The ground truth into its output file, not yet committed: it is put in
+ * place once the sequence stands. */
+static int write_truth(pl_outfile **of, const pl_sim_scene *scene, const char *path,
+                       pl_err *err)
 {
-    FILE *f = fopen(path, "wb");
-    if (!f)
-        return pl__err(err, PL_EIO, "%s: cannot create (%s)", path, strerror(errno));
-    size_t n = strlen(text);
-    int bad = fwrite(text, 1, n, f) != n || fputc('\n', f) == EOF;
-    bad |= fclose(f) != 0;
-    if (bad) {
-        remove(path);
-        return pl__err(err, PL_EIO, "%s: write error", path);
+    *of = NULL;
+    char *text = NULL;
+    int rc = pl_sim_truth_json(&text, scene, err);
+    if (rc == PL_OK)
+        rc = pl_outfile_open(of, path, err);
+    if (rc == PL_OK && (rc = pl__outfile_put_line(*of, text, err))) {
+        pl_outfile_abort(*of);
+        *of = NULL;
     }
-    return PL_OK;
+    free(text);
+    return rc;
 }
 
 PL_EXPORT int pl_sim_run(const pl_sim_scene *scene, const char *manifest_path,
@@ -2461,19 +2465,12 @@ PL_EXPORT int pl_sim_run(const pl_sim_scene *scene, const char *manifest_path,
                          pl_err *err)
 {
     int rc;
-    if (truth_path) {
-        char *truth = NULL;
-        if ((rc = pl_sim_truth_json(&truth, scene, err)))
-            return rc;
-        rc = write_text(truth_path, truth, err);
-        free(truth);
-        if (rc)
-            return rc;
-    }
+    pl_outfile *truth = NULL;
+    if (truth_path && (rc = write_truth(&truth, scene, truth_path, err)))
+        return rc;
     char *acq = acquisition_text(scene);
     if (!acq) {
-        if (truth_path)
-            remove(truth_path);
+        pl_outfile_abort(truth);
         return pl__err(err, PL_ENOMEM, "out of memory");
     }
     pl_seq_info info = PL_SEQ_INFO_INIT;
@@ -2503,7 +2500,5 @@ PL_EXPORT int pl_sim_run(const pl_sim_scene *scene, const char *manifest_path,
         else
             rc = pl_seq_writer_close(sink.w, err);
     }
-    if (rc && truth_path)
-        remove(truth_path);
-    return rc;
+    return pl_outfile_finish(truth, rc, err);
 }

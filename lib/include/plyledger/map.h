@@ -39,6 +39,7 @@
 #define PLYLEDGER_MAP_H
 
 #include "plyledger/common.h"
+#include "plyledger/outfile.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -227,10 +228,20 @@ PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err);
  * decoded value). The plyledger.* chunks are written as tEXt before the
  * image data: scale, offset, nodata, quantity and unit (these two may be
  * empty), and pitch when both pitches are finite (a pitch not known is
- * left out). A failed write removes the file.
- * @return PL_OK, PL_EINVAL (c out of range), PL_EIO, PL_ENOMEM.
+ * left out). The file is written through a pl_outfile (plyledger/outfile.h):
+ * whole or not at all, a failure leaves the old file as it was.
+ * @return PL_OK, PL_EINVAL (c out of range, a path that is not a regular
+ *         file), PL_EIO, PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err);
+
+/**
+ * pl_map_save_png() into an output file the caller opened and then
+ * commits or aborts (for a caller that must know a file is written before
+ * it records anything).
+ * @return as pl_map_save_png(); the message names pl_outfile_path(of).
+ */
+PL_EXPORT int pl_map_write_png(const pl_map *map, uint32_t c, pl_outfile *of, pl_err *err);
 
 /**
  * Read a NumPy .npy file (format 1.0, 2.0 or 3.0): dtype float32, float64 or
@@ -246,10 +257,19 @@ PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err);
 /**
  * Write the map as little-endian float32 .npy (format 1.0): 2-D when it has
  * one channel, else 3-D channels x rows x cols. Values are written bit for
- * bit. A failed write removes the file.
- * @return PL_OK, PL_EIO, PL_EINVAL (the map's size fields are invalid).
+ * bit. The file is written through a pl_outfile (plyledger/outfile.h):
+ * whole or not at all, a failure leaves the old file as it was.
+ * @return PL_OK, PL_EIO, PL_EINVAL (the map's size fields are invalid, a
+ *         path that is not a regular file), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_npy(const pl_map *map, const char *path, pl_err *err);
+
+/**
+ * pl_map_save_npy() into an output file the caller opened and then
+ * commits or aborts.
+ * @return as pl_map_save_npy(); the message names pl_outfile_path(of).
+ */
+PL_EXPORT int pl_map_write_npy(const pl_map *map, pl_outfile *of, pl_err *err);
 
 /**
  * Read a CSV grid: one row of the map per line, comma separated decimal

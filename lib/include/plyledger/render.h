@@ -124,13 +124,22 @@ PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const
 
 /**
  * Write an image as an 8-bit RGB PNG (non-interlaced, with a "Software"
- * text chunk naming plyledger and its version). After a failure the file
- * may be left incomplete.
+ * text chunk naming plyledger and its version), through a pl_outfile
+ * (plyledger/outfile.h): whole or not at all, a failure leaves the old
+ * file as it was.
  * @param img   the image (not NULL)
  * @param path  the file to create or replace
- * @return PL_OK, PL_EIO (cannot create or write; the message names `path`).
+ * @return PL_OK, PL_EIO (cannot create or write; the message names `path`),
+ *         PL_EINVAL (a path that is not a regular file), PL_ENOMEM.
  */
 PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *err);
+
+/**
+ * pl_image_save_png() into an output file the caller opened and
+ * then commits or aborts.
+ * @return PL_OK, PL_EIO (the message names pl_outfile_path(of)).
+ */
+PL_EXPORT int pl_image_write_png(const pl_image *img, pl_outfile *of, pl_err *err);
 
 /**
  * Allocate a black image.

@@ -225,7 +225,10 @@ PL_EXPORT int pl_sim_run_frames(const pl_sim_scene *scene, pl_sim_frame_fn frame
 /**
  * Simulate a scene and write its sequence (manifest at `manifest_path`,
  * data beside it, in the scene's camera storage) and, when `truth_path` is
- * not NULL, its ground truth. A failed run leaves no sequence behind.
+ * not NULL, its ground truth. Both are written through temporary files
+ * and renamed into place, the ground truth after the sequence: a failed
+ * run leaves neither behind, and earlier files of the same names as they
+ * were.
  * @return as pl_sim_run_frames(), and PL_EIO (a file cannot be written).
  */
 PL_EXPORT int pl_sim_run(const pl_sim_scene *scene, const char *manifest_path,
