@@ -128,6 +128,25 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     return CLI_OK;
 }
 
+int cli_guard_output(const cli_common *common, const char *path)
+{
+    pl_err err = { 0 };
+    int rc = pl_outfile_guard(path, common->store, &err);
+    return rc ? cli_fail_err(rc, &err) : 0;
+}
+
+int cli_open_output(pl_outfile **out, const cli_common *common, const char *path)
+{
+    *out = NULL;
+    if (!path)
+        return 0;
+    if (cli_guard_output(common, path))
+        return CLI_ERROR;
+    pl_err err = { 0 };
+    int rc = pl_outfile_open(out, path, &err);
+    return rc ? cli_fail_err(rc, &err) : 0;
+}
+
 int cli_text(char *dst, size_t cap, const char *src, const char *opt)
 {
     if (!src)

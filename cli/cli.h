@@ -78,6 +78,15 @@ void cli_json_num(cJSON *o, const char *key, double v);
  * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
 
+/* Refuse an output file that is the store named by common->store (from
+ * --store or $PLYLEDGER_STORE, opened or not) or one of its SQLite files;
+ * prints the failure. A NULL path passes. Returns 0 or CLI_ERROR. */
+int cli_guard_output(const cli_common *common, const char *path);
+
+/* Guard `path` as above and start writing it (pl_outfile_open); prints the
+ * failure. A NULL path gives *out NULL. Returns 0 or CLI_ERROR. */
+int cli_open_output(pl_outfile **out, const cli_common *common, const char *path);
+
 /* Copy an option's text into a fixed record field; NULL leaves it alone.
  * Returns 0, or CLI_USAGE (printed) when it does not fit. */
 int cli_text(char *dst, size_t cap, const char *src, const char *opt);

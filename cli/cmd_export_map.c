@@ -120,6 +120,8 @@ int cmd_export_map(int argc, char **argv)
         return rc;
     if (!a.has_map || !a.output)
         return cli_usage_error(usage, "--map and --output are required");
+    if ((rc = cli_guard_output(&common, a.output)))
+        return rc;
     const char *format = a.format ? a.format : format_from_name(a.output);
     if (!format)
         return cli_usage_error(usage, "cannot tell the format from '%s'; give --format", a.output);

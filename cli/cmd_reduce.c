@@ -279,6 +279,8 @@ int cmd_reduce(int argc, char **argv)
         return cli_usage_error(usage, "give --output, or --airframe and --site to record");
     if (recording && (!a.insp.airframe || !a.insp.site))
         return cli_usage_error(usage, "recording needs --airframe and --site");
+    if ((rc = cli_guard_output(&common, a.output)))
+        return rc;
     if (a.output) {
         const char *dot = strrchr(a.output, '.');
         if (!dot || strcasecmp(dot, ".npy") != 0)
@@ -312,10 +314,18 @@ int cmd_reduce(int argc, char **argv)
             a.ro.diffusivity_mm2_s = site.diffusivity_mm2_s;
     }
 
+    /* The output is written before anything is recorded and put in place
+     * after: a file that cannot be written leaves the store as it was. */
+    pl_outfile *out = NULL;
+    if ((rc = cli_open_output(&out, &common, a.output))) {
+        pl_store_close(store);
+        return rc;
+    }
     pl_seq *seq;
     st = pl_seq_open(&seq, seq_path, &err);
     if (st) {
         pl_store_close(store);
+        pl_outfile_abort(out);
         return cli_fail_err(st, &err);
     }
     cli_progress prog;
@@ -335,8 +345,8 @@ int cmd_reduce(int argc, char **argv)
         map->pitch_u = pu;
         map->pitch_v = pv;
     }
-    if (!st && a.output)
-        st = pl_map_save_npy(map, a.output, &err);
+    if (!st && out)
+        st = pl_map_write_npy(map, out, &err);
     pl_id insp_key = 0, map_id = 0;
     if (!st && recording && params && !(insp.parameters_json = strdup(params)))
         st = PL_ENOMEM;
@@ -344,6 +354,7 @@ int cmd_reduce(int argc, char **argv)
         st = pl_record_map_inspection(store, &insp, map, "reduce", seq_path, params, &insp_key,
                                       &map_id, &err);
     pl_store_close(store);
+    st = pl_outfile_finish(out, st, &err);
     if (!st)
         rc = print_result(&a, seq_path, map, &stats, insp_key, map_id, &common);
     pl_map_free(map);

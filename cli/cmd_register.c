@@ -293,9 +293,20 @@ int cmd_register(int argc, char **argv)
     if (!a.manual && (a.by || a.why))
         return cli_usage_error(usage, "--by and --why go with --manual");
 
-    pl_store *store;
-    if ((rc = cli_open_store(&store, &common, 0)))
+    /* The outputs are written before the registration is recorded and put
+     * in place after: a file that cannot be written records nothing. */
+    pl_outfile *aligned_out = NULL, *view_out = NULL;
+    if ((rc = cli_open_output(&aligned_out, &common, a.aligned)) ||
+        (rc = cli_open_output(&view_out, &common, a.view))) {
+        pl_outfile_abort(aligned_out);
         return rc;
+    }
+    pl_store *store;
+    if ((rc = cli_open_store(&store, &common, 0))) {
+        pl_outfile_abort(aligned_out);
+        pl_outfile_abort(view_out);
+        return rc;
+    }
     pl_err err = { 0 };
     pl_record_pair pair = { 0, (pl_id)a.inspection, (pl_id)a.baseline_map, (pl_id)a.map };
     pl_map *base = NULL, *cur = NULL, *aligned = NULL;
@@ -315,23 +326,30 @@ int cmd_register(int argc, char **argv)
         st = pl_register_maps(&res, &aligned, base, cur, a.quantity, a.label, &a.ro, &err);
     if (!st && !(params = parameters(&a)))
         st = PL_ENOMEM;
-    if (!st)
-        st = pl_record_registration(store, &pair, &res, a.manual,
-                                    a.manual ? "manual" : "phase-correlation log-polar",
-                                    a.by, a.why, params, &rid, &cid, &err);
-    pl_store_close(store);
-    free(params);
-    if (!st && !res.refused && a.aligned)
-        st = pl_map_save_npy(aligned, a.aligned, &err);
-    if (!st && !res.refused && a.view) {
+    if (!st && !res.refused && aligned_out)
+        st = pl_map_write_npy(aligned, aligned_out, &err);
+    if (!st && !res.refused && view_out) {
         pl_image *img = NULL;
         pl_render_options ropts = PL_RENDER_OPTIONS_INIT;
         st = pl_render_pair(&img, base, view_channel(base, a.quantity, a.label), aligned,
                             view_channel(aligned, a.quantity, a.label), a.view_mode, 0, &ropts,
                             &err);
         if (!st)
-            st = pl_image_save_png(img, a.view, &err);
+            st = pl_image_write_png(img, view_out, &err);
         pl_image_free(img);
+    }
+    if (!st)
+        st = pl_record_registration(store, &pair, &res, a.manual,
+                                    a.manual ? "manual" : "phase-correlation log-polar",
+                                    a.by, a.why, params, &rid, &cid, &err);
+    pl_store_close(store);
+    free(params);
+    if (st || res.refused) { /* a refusal writes no outputs */
+        pl_outfile_abort(aligned_out);
+        pl_outfile_abort(view_out);
+    } else {
+        st = pl_outfile_commit(aligned_out, &err);
+        st = pl_outfile_finish(view_out, st, &err);
     }
     pl_map_free(base);
     pl_map_free(cur);

@@ -24,6 +24,8 @@ static const char help[] =
     "      --truth FILE       ground truth JSON (default: SEQ-truth.json beside it)\n"
     "      --no-truth         do not write the ground truth\n"
     "      --threads N        worker threads (default: one per processor)\n"
+    "  -s, --store PATH       the store, which no output may overwrite\n"
+    "                         (default $PLYLEDGER_STORE)\n"
     "      --json             print what was written as JSON\n"
     "  -q, --quiet            no progress, nothing printed on success\n"
     "  -h, --help             show this help\n";
@@ -75,6 +77,27 @@ static char *default_truth(const char *output)
     return p;
 }
 
+/* Every file the run may write: the manifest, the data beside it in
+ * either storage, the ground truth. */
+static int guard_outputs(const cli_common *common, const char *manifest, const char *truth)
+{
+    static const pl_seq_storage storages[] = { PL_SEQ_NPY_FLOAT32, PL_SEQ_PNG16 };
+    if (cli_guard_output(common, manifest) || cli_guard_output(common, truth))
+        return CLI_ERROR;
+    for (size_t k = 0; k < sizeof storages / sizeof storages[0]; k++) {
+        char *data;
+        pl_err err = { 0 };
+        int st = pl_seq_data_path(&data, manifest, storages[k], &err);
+        if (st)
+            return cli_fail_err(st, &err);
+        int rc = cli_guard_output(common, data);
+        free(data);
+        if (rc)
+            return rc;
+    }
+    return 0;
+}
+
 int cmd_simulate(int argc, char **argv)
 {
     cli_common common;
@@ -90,21 +113,22 @@ int cmd_simulate(int argc, char **argv)
     if (a.truth && a.no_truth)
         return cli_usage_error(usage, "--truth and --no-truth contradict each other");
     const char *scene_path = argv[first];
+    char *truth = NULL;
+    if (!a.no_truth && !(truth = a.truth ? strdup(a.truth) : default_truth(a.output)))
+        return cli_fail("out of memory");
+    if ((rc = guard_outputs(&common, a.output, truth))) {
+        free(truth);
+        return rc;
+    }
     pl_err err = { 0 };
     pl_sim_scene *scene;
     int st = pl_sim_scene_load(&scene, scene_path, &err);
-    if (st)
+    if (st) {
+        free(truth);
         return cli_fail_err(st, &err);
+    }
     if (a.threads)
         pl_sim_scene_set_threads(scene, (unsigned)a.threads);
-    char *truth = NULL;
-    if (!a.no_truth) {
-        truth = a.truth ? strdup(a.truth) : default_truth(a.output);
-        if (!truth) {
-            pl_sim_scene_free(scene);
-            return cli_fail("out of memory");
-        }
-    }
     pl_sim_info info;
     pl_sim_scene_info(scene, &info);
     cli_progress prog;

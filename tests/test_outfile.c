@@ -253,6 +253,16 @@ static void test_outfile__library_writers_leave_old_files_on_failure(void **stat
     assert_content(seq, "old manifest");
     assert_content(cube, "old cube");
     assert_listing(dir, "map.npy map.png render.png seq.json seq.npy");
+    /* where the writer puts the data, for a program that guards it first */
+    char *data;
+    TU_OK(pl_seq_data_path(&data, seq, PL_SEQ_NPY_UINT16, &err));
+    assert_string_equal(data, cube);
+    free(data);
+    TU_OK(pl_seq_data_path(&data, seq, PL_SEQ_PNG16, &err));
+    char *frames = tu_path(dir, "seq-frames");
+    assert_string_equal(data, frames);
+    free(frames);
+    free(data);
     free(seq);
     free(cube);
     pl_image_free(img);

@@ -1145,16 +1145,31 @@ static int check_info(const pl_seq_info *in, const char *path, pl_err *err)
     return PL_OK;
 }
 
-/* <name> of <name>.json (any extension), for the data beside it. */
-static char *stem_of(const char *path)
+/* The data's name beside a manifest <name>.json (any extension):
+ * <name>.npy or <name>-frames. malloc'd, NULL when out of memory. */
+static char *data_name_of(const char *manifest_path, pl_seq_storage storage)
 {
-    char *stem = pl__strdup(pl__basename(path));
-    if (!stem)
-        return NULL;
-    char *dot = strrchr(stem, '.');
-    if (dot && dot != stem)
-        *dot = '\0';
-    return stem;
+    const char *base = pl__basename(manifest_path);
+    const char *dot = strrchr(base, '.');
+    size_t stem = dot && dot != base ? (size_t)(dot - base) : strlen(base);
+    const char *suffix = storage == PL_SEQ_PNG16 ? "-frames" : ".npy";
+    char *name = malloc(stem + strlen(suffix) + 1);
+    if (name) {
+        memcpy(name, base, stem);
+        strcpy(name + stem, suffix);
+    }
+    return name;
+}
+
+PL_EXPORT int pl_seq_data_path(char **out, const char *manifest_path, pl_seq_storage storage,
+                               pl_err *err)
+{
+    char *dir = pl__path_dir(manifest_path);
+    char *name = data_name_of(manifest_path, storage);
+    *out = dir && name ? pl__path_join(dir, name) : NULL;
+    free(dir);
+    free(name);
+    return *out ? PL_OK : pl__err(err, PL_ENOMEM, "%s: out of memory", manifest_path);
 }
 
 static int begin_cube(pl_seq_writer *w, pl_err *err)
@@ -1184,7 +1199,6 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
     w->info.acquisition_json = NULL;
     if (w->info.preflash_frames == 0)
         w->info.preflash_frames = frames_before_flash(info);
-    char *stem = NULL;
     if (info->acquisition_json) {
         cJSON *a = cJSON_Parse(info->acquisition_json);
         if (!cJSON_IsObject(a))
@@ -1201,14 +1215,7 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
     if (rc == PL_OK) {
         w->manifest_path = pl__strdup(manifest_path);
         w->dir = pl__path_dir(manifest_path);
-        stem = stem_of(manifest_path);
-        if (stem) {
-            size_t n = strlen(stem) + 8;
-            w->data_name = malloc(n);
-            if (w->data_name)
-                snprintf(w->data_name, n, "%s%s", stem,
-                         info->storage == PL_SEQ_PNG16 ? "-frames" : ".npy");
-        }
+        w->data_name = data_name_of(manifest_path, info->storage);
         size_t bytes = (size_t)info->width * info->height *
                        (info->storage == PL_SEQ_NPY_FLOAT32 ? 4 : 2);
         w->buf = malloc(bytes);
@@ -1230,7 +1237,6 @@ PL_EXPORT int pl_seq_writer_open(pl_seq_writer **out, const char *manifest_path,
     } else if (rc == PL_OK) {
         rc = begin_cube(w, err);
     }
-    free(stem);
     if (rc) {
         pl_seq_writer_discard(w);
         return rc;

@@ -436,6 +436,87 @@ bad "register manual without who" 2 "--by" ply register --airframe TST-0002 --si
 bad "register no later inspection" 1 "no inspection after its baseline" ply register --airframe TST-0002 --site T01
 bad "register unknown site" 1 "T99" ply register --airframe TST-0002 --site T99
 
+# ---- outputs never land on the store ---------------------------------------------
+# Every option that writes a file, pointed at the store or at the files SQLite
+# keeps beside it (which exist only while the store is open, so they are
+# refused by folder and name as well as by inode): exit 1 with one line
+# saying it is the store, the store unchanged and still readable. A failed
+# output records nothing (the files are written before the transaction
+# commits) and leaves no temporary file.
+
+no_partials() {
+    if ls -A "$WORK" | grep -q '\.partial$'; then
+        fail "$1: a temporary file was left: $(ls -A "$WORK" | grep '\.partial$' | tr '\n' ' ')"
+        rm -f "$WORK"/.*.partial
+    fi
+}
+
+# not_store NAME WHAT COMMAND...: refused as the store's file WHAT
+not_store() {
+    name=$1; what=$2; shift 2
+    bad "$name" 1 "the store" "$@"
+    grep -qF -- "$what" "$WORK/err" || fail "$name: message does not say '$what'"
+    run "$name: store still opens" 0 ply summary --json
+    no_partials "$name"
+}
+
+ln "$STORE" "$WORK/store-hardlink.npy"
+ln -s "$STORE" "$WORK/store-symlink.npy"
+REG="ply register --airframe TST-0002 --site T04"
+REC="--airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE"
+for target in "$STORE" "$STORE-wal" "$STORE-shm" "$STORE-journal" "$WORK/store-hardlink.npy" \
+              "$WORK/store-symlink.npy"; do
+    case $target in
+    *-wal) what="-wal" ;; *-shm) what="-shm" ;; *-journal) what="-journal" ;; *) what="itself" ;;
+    esac
+    t=$(basename "$target")
+    not_store "export npy onto $t" "$what" ply export-map --map "$BASE_MAP" --format npy --output "$target"
+    not_store "export png onto $t" "$what" ply export-map --map "$BASE_MAP" --format png --output "$target"
+    not_store "export render onto $t" "$what" ply export-map --map "$BASE_MAP" --format render --output "$target"
+    not_store "register --aligned onto $t" "$what" $REG --aligned "$target"
+    not_store "register --view onto $t" "$what" $REG --view "$target"
+    not_store "register both, view onto $t" "$what" $REG --aligned "$WORK/ok-aligned.npy" --view "$target"
+    [ -e "$WORK/ok-aligned.npy" ] && fail "register both, view onto $t: the other output was written"
+    not_store "simulate --output onto $t" "$what" ply simulate "$WORK/scene.json" --output "$target"
+    not_store "simulate --truth onto $t" "$what" ply simulate "$WORK/scene.json" --output "$WORK/ok-seq.json" --truth "$target"
+    not_store "reduce --output onto $t" "$what" ply reduce "$WORK/seq.json" --output "$target"
+    not_store "reduce and record, --output onto $t" "$what" ply reduce "$WORK/seq.json" --output "$target" $REC
+done
+[ -e "$WORK/ok-seq.json" ] && fail "simulate onto the store: a sequence was written"
+# the default ground truth, and the data a manifest puts beside it
+ln "$STORE" "$WORK/side-truth.json"
+not_store "simulate default truth onto the store" "itself" ply simulate "$WORK/scene.json" --output "$WORK/side.json"
+rm -f "$WORK/side-truth.json"
+ln "$STORE" "$WORK/side.npy"
+not_store "simulate data onto the store" "itself" ply simulate "$WORK/scene.json" --output "$WORK/side.json" --no-truth
+not_store "simulate data onto a store given by --store" "itself" ply simulate "$WORK/scene.json" \
+    --store "$WORK/side.npy" --output "$WORK/side.json" --no-truth
+rm -f "$WORK/side.npy" "$WORK/store-hardlink.npy" "$WORK/store-symlink.npy"
+[ -e "$WORK/side.json" ] && fail "simulate data onto the store: a manifest was written"
+# the same folder by another name
+mkdir "$WORK/sub"
+not_store "export through another name of the folder" "-wal" ply export-map --map "$BASE_MAP" \
+    --format npy --output "$WORK/sub/../$(basename "$STORE")-wal"
+rmdir "$WORK/sub"
+
+# An output that cannot be written fails the command before anything is
+# recorded.
+bad "register --aligned in no folder" 1 "/no/such/dir/x.npy" $REG --aligned /no/such/dir/x.npy
+bad "register --view in no folder" 1 "/no/such/dir/x.png" $REG --view /no/such/dir/x.png
+bad "register --view onto a folder" 1 "folder" $REG --aligned "$WORK/ok-aligned.npy" --view "$WORK"
+[ -e "$WORK/ok-aligned.npy" ] && fail "register --view onto a folder: the other output was written"
+bad "reduce and record, --output in no folder" 1 "/no/such/dir/x.npy" ply reduce "$WORK/seq.json" \
+    --output /no/such/dir/x.npy $REC
+bad "simulate --output in no folder" 1 "/no/such/dir" ply simulate "$WORK/scene.json" --output /no/such/dir/x.json
+bad "export into no folder" 1 "/no/such/dir/x.npy" ply export-map --map "$BASE_MAP" --output /no/such/dir/x.npy
+no_partials "outputs that cannot be written"
+# ... and one that can is replaced whole, keeping nothing of the old file
+printf 'old content that is longer than nothing' >"$WORK/again.npy"
+run "export replaces a file" 0 ply export-map --map "$BASE_MAP" --output "$WORK/again.npy"
+"$PY" -c 'import numpy as np,sys; a=np.load(sys.argv[1]); assert a.shape==(30,40), a.shape' "$WORK/again.npy" \
+    || fail "export replaces a file: numpy cannot read it"
+no_partials "export replaces a file"
+
 # Stores that are not plyledger stores, or newer ones.
 run "text file as store" 1 ply summary --store "$WORK/not-a-store.plyledger" \
     && expect_one_line_err "text file as store" "not-a-store.plyledger"

@@ -207,6 +207,16 @@ PL_EXPORT int pl_seq_writer_close(pl_seq_writer *w, pl_err *err);
 /** Abandon a sequence being written: remove its files and free `w`. NULL accepted. */
 PL_EXPORT void pl_seq_writer_discard(pl_seq_writer *w);
 
+/**
+ * Where a sequence writer puts the data of the manifest `manifest_path` in
+ * `storage`: <name>.npy beside it, or the folder <name>-frames (for a
+ * program that checks every file it will write before it starts).
+ * @param[out] out  malloc'd; free with free()
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_seq_data_path(char **out, const char *manifest_path, pl_seq_storage storage,
+                               pl_err *err);
+
 #ifdef __cplusplus
 }
 #endif
