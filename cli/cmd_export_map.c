@@ -145,9 +145,23 @@ int cmd_export_map(int argc, char **argv)
     pl_map_record rec;
     memset(&rec, 0, sizeof rec);
     int st = pl_store_load_map(store, (pl_id)a.map_id, &map, &rec, &err);
+    /* what a rendering names: airframe, site, date, map (the quantity follows) */
+    char ident[PL_RENDER_IDENTIFICATION_SIZE] = "";
+    if (!st) {
+        pl_inspection insp;
+        memset(&insp, 0, sizeof insp);
+        st = pl_store_get_inspection(store, rec.inspection_key, &insp, &err);
+        if (!st)
+            pl_render_identification(ident, sizeof ident, insp.airframe_serial, insp.site_code,
+                                     insp.performed_on, a.map_id, NULL);
+        pl_inspection_clear(&insp);
+    }
     pl_store_close(store);
-    if (st)
+    if (st) {
+        free(rec.parameters_json);
+        pl_map_free(map);
         return cli_fail_err(st, &err);
+    }
     long long channel = a.channel;
     if (a.quantity) {
         int c = pl_map_find_channel(map, a.quantity);
@@ -171,6 +185,9 @@ int cmd_export_map(int argc, char **argv)
         st = pl_map_save_png(map, (uint32_t)channel, a.output, &err);
     } else {
         pl_image *img = NULL;
+        size_t n = strlen(ident);
+        snprintf(ident + n, sizeof ident - n, " %s", map->channels[channel].quantity);
+        a.ropts.identification = ident;
         st = pl_render_map(&img, map, (uint32_t)channel, &a.ropts, &err);
         if (!st)
             st = pl_image_save_png(img, a.output, &err);

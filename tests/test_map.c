@@ -373,7 +373,7 @@ static void test_map__encode_round_trip_bit_exact(void **state)
     m->data[1] = -0.0f;
     m->data[2] = float_of(0x00000001u); /* smallest subnormal */
     m->data[3] = FLT_MAX;
-    m->data[4] = -INFINITY;
+    m->data[4] = -FLT_MAX; /* an infinity is refused (encode_refuses_infinities...) */
     unsigned char *blob;
     size_t len;
     unsigned char sha[32];
@@ -669,14 +669,15 @@ static void test_map__png_round_trip(void **state)
         }
         pl_map_free(back);
     }
-    /* an all-NaN channel survives as all NaN */
+    /* an all-NaN channel is written as all nodata, and such a file holds
+     * no map: it is refused on reading */
     for (size_t i = 0; i < 19 * 13; i++)
         m->data[i] = NAN;
     assert_int_equal(pl_map_save_png(m, 0, png, &err), PL_OK);
-    pl_map *back;
-    assert_int_equal(pl_map_load_png(&back, png, &err), PL_OK);
-    assert_int_equal(pl_map_range(back, 0, NULL, NULL), 0);
-    pl_map_free(back);
+    pl_map *back = (pl_map *)1;
+    assert_int_equal(pl_map_load_png(&back, png, &err), PL_EFORMAT);
+    assert_null(back);
+    tu_assert_msg_has(err.msg, "no data");
     assert_int_equal(pl_map_save_png(m, 2, png, &err), PL_EINVAL);
     tu_assert_msg_has(err.msg, "channel 2");
     assert_int_equal(pl_map_save_png(m, 0, "/nonexistent-dir/x.png", &err), PL_EIO);
@@ -765,6 +766,10 @@ static void test_map__png_refusals(void **state)
         {"bad_pitch.png", PL_EFORMAT, "plyledger.pitch '-0.5'"},
         {"bad_nodata.png", PL_EFORMAT, "plyledger.nodata '70000'"},
         {"bad_unit.png", PL_EFORMAT, "unit 'K' does not fit quantity 'depth'"},
+        {"overflow.png", PL_EFORMAT, "2 infinite values (offset + scale * code beyond the "
+                                     "float32 range), the first (+inf) at channel 0, row 1, "
+                                     "column 1"},
+        {"all_nodata.png", PL_EFORMAT, "no data (every value is NaN)"},
         {"half.png", PL_EFORMAT, "truncated"},
         {"crc.png", PL_EFORMAT, "corrupt"},
         {"text.png", PL_EFORMAT, "not a PNG file"},
@@ -794,6 +799,116 @@ static void test_map__png_refusals(void **state)
     free(wide);
     free(small);
     free(text);
+    tu_rmtree(dir);
+}
+
+/* ---- values a map cannot hold ------------------------------------------ */
+
+/* A 16-bit PNG code stands for a finite value or no data: an infinity has
+ * no code, and writing one as an end code (it used to be 65534 and 0)
+ * would read back as an ordinary value. Refused, channel and position
+ * named, and no file is left; .npy output refuses it too. */
+static void test_map__export_refuses_infinities(void **state)
+{
+    (void)state;
+    char *dir = tu_tmpdir();
+    char *png = tu_path(dir, "inf.png"), *npy = tu_path(dir, "inf.npy");
+    const float bad[2] = {INFINITY, -INFINITY};
+    for (int k = 0; k < 2; k++) {
+        pl_map *m = png_test_map();
+        m->data[19 * 13 + 2 * 19 + 7] = bad[k]; /* channel 1, row 2, column 7 */
+        pl_err err = {0};
+        assert_int_equal(pl_map_save_png(m, 0, png, &err), PL_OK); /* channel 0 is finite */
+        remove(png);
+        assert_int_equal(pl_map_save_png(m, 1, png, &err), PL_EINVAL);
+        tu_assert_msg_has(err.msg, png);
+        tu_assert_msg_has(err.msg, k ? "(-inf) at channel 1, row 2, column 7" :
+                                       "(+inf) at channel 1, row 2, column 7");
+        assert_null(fopen(png, "rb"));
+        assert_int_equal(pl_map_save_npy(m, npy, &err), PL_EINVAL);
+        tu_assert_msg_has(err.msg, npy);
+        tu_assert_msg_has(err.msg, "1 infinite value");
+        assert_null(fopen(npy, "rb"));
+        pl_map_free(m);
+    }
+    free(png);
+    free(npy);
+    tu_rmtree(dir);
+}
+
+/* The store encoding takes what a caller filled in: an infinity and a map
+ * without a single number are refused there too. */
+static void test_map__encode_refuses_infinities_and_no_data(void **state)
+{
+    (void)state;
+    pl_map *m = reference_map(6, 4, 2);
+    m->data[6 * 4 + 3 * 6 + 5] = -INFINITY;
+    m->data[6 * 4 + 3 * 6 + 4] = INFINITY;
+    unsigned char *blob = (unsigned char *)1, digest[32];
+    size_t len = 1;
+    pl_err err = {0};
+    assert_int_equal(pl_map_encode(&blob, &len, digest, m, &err), PL_EINVAL);
+    assert_null(blob);
+    assert_int_equal(len, 0);
+    tu_assert_msg_has(err.msg, "2 infinite values");
+    tu_assert_msg_has(err.msg, "the first (+inf) at channel 1, row 3, column 4");
+    for (size_t i = 0; i < 6 * 4 * 2; i++)
+        m->data[i] = NAN;
+    assert_int_equal(pl_map_encode(&blob, &len, digest, m, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "no data (every value is NaN)");
+    m->data[30] = 0.0f;
+    TU_OK(pl_map_encode(&blob, &len, digest, m, &err));
+    free(blob);
+    pl_map_free(m);
+}
+
+/* The one check of a map's values, as a caller that filled a map itself
+ * calls it: infinities counted with the first one's place (channel-major
+ * order), refused, or made no data on the explicit option; no data at all
+ * refused; unknown options refused. PNG values past float32 (pypng wrote
+ * overflow.png with scale 1e38: codes 4 and 5 give 4e38 and 5e38) are made
+ * no data the same way. */
+static void test_map__check_values(void **state)
+{
+    (void)state;
+    pl_map *m = reference_map(5, 4, 3);
+    m->data[(2 * 4 + 0) * 5 + 1] = -INFINITY; /* channel 2, row 0, column 1 */
+    m->data[(1 * 4 + 2) * 5 + 3] = INFINITY;  /* channel 1, row 2, column 3: the first */
+    pl_err err = {0};
+    pl_map_load_info info;
+    assert_int_equal(pl_map_check_values(&info, m, NULL, "caller.bin", &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "caller.bin: 2 infinite values, the first (+inf) at channel 1, "
+                               "row 2, column 3");
+    assert_true(isinf(m->data[(1 * 4 + 2) * 5 + 3])); /* refusing changes nothing */
+    assert_int_equal(pl_map_check_values(NULL, m, NULL, NULL, &err), PL_EINVAL);
+    assert_true(strncmp(err.msg, "2 infinite values", 17) == 0);
+    pl_map_load_options o = PL_MAP_LOAD_OPTIONS_INIT;
+    o.version = 2;
+    assert_int_equal(pl_map_check_values(NULL, m, &o, NULL, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "version 2");
+    o.version = PL_MAP_LOAD_OPTIONS_VERSION;
+    o.infinite = (pl_map_infinite)7;
+    assert_int_equal(pl_map_check_values(NULL, m, &o, NULL, &err), PL_EINVAL);
+    o.infinite = PL_MAP_INFINITE_TO_NAN;
+    TU_OK(pl_map_check_values(&info, m, &o, NULL, &err));
+    assert_int_equal(info.infinite_to_nan, 2);
+    assert_true(isnan(m->data[(2 * 4 + 0) * 5 + 1]) && isnan(m->data[(1 * 4 + 2) * 5 + 3]));
+    assert_int_equal(pl_map__count_infinite(m, 0, 3, &(uint32_t){0}, &(uint32_t){0},
+                                            &(uint32_t){0}, &(int){0}), 0);
+    TU_OK(pl_map_check_values(&info, m, NULL, NULL, &err));
+    assert_int_equal(info.infinite_to_nan, 0);
+    pl_map_free(m);
+
+    char *dir = tu_tmpdir();
+    assert_int_equal(tu_python("map_ref.py", "png-write", dir, NULL), 0);
+    char *png = tu_path(dir, "overflow.png");
+    TU_OK(pl_map_load_v2(&m, &info, png, &o, &err));
+    assert_int_equal(info.infinite_to_nan, 2);
+    const float want[6] = {0, 1e38f, 2e38f, 3e38f, NAN, NAN}; /* codes 0..5 times 1e38 */
+    for (size_t i = 0; i < 6; i++)
+        tu_assert_same_float(m->data[i], want[i], "overflow.png", i);
+    pl_map_free(m);
+    free(png);
     tu_rmtree(dir);
 }
 
@@ -876,6 +991,7 @@ static void test_map__csv_refusals(void **state)
         {"empty.csv", "", PL_EFORMAT, "no data rows"},
         {"comments.csv", "# nothing\n\n# here\n", PL_EFORMAT, "no data rows"},
         {"nul.csv", "1,2\n3,\0004\n", PL_EFORMAT, "NUL"},
+        {"nodata.csv", "nan,\n,NaN\n", PL_EFORMAT, "no data (every value is NaN)"},
     };
     char *dir = tu_tmpdir();
     for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
@@ -987,6 +1103,9 @@ int main(void)
         cmocka_unit_test(test_map__pypng_written_png_loads),
         cmocka_unit_test(test_map__png_round_trip),
         cmocka_unit_test(test_map__png_refusals),
+        cmocka_unit_test(test_map__export_refuses_infinities),
+        cmocka_unit_test(test_map__encode_refuses_infinities_and_no_data),
+        cmocka_unit_test(test_map__check_values),
         cmocka_unit_test(test_map__csv_from_numpy_savetxt),
         cmocka_unit_test(test_map__csv_grammar),
         cmocka_unit_test(test_map__csv_refusals),

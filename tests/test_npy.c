@@ -177,7 +177,7 @@ static void test_npy__saved_maps_load_in_numpy(void **state)
     m2->data[4] = 1e-42f; /* subnormal */
     for (size_t i = 0; i < 72; i++)
         m3->data[i] = (float)(i * i) / 7.0f;
-    m3->data[50] = -INFINITY;
+    m3->data[50] = -FLT_MAX; /* an infinity is refused (export_refuses_infinities in test_map.c) */
     char *p2 = tu_path(dir, "m2.npy"), *r2 = tu_path(dir, "m2.raw");
     char *p3 = tu_path(dir, "m3.npy"), *r3 = tu_path(dir, "m3.raw");
     pl_err err = {0};
@@ -455,6 +455,151 @@ static void test_npy__non_map_arrays_refused(void **state)
     tu_rmtree(dir);
 }
 
+/* ---- values a map cannot hold ------------------------------------------ */
+
+/*
+ * numpy writes +inf and -inf in float32 (2-D and a 3-D big-endian cube)
+ * and float64 values beyond float32's range (1e300, -1e39), which float32
+ * can only hold as infinities: each file is refused with the count and
+ * the first position (channel, row, column), naming the file; so are a
+ * file of nothing but NaN and one whose only non-NaN value is infinite.
+ */
+static void test_npy__infinite_values_refused(void **state)
+{
+    (void)state;
+    static const struct {
+        const char *file;
+        const char *says[2];
+    } cases[] = {
+        {"inf_f4.npy", {"2 infinite values", "the first (+inf) at channel 0, row 1, column 2"}},
+        {"huge_f8.npy", {"2 infinite values", "float64 values beyond the float32 range"}},
+        {"inf_c3.npy", {"1 infinite value", "(-inf) at channel 2, row 1, column 4"}},
+        {"all_nan.npy", {"no data", "every value is NaN"}},
+        {"nan_and_inf.npy", {"1 infinite value", "channel 0, row 1, column 1"}},
+    };
+    char *dir = tu_tmpdir();
+    assert_int_equal(tu_python("npy_ref.py", "write", dir, NULL), 0);
+    for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
+        char *path = tu_path(dir, cases[k].file);
+        pl_map *m = (pl_map *)1;
+        pl_err err = {0};
+        int rc = pl_map_load_npy(&m, path, &err);
+        if (rc != PL_EFORMAT)
+            fail_msg("%s: code %d (%s)", cases[k].file, rc, err.msg);
+        assert_null(m);
+        tu_assert_msg_has(err.msg, path);
+        tu_assert_msg_has(err.msg, cases[k].says[0]);
+        tu_assert_msg_has(err.msg, cases[k].says[1]);
+        m = (pl_map *)1;
+        assert_int_equal(pl_map_load(&m, path, NULL), PL_EFORMAT);
+        assert_null(m);
+        free(path);
+    }
+    char *huge = tu_path(dir, "huge_f8.npy");
+    pl_map *m;
+    pl_err err = {0};
+    assert_int_equal(pl_map_load_npy(&m, huge, &err), PL_EFORMAT);
+    tu_assert_msg_has(err.msg, "row 0, column 1");
+    free(huge);
+    tu_rmtree(dir);
+}
+
+/* The explicit option makes each infinity no data and says how many, for
+ * the record: the values are then numpy's own float32 conversion with
+ * every infinity replaced by NaN (npy_ref.py wrote them). A file of
+ * nothing but NaN and infinities is still refused: nothing is left. */
+static void test_npy__infinite_values_to_nodata_on_request(void **state)
+{
+    (void)state;
+    static const struct {
+        const char *name;
+        size_t n, made_nodata;
+    } files[] = {{"inf_f4", 20, 2}, {"huge_f8", 12, 2}, {"inf_c3", 60, 1}};
+    char *dir = tu_tmpdir();
+    assert_int_equal(tu_python("npy_ref.py", "write", dir, NULL), 0);
+    pl_map_load_options o = PL_MAP_LOAD_OPTIONS_INIT;
+    o.infinite = PL_MAP_INFINITE_TO_NAN;
+    for (size_t k = 0; k < sizeof files / sizeof files[0]; k++) {
+        char name[64];
+        snprintf(name, sizeof name, "%s.npy", files[k].name);
+        char *npy = tu_path(dir, name);
+        snprintf(name, sizeof name, "%s.raw", files[k].name);
+        char *raw = tu_path(dir, name);
+        pl_map *m = NULL;
+        pl_map_load_info info = {PL_MAP_INFINITE_REFUSE, 99};
+        pl_err err = {0};
+        TU_OK(pl_map_load_v2(&m, &info, npy, &o, &err));
+        assert_int_equal(info.infinite, PL_MAP_INFINITE_TO_NAN);
+        assert_int_equal(info.infinite_to_nan, files[k].made_nodata);
+        size_t n;
+        double *want = tu_read_f8(raw, &n);
+        assert_int_equal(n, files[k].n);
+        for (size_t i = 0; i < n; i++)
+            tu_assert_same_float(m->data[i], (float)want[i], files[k].name, i);
+        char json[128];
+        assert_true(pl_map_load_info_json(json, sizeof json, &info) < (int)sizeof json);
+        char expect[128];
+        snprintf(expect, sizeof expect,
+                 "{\"infinite_values\": \"to-nan\", \"infinite_values_made_nodata\": %zu}",
+                 files[k].made_nodata);
+        assert_string_equal(json, expect);
+        free(want);
+        pl_map_free(m);
+        /* the default still refuses the same file */
+        assert_int_equal(pl_map_load_v2(&m, &info, npy, NULL, &err), PL_EFORMAT);
+        assert_null(m);
+        free(npy);
+        free(raw);
+    }
+    char *mixed = tu_path(dir, "nan_and_inf.npy");
+    pl_map *m = (pl_map *)1;
+    pl_err err = {0};
+    assert_int_equal(pl_map_load_v2(&m, NULL, mixed, &o, &err), PL_EFORMAT);
+    assert_null(m);
+    tu_assert_msg_has(err.msg, "no data (every value is NaN once the infinities are made no data)");
+    free(mixed);
+    /* a file without infinities loads the same either way, and says so */
+    char *f4 = tu_path(dir, "f4.npy");
+    pl_map_load_info info;
+    TU_OK(pl_map_load_v2(&m, &info, f4, &o, &err));
+    assert_int_equal(info.infinite_to_nan, 0);
+    pl_map_free(m);
+    TU_OK(pl_map_load_v2(&m, &info, f4, NULL, &err));
+    assert_int_equal(info.infinite, PL_MAP_INFINITE_REFUSE);
+    char json[64];
+    pl_map_load_info_json(json, sizeof json, &info);
+    assert_string_equal(json, "{\"infinite_values\": \"refuse\"}");
+    pl_map_free(m);
+    free(f4);
+    tu_rmtree(dir);
+}
+
+/* What a .npy holds after the data promised by its header is not a map's:
+ * refused like a sequence cube's, with both byte counts. */
+static void test_npy__trailing_bytes_refused(void **state)
+{
+    (void)state;
+    char *dir = tu_tmpdir();
+    char *path = tu_path(dir, "trailing.npy");
+    float v[4] = {1, 2, 3, 4};
+    write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
+                   sizeof v);
+    pl_map *m = (pl_map *)1;
+    pl_err err = {0};
+    assert_int_equal(pl_map_load_npy(&m, path, &err), PL_EFORMAT);
+    assert_null(m);
+    tu_assert_msg_has(err.msg, path);
+    tu_assert_msg_has(err.msg, "4 bytes after the 12 bytes of data");
+    /* the same file without them loads */
+    write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
+                   3 * sizeof v[0]);
+    TU_OK(pl_map_load_npy(&m, path, &err));
+    assert_true(m->data[2] == 3.0f);
+    pl_map_free(m);
+    free(path);
+    tu_rmtree(dir);
+}
+
 /* A save that cannot create its file says so and names it. */
 static void test_npy__save_to_missing_folder_fails(void **state)
 {
@@ -498,6 +643,9 @@ int main(void)
         cmocka_unit_test(test_npy__write_header_layout),
         cmocka_unit_test(test_npy__malformed_headers_refused),
         cmocka_unit_test(test_npy__non_map_arrays_refused),
+        cmocka_unit_test(test_npy__infinite_values_refused),
+        cmocka_unit_test(test_npy__infinite_values_to_nodata_on_request),
+        cmocka_unit_test(test_npy__trailing_bytes_refused),
         cmocka_unit_test(test_npy__save_to_missing_folder_fails),
         cmocka_unit_test(test_npy__dtype_names),
     };

@@ -21,6 +21,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "plyledger/npy.h"
 #include "plyledger/seq.h"
 #include "plyledger/sim.h"
 #include "thermal/reduce_int.h"
@@ -1297,6 +1298,130 @@ static void test_reduce__sequence_file_matches_direct_frames(void **state)
     synth_free(s);
 }
 
+/* Little-endian float32 cube `path` of n frames of s's size, frame i being
+ * frames[first + i]. */
+static void write_f4_cube(const char *path, const float *frames, uint32_t first, uint32_t n,
+                          uint32_t h, uint32_t w)
+{
+    FILE *f = fopen(path, "wb");
+    assert_non_null(f);
+    uint64_t shape[3] = {n, h, w};
+    assert_int_equal(pl_npy_write_header(f, "<f4", 3, shape, path, NULL), PL_OK);
+    size_t count = (size_t)n * h * w;
+    const float *v = frames + (size_t)first * h * w;
+    for (size_t i = 0; i < count; i++) {
+        uint32_t b;
+        memcpy(&b, &v[i], sizeof b);
+        for (int k = 0; k < 4; k++)
+            fputc((int)(b >> (8 * k) & 0xff), f);
+    }
+    assert_int_equal(fclose(f), 0);
+}
+
+/*
+ * Data already expressed as the rise above the pre-flash level (no
+ * pre-flash frame recorded) reduces to the same maps as the sequence it
+ * came from: the frames after the flash minus each pixel's pre-flash mean
+ * (taken as the reduction takes it, in double, then rounded to float),
+ * stated in the manifest as "cold_reference": "subtracted", give the
+ * same map as the whole sequence with its 6 pre-flash frames, bit for bit
+ * (nothing is subtracted from them, and the rest is the same arithmetic).
+ * The parameters record that the frames held the rise. A reducer with no
+ * pre-flash frames refuses frames before the flash.
+ */
+static void test_reduce__rise_frames_reduce_like_preflash_subtracted(void **state)
+{
+    (void)state;
+    rng_seed(11);
+    const uint32_t pre = 6;
+    synth *s = synth_new(10, 7, 40.0, 15.0, pre);
+    for (uint32_t i = 0; i < s->nframes; i++)
+        s->times[i] = ((double)i - pre + 0.5) / 40.0; /* the flash between frames 5 and 6 */
+    for (size_t p = 0; p < s->npix; p++)
+        synth_slab(s, p, COLD + 0.37 * (double)(p % 9), p % 4 ? 4.0 : 1.2, 0.02);
+    uint32_t after = s->nframes - pre;
+    float *rise = malloc((size_t)after * s->npix * sizeof *rise);
+    assert_non_null(rise);
+    for (size_t p = 0; p < s->npix; p++) {
+        double sum = 0.0;
+        for (uint32_t i = 0; i < pre; i++)
+            sum += *px(s, i, p);
+        float cold = (float)(sum / pre);
+        for (uint32_t i = 0; i < after; i++)
+            rise[(size_t)i * s->npix + p] = *px(s, pre + i, p) - cold;
+    }
+    char *dir = tu_tmpdir();
+    char *cube_a = tu_path(dir, "a.npy"), *cube_b = tu_path(dir, "b.npy");
+    char *man_a = tu_path(dir, "a.json"), *man_b = tu_path(dir, "b.json");
+    write_f4_cube(cube_a, s->frames, 0, s->nframes, s->height, s->width);
+    write_f4_cube(cube_b, rise, 0, after, s->height, s->width);
+    /* both with every frame's time, relative to a flash at 0 */
+    for (int k = 0; k < 2; k++) {
+        size_t cap = 64 * (size_t)s->nframes + 512, n = 0;
+        char *text = malloc(cap);
+        assert_non_null(text);
+        n += (size_t)snprintf(text + n, cap - n,
+                              "{\"format\": \"plyledger-sequence-1\", \"data\": \"%s\", "
+                              "\"flash_time_s\": 0, \"calibration\": {\"kind\": \"kelvin\"}, %s"
+                              "\"frame_times_s\": [",
+                              k ? "b.npy" : "a.npy",
+                              k ? "\"preflash_frames\": 0, \"cold_reference\": \"subtracted\", "
+                                : "\"preflash_frames\": 6, ");
+        for (uint32_t i = k ? pre : 0; i < s->nframes; i++)
+            n += (size_t)snprintf(text + n, cap - n, "%s%.17g", i > (k ? pre : 0) ? ", " : "",
+                                  s->times[i]);
+        n += (size_t)snprintf(text + n, cap - n, "]}");
+        assert_int_equal(tu_write_file(k ? man_b : man_a, text, n), 0);
+        free(text);
+    }
+    pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
+    o.diffusivity_mm2_s = ALPHA;
+    pl_map *m[2];
+    char *json[2];
+    pl_err err = {0};
+    for (int k = 0; k < 2; k++) {
+        pl_seq *seq;
+        TU_OK(pl_seq_open(&seq, k ? man_b : man_a, &err));
+        assert_int_equal(pl_seq_preflash_frames(seq), k ? 0 : pre);
+        TU_OK(pl_reduce_sequence(&m[k], &json[k], seq, &o, NULL, &err));
+        pl_seq_close(seq);
+    }
+    assert_int_equal(m[0]->nchannels, m[1]->nchannels);
+    size_t nv = (size_t)m[0]->nchannels * s->npix, finite = 0;
+    for (size_t i = 0; i < nv; i++) {
+        tu_assert_same_float(m[1]->data[i], m[0]->data[i], "rise frames against pre-flash", i);
+        finite += isfinite(m[0]->data[i]);
+    }
+    assert_true(finite > nv / 2);
+    cJSON *ja = cJSON_Parse(json[0]), *jb = cJSON_Parse(json[1]);
+    assert_non_null(ja);
+    assert_non_null(jb);
+    const cJSON *fa = cJSON_GetObjectItem(ja, "frames"), *fb = cJSON_GetObjectItem(jb, "frames");
+    assert_int_equal(jnum(fa, "preflash"), pre);
+    assert_null(cJSON_GetObjectItem(fa, "cold_reference"));
+    assert_int_equal(jnum(fb, "preflash"), 0);
+    assert_string_equal(cJSON_GetObjectItem(fb, "cold_reference")->valuestring, "subtracted");
+    cJSON_Delete(ja);
+    cJSON_Delete(jb);
+    /* no pre-flash frames, yet frames before the flash: refused */
+    pl_reducer *r = NULL;
+    assert_int_equal(pl_reducer_new(&r, s->width, s->height, s->times, s->nframes, 0, NULL, &err),
+                     PL_EINVAL);
+    assert_null(r);
+    assert_msg_has(&err, "6 frames come before the flash");
+    for (int k = 0; k < 2; k++) {
+        pl_map_free(m[k]);
+        free(json[k]);
+    }
+    free(rise);
+    free(cube_a);
+    free(cube_b);
+    free(man_a);
+    free(man_b);
+    tu_rmtree(dir);
+    synth_free(s);
+}
+
 /* ---- simulated laminate ---------------------------------------------------- */
 
 /* The carbon-fibre laminate of the simulated scenes: rho 1560 kg/m3, c 1200
@@ -1642,6 +1767,7 @@ int main(void)
         cmocka_unit_test(test_reduce__refuses_bad_input),
         cmocka_unit_test(test_reduce__progress_and_cancel),
         cmocka_unit_test(test_reduce__sequence_file_matches_direct_frames),
+        cmocka_unit_test(test_reduce__rise_frames_reduce_like_preflash_subtracted),
         cmocka_unit_test(test_reduce__depth_on_simulated_delaminations),
         cmocka_unit_test(test_reduce__depth_on_air_gap_delaminations),
         cmocka_unit_test(test_reduce__no_depth_on_sound_laminate),

@@ -1120,9 +1120,12 @@ static void test_register__maps_choose_channel(void **state)
     assert_int_equal(pl_register_maps(&r, NULL, b, c, "temperature-contrast", NULL, NULL, &err),
                      PL_ENOTFOUND);
     assert_msg_has(err.msg, "current map has no channel");
-    /* neither phase nor contrast in both: channel 0 (noise: refused) */
+    /* neither phase nor contrast in both: channel 0 (noise against other
+     * noise: refused; the same noise in both would be an exact match) */
     for (int k = 1; k <= 2; k++)
         set_channel(c, (uint32_t)k, "depth", "mm", "", NULL);
+    for (size_t i = 0; i < (size_t)w * h; i++)
+        pl_map_channel(c, 0)[i] = (float)gauss();
     assert_int_equal(pl_register_maps(&r, NULL, b, c, NULL, NULL, NULL, &err), PL_OK);
     assert_true(r.refused);
     for (int k = 0; k < 6; k++)
@@ -1407,6 +1410,105 @@ static void test_register__refuses_bad_input(void **state)
     free(o);
 }
 
+
+/* ---- exact matches --------------------------------------------------------------------- */
+
+/* A textured map with a flat margin: smooth blobs of both signs, a ramp
+ * and hash noise inside, one constant value over the outer 8 pixels. */
+static void exact_pattern(float *v, uint32_t w, uint32_t h)
+{
+    for (uint32_t y = 0; y < h; y++)
+        for (uint32_t x = 0; x < w; x++) {
+            double X = x, Y = y;
+            double f = exp(-((X - 20) * (X - 20) + (Y - 14) * (Y - 14)) / 30.0)
+                       - 0.7 * exp(-((X - 41) * (X - 41) + (Y - 30) * (Y - 30)) / 55.0)
+                       + 0.01 * X + 0.2 * sin(X * 0.7) * cos(Y * 0.45);
+            uint32_t k = (x * 2654435761u) ^ (y * 2246822519u);
+            k ^= k >> 15;
+            f += 0.05 * ((double)(k & 0xffff) / 65535.0 - 0.5);
+            int margin = x < 8 || y < 8 || x >= w - 8 || y >= h - 8;
+            v[(size_t)y * w + x] = margin ? 0.25f : (float)f;
+        }
+}
+
+/*
+ * A map registered against itself, or against an exact circular shift of
+ * itself (numpy.roll), is a perfect match: the cross-power spectrum is a
+ * pure phase ramp and the correlation surface a unit impulse (Kuglin and
+ * Hines 1975), whose sidelobe is zero to float rounding. The registration
+ * must say so: shift and rotation 0 (or the roll), ncc 1, a finite PSR
+ * that passes the limit; never "peak-to-sidelobe ratio nan". Also with a
+ * flat margin and with a block of no data, and through pl_register_maps()
+ * as the record calls it.
+ */
+static void test_register__exact_match_is_perfect(void **state)
+{
+    (void)state;
+    const uint32_t w = 64, h = 48;
+    size_t np = (size_t)w * h;
+    float *a = malloc(np * sizeof *a), *b = malloc(np * sizeof *b);
+    assert_non_null(a);
+    assert_non_null(b);
+    exact_pattern(a, w, h);
+    pl_err err = { 0 };
+    pl_register_result r;
+    for (int rotation = 0; rotation <= 1; rotation++) {
+        pl_register_options o = PL_REGISTER_OPTIONS_INIT;
+        o.rotation = rotation;
+        TU_OK(pl_register_images(&r, a, a, w, h, &o, &err));
+        printf("# itself, rotation %s: shift (%g, %g), %g deg, ncc %.9g, psr %g%s%s\n",
+               rotation ? "on" : "off", r.transform.dx, r.transform.dy,
+               r.transform.rotation_deg, r.ncc, r.psr, r.refused ? ": refused: " : "",
+               r.refused ? r.reason : "");
+        assert_false(r.refused);
+        assert_true(r.transform.dx == 0.0 && r.transform.dy == 0.0);
+        assert_true(r.transform.rotation_deg == 0.0 && r.transform.scale == 1.0);
+        assert_close(r.ncc, 1.0, 1e-6, "ncc of a map with itself");
+        assert_true(isfinite(r.psr) && r.psr >= o.min_psr);
+    }
+    /* numpy.roll(a, (3, -5), axis=(0, 1)): moving(q) = fixed(q + d), d = (5, -3) */
+    for (uint32_t y = 0; y < h; y++)
+        for (uint32_t x = 0; x < w; x++)
+            b[(size_t)y * w + x] = a[(size_t)((y + h - 3) % h) * w + (x + 5) % w];
+    pl_register__peak pk;
+    TU_OK(pl_register__translation(&pk, a, b, w, h, PL_WINDOW_NONE, 0.0, 100, &err));
+    assert_true(pk.dx == 5.0 && pk.dy == -3.0);
+    assert_true(isfinite(pk.psr) && pk.psr > 1000.0);
+    pl_register_options o = PL_REGISTER_OPTIONS_INIT;
+    o.window = PL_WINDOW_NONE;
+    o.rotation = 0;
+    TU_OK(pl_register_images(&r, a, b, w, h, &o, &err));
+    assert_false(r.refused);
+    assert_true(r.transform.dx == 5.0 && r.transform.dy == -3.0);
+    assert_true(isfinite(r.psr));
+    /* a block of no data: still itself */
+    for (uint32_t y = 20; y < 30; y++)
+        for (uint32_t x = 30; x < 44; x++)
+            a[(size_t)y * w + x] = NAN;
+    TU_OK(pl_register_images(&r, a, a, w, h, NULL, &err));
+    assert_false(r.refused);
+    assert_true(r.transform.dx == 0.0 && r.transform.dy == 0.0 && r.transform.rotation_deg == 0.0);
+    assert_close(r.ncc, 1.0, 1e-6, "ncc with a block of no data");
+    assert_true(isfinite(r.psr));
+    /* the map path, as the record registers a map onto itself */
+    pl_map *m = new_map(w, h, 1, 0.5);
+    exact_pattern(b, w, h);
+    set_channel(m, 0, "phase", "rad", NULL, b);
+    pl_map *al = NULL;
+    TU_OK(pl_register_maps(&r, &al, m, m, NULL, NULL, NULL, &err));
+    assert_false(r.refused);
+    assert_true(r.transform.dx == 0.0 && r.transform.dy == 0.0 && r.transform.rotation_deg == 0.0);
+    assert_close(r.ncc, 1.0, 1e-6, "ncc of a map registered onto itself");
+    assert_true(isfinite(r.psr) && r.psr >= PL_REGISTER_DEFAULT_MIN_PSR);
+    assert_non_null(al);
+    for (size_t i = 0; i < np; i++)
+        assert_true(al->data[i] == b[i]);
+    pl_map_free(al);
+    pl_map_free(m);
+    free(a);
+    free(b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1428,6 +1530,7 @@ int main(void)
         cmocka_unit_test(test_register__maps_of_another_pitch),
         cmocka_unit_test(test_register__apply_manual_transform),
         cmocka_unit_test(test_register__refuses_bad_input),
+        cmocka_unit_test(test_register__exact_match_is_perfect),
     };
     return cmocka_run_group_tests(tests, make_pairs, remove_pairs);
 }

@@ -993,6 +993,119 @@ static void test_render__text_draws_glyphs(void **state)
     pl_image_free(b);
 }
 
+/* ---- identification ---------------------------------------------------- */
+
+/* Ink pixels (not paper) in rows y0..y1-1 of the image. */
+static size_t ink_in_rows(const pl_image *img, int y0, int y1)
+{
+    size_t n = 0;
+    for (int y = y0; y < y1; y++)
+        for (uint32_t x = 0; x < img->width; x++)
+            n += !is_colour(px(img, (int)x, y), PL_RENDER_BACKGROUND);
+    return n;
+}
+
+/*
+ * Every rendering can name what it shows: the caller's identification
+ * line (airframe serial, site, inspection date, map id, quantity) is drawn
+ * with the built-in font in a band above the caption, and written as the
+ * PNG "Title" text chunk (ISO/IEC 15948, 11.3.4.2, predefined keywords),
+ * which pypng reads back. A simulated inspection's map says SIMULATED in
+ * both, also without a line of its own; view images of two maps carry it
+ * too. Options of version 1 still render, without the band; text outside
+ * printable ASCII or longer than the limit is refused.
+ */
+static void test_render__identification_line_in_image_and_png(void **state)
+{
+    (void)state;
+    pl_map *m = map_alloc(40, 30, 1);
+    m->pitch_u = m->pitch_v = 0.5;
+    for (int i = 0; i < 40 * 30; i++)
+        m->data[i] = (float)sin(i * 0.07);
+    char ident[PL_RENDER_IDENTIFICATION_SIZE];
+    pl_render_identification(ident, sizeof ident, "CR7-0107", "F03", "2031-05-02", 75, "depth");
+    assert_string_equal(ident, "CR7-0107 site F03 2031-05-02 map 75 depth");
+    pl_render_options o = PL_RENDER_OPTIONS_INIT;
+    o.identification = ident;
+    pl_image *img;
+    pl_render_layout lay;
+    pl_err err = {0};
+    TU_OK(pl_render__map(&img, &lay, m, 0, &o, &err));
+    assert_layout_inside(img, &lay);
+    assert_string_equal(lay.title, ident);
+    assert_true(lay.title_h > 0 && lay.title_y + lay.title_h <= lay.caption_y);
+    assert_text_at(img, lay.title_x, lay.title_y, lay.title, lay.title_scale);
+    assert_true(ink_in_rows(img, 0, lay.title_y + lay.title_h) > 50);
+    assert_string_equal(img->title, ident);
+    char *dir = tu_tmpdir();
+    char *path = tu_path(dir, "named.png"), *raw = tu_path(dir, "named.raw");
+    TU_OK(pl_image_save_png(img, path, &err));
+    assert_int_equal(tu_write_file(raw, img->rgb, (size_t)img->width * img->height * 3), 0);
+    char w[16], h[16];
+    snprintf(w, sizeof w, "%u", img->width);
+    snprintf(h, sizeof h, "%u", img->height);
+    assert_int_equal(tu_python("render_png_ref.py", path, raw, w, h, ident, (char *)NULL), 0);
+    /* the check can fail: another title */
+    assert_int_not_equal(tu_python("render_png_ref.py", path, raw, w, h, "CR7-0112 F03",
+                                   (char *)NULL), 0);
+    pl_image_free(img);
+
+    /* without a line (version 1 options too) there is no band */
+    pl_render_options o1 = PL_RENDER_OPTIONS_INIT;
+    o1.version = 1;
+    TU_OK(pl_render__map(&img, &lay, m, 0, &o1, &err));
+    assert_int_equal(lay.title_h, 0);
+    assert_null(img->title);
+    assert_int_equal(ink_in_rows(img, 0, lay.caption_y), 0);
+    pl_image_free(img);
+
+    /* simulated: said first, with or without the caller's line */
+    o.simulated = 1;
+    TU_OK(pl_render__map(&img, &lay, m, 0, &o, &err));
+    assert_string_equal(lay.title, "SIMULATED CR7-0107 site F03 2031-05-02 map 75 depth");
+    assert_text_at(img, lay.title_x, lay.title_y, lay.title, lay.title_scale);
+    assert_string_equal(img->title, lay.title);
+    TU_OK(pl_image_save_png(img, path, &err));
+    assert_int_equal(tu_write_file(raw, img->rgb, (size_t)img->width * img->height * 3), 0);
+    snprintf(w, sizeof w, "%u", img->width);
+    snprintf(h, sizeof h, "%u", img->height);
+    assert_int_equal(tu_python("render_png_ref.py", path, raw, w, h, lay.title, (char *)NULL), 0);
+    pl_image_free(img);
+    o.identification = NULL;
+    TU_OK(pl_render__map(&img, &lay, m, 0, &o, &err));
+    assert_string_equal(lay.title, "SIMULATED");
+    assert_true(ink_in_rows(img, 0, lay.title_y + lay.title_h) > 0);
+    pl_image_free(img);
+
+    /* the view of two maps (register's) carries it */
+    o.identification = ident;
+    o.simulated = 0;
+    for (int mode = 0; mode < 2; mode++) {
+        TU_OK(pl_render_pair(&img, m, 0, m, 0, (pl_pair_mode)mode, 0, &o, &err));
+        assert_string_equal(img->title, ident);
+        assert_true(ink_in_rows(img, 0, 6 * 2 + 7 * 2) > 50);
+        pl_image_free(img);
+    }
+
+    /* refusals */
+    o.identification = "CR7-0107 F03 \xc3\xa9t\xc3\xa9";
+    assert_int_equal(pl_render_map(&img, m, 0, &o, &err), PL_EINVAL);
+    assert_null(img);
+    tu_assert_msg_has(err.msg, "printable ASCII");
+    char longer[PL_RENDER_IDENTIFICATION_SIZE + 8];
+    memset(longer, 'x', sizeof longer - 1);
+    longer[sizeof longer - 1] = '\0';
+    o.identification = longer;
+    assert_int_equal(pl_render_map(&img, m, 0, &o, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "longer than");
+    o.version = 3;
+    assert_int_equal(pl_render_map(&img, m, 0, &o, &err), PL_EINVAL);
+    free(path);
+    free(raw);
+    tu_rmtree(dir);
+    map_release(m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1019,6 +1132,7 @@ int main(void)
         cmocka_unit_test(test_render__png_write_failure_names_file),
         cmocka_unit_test(test_render__font_glyphs_nonempty_and_distinct),
         cmocka_unit_test(test_render__text_draws_glyphs),
+        cmocka_unit_test(test_render__identification_line_in_image_and_png),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

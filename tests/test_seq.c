@@ -692,7 +692,19 @@ static void test_seq__bad_manifests_and_cubes_refused(void **state)
         {HEAD "\"data\": \"c.npy\", " TIMING "\"preflash_frames\": 3, " LINEAR "}", PL_EFORMAT,
          "", {"'preflash_frames'", "3", "only 2"}},
         {HEAD "\"data\": \"c.npy\", " TIMING "\"preflash_frames\": 0, " LINEAR "}", PL_EFORMAT,
-         "", {"'preflash_frames'"}},
+         "", {"'preflash_frames' is 0", "\"cold_reference\": \"subtracted\""}},
+        {HEAD "\"data\": \"c.npy\", " TIMING "\"cold_reference\": \"subtracted\", " LINEAR "}",
+         PL_EFORMAT, "", {"'cold_reference' is 'subtracted'", "2 frames come before the flash"}},
+        {HEAD "\"data\": \"c.npy\", \"frame_rate_hz\": 10, \"flash_time_s\": -0.05, "
+              "\"cold_reference\": \"subtracted\", \"preflash_frames\": 1, " LINEAR "}",
+         PL_EFORMAT, "", {"'preflash_frames' is 1", "'cold_reference' is 'subtracted'"}},
+        {HEAD "\"data\": \"c.npy\", " TIMING "\"cold_reference\": \"none\", " LINEAR "}",
+         PL_EFORMAT, "", {"'cold_reference'", "'none'", "'preflash' or 'subtracted'"}},
+        {HEAD "\"data\": \"c.npy\", " TIMING "\"cold_reference\": 0, " LINEAR "}",
+         PL_EFORMAT, "", {"'cold_reference'"}},
+        {HEAD "\"data\": \"c.npy\", \"frame_rate_hz\": 10, \"flash_time_s\": 0, "
+              "\"cold_reference\": \"preflash\", " LINEAR "}",
+         PL_EFORMAT, "", {"no frame before the flash"}},
         {HEAD "\"data\": \"c.npy\", " TIMING LINEAR ", \"pitch_mm\": -0.5}", PL_EFORMAT, "",
          {"'pitch_mm'"}},
         {HEAD "\"data\": \"c.npy\", " TIMING LINEAR ", \"pitch_mm\": [0.5]}", PL_EFORMAT, "",
@@ -705,6 +717,49 @@ static void test_seq__bad_manifests_and_cubes_refused(void **state)
          PL_EFORMAT, "", {"unknown key", "'size'", "'data'"}},
     };
     run_bad_cases(dir, cases, sizeof cases / sizeof cases[0]);
+    tu_rmtree(dir);
+}
+
+/* Frames that already hold the rise above the pre-flash level, recorded
+ * from the flash on: said explicitly ("cold_reference": "subtracted",
+ * "preflash_frames" 0 or absent), they open with no pre-flash frame and
+ * the times as given; the default says "preflash" and counts them. */
+static void test_seq__rise_frames_without_preflash(void **state)
+{
+    (void)state;
+    char *dir = tu_tmpdir();
+    make_cube(dir, "c.npy", "<u2", 2, 0, 0);
+    make_cube(dir, "f.npy", "<f4", 4, 0, 0);
+    char *man = tu_path(dir, "m.json");
+    static const char *const rise[] = {
+        HEAD "\"data\": \"f.npy\", \"frame_rate_hz\": 10, \"flash_time_s\": -0.05, "
+             "\"preflash_frames\": 0, \"cold_reference\": \"subtracted\", " KELVIN "}",
+        HEAD "\"data\": \"c.npy\", \"frame_rate_hz\": 10, \"flash_time_s\": 0, "
+             "\"cold_reference\": \"subtracted\", \"calibration\": {\"kind\": \"linear\", "
+             "\"gain_k\": 0.001, \"offset_k\": 0}}",
+    };
+    static const double first[] = {0.05, 0.0};
+    for (int k = 0; k < 2; k++) {
+        write_text(man, rise[k]);
+        pl_seq *s = NULL;
+        pl_err err = {0};
+        if (pl_seq_open(&s, man, &err))
+            fail_msg("case %d: %s", k, err.msg);
+        assert_int_equal(pl_seq_preflash_frames(s), 0);
+        assert_int_equal(pl_seq_cold_reference(s), PL_SEQ_COLD_SUBTRACTED);
+        assert_int_equal(pl_seq_frame_count(s), 4);
+        tu_assert_close(pl_seq_times(s)[0], first[k], 1e-12, "first frame time");
+        pl_seq_close(s);
+    }
+    write_text(man, HEAD "\"data\": \"c.npy\", " TIMING "\"cold_reference\": \"preflash\", "
+                    LINEAR "}");
+    pl_seq *s = NULL;
+    pl_err err = {0};
+    TU_OK(pl_seq_open(&s, man, &err));
+    assert_int_equal(pl_seq_preflash_frames(s), 2);
+    assert_int_equal(pl_seq_cold_reference(s), PL_SEQ_COLD_PREFLASH);
+    pl_seq_close(s);
+    free(man);
     tu_rmtree(dir);
 }
 
@@ -1070,6 +1125,7 @@ int main(void)
         cmocka_unit_test(test_seq__pypng_frames_read),
         cmocka_unit_test(test_seq__written_sequences_load_in_numpy_and_pypng),
         cmocka_unit_test(test_seq__bad_manifests_and_cubes_refused),
+        cmocka_unit_test(test_seq__rise_frames_without_preflash),
         cmocka_unit_test(test_seq__bad_png_folders_refused),
         cmocka_unit_test(test_seq__files_changed_after_open),
         cmocka_unit_test(test_seq__writer_refuses_bad_info),

@@ -332,6 +332,105 @@ PL_EXPORT size_t pl_map_range(const pl_map *map, uint32_t c, double *min, double
     return finite;
 }
 
+/* ---- values ------------------------------------------------------------ */
+
+size_t pl_map__count_infinite(const pl_map *map, uint32_t c0, uint32_t c1, uint32_t *channel,
+                              uint32_t *row, uint32_t *col, int *sign)
+{
+    size_t plane = (size_t)map->width * map->height, count = 0;
+    for (uint32_t c = c0; c < c1; c++) {
+        const float *d = pl_map_channel(map, c);
+        for (size_t i = 0; i < plane; i++) {
+            if (!isinf(d[i]))
+                continue;
+            if (count++ == 0) {
+                *channel = c;
+                *row = (uint32_t)(i / map->width);
+                *col = (uint32_t)(i % map->width);
+                *sign = d[i] > 0 ? 1 : -1;
+            }
+        }
+    }
+    return count;
+}
+
+/* "NAME: " or nothing, for messages that may or may not name a file. */
+#define NAME_FMT "%s%s"
+#define NAME_ARGS(name) (name) ? (name) : "", (name) ? ": " : ""
+
+/* The check without changing anything: infinities refused unless `mode`
+ * makes them no data ([out] ninf counts them), and a number required
+ * among the values that are left. */
+static int inspect_values(size_t *ninf, const pl_map *map, pl_map_infinite mode,
+                          const char *name, const char *note, int code, pl_err *err)
+{
+    uint32_t c = 0, row = 0, col = 0;
+    int sign = 0;
+    *ninf = pl_map__count_infinite(map, 0, map->nchannels, &c, &row, &col, &sign);
+    if (*ninf && mode == PL_MAP_INFINITE_REFUSE)
+        return pl__err(err, code,
+                       NAME_FMT "%zu infinite value%s%s, the first (%cinf) at channel %lu, row "
+                       "%lu, column %lu (only NaN may stand for no data)",
+                       NAME_ARGS(name), *ninf, *ninf == 1 ? "" : "s", note ? note : "",
+                       sign > 0 ? '+' : '-', (unsigned long)c, (unsigned long)row,
+                       (unsigned long)col);
+    size_t n = (size_t)map->nchannels * map->height * map->width;
+    for (size_t i = 0; i < n; i++)
+        if (isfinite(map->data[i]))
+            return PL_OK;
+    return pl__err(err, code, NAME_FMT "no data (every value is NaN%s)", NAME_ARGS(name),
+                   *ninf ? " once the infinities are made no data" : "");
+}
+
+int pl_map__check_values(pl_map_load_info *info, pl_map *map, const pl_map_load_options *opts,
+                         const char *name, const char *note, int code, pl_err *err)
+{
+    assert(map && map->data);
+    pl_map_load_options dflt = PL_MAP_LOAD_OPTIONS_INIT;
+    if (!opts)
+        opts = &dflt;
+    if (opts->version != PL_MAP_LOAD_OPTIONS_VERSION)
+        return pl__err(err, PL_EINVAL, NAME_FMT "map load options version %u unknown (%u expected)",
+                       NAME_ARGS(name), opts->version, PL_MAP_LOAD_OPTIONS_VERSION);
+    if (opts->infinite != PL_MAP_INFINITE_REFUSE && opts->infinite != PL_MAP_INFINITE_TO_NAN)
+        return pl__err(err, PL_EINVAL, NAME_FMT "map load option for infinities %d unknown",
+                       NAME_ARGS(name), (int)opts->infinite);
+    if (info) {
+        info->infinite = opts->infinite;
+        info->infinite_to_nan = 0;
+    }
+    size_t ninf;
+    int rc = inspect_values(&ninf, map, opts->infinite, name, note, code, err);
+    if (rc)
+        return rc;
+    if (ninf) {
+        size_t n = (size_t)map->nchannels * map->height * map->width;
+        for (size_t i = 0; i < n; i++)
+            if (isinf(map->data[i]))
+                map->data[i] = NAN;
+        if (info)
+            info->infinite_to_nan = ninf;
+    }
+    return PL_OK;
+}
+
+PL_EXPORT int pl_map_check_values(pl_map_load_info *info, pl_map *map,
+                                  const pl_map_load_options *opts, const char *name,
+                                  pl_err *err)
+{
+    return pl_map__check_values(info, map, opts, name, NULL, PL_EINVAL, err);
+}
+
+PL_EXPORT int pl_map_load_info_json(char *buf, size_t size, const pl_map_load_info *info)
+{
+    assert(info);
+    if (info->infinite == PL_MAP_INFINITE_TO_NAN)
+        return snprintf(buf, size,
+                        "{\"infinite_values\": \"to-nan\", \"infinite_values_made_nodata\": %zu}",
+                        info->infinite_to_nan);
+    return snprintf(buf, size, "{\"infinite_values\": \"refuse\"}");
+}
+
 /* ---- number parsing shared by the file readers ------------------------ */
 
 int pl_map__parse_number(double *v, const char *s)
@@ -465,6 +564,10 @@ PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len, unsigned cha
         return pl__err(err, PL_EINVAL, "map size %lu x %lu x %lu is invalid",
                        (unsigned long)map->nchannels, (unsigned long)map->height,
                        (unsigned long)map->width);
+    size_t ninf;
+    int rc = inspect_values(&ninf, map, PL_MAP_INFINITE_REFUSE, NULL, NULL, PL_EINVAL, err);
+    if (rc)
+        return rc;
     z_stream zs;
     memset(&zs, 0, sizeof zs);
     int zrc = deflateInit(&zs, Z_DEFAULT_COMPRESSION);
@@ -616,17 +719,23 @@ PL_EXPORT int pl_map_decode(pl_map *map, const void *blob, size_t blob_len,
 
 /* ---- loading by file name -------------------------------------------- */
 
-PL_EXPORT int pl_map_load(pl_map **out, const char *path, pl_err *err)
+PL_EXPORT int pl_map_load_v2(pl_map **out, pl_map_load_info *info, const char *path,
+                             const pl_map_load_options *opts, pl_err *err)
 {
     *out = NULL;
     const char *base = pl__basename(path);
     const char *dot = strrchr(base, '.');
     if (dot && strcasecmp(dot, ".png") == 0)
-        return pl_map_load_png(out, path, err);
+        return pl_map__load_png(out, info, path, opts, err);
     if (dot && strcasecmp(dot, ".npy") == 0)
-        return pl_map_load_npy(out, path, err);
+        return pl_map__load_npy(out, info, path, opts, err);
     if (dot && strcasecmp(dot, ".csv") == 0)
-        return pl_map_load_csv(out, path, err);
+        return pl_map__load_csv(out, info, path, opts, err);
     return pl__err(err, PL_EFORMAT, "%s: unknown map file type (.png, .npy or .csv expected)",
                    path);
+}
+
+PL_EXPORT int pl_map_load(pl_map **out, const char *path, pl_err *err)
+{
+    return pl_map_load_v2(out, NULL, path, NULL, err);
 }

@@ -145,7 +145,8 @@ static int read_grid(grid *g, FILE *f, const char *path, pl_err *err)
     return rc;
 }
 
-PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err)
+int pl_map__load_csv(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
@@ -160,9 +161,19 @@ PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err)
         if (rc == PL_OK) {
             memcpy(m->data, g.v, g.n * sizeof(float));
             m->pitch_u = m->pitch_v = NAN; /* a CSV grid carries no pitch */
-            *out = m;
+            /* the grammar admits no infinity; a grid of no data is refused here */
+            rc = pl_map__check_values(info, m, opts, path, NULL, PL_EFORMAT, err);
+            if (rc)
+                pl_map_free(m);
+            else
+                *out = m;
         }
     }
     free(g.v);
     return rc;
+}
+
+PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err)
+{
+    return pl_map__load_csv(out, NULL, path, NULL, err);
 }

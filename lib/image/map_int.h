@@ -38,4 +38,27 @@ int pl_map__parse_number(double *v, const char *s);
  */
 int pl_map__parse_pitch(double *pu, double *pv, const char *s);
 
+/*
+ * pl_map_check_values() for a loader: `code` is the status of a refusal
+ * (PL_EFORMAT for a file), `note` (may be NULL) is said after the count of
+ * infinities, e.g. where they come from.
+ */
+int pl_map__check_values(pl_map_load_info *info, pl_map *map, const pl_map_load_options *opts,
+                         const char *name, const char *note, int code, pl_err *err);
+
+/*
+ * The infinities among channels [c0, c1) of a map: their count, and the
+ * first one's channel, row, column and sign (> 0: +inf) when there is one.
+ */
+size_t pl_map__count_infinite(const pl_map *map, uint32_t c0, uint32_t c1, uint32_t *channel,
+                              uint32_t *row, uint32_t *col, int *sign);
+
+/* The loaders with options (NULL: the defaults); info may be NULL. */
+int pl_map__load_png(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err);
+int pl_map__load_npy(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err);
+int pl_map__load_csv(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err);
+
 #endif

@@ -58,7 +58,8 @@ static int check_shape(const pl_npy_header *hdr, const char *path, uint32_t dims
     return PL_OK;
 }
 
-static int read_npy(pl_map **out, FILE *f, const char *path, pl_err *err)
+static int read_npy(pl_map **out, pl_map_load_info *info, FILE *f, const char *path,
+                    const pl_map_load_options *opts, pl_err *err)
 {
     pl_npy_header hdr;
     int rc = pl_npy_read_header(&hdr, f, path, err);
@@ -82,6 +83,12 @@ static int read_npy(pl_map **out, FILE *f, const char *path, pl_err *err)
         return pl__err(err, PL_EFORMAT,
                        "%s: truncated data (%llu of %zu bytes after the header)", path,
                        (unsigned long long)left, need);
+    if (left >= 0 && (unsigned long long)left > need)
+        return pl__err(err, PL_EFORMAT,
+                       "%s: %llu bytes after the %zu bytes of data of the %llu x %llu x %llu "
+                       "array", path, (unsigned long long)left - need, need,
+                       (unsigned long long)dims[0], (unsigned long long)dims[1],
+                       (unsigned long long)dims[2]);
     pl_map *m;
     rc = pl_map_new(&m, dims[2], dims[1], dims[0], err);
     if (rc)
@@ -103,19 +110,39 @@ static int read_npy(pl_map **out, FILE *f, const char *path, pl_err *err)
         pl_npy_to_float(m->data + done, buf, n, &hdr);
         done += n;
     }
+    /* a pipe's extra bytes show only now */
+    if (left < 0 && fgetc(f) != EOF) {
+        pl_map_free(m);
+        return pl__err(err, PL_EFORMAT, "%s: bytes after the %zu bytes of data", path, need);
+    }
+    rc = pl_map__check_values(info, m, opts, path,
+                              hdr.dtype == PL_NPY_F64
+                                  ? " (float64 values beyond the float32 range become infinite)"
+                                  : NULL,
+                              PL_EFORMAT, err);
+    if (rc) {
+        pl_map_free(m);
+        return rc;
+    }
     *out = m;
     return PL_OK;
 }
 
-PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err)
+int pl_map__load_npy(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err)
 {
     *out = NULL;
     FILE *f = fopen(path, "rb");
     if (!f)
         return pl__err(err, PL_EIO, "%s: cannot open: %s", path, strerror(errno));
-    int rc = read_npy(out, f, path, err);
+    int rc = read_npy(out, info, f, path, opts, err);
     fclose(f);
     return rc;
+}
+
+PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err)
+{
+    return pl_map__load_npy(out, NULL, path, NULL, err);
 }
 
 static int write_npy(const pl_map *map, FILE *f, const char *path, pl_err *err)
@@ -123,6 +150,15 @@ static int write_npy(const pl_map *map, FILE *f, const char *path, pl_err *err)
     size_t count;
     if (pl_map__count(&count, map->width, map->height, map->nchannels))
         return pl__err(err, PL_EINVAL, "%s: the map's size is invalid", path);
+    uint32_t c = 0, row = 0, col = 0;
+    int sign = 0;
+    size_t ninf = pl_map__count_infinite(map, 0, map->nchannels, &c, &row, &col, &sign);
+    if (ninf)
+        return pl__err(err, PL_EINVAL,
+                       "%s: not written: the map holds %zu infinite value%s, the first (%cinf) "
+                       "at channel %lu, row %lu, column %lu", path, ninf, ninf == 1 ? "" : "s",
+                       sign > 0 ? '+' : '-', (unsigned long)c, (unsigned long)row,
+                       (unsigned long)col);
     uint64_t shape[3] = {map->nchannels, map->height, map->width};
     int rc = map->nchannels == 1
                  ? pl_npy_write_header(f, "<f4", 2, shape + 1, path, err)

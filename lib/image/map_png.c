@@ -144,7 +144,8 @@ static int apply_meta(pl_map *map, const png_meta *m, const png_job *j, pl_err *
 }
 
 /* The libpng part of reading; see the introduction for the setjmp rules. */
-static int read_png(png_job *j, pl_map **out, pl_err *err)
+static int read_png(png_job *j, pl_map **out, pl_map_load_info *info,
+                    const pl_map_load_options *opts, pl_err *err)
 {
     if (setjmp(png_jmpbuf(j->png)))
         return pl__err(err, PL_EFORMAT, "%s: corrupt or truncated PNG (%s)", j->path, j->msg);
@@ -208,6 +209,13 @@ static int read_png(png_job *j, pl_map **out, pl_err *err)
                 code == meta.nodata ? NAN : (float)(meta.offset + meta.scale * (double)code);
         }
     }
+    rc = pl_map__check_values(info, m, opts, j->path,
+                              " (offset + scale * code beyond the float32 range)", PL_EFORMAT,
+                              err);
+    if (rc) {
+        pl_map_free(m);
+        return rc;
+    }
     *out = m;
     return PL_OK;
 }
@@ -230,7 +238,8 @@ static int read_signature(png_job *j, pl_err *err)
     return PL_OK;
 }
 
-PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err)
+int pl_map__load_png(pl_map **out, pl_map_load_info *info, const char *path,
+                     const pl_map_load_options *opts, pl_err *err)
 {
     *out = NULL;
     png_job j;
@@ -238,8 +247,13 @@ PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err)
     if (rc == PL_OK)
         rc = read_signature(&j, err);
     if (rc == PL_OK)
-        rc = read_png(&j, out, err);
+        rc = read_png(&j, out, info, opts, err);
     return job_end(&j, rc);
+}
+
+PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err)
+{
+    return pl_map__load_png(out, NULL, path, NULL, err);
 }
 
 /* ---- writing ---------------------------------------------------------- */
@@ -266,13 +280,11 @@ static void add_text(png_texts *t, const char *key, const char *value)
 }
 
 /* The code of one value: offset + scale * code is within scale / 2 of a
- * finite value; an infinity goes to the nearest end of the code range. */
+ * finite value (pl_map_save_png() refuses an infinity before). */
 static unsigned code_of(float v, double offset, double scale)
 {
     if (isnan(v))
         return NODATA_CODE;
-    if (isinf(v))
-        return v > 0 ? MAX_CODE : 0;
     double q = floor(((double)v - offset) / scale + 0.5);
     if (q < 0)
         return 0;
@@ -314,6 +326,15 @@ PL_EXPORT int pl_map_write_png(const pl_map *map, uint32_t c, pl_outfile *of, pl
     if (c >= map->nchannels)
         return pl__err(err, PL_EINVAL, "%s: channel %lu does not exist (the map has %lu)",
                        path, (unsigned long)c, (unsigned long)map->nchannels);
+    uint32_t ch = 0, row = 0, col = 0;
+    int sign = 0;
+    size_t ninf = pl_map__count_infinite(map, c, c + 1, &ch, &row, &col, &sign);
+    if (ninf)
+        return pl__err(err, PL_EINVAL,
+                       "%s: not written: %zu infinite value%s, the first (%cinf) at channel "
+                       "%lu, row %lu, column %lu (no PNG code stands for an infinity)", path,
+                       ninf, ninf == 1 ? "" : "s", sign > 0 ? '+' : '-', (unsigned long)ch,
+                       (unsigned long)row, (unsigned long)col);
     double lo, hi, offset = 0, scale = 1;
     if (pl_map_range(map, c, &lo, &hi) > 0) {
         offset = lo;

@@ -429,9 +429,18 @@ static void pc_correlate(pc_ctx *c, pl_register__peak *pk, int limit_x)
     pk->dy = pk->iy;
     pk->psr = NAN;
     if (cnt > 1) {
+        /* The surface is float32: a sidelobe flatter than the rounding of
+         * the peak (an exact match, whose surface is a unit impulse, has a
+         * sidelobe of exact zeros) is taken at that rounding level, so
+         * that a perfect match gets the largest ratio float32 can show
+         * (about 1 / FLT_EPSILON) instead of 0 / 0. A surface without a
+         * peak above its mean keeps NaN. */
         double mean = sum / (double)cnt, var = sum2 / (double)cnt - mean * mean;
-        if (var > 0.0)
+        double floor_sd = FLT_EPSILON * fabs(pk->peak);
+        if (var > floor_sd * floor_sd)
             pk->psr = (pk->peak - mean) / sqrt(var);
+        else if (pk->peak > mean)
+            pk->psr = (pk->peak - mean) / floor_sd;
     }
 }
 

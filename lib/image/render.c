@@ -20,6 +20,7 @@
 #include <limits.h>
 #include <math.h>
 #include <pthread.h>
+#include <stddef.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -529,6 +530,7 @@ PL_EXPORT void pl_image_free(pl_image *img)
 {
     if (!img)
         return;
+    free(img->title);
     free(img->rgb);
     free(img);
 }
@@ -644,9 +646,18 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
     int64_t right = 0, bottom = 0;
 
     int y = margin;
+    if (lay->title[0]) {
+        lay->title_x = margin;
+        lay->title_y = y;
+        lay->title_h = PL_FONT_HEIGHT * (int)lay->title_scale;
+        right = margin + (int64_t)pl_render__text_width(lay->title, lay->title_scale);
+        y += lay->title_h + gap;
+    }
     lay->caption_x = margin;
     lay->caption_y = y;
-    right = margin + (int64_t)pl_render__text_width(lay->caption, lay->text_scale);
+    int64_t caption_right = margin + (int64_t)pl_render__text_width(lay->caption, lay->text_scale);
+    if (caption_right > right)
+        right = caption_right;
     y += gh + gap;
 
     int row_top = y;
@@ -722,17 +733,68 @@ static int plan_layout(pl_render_layout *lay, uint64_t *img_w, uint64_t *img_h,
     return PL_OK;
 }
 
-/* The caller's options (checked for their version), or the defaults. */
+/* The caller's options (checked for their version), or the defaults. A
+ * version 1 struct ends before `identification`: only that much is read. */
 static int options_of(pl_render_options *o, const pl_render_options *opts, pl_err *err)
 {
     *o = (pl_render_options)PL_RENDER_OPTIONS_INIT;
     if (!opts)
         return PL_OK;
+    if (opts->version == 1) {
+        memcpy(o, opts, offsetof(pl_render_options, identification));
+        o->version = PL_RENDER_OPTIONS_VERSION;
+        return PL_OK;
+    }
     if (opts->version != PL_RENDER_OPTIONS_VERSION)
-        return pl__err(err, PL_EINVAL, "render options version %u is not %u", opts->version,
-                       PL_RENDER_OPTIONS_VERSION);
+        return pl__err(err, PL_EINVAL, "render options version %u is not 1 or %u",
+                       opts->version, PL_RENDER_OPTIONS_VERSION);
     *o = *opts;
     return PL_OK;
+}
+
+/* The line drawn on top: SIMULATED first for a simulated inspection, then
+ * the caller's identification, which must be printable ASCII (the font
+ * and the PNG tEXt chunk, Latin-1, both hold it) and short enough. */
+static int title_of(char *title, size_t size, const pl_render_options *o, pl_err *err)
+{
+    const char *id = o->identification ? o->identification : "";
+    size_t n = strlen(id);
+    if (n >= PL_RENDER_IDENTIFICATION_SIZE)
+        return pl__err(err, PL_EINVAL, "render identification is longer than %d characters",
+                       PL_RENDER_IDENTIFICATION_SIZE - 1);
+    for (size_t i = 0; i < n; i++)
+        if ((unsigned char)id[i] < 0x20 || (unsigned char)id[i] > 0x7e)
+            return pl__err(err, PL_EINVAL, "render identification: byte 0x%02x at position "
+                           "%zu is not printable ASCII", (unsigned)(unsigned char)id[i], i);
+    snprintf(title, size, "%s%s%s", o->simulated ? "SIMULATED" : "",
+             o->simulated && n ? " " : "", id);
+    return PL_OK;
+}
+
+PL_EXPORT int pl_render_identification(char *buf, size_t size, const char *serial,
+                                       const char *site, const char *date, long long map_id,
+                                       const char *quantity)
+{
+    char id[32] = "";
+    if (map_id > 0)
+        snprintf(id, sizeof id, "%lld", map_id);
+    const char *part[5][2] = {{"", serial}, {"site ", site}, {"", date}, {"map ", id},
+                              {"", quantity}};
+    size_t n = 0;
+    int total = 0;
+    if (size)
+        buf[0] = '\0';
+    for (int k = 0; k < 5; k++) {
+        if (!part[k][1] || !part[k][1][0])
+            continue;
+        int w = snprintf(n < size ? buf + n : NULL, n < size ? size - n : 0, "%s%s%s",
+                         total ? " " : "", part[k][0], part[k][1]);
+        if (w < 0)
+            return w;
+        total += w;
+        n += (size_t)w;
+    }
+    return total;
 }
 
 static void draw_map(pl_image *img, const pl_render_layout *lay, const float *data,
@@ -818,6 +880,13 @@ int pl_render__map(pl_image **out, pl_render_layout *layout, const pl_map *map, 
     } else {
         snprintf(lay.labels[1], sizeof lay.labels[1], "no data");
     }
+    if ((rc = title_of(lay.title, sizeof lay.title, &o, err)))
+        return rc;
+    /* a line wider than the map at the text scale takes the smallest font */
+    lay.title_scale = lay.text_scale;
+    if (lay.title_scale > 1 &&
+        pl_render__text_width(lay.title, lay.title_scale) > (uint32_t)lay.map_w + 2)
+        lay.title_scale = 1;
 
     uint64_t w, h;
     if (plan_layout(&lay, &w, &h, map, &o) != PL_OK)
@@ -839,7 +908,13 @@ int pl_render__map(pl_image **out, pl_render_layout *layout, const pl_map *map, 
     unsigned char nodata[3];
     pl_render__nodata_rgb(o.colormap, nodata);
 
+    if (lay.title[0] && !(img->title = pl__strdup(lay.title))) {
+        pl_image_free(img);
+        return pl__err(err, PL_ENOMEM, "out of memory for an image title");
+    }
     pl_render__fill(img, 0, 0, img->width, img->height, paper);
+    if (lay.title[0])
+        pl_image_text(img, lay.title_x, lay.title_y, lay.title, lay.title_scale, ink);
     pl_image_text(img, lay.caption_x, lay.caption_y, lay.caption, s, ink);
     outline(img, lay.map_x, lay.map_y, lay.map_w, lay.map_h, ink);
     draw_map(img, &lay, data, map, table, nodata);
@@ -1018,13 +1093,23 @@ static int write_rgb_png(png_job *job, FILE *fp, const pl_image *img)
     png_init_io(job->png, fp);
     png_set_IHDR(job->png, job->info, img->width, img->height, 8, PNG_COLOR_TYPE_RGB,
                  PNG_INTERLACE_NONE, PNG_COMPRESSION_TYPE_DEFAULT, PNG_FILTER_TYPE_DEFAULT);
-    png_text text;
-    memset(&text, 0, sizeof text);
-    text.compression = PNG_TEXT_COMPRESSION_NONE;
-    text.key = (png_charp)(uintptr_t)"Software";
-    text.text = (png_charp)(uintptr_t)("plyledger " PL_VERSION_STRING);
-    text.text_length = strlen(text.text);
-    png_set_text(job->png, job->info, &text, 1);
+    png_text text[2];
+    memset(text, 0, sizeof text);
+    text[0].compression = PNG_TEXT_COMPRESSION_NONE;
+    text[0].key = (png_charp)(uintptr_t)"Software";
+    text[0].text = (png_charp)(uintptr_t)("plyledger " PL_VERSION_STRING);
+    text[0].text_length = strlen(text[0].text);
+    /* "Title": a predefined keyword of the PNG specification (ISO/IEC
+     * 15948, 11.3.4.2), the picture's short title */
+    int ntext = 1;
+    if (img->title && img->title[0]) {
+        text[1].compression = PNG_TEXT_COMPRESSION_NONE;
+        text[1].key = (png_charp)(uintptr_t)"Title";
+        text[1].text = img->title;
+        text[1].text_length = strlen(img->title);
+        ntext = 2;
+    }
+    png_set_text(job->png, job->info, text, ntext);
     png_write_info(job->png, job->info);
     for (uint32_t y = 0; y < img->height; y++)
         png_write_row(job->png, img->rgb + (size_t)y * img->width * 3);

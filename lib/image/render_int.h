@@ -85,6 +85,9 @@ typedef struct pl_render_layout {
     unsigned text_scale;    /* image pixels per font pixel */
     double vmin, vmax;      /* value range of the colour map */
     int map_x, map_y, map_w, map_h;          /* the map, inside its frame */
+    int title_x, title_y, title_h;           /* identification line (top-left); */
+    unsigned title_scale;                    /* title_h 0: none */
+    char title[PL_RENDER_IDENTIFICATION_SIZE + 16];
     int caption_x, caption_y;                /* quantity name (top-left) */
     char caption[96];
     int bar_x, bar_y, bar_w, bar_h;          /* colour bar, inside its frame */

@@ -1167,15 +1167,27 @@ PL_EXPORT int pl_reducer_new(pl_reducer **out, uint32_t width, uint32_t height,
     if (width == 0 || height == 0 || width > PL_MAP_MAX_SIDE || height > PL_MAP_MAX_SIDE)
         return pl__err(err, PL_EINVAL, "reduction: image size %ux%u out of range", width,
                        height);
-    if (nframes < 2 || preflash < 1 || preflash >= nframes)
+    if (nframes < 2 || preflash >= nframes)
         return pl__err(err, PL_EINVAL,
-                       "reduction: %u frames with %u pre-flash frames (at least one of each "
-                       "needed)",
+                       "reduction: %u frames with %u pre-flash frames (at least one after "
+                       "them needed)",
                        nframes, preflash);
     for (uint32_t i = 0; i < nframes; i++)
         if (!isfinite(times[i]) || (i && !(times[i] > times[i - 1])))
             return pl__err(err, PL_EINVAL, "reduction: frame %u time %.9g s is %s", i, times[i],
                            isfinite(times[i]) ? "not after the previous one" : "not finite");
+    /* No pre-flash frame: the frames hold the rise, from the flash on. The
+     * cold reference then stays zero and nothing is subtracted. Frames
+     * before the flash mean a cold reference was forgotten, not absent. */
+    uint32_t before = 0;
+    while (before < nframes && times[before] < 0.0)
+        before++;
+    if (preflash == 0 && before > 0)
+        return pl__err(err, PL_EINVAL,
+                       "reduction: no pre-flash frames given but %u frames come before the "
+                       "flash (none is for frames that already hold the rise, from the flash "
+                       "on)",
+                       before);
     int rc = check_options(o, width, height, err);
     if (rc)
         return rc;
@@ -2399,6 +2411,8 @@ static char *parameters_json(const pl_reducer *r, const pl_seq *seq, uint64_t sa
     cJSON *fr = cJSON_AddObjectToObject(j, "frames");
     cJSON_AddNumberToObject(fr, "total", r->nframes);
     cJSON_AddNumberToObject(fr, "preflash", r->preflash);
+    if (r->preflash == 0) /* the frames held the rise: nothing was subtracted */
+        cJSON_AddStringToObject(fr, "cold_reference", "subtracted");
     cJSON_AddNumberToObject(fr, "used", r->fed);
     cJSON_AddItemToObject(j, "map_times_s", number_array(r->map_times, o->ntimes));
     cJSON_AddNumberToObject(j, "time_products", r->products);

@@ -51,6 +51,7 @@ struct pl_seq {
     uint32_t width, height, nframes;
     double *times;          /* relative to the flash */
     uint32_t preflash;
+    pl_seq_cold cold;
     double pitch_u, pitch_v;
     char *acquisition;
     uint32_t saturation;    /* counts at or above are saturated */
@@ -218,6 +219,7 @@ typedef struct manifest {
     const cJSON *times;                /* frame_times_s, or NULL */
     double flash;
     long preflash;                     /* -1: not given */
+    pl_seq_cold cold;
     calibration cal;
     long saturation;                   /* -1: not given */
     double pitch_u, pitch_v;
@@ -402,12 +404,53 @@ static int parse_pitch(manifest *m, const cJSON *item, const char *path, pl_err 
     return PL_OK;
 }
 
+/*
+ * "cold_reference" and "preflash_frames". Frames that already hold the rise
+ * (the camera's software subtracted the pre-flash level) have no
+ * pre-flash frame to average; that is said in so many words, so that a
+ * manifest cannot lose its cold reference by a typing slip: 0 pre-flash
+ * frames only with "subtracted", and "subtracted" with none.
+ */
+static int parse_cold_reference(manifest *m, const cJSON *cold, const cJSON *pre,
+                                const char *path, pl_err *err)
+{
+    m->cold = PL_SEQ_COLD_PREFLASH;
+    if (cold) {
+        const char *v = "";
+        int rc = get_string(&v, cold, path, "cold_reference", err);
+        if (rc)
+            return rc;
+        if (strcmp(v, "subtracted") == 0)
+            m->cold = PL_SEQ_COLD_SUBTRACTED;
+        else if (strcmp(v, "preflash") != 0)
+            return pl__err(err, PL_EFORMAT,
+                           "%s: 'cold_reference' is '%.40s'; 'preflash' or 'subtracted' expected",
+                           path, v);
+    }
+    m->preflash = -1;
+    if (!pre)
+        return PL_OK;
+    int rc = get_integer(&m->preflash, pre, 0, (long)INT32_MAX, path, "preflash_frames", err);
+    if (rc)
+        return rc;
+    if (m->preflash == 0 && m->cold != PL_SEQ_COLD_SUBTRACTED)
+        return pl__err(err, PL_EFORMAT,
+                       "%s: 'preflash_frames' is 0, but the cold reference is the mean of the "
+                       "pre-flash frames; frames that already hold the rise need "
+                       "\"cold_reference\": \"subtracted\"", path);
+    if (m->preflash > 0 && m->cold == PL_SEQ_COLD_SUBTRACTED)
+        return pl__err(err, PL_EFORMAT,
+                       "%s: 'preflash_frames' is %ld but 'cold_reference' is 'subtracted' (the "
+                       "frames hold the rise; no pre-flash frame is used)", path, m->preflash);
+    return PL_OK;
+}
+
 static int parse_manifest(manifest *m, const cJSON *root, const char *path, pl_err *err)
 {
     static const char *const known[] = {
         "format", "data", "width", "height", "frame_count", "frame_rate_hz", "frame_times_s",
-        "flash_time_s", "preflash_frames", "calibration", "pitch_mm", "saturation_count",
-        "acquisition", NULL};
+        "flash_time_s", "preflash_frames", "cold_reference", "calibration", "pitch_mm",
+        "saturation_count", "acquisition", NULL};
     if (!cJSON_IsObject(root))
         return pl__err(err, PL_EFORMAT, "%s: the manifest is not a JSON object", path);
     int rc = check_known(root, known, path, "the manifest", err);
@@ -465,10 +508,8 @@ static int parse_manifest(manifest *m, const cJSON *root, const char *path, pl_e
         return pl__err(err, PL_EFORMAT, "%s: no 'flash_time_s' key", path);
     if ((rc = get_number(&m->flash, ITEM("flash_time_s"), path, "flash_time_s", err)))
         return rc;
-    m->preflash = -1;
-    if (ITEM("preflash_frames") &&
-        (rc = get_integer(&m->preflash, ITEM("preflash_frames"), 1, (long)INT32_MAX, path,
-                          "preflash_frames", err)))
+    if ((rc = parse_cold_reference(m, ITEM("cold_reference"), ITEM("preflash_frames"), path,
+                                   err)))
         return rc;
     if (!ITEM("calibration"))
         return pl__err(err, PL_EFORMAT, "%s: no 'calibration' key", path);
@@ -754,7 +795,14 @@ static int set_times(pl_seq *s, const manifest *m, pl_err *err)
     uint32_t before = 0;
     while (before < s->nframes && s->times[before] < m->flash)
         before++;
-    if (before == 0)
+    s->cold = m->cold;
+    if (m->cold == PL_SEQ_COLD_SUBTRACTED && before > 0)
+        return pl__err(err, PL_EFORMAT,
+                       "%s: 'cold_reference' is 'subtracted' but %u frames come before the flash "
+                       "(the first at %s s, flash at %s s); frames of rise data start at the "
+                       "flash, or the pre-flash frames make the cold reference", s->path, before,
+                       num(s->times[0]).s, num(m->flash).s);
+    if (before == 0 && m->cold == PL_SEQ_COLD_PREFLASH)
         return pl__err(err, PL_EFORMAT,
                        "%s: no frame before the flash (first frame at %s s, flash at %s s)",
                        s->path, num(s->times[0]).s, num(m->flash).s);
@@ -766,7 +814,7 @@ static int set_times(pl_seq *s, const manifest *m, pl_err *err)
         return pl__err(err, PL_EFORMAT,
                        "%s: 'preflash_frames' is %ld but only %u frames come before the flash",
                        s->path, m->preflash, before);
-    s->preflash = m->preflash > 0 ? (uint32_t)m->preflash : before;
+    s->preflash = m->preflash >= 0 ? (uint32_t)m->preflash : before;
     for (uint32_t i = 0; i < s->nframes; i++)
         s->times[i] -= m->flash;
     return PL_OK;
@@ -854,6 +902,7 @@ PL_EXPORT uint32_t pl_seq_height(const pl_seq *seq) { return seq->height; }
 PL_EXPORT uint32_t pl_seq_frame_count(const pl_seq *seq) { return seq->nframes; }
 PL_EXPORT const double *pl_seq_times(const pl_seq *seq) { return seq->times; }
 PL_EXPORT uint32_t pl_seq_preflash_frames(const pl_seq *seq) { return seq->preflash; }
+PL_EXPORT pl_seq_cold pl_seq_cold_reference(const pl_seq *seq) { return seq->cold; }
 PL_EXPORT const char *pl_seq_acquisition_json(const pl_seq *seq) { return seq->acquisition; }
 
 PL_EXPORT void pl_seq_pitch(const pl_seq *seq, double *pitch_u, double *pitch_v)

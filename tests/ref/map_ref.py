@@ -152,6 +152,11 @@ def png_write(d):
     put(d, 'bad_nodata.png', add_text(g, [('plyledger.nodata', '70000')]))
     put(d, 'bad_unit.png', add_text(g, [('plyledger.quantity', 'depth'),
                                         ('plyledger.unit', 'K')]))
+    # offset + scale * code beyond float32's range (3.4e38) for codes 4 and 5
+    put(d, 'overflow.png', add_text(g, [('plyledger.scale', '1e38')]))
+    # every code the nodata code
+    put(d, 'all_nodata.png', add_text(png_bytes(3, 2, [[7, 7, 7], [7, 7, 7]], greyscale=True,
+                                                bitdepth=16), [('plyledger.nodata', '7')]))
     return 0
 
 

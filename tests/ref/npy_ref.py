@@ -4,7 +4,9 @@
   npy_ref.py write DIR
       numpy writes NAME.npy files (numpy.save / numpy.lib.format.write_array)
       and, for each, NAME.raw: the same values as little-endian float64
-      (ndarray.astype('<f8').tofile). Also a few files plyledger must refuse.
+      (ndarray.astype('<f8').tofile). Also a few files plyledger must refuse
+      (for those holding infinities, NAME.raw is the load that makes them
+      no data).
 
   npy_ref.py check DIR NAME:SHAPE...
       numpy.load reads NAME.npy written by plyledger and compares it bit for
@@ -29,7 +31,7 @@ def values(shape, dtype):
         flat[1] = -0.0
         if n > 4:
             flat[2] = 1e-40 if np.dtype(dtype).itemsize == 4 else 1e-300
-            flat[3] = 3.0e38 if np.dtype(dtype).itemsize == 4 else 1e300
+            flat[3] = 3.0e38  # near the top of float32, which every map is
             flat[4] = -123456.789
     elif np.dtype(dtype).kind == 'u':
         top = np.iinfo(np.dtype(dtype)).max
@@ -53,6 +55,14 @@ def save(d, name, arr, version=None):
     arr.astype('<f8').tofile(os.path.join(d, name + '.raw'))
 
 
+def save_nodata(d, name, arr):
+    np.save(os.path.join(d, name + '.npy'), arr)
+    with np.errstate(over='ignore'):
+        as_f4 = arr.astype('<f4').astype('<f8')
+    as_f4[np.isinf(as_f4)] = np.nan
+    as_f4.tofile(os.path.join(d, name + '.raw'))
+
+
 def write(d):
     save(d, 'f4', values((5, 7), '<f4'))
     save(d, 'f8', values((6, 4), '<f8'))
@@ -67,6 +77,25 @@ def write(d):
     save(d, 'le_i2', values((3, 5), '<i2'))
     save(d, 'be_i2', values((3, 5), '>i2'))
     save(d, 'u1', values((2, 8), '|u1'))
+    # infinities, and float64 values beyond float32's range (which become
+    # infinities): refused as maps, or made no data on request; NAME.raw
+    # holds what the request gives (numpy's own float32 conversion, then
+    # every infinity replaced by NaN)
+    v = values((4, 5), '<f4')
+    v[1, 2] = np.inf
+    v[3, 0] = -np.inf
+    save_nodata(d, 'inf_f4', v)
+    v = values((3, 4), '<f8')
+    v[0, 1] = 1e300
+    v[2, 3] = -1e39
+    save_nodata(d, 'huge_f8', v)
+    v = values((3, 4, 5), '>f4')
+    v[2, 1, 4] = -np.inf
+    save_nodata(d, 'inf_c3', v)
+    np.save(os.path.join(d, 'all_nan.npy'), np.full((2, 3), np.nan, dtype='<f4'))
+    v = np.full((2, 3), np.nan, dtype='<f4')
+    v[1, 1] = np.inf
+    np.save(os.path.join(d, 'nan_and_inf.npy'), v)
     # refused as maps
     np.save(os.path.join(d, 'i8.npy'), np.arange(12, dtype='<i8').reshape(3, 4))
     np.save(os.path.join(d, 'fortran.npy'),

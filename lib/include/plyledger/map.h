@@ -21,6 +21,15 @@
  * col i) lives at data[(c * height + j) * width + i]. pl_map_new() allocates
  * it zeroed; pl_map_free() releases the map, its channels and its data.
  *
+ * Values. A value is a finite number or NaN (no data); a map holds at
+ * least one number. pl_map_check_values() is the one check of that: every
+ * loader applies it, and so does pl_map_encode() (what enters the store),
+ * for maps a caller filled in itself. An infinity (float64 or PNG values
+ * beyond the float32 range arrive as one) is refused; it becomes no data
+ * only on the explicit load option PL_MAP_INFINITE_TO_NAN, whose use and
+ * count pl_map_load_info reports for the record. Exports refuse infinities
+ * too rather than write a value that would read back as an ordinary one.
+ *
  * Files. Import reads 8- or 16-bit grayscale PNG (value = offset + scale *
  * code, from text chunks below), NumPy .npy (float32, float64, uint16; C
  * order; 2-D or 3-D as channels x rows x cols) and CSV grids. Export writes
@@ -171,16 +180,70 @@ PL_EXPORT int pl_quantity_check(const char *quantity, const char *unit, pl_err *
 /** Default unit of a vocabulary quantity, or NULL for a free one. */
 PL_EXPORT const char *pl_quantity_default_unit(const char *quantity);
 
+/* ---- values ------------------------------------------------------------ */
+
+/** What a map load does with an infinite value (NaN always means no data). */
+typedef enum pl_map_infinite {
+    PL_MAP_INFINITE_REFUSE = 0,  /**< refuse the map (the default) */
+    PL_MAP_INFINITE_TO_NAN = 1,  /**< make each infinity no data (NaN), counted */
+} pl_map_infinite;
+
+/** Options of pl_map_load_v2(). Initialise with PL_MAP_LOAD_OPTIONS_INIT. */
+typedef struct pl_map_load_options {
+    unsigned version;          /**< PL_MAP_LOAD_OPTIONS_VERSION */
+    pl_map_infinite infinite;  /**< default PL_MAP_INFINITE_REFUSE */
+} pl_map_load_options;
+
+#define PL_MAP_LOAD_OPTIONS_VERSION 1
+#define PL_MAP_LOAD_OPTIONS_INIT { PL_MAP_LOAD_OPTIONS_VERSION, PL_MAP_INFINITE_REFUSE }
+
+/** What a load or a check did to the values: the record keeps it with the
+ * map (pl_map_load_info_json()). */
+typedef struct pl_map_load_info {
+    pl_map_infinite infinite;  /**< the option in force */
+    size_t infinite_to_nan;    /**< infinities made no data (0 unless TO_NAN) */
+} pl_map_load_info;
+
+/**
+ * Check a map's values, the single check every loader and pl_map_encode()
+ * apply: no value may be +inf or -inf, and at least one value must be a
+ * number (a map entirely NaN holds no data). Under PL_MAP_INFINITE_TO_NAN
+ * each infinity is set to NaN and counted instead (the map must still hold
+ * a number afterwards).
+ * @param[out] info  may be NULL; the option in force and the count
+ * @param map        the values checked (and changed under TO_NAN)
+ * @param opts       NULL for PL_MAP_LOAD_OPTIONS_INIT
+ * @param name       the file or map named at the start of the message, or
+ *                   NULL for none
+ * @return PL_OK, PL_EINVAL (infinities: their count and the first one's
+ *         sign, channel, row and column; no data; bad options).
+ */
+PL_EXPORT int pl_map_check_values(pl_map_load_info *info, pl_map *map,
+                                  const pl_map_load_options *opts, const char *name,
+                                  pl_err *err);
+
+/**
+ * The load's record as a JSON object for a map's recorded parameters:
+ * {"infinite_values": "refuse"} or {"infinite_values": "to-nan",
+ * "infinite_values_made_nodata": N}. Written like snprintf() (always
+ * NUL-terminated when size > 0).
+ * @return the length of the whole text (excluding the NUL); a value >= size
+ *         means it was cut.
+ */
+PL_EXPORT int pl_map_load_info_json(char *buf, size_t size, const pl_map_load_info *info);
+
 /* ---- store encoding ---------------------------------------------------- */
 
 /**
  * Encode all channels' data as zlib-compressed little-endian float32, in the
  * layout of pl_map.data, every NaN written as the quiet NaN 0x7fc00000.
+ * The values must pass pl_map_check_values() (refusing, not mapping).
  * @param[out] blob     malloc'd bytes; the caller frees with free()
  * @param[out] blob_len their count
  * @param[out] sha256   SHA-256 of the decoded (uncompressed) bytes
  * @return PL_OK, PL_ENOMEM, PL_EFORMAT (zlib failure), PL_EINVAL (the
- *         map's size fields are zero or out of range).
+ *         map's size fields are zero or out of range, an infinite value,
+ *         no data).
  */
 PL_EXPORT int pl_map_encode(unsigned char **blob, size_t *blob_len,
                             unsigned char sha256[32], const pl_map *map, pl_err *err);
@@ -206,7 +269,9 @@ PL_EXPORT void pl_map_digest(unsigned char sha256[32], const pl_map *map);
  * Read an 8- or 16-bit grayscale PNG (no alpha, no palette; interlaced
  * or not). Values are offset + scale * code from the plyledger.* text
  * chunks (1 and 0 when absent), computed in double and rounded to float;
- * the nodata code becomes NaN. Quantity, unit and pitch come from their
+ * the nodata code becomes NaN; a value beyond the float32 range is
+ * infinite and refused (pl_map_check_values()), as is a file of nothing
+ * but the nodata code. Quantity, unit and pitch come from their
  * chunks when present (else empty quantity, pitch NaN: not known); a vocabulary
  * quantity without a unit chunk gets its default unit. Text chunks before
  * and after the image data count; other keys are ignored.
@@ -215,22 +280,25 @@ PL_EXPORT void pl_map_digest(unsigned char sha256[32], const pl_map *map);
  *         corrupt, not grayscale, bit depth other than 8 or 16, larger than
  *         PL_MAP_MAX_SIDE, a chunk value that is not a number (scale must
  *         also be non-zero, nodata a code of the bit depth, pitch > 0), a
- *         quantity/unit pair pl_quantity_check() refuses), PL_ENOMEM.
+ *         quantity/unit pair pl_quantity_check() refuses, values that
+ *         pl_map_check_values() refuses), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_png(pl_map **out, const char *path, pl_err *err);
 
 /**
  * Write channel `c` as a 16-bit grayscale PNG. Finite values are quantised
  * to codes 0..65534 with offset = min and scale = (max - min) / 65534 (scale
- * 1 for a constant map); NaN is written as code 65535, the nodata code and
- * an infinity as the nearest end code. The round trip through
+ * 1 for a constant map); NaN is written as code 65535, the nodata code. A
+ * channel holding an infinity is refused (no code stands for it). The
+ * round trip through
  * pl_map_load_png() is exact to scale / 2 (plus the float rounding of the
  * decoded value). The plyledger.* chunks are written as tEXt before the
  * image data: scale, offset, nodata, quantity and unit (these two may be
  * empty), and pitch when both pitches are finite (a pitch not known is
  * left out). The file is written through a pl_outfile (plyledger/outfile.h):
  * whole or not at all, a failure leaves the old file as it was.
- * @return PL_OK, PL_EINVAL (c out of range, a path that is not a regular
+ * @return PL_OK, PL_EINVAL (c out of range, an infinite value: count and
+ *         first position, nothing written; a path that is not a regular
  *         file), PL_EIO, PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_png(const pl_map *map, uint32_t c, const char *path, pl_err *err);
@@ -247,20 +315,26 @@ PL_EXPORT int pl_map_write_png(const pl_map *map, uint32_t c, pl_outfile *of, pl
  * Read a NumPy .npy file (format 1.0, 2.0 or 3.0): dtype float32, float64 or
  * uint16 of either byte order, C order, 2-D (rows x cols) or 3-D
  * (channels x rows x cols). Quantity, unit and pitch are left for the
- * caller (empty quantity and unit, pitch NaN: not known). A file shorter than its header promises is refused
- * before the map is allocated; bytes after the data are ignored.
+ * caller (empty quantity and unit, pitch NaN: not known). A file shorter
+ * or longer than its header promises is refused before the map is
+ * allocated (a pipe's extra bytes when they are met). float64 values
+ * beyond the float32 range become infinities, refused with every other
+ * infinity by pl_map_check_values().
  * @return PL_OK, PL_EIO, PL_EFORMAT (bad magic, header, dtype, order, rank,
- *         an empty or too large shape, truncated data), PL_ENOMEM.
+ *         an empty or too large shape, truncated data, bytes after the
+ *         data, values pl_map_check_values() refuses), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_npy(pl_map **out, const char *path, pl_err *err);
 
 /**
  * Write the map as little-endian float32 .npy (format 1.0): 2-D when it has
  * one channel, else 3-D channels x rows x cols. Values are written bit for
- * bit. The file is written through a pl_outfile (plyledger/outfile.h):
- * whole or not at all, a failure leaves the old file as it was.
- * @return PL_OK, PL_EIO, PL_EINVAL (the map's size fields are invalid, a
- *         path that is not a regular file), PL_ENOMEM.
+ * bit. A map holding an infinity is refused before anything is written.
+ * The file is written through a pl_outfile (plyledger/outfile.h): whole or
+ * not at all, a failure leaves the old file as it was.
+ * @return PL_OK, PL_EIO, PL_EINVAL (the map's size fields are invalid, an
+ *         infinite value: count and first position; a path that is not a
+ *         regular file), PL_ENOMEM.
  */
 PL_EXPORT int pl_map_save_npy(const pl_map *map, const char *path, pl_err *err);
 
@@ -281,7 +355,8 @@ PL_EXPORT int pl_map_write_npy(const pl_map *map, pl_outfile *of, pl_err *err);
  * unit are left empty and the pitch NaN (not known) for the caller.
  * @return PL_OK, PL_EIO, PL_EFORMAT (ragged rows, a field that is not a
  *         number or lies outside the float32 range, "inf", no data rows,
- *         more than PL_MAP_MAX_SIDE rows or columns), PL_ENOMEM.
+ *         every field no data, more than PL_MAP_MAX_SIDE rows or columns),
+ *         PL_ENOMEM.
  */
 PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err);
 
@@ -291,6 +366,17 @@ PL_EXPORT int pl_map_load_csv(pl_map **out, const char *path, pl_err *err);
  * @return as the format's loader, or PL_EFORMAT for an unknown ending.
  */
 PL_EXPORT int pl_map_load(pl_map **out, const char *path, pl_err *err);
+
+/**
+ * pl_map_load() with options: under PL_MAP_INFINITE_TO_NAN an infinity
+ * (or a value beyond the float32 range) becomes no data instead of
+ * refusing the file; [out] info (may be NULL) says what was done, for the
+ * record (pl_map_load_info_json()).
+ * @param opts  NULL for PL_MAP_LOAD_OPTIONS_INIT
+ * @return as pl_map_load(), or PL_EINVAL (bad options).
+ */
+PL_EXPORT int pl_map_load_v2(pl_map **out, pl_map_load_info *info, const char *path,
+                             const pl_map_load_options *opts, pl_err *err);
 
 /**
  * Finite statistics of channel c: [out] min, max (NaN when there is no

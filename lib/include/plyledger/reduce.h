@@ -9,7 +9,9 @@
  * number into one channel of a pl_map:
  *
  *  - Cold reference: the mean of the pre-flash frames, per pixel; every
- *    later frame is taken as the rise above it.
+ *    later frame is taken as the rise above it. Frames that already hold
+ *    the rise (a sequence whose "cold_reference" is "subtracted", see
+ *    plyledger/seq.h) have no pre-flash frame, and nothing is subtracted.
  *  - Log-spaced samples: `samples` bins with log-spaced edges between a
  *    start and an end time after the flash; each bin holds the mean rise
  *    of the frames inside it, its time is the mean of their ln t. Bins
@@ -257,10 +259,13 @@ typedef struct pl_reducer pl_reducer;
  * @param[out] out   free with pl_reducer_free()
  * @param times      every frame's time in s relative to the flash
  *                   (increasing; copied), as pl_seq_times() gives them
- * @param preflash   the first `preflash` frames (>= 1) make the cold reference
+ * @param preflash   the first `preflash` frames make the cold reference; 0
+ *                   when the frames already hold the rise (nothing is
+ *                   subtracted; no frame may then come before the flash)
  * @param opts       options, or NULL for PL_REDUCE_OPTIONS_INIT
  * @return PL_OK; PL_EINVAL (a zero or too large size, times not finite or
- *         not increasing, no frame after the flash, a bad option, fewer
+ *         not increasing, no frame after the flash, preflash 0 with frames
+ *         before the flash, a bad option, fewer
  *         than degree + 2 log-spaced samples holding frames, a reference
  *         region outside the image, unknown options version); PL_ERANGE (a
  *         map time outside the fit window, a truncation time after the last

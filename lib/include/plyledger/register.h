@@ -80,7 +80,10 @@
  *    noise), and the peak-to-sidelobe ratio of
  *    the phase-correlation surface (peak minus the sidelobe mean, over the
  *    sidelobe standard deviation, the sidelobe being the surface outside an
- *    11 x 11 window around the peak) of the translation search kept. Below
+ *    11 x 11 window around the peak) of the translation search kept (a
+ *    sidelobe flatter than the float32 rounding of the peak, as an exact
+ *    match or an exact circular shift gives, is taken at that rounding
+ *    level: a perfect match scores about 1 / FLT_EPSILON, 8.4e6). Below
  *    either limit the registration is refused: the result says so and why,
  *    and no aligned map is made. The default limits come from a
  *    measurement (see PL_REGISTER_DEFAULT_MIN_NCC).

@@ -14,7 +14,11 @@
  * also offered, with the same lightness ramp (CIELAB L* 20 to 95).
  *
  * Layout of a rendering, on a white background with dark text: the
- * quantity's name on top; below it the map in a thin frame, each map pixel
+ * identification line on top when there is one (the caller's text naming
+ * airframe, site, inspection date, map and quantity, see
+ * pl_render_identification(), led by SIMULATED for a simulated
+ * inspection; also written as the PNG "Title" text chunk); then the
+ * quantity's name; below it the map in a thin frame, each map pixel
  * drawn as a square of `zoom` x `zoom` image pixels (column 0 on the left,
  * row 0 at the top); under the map a scale bar whose length in mm along the
  * map's columns is written beneath it; right of the map the channel's unit,
@@ -49,12 +53,19 @@ typedef enum pl_colormap {
 /** Largest number of pixels in an image. */
 #define PL_IMAGE_MAX_PIXELS (1u << 26)
 
-/** An 8-bit RGB image, row-major, 3 bytes a pixel. */
+/** An 8-bit RGB image, row-major, 3 bytes a pixel. Only the library
+ * allocates one (render calls, pl_image_new()). */
 typedef struct pl_image {
     uint32_t width;
     uint32_t height;
     unsigned char *rgb;  /**< width * height * 3 bytes, owned */
+    char *title;         /**< the identification line drawn in it, owned (malloc'd;
+                              pl_image_free() frees it), or NULL; written as the
+                              PNG "Title" text chunk */
 } pl_image;
+
+/** Buffer for an identification line, NUL included. */
+#define PL_RENDER_IDENTIFICATION_SIZE 160
 
 /** Options for pl_render_map(). Initialise with PL_RENDER_OPTIONS_INIT. */
 typedef struct pl_render_options {
@@ -66,11 +77,32 @@ typedef struct pl_render_options {
                                 (smallest making the map at least 256 px wide) */
     int colorbar;          /**< draw the colour bar with its labels */
     int scalebar;          /**< draw the scale bar in mm */
+    /* version 2 */
+    const char *identification; /**< what the picture shows, one line of
+                                     printable ASCII shorter than
+                                     PL_RENDER_IDENTIFICATION_SIZE (see
+                                     pl_render_identification()); NULL or "":
+                                     none (copied before the call returns) */
+    int simulated;         /**< 1: the map comes from a simulated inspection; the
+                                line then starts with "SIMULATED" (drawn even
+                                without an identification) */
 } pl_render_options;
 
-#define PL_RENDER_OPTIONS_VERSION 1
+/** Version 2 added `identification` and `simulated`; version 1 options
+ * (the struct without them) are still accepted. */
+#define PL_RENDER_OPTIONS_VERSION 2
 #define PL_RENDER_OPTIONS_INIT \
-    { PL_RENDER_OPTIONS_VERSION, PL_COLORMAP_LEDGER, NAN, NAN, 0, 1, 1 }
+    { PL_RENDER_OPTIONS_VERSION, PL_COLORMAP_LEDGER, NAN, NAN, 0, 1, 1, NULL, 0 }
+
+/**
+ * The identification line of a rendering, written like snprintf() into
+ * buf: "SERIAL site SITE DATE map ID QUANTITY" (for example "CR7-0107 site
+ * F03 2031-05-02 map 75 depth"); an empty or NULL part is left out.
+ * @return the length of the whole line (>= size: it was cut).
+ */
+PL_EXPORT int pl_render_identification(char *buf, size_t size, const char *serial,
+                                       const char *site, const char *date, long long map_id,
+                                       const char *quantity);
 
 /**
  * Colour of `t` in [0, 1] (clamped; NaN gives the map's no-data grey) into
@@ -93,7 +125,8 @@ PL_EXPORT void pl_colormap_rgb(pl_colormap cmap, double t, unsigned char rgb[3])
  * @param c     channel index
  * @param opts  options, or NULL for PL_RENDER_OPTIONS_INIT
  * @return PL_OK; PL_EINVAL (c out of range, vmin >= vmax, an infinite
- *         limit, bad options version or colour map, a map without data, a
+ *         limit, bad options version or colour map, an identification that
+ *         is too long or not printable ASCII, a map without data, a
  *         pitch that is not positive while the scale bar is on, a rendering
  *         larger than PL_IMAGE_MAX_SIDE / PL_IMAGE_MAX_PIXELS); PL_ENOMEM.
  */
@@ -124,7 +157,8 @@ PL_EXPORT int pl_render_pair(pl_image **out, const pl_map *a, uint32_t ca, const
 
 /**
  * Write an image as an 8-bit RGB PNG (non-interlaced, with a "Software"
- * text chunk naming plyledger and its version), through a pl_outfile
+ * text chunk naming plyledger and its version, and a "Title" text chunk
+ * holding img->title when it is set), through a pl_outfile
  * (plyledger/outfile.h): whole or not at all, a failure leaves the old
  * file as it was.
  * @param img   the image (not NULL)
@@ -142,7 +176,7 @@ PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *e
 PL_EXPORT int pl_image_write_png(const pl_image *img, pl_outfile *of, pl_err *err);
 
 /**
- * Allocate a black image.
+ * Allocate a black image without a title.
  * @param[out] out  the image; free with pl_image_free()
  * @return PL_OK, PL_EINVAL (a side of 0 or above PL_IMAGE_MAX_SIDE, more
  *         than PL_IMAGE_MAX_PIXELS pixels), PL_ENOMEM.

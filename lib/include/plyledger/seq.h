@@ -20,6 +20,11 @@
  *     "preflash_frames": 5,                   frames before the flash, for the
  *                                             cold reference (default: every frame
  *                                             with time < flash_time_s)
+ *     "cold_reference": "preflash",           "preflash" (default): the mean of the
+ *                                             pre-flash frames, subtracted by the
+ *                                             reduction; "subtracted": the frames
+ *                                             already hold the rise above the
+ *                                             pre-flash level (see below)
  *     "calibration": { "kind": "linear",      temperature = offset_k + gain_k * count
  *                      "gain_k": 0.002, "offset_k": 293.15 }
  *                 or { "kind": "table",       piecewise linear counts -> kelvin,
@@ -61,6 +66,15 @@
  * - A frame at exactly flash_time_s is neither before nor after the flash.
  *   At least one frame must come before and one after; "preflash_frames"
  *   may not exceed the frames before the flash.
+ * - Rise data. Some cameras' software records the temperature rise itself,
+ *   the pre-flash level already subtracted, and no pre-flash frame. Such a
+ *   sequence says "cold_reference": "subtracted"; its frames (calibrated
+ *   as usual, so in kelvin of rise: "kelvin" data, or a linear calibration
+ *   with offset_k 0) start at the flash: no frame may come before it, and
+ *   "preflash_frames" is 0 or absent. pl_seq_preflash_frames() is then 0
+ *   and the reduction subtracts nothing. "preflash_frames": 0 without
+ *   "subtracted" is refused, and so is "subtracted" with pre-flash frames:
+ *   a cold reference is never invented nor silently dropped.
  */
 #ifndef PLYLEDGER_SEQ_H
 #define PLYLEDGER_SEQ_H
@@ -83,7 +97,9 @@ typedef struct pl_seq pl_seq;
  *         repeated or of the wrong type; data not a uint16/float32 3-D
  *         C-order cube; a missing or non-grayscale PNG frame; shape or
  *         frame count disagreeing with the manifest; times not increasing;
- *         truncated data; no frame before or after the flash), PL_ENOMEM.
+ *         truncated data; no frame before (unless the cold reference is
+ *         "subtracted") or after the flash; frames before the flash with
+ *         "subtracted"; "preflash_frames" 0 without it), PL_ENOMEM.
  *         Messages name the file (the manifest, the cube or the frame as
  *         the manifest path and "data" make it) and the key or frame.
  */
@@ -109,8 +125,18 @@ PL_EXPORT const double *pl_seq_times(const pl_seq *seq);
  */
 PL_EXPORT void pl_seq_pitch(const pl_seq *seq, double *pitch_u, double *pitch_v);
 
-/** Number of frames before the flash used as the cold reference. */
+/** Where the cold (pre-flash) reference comes from. */
+typedef enum pl_seq_cold {
+    PL_SEQ_COLD_PREFLASH = 0,   /**< the mean of the pre-flash frames (the default) */
+    PL_SEQ_COLD_SUBTRACTED = 1, /**< already subtracted: the frames hold the rise */
+} pl_seq_cold;
+
+/** Number of frames before the flash used as the cold reference; 0 when
+ * the frames hold the rise (PL_SEQ_COLD_SUBTRACTED). */
 PL_EXPORT uint32_t pl_seq_preflash_frames(const pl_seq *seq);
+
+/** The manifest's "cold_reference". */
+PL_EXPORT pl_seq_cold pl_seq_cold_reference(const pl_seq *seq);
 
 /**
  * The manifest's "acquisition" object as compact JSON ("{}" when absent).
