@@ -1,14 +1,19 @@
 /*
  * store.c - the inspection record over SQLite: life and migrations,
- * transactions, airframes, sites, inspections, maps, registrations,
- * comparisons and the summary.
+ * transactions, the SQL helpers the store's files share, and the summary.
+ * The records themselves are in store_airframe.c (airframes, operators,
+ * sites), store_inspection.c (inspections, maps) and store_registration.c
+ * (registrations, comparisons); their columns are described once in
+ * store_row.c, which also holds the one insert path.
  *
  * Every statement is prepared with bound parameters. Every writing call runs
  * inside a savepoint (pl_store__write_begin/_end) so it lands whole or not
- * at all, alone or inside a caller's transaction. Inputs are checked here
- * first, for messages that name the record and the field; the schema's
- * CHECK constraints and triggers stay behind as the last word, and their
- * refusals are mapped to status codes by pl_store__status().
+ * at all, alone or inside a caller's transaction. Inputs are checked first,
+ * for messages that name the record and the field; the schema's CHECK
+ * constraints and triggers stay behind as the last word, and their refusals
+ * are mapped to status codes by pl_store__status(). SQL is written so that
+ * PostgreSQL would accept it too wherever SQLite allows that (no SQLite-only
+ * functions or operators outside the PRAGMAs and transaction control).
  */
 #include "record/store_int.h"
 
@@ -20,38 +25,12 @@
 #include <fcntl.h>
 #include <math.h>
 #include <sodium.h>
-#include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
-
-struct pl_store {
-    sqlite3 *db;
-    char *path;          /* as given, for messages */
-    int schema_version;
-    unsigned flags;
-};
-
-/* A fixed text field as printf arguments: "%.*s" never reads past it. */
-#define FLD(x) (int)sizeof(x), (x)
-
-/* Room for "site <code> on <serial>" and the like. */
-#define LABEL_SIZE 256
-
-/* Pitches of a map and its site agree within this fraction. */
-#define PITCH_TOLERANCE 1e-3
-
-static const char *const inspection_kinds[4] = {
-    "baseline", "scheduled", "unscheduled", "post-repair"
-};
-
-static const char *const methods[] = {
-    "flash-thermography", "ultrasound-pulse-echo", "ultrasound-through-transmission",
-    "eddy-current"
-};
 
 /* ---- errors ---------------------------------------------------------------- */
 
@@ -89,35 +68,32 @@ int pl_store__status(int xrc, const char *msg)
     }
 }
 
-/* Report the connection's last error as "<label>: <sqlite message>". Call it
- * before anything else touches the connection (the message is overwritten). */
-static int db_fail(pl_store *s, pl_err *err, const char *label)
+int pl_store__fail(pl_store *s, pl_err *err, const char *label)
 {
     const char *msg = sqlite3_errmsg(s->db);
     return pl__err(err, pl_store__status(sqlite3_extended_errcode(s->db), msg), "%s: %s",
                    label ? label : s->path, msg);
 }
 
-static int exec(pl_store *s, const char *sql, pl_err *err)
+int pl_store__exec(pl_store *s, const char *sql, pl_err *err)
 {
     if (sqlite3_exec(s->db, sql, NULL, NULL, NULL) != SQLITE_OK)
-        return db_fail(s, err, s->path);
+        return pl_store__fail(s, err, NULL);
     return PL_OK;
 }
 
-static int prepare(pl_store *s, sqlite3_stmt **st, const char *sql, pl_err *err)
+int pl_store__prepare(pl_store *s, sqlite3_stmt **st, const char *sql, pl_err *err)
 {
     if (sqlite3_prepare_v2(s->db, sql, -1, st, NULL) != SQLITE_OK) {
         *st = NULL;
-        return db_fail(s, err, s->path);
+        return pl_store__fail(s, err, NULL);
     }
     return PL_OK;
 }
 
 /* ---- small helpers ----------------------------------------------------------- */
 
-/* UTC now as 2024-05-01T12:34:56.789Z. */
-static void now_utc(char out[PL_DATE_SIZE])
+void pl_store__now(char out[PL_DATE_SIZE])
 {
     struct timespec ts;
     struct tm tm;
@@ -144,179 +120,91 @@ int pl_store__valid_date(const char *s)
     return d <= mdays[m - 1] + (m == 2 && leap);
 }
 
-/*
- * A name (serial, code, reference, person) is one line of text without
- * leading or trailing blanks, so that it prints and compares as typed.
- * Fixed buffers from the caller must be NUL terminated inside their size.
- */
-static int check_name(pl_err *err, const char *label, const char *field, const char *v,
-                      size_t cap, int required)
-{
-    if (!v)
-        v = "";
-    size_t n = strnlen(v, cap);
-    if (n == cap)
-        return pl__err(err, PL_EINVAL, "%s: %s is too long (at most %zu characters)", label,
-                       field, cap - 1);
-    if (n == 0)
-        return required ? pl__err(err, PL_EINVAL, "%s: %s is required", label, field) : PL_OK;
-    for (size_t i = 0; i < n; i++) {
-        unsigned char c = (unsigned char)v[i];
-        if (c < 0x20 || c == 0x7f)
-            return pl__err(err, PL_EINVAL, "%s: %s contains a control character", label, field);
-    }
-    if (v[0] == ' ' || v[n - 1] == ' ')
-        return pl__err(err, PL_EINVAL, "%s: %s '%s' has leading or trailing spaces", label,
-                       field, v);
-    return PL_OK;
-}
-
-/* Free text (notes, descriptions): any characters but NUL, within its buffer. */
-static int check_text(pl_err *err, const char *label, const char *field, const char *v,
-                      size_t cap, int required)
-{
-    size_t n = v ? strnlen(v, cap) : 0;
-    if (n == cap)
-        return pl__err(err, PL_EINVAL, "%s: %s is too long (at most %zu characters)", label,
-                       field, cap - 1);
-    if (n == 0 && required)
-        return pl__err(err, PL_EINVAL, "%s: %s is required", label, field);
-    return PL_OK;
-}
-
-static int check_date(pl_err *err, const char *label, const char *field, const char *v,
-                      size_t cap, int required)
-{
-    int rc = check_text(err, label, field, v, cap, required);
-    if (rc)
-        return rc;
-    if (v && *v && !pl_store__valid_date(v))
-        return pl__err(err, PL_EINVAL, "%s: %s '%s' is not a calendar date YYYY-MM-DD", label,
-                       field, v);
-    return PL_OK;
-}
-
-/* NaN (unknown) or a finite number > 0. */
-static int check_positive_or_nan(pl_err *err, const char *label, const char *field, double v)
-{
-    if (isnan(v) || (isfinite(v) && v > 0))
-        return PL_OK;
-    return pl__err(err, PL_EINVAL, "%s: %s must be > 0 or unknown (got %g)", label, field, v);
-}
-
-/* JSON text must be an object; SQLite decides, as its CHECK will. */
-static int check_json_object(pl_store *s, pl_err *err, const char *label, const char *field,
-                             const char *json)
-{
-    if (!json)
-        return PL_OK;
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT CASE WHEN json_valid(?1) THEN json_type(?1) = 'object' ELSE 0 END", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_text(st, 1, json, -1, SQLITE_STATIC);
-    if (sqlite3_step(st) != SQLITE_ROW)
-        rc = db_fail(s, err, label);
-    else if (sqlite3_column_int(st, 0) != 1)
-        rc = pl__err(err, PL_EINVAL, "%s: %s is not a JSON object", label, field);
-    sqlite3_finalize(st);
-    return rc;
-}
-
-static int bind_opt_text(sqlite3_stmt *st, int i, const char *v)
+int pl_store__bind_opt_text(sqlite3_stmt *st, int i, const char *v)
 {
     if (v && *v)
         return sqlite3_bind_text(st, i, v, -1, SQLITE_STATIC);
     return sqlite3_bind_null(st, i);
 }
 
-static int bind_opt_real(sqlite3_stmt *st, int i, double v)
-{
-    return isnan(v) ? sqlite3_bind_null(st, i) : sqlite3_bind_double(st, i, v);
-}
-
-static int bind_opt_id(sqlite3_stmt *st, int i, pl_id v)
-{
-    return v > 0 ? sqlite3_bind_int64(st, i, v) : sqlite3_bind_null(st, i);
-}
-
-static void col_text(sqlite3_stmt *st, int i, char *dst, size_t cap)
+void pl_store__col_text(sqlite3_stmt *st, int i, char *dst, size_t cap)
 {
     const unsigned char *t = sqlite3_column_text(st, i);
     snprintf(dst, cap, "%s", t ? (const char *)t : "");
 }
 
-static double col_real(sqlite3_stmt *st, int i)
-{
-    return sqlite3_column_type(st, i) == SQLITE_NULL ? NAN : sqlite3_column_double(st, i);
-}
-
-/* A malloc'd copy of a text column, NULL for NULL; *oom set on failure. */
-static char *col_dup(sqlite3_stmt *st, int i, int *oom)
-{
-    const unsigned char *t = sqlite3_column_text(st, i);
-    if (!t)
-        return NULL;
-    char *d = pl__strdup((const char *)t);
-    if (!d)
-        *oom = 1;
-    return d;
-}
-
-/*
- * Run a statement that returns at most one row holding one integer, and
- * finalize it. Returns PL_OK with *found set (and *value when found), or the
- * failure.
- */
-static int finish_int(pl_store *s, sqlite3_stmt *st, int *found, int64_t *value,
-                      pl_err *err, const char *label)
+int pl_store__finish_int(pl_store *s, sqlite3_stmt *st, int *found, int64_t *value,
+                         pl_err *err, const char *label)
 {
     int r = sqlite3_step(st), rc = PL_OK;
     *found = r == SQLITE_ROW;
     if (*found && value)
         *value = sqlite3_column_int64(st, 0);
     else if (r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
+        rc = pl_store__fail(s, err, label);
     sqlite3_finalize(st);
     return rc;
 }
 
-/* Run an INSERT; *id (may be NULL) gets the new rowid. */
-static int step_insert(pl_store *s, sqlite3_stmt *st, pl_id *id, pl_err *err, const char *label)
+int pl_store__query_int(pl_store *s, const char *sql, int64_t *value, pl_err *err)
 {
-    if (sqlite3_step(st) != SQLITE_DONE)
-        return db_fail(s, err, label);
-    if (id)
-        *id = sqlite3_last_insert_rowid(s->db);
-    return PL_OK;
-}
-
-/* Run a one-row INSERT whose bind calls' results, OR-ed together, are
- * `bound`; *id (may be NULL) gets the new rowid. Finalizes the statement. */
-static int finish_insert(pl_store *s, sqlite3_stmt *st, int bound, pl_id *id, pl_err *err,
-                         const char *label)
-{
-    int rc = bound != SQLITE_OK ? db_fail(s, err, label) : step_insert(s, st, id, err, label);
-    sqlite3_finalize(st);
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, sql, err);
+    if (rc)
+        return rc;
+    int found = 0;
+    rc = pl_store__finish_int(s, st, &found, value, err, NULL);
+    if (!rc && !found)
+        *value = 0;
     return rc;
 }
 
-/* End a listing whose last sqlite3_step() gave `r`: unless `rc` already
- * holds a failure, a step that neither gave a row nor finished is one.
- * Finalizes the statement. */
-static int finish_listing(pl_store *s, sqlite3_stmt *st, int r, int rc, pl_err *err,
-                          const char *label)
+int pl_store__finish_listing(pl_store *s, sqlite3_stmt *st, int r, int rc, pl_err *err,
+                             const char *label)
 {
     if (!rc && r != SQLITE_ROW && r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
+        rc = pl_store__fail(s, err, label);
     sqlite3_finalize(st);
     return rc;
 }
 
-/* The software version a record names: the one given, or this library's. */
-static const char *software_version(const char *given)
+int pl_store__row_by_id(pl_store *s, sqlite3_stmt **out, const char *sql, pl_id id, pl_err *err,
+                        const char *label, const char *missing)
 {
-    return given[0] ? given : pl_version();
+    sqlite3_stmt *st;
+    *out = NULL;
+    int rc = pl_store__prepare(s, &st, sql, err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, id);
+    int r = sqlite3_step(st);
+    if (r == SQLITE_ROW) {
+        *out = st;
+        return PL_OK;
+    }
+    rc = r == SQLITE_DONE ? pl__err(err, PL_ENOTFOUND, "%s: %s", label, missing)
+                          : pl_store__fail(s, err, label);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+int pl_store__write_row(pl_store *s, pl_row *row, pl_id *id, pl_err *err, const char *label)
+{
+    int owned;
+    int rc = pl_store__write_begin(s, &owned, err);
+    if (rc)
+        return rc;
+    pl_id newid = 0;
+    rc = pl_store__insert(s, row, &newid, err, label);
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
+}
+
+int pl_store__write_end_id(pl_store *s, int owned, int rc, pl_id newid, pl_id *id, pl_err *err)
+{
+    rc = pl_store__write_end(s, owned, rc, err);
+    if (!rc && id)
+        *id = newid;
+    return rc;
 }
 
 /* ---- transactions ------------------------------------------------------------ */
@@ -328,12 +216,12 @@ int pl_store__write_begin(pl_store *s, int *owned, pl_err *err)
     if (s->flags & PL_STORE_READONLY)
         return pl__err(err, PL_EDB, "%s: store is open read-only", s->path);
     if (sqlite3_get_autocommit(s->db)) {
-        int rc = exec(s, "BEGIN IMMEDIATE", err);
+        int rc = pl_store__exec(s, "BEGIN IMMEDIATE", err);
         if (rc)
             return rc;
         *owned = 1;
     }
-    int rc = exec(s, "SAVEPOINT pl_write", err);
+    int rc = pl_store__exec(s, "SAVEPOINT pl_write", err);
     if (rc && *owned) {
         sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
         *owned = 0;
@@ -345,9 +233,9 @@ int pl_store__write_end(pl_store *s, int owned, int rc, pl_err *err)
 {
     if (rc == PL_OK) {
         if (sqlite3_exec(s->db, "RELEASE pl_write", NULL, NULL, NULL) != SQLITE_OK) {
-            rc = db_fail(s, err, s->path);
+            rc = pl_store__fail(s, err, NULL);
         } else if (owned && sqlite3_exec(s->db, "COMMIT", NULL, NULL, NULL) != SQLITE_OK) {
-            rc = db_fail(s, err, s->path);
+            rc = pl_store__fail(s, err, NULL);
             if (!sqlite3_get_autocommit(s->db))
                 sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
             return rc;
@@ -399,6 +287,8 @@ PL_EXPORT void pl_store_close(pl_store *s)
         return;
     if (s->db) {
         pl_store_rollback(s);
+        for (int t = 0; t < PL_TABLE_COUNT; t++)
+            sqlite3_finalize(s->insert[t]);
         sqlite3_close(s->db);
     }
     free(s->path);
@@ -411,35 +301,15 @@ PL_EXPORT int pl_store_schema_version(const pl_store *s)
     return s->schema_version;
 }
 
-PL_EXPORT void *pl_store_db(pl_store *s)
-{
-    assert(s);
-    return s->db;
-}
-
-/* The integer a one-value statement (a PRAGMA, a count) gives; 0 for no row. */
-static int query_int(pl_store *s, const char *sql, int64_t *value, pl_err *err)
-{
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, sql, err);
-    if (rc)
-        return rc;
-    int found = 0;
-    rc = finish_int(s, st, &found, value, err, s->path);
-    if (!rc && !found)
-        *value = 0;
-    return rc;
-}
-
 static int info_insert(pl_store *s, const char *name, const char *value, pl_err *err)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "INSERT INTO store_info (name, value) VALUES (?1, ?2)", err);
+    int rc = pl_store__prepare(s, &st, "INSERT INTO store_info (name, value) VALUES (?1, ?2)", err);
     if (rc)
         return rc;
     sqlite3_bind_text(st, 1, name, -1, SQLITE_STATIC);
     sqlite3_bind_text(st, 2, value, -1, SQLITE_STATIC);
-    rc = step_insert(s, st, NULL, err, s->path);
+    rc = (sqlite3_step(st) == SQLITE_DONE ? PL_OK : pl_store__fail(s, err, NULL));
     sqlite3_finalize(st);
     return rc;
 }
@@ -447,21 +317,21 @@ static int info_insert(pl_store *s, const char *name, const char *value, pl_err 
 /* Give a store its identity (random id, creation time and version) once. */
 static int ensure_identity(pl_store *s, pl_err *err)
 {
-    int rc = exec(s, "BEGIN IMMEDIATE", err);
+    int rc = pl_store__exec(s, "BEGIN IMMEDIATE", err);
     if (rc)
         return rc;
     sqlite3_stmt *st;
     int found = 0;
-    rc = prepare(s, &st, "SELECT 1 FROM store_info WHERE name = 'store_id'", err);
+    rc = pl_store__prepare(s, &st, "SELECT 1 FROM store_info WHERE name = 'store_id'", err);
     if (!rc)
-        rc = finish_int(s, st, &found, NULL, err, s->path);
+        rc = pl_store__finish_int(s, st, &found, NULL, err, s->path);
     if (!rc && !found) {
         unsigned char rnd[16];
         char id[33], now[PL_DATE_SIZE];
         randombytes_buf(rnd, sizeof rnd);
         for (size_t i = 0; i < sizeof rnd; i++)
             snprintf(id + 2 * i, 3, "%02x", rnd[i]);
-        now_utc(now);
+        pl_store__now(now);
         rc = info_insert(s, "store_id", id, err);
         if (!rc)
             rc = info_insert(s, "created_at", now, err);
@@ -469,7 +339,7 @@ static int ensure_identity(pl_store *s, pl_err *err)
             rc = info_insert(s, "created_by", pl_version(), err);
     }
     if (!rc)
-        rc = exec(s, "COMMIT", err);
+        rc = pl_store__exec(s, "COMMIT", err);
     if (rc)
         sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
     return rc;
@@ -484,11 +354,11 @@ static int migrate(pl_store *s, pl_err *err)
 {
     for (int i = 0; i < pl__migration_count; i++) {
         const pl_migration *m = &pl__migrations[i];
-        int rc = exec(s, "BEGIN IMMEDIATE", err);
+        int rc = pl_store__exec(s, "BEGIN IMMEDIATE", err);
         if (rc)
             return rc;
         int64_t uv = 0;
-        rc = query_int(s, "PRAGMA user_version", &uv, err);
+        rc = pl_store__query_int(s, "PRAGMA user_version", &uv, err);
         if (!rc && uv < m->version) {
             if (uv != m->version - 1) {
                 rc = pl__err(err, PL_EDB, "%s: store schema version %lld cannot take migration %s",
@@ -498,18 +368,18 @@ static int migrate(pl_store *s, pl_err *err)
                              sqlite3_errmsg(s->db));
             } else {
                 char name[32], value[160], now[PL_DATE_SIZE], sql[64];
-                now_utc(now);
+                pl_store__now(now);
                 snprintf(name, sizeof name, "schema.%04d", m->version);
                 snprintf(value, sizeof value, "%s applied %s by plyledger %s", m->name, now,
                          pl_version());
                 rc = info_insert(s, name, value, err);
                 snprintf(sql, sizeof sql, "PRAGMA user_version = %d", m->version);
                 if (!rc)
-                    rc = exec(s, sql, err);
+                    rc = pl_store__exec(s, sql, err);
             }
         }
         if (!rc)
-            rc = exec(s, "COMMIT", err);
+            rc = pl_store__exec(s, "COMMIT", err);
         if (rc) {
             if (!sqlite3_get_autocommit(s->db))
                 sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
@@ -539,7 +409,7 @@ static int store_new(pl_store **out, const char *path, unsigned flags, pl_err *e
     }
     sqlite3_extended_result_codes(s->db, 1);
     sqlite3_busy_timeout(s->db, 5000);
-    int rc = exec(s, "PRAGMA foreign_keys = ON", err);
+    int rc = pl_store__exec(s, "PRAGMA foreign_keys = ON", err);
     if (rc) {
         pl_store_close(s);
         return rc;
@@ -581,9 +451,9 @@ PL_EXPORT int pl_store_create(pl_store **out, const char *path, pl_err *err)
     if (!rc) {
         char sql[64];
         snprintf(sql, sizeof sql, "PRAGMA application_id = %d", PL_STORE_APPLICATION_ID);
-        rc = exec(s, "PRAGMA journal_mode = WAL", err);
+        rc = pl_store__exec(s, "PRAGMA journal_mode = WAL", err);
         if (!rc)
-            rc = exec(s, sql, err);
+            rc = pl_store__exec(s, sql, err);
         if (!rc)
             rc = migrate(s, err);
     }
@@ -610,18 +480,18 @@ static int identify(pl_store *s, int64_t *user_version, pl_err *err)
         if (x == SQLITE_NOTADB)
             return pl__err(err, PL_ENOTSTORE, "%s: not a plyledger store (%s)", s->path,
                            sqlite3_errmsg(s->db));
-        return db_fail(s, err, s->path);
+        return pl_store__fail(s, err, NULL);
     }
     int found = 0;
-    int rc = finish_int(s, st, &found, &app, err, s->path);
+    int rc = pl_store__finish_int(s, st, &found, &app, err, s->path);
     if (rc == PL_ENOTSTORE)
         return pl__err(err, PL_ENOTSTORE, "%s: not a plyledger store (file is not a database)",
                        s->path);
     if (rc)
         return rc;
-    rc = query_int(s, "PRAGMA user_version", user_version, err);
+    rc = pl_store__query_int(s, "PRAGMA user_version", user_version, err);
     if (!rc)
-        rc = query_int(s, "SELECT count(*) FROM sqlite_master", &tables, err);
+        rc = pl_store__query_int(s, "SELECT count(*) FROM sqlite_master", &tables, err);
     if (rc)
         return rc;
     if (app == PL_STORE_APPLICATION_ID)
@@ -680,149 +550,87 @@ PL_EXPORT int pl_store_open(pl_store **out, const char *path, unsigned flags, pl
     return PL_OK;
 }
 
+
 /* ---- lookups ------------------------------------------------------------------- */
 
-/* Key of the airframe with this serial; PL_ENOTFOUND names the record. */
-static int airframe_key(pl_store *s, const char *serial, pl_id *key, pl_id *current,
-                        pl_err *err, const char *label)
+/* The id and key of the current row `sql` (one parameter, `arg`) finds;
+ * PL_ENOTFOUND with `missing` when none. */
+static int current_key(pl_store *s, const char *sql, const pl_value *args, int nargs,
+                       pl_id *key, pl_id *current, pl_err *err, const char *label,
+                       const char *missing)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT stable_key, id FROM airframe_current WHERE serial = ?1",
-                     err);
+    int rc = pl_store__prepare_args(s, &st, sql, args, nargs, err);
     if (rc)
         return rc;
-    sqlite3_bind_text(st, 1, serial, -1, SQLITE_STATIC);
     int r = sqlite3_step(st);
     if (r == SQLITE_ROW) {
         *key = sqlite3_column_int64(st, 0);
         if (current)
             *current = sqlite3_column_int64(st, 1);
     } else if (r == SQLITE_DONE) {
-        rc = pl__err(err, PL_ENOTFOUND, "%s: no airframe with serial %s", label, serial);
+        rc = pl__err(err, PL_ENOTFOUND, "%s: %s", label, missing);
     } else {
-        rc = db_fail(s, err, label);
+        rc = pl_store__fail(s, err, label);
     }
     sqlite3_finalize(st);
     return rc;
 }
 
-/* Key and current row of the site `code` on airframe `af_key`. */
-static int site_key(pl_store *s, pl_id af_key, const char *code, pl_id *key, pl_id *current,
-                    pl_err *err, const char *label)
+int pl_store__airframe_key(pl_store *s, const char *serial, pl_id *key, pl_id *current,
+                           pl_err *err, const char *label)
 {
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT stable_key, id FROM site_current WHERE airframe_key = ?1 AND code = ?2",
-                     err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, af_key);
-    sqlite3_bind_text(st, 2, code, -1, SQLITE_STATIC);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW) {
-        *key = sqlite3_column_int64(st, 0);
-        if (current)
-            *current = sqlite3_column_int64(st, 1);
-    } else if (r == SQLITE_DONE) {
-        rc = pl__err(err, PL_ENOTFOUND, "%s: no such site", label);
-    } else {
-        rc = db_fail(s, err, label);
-    }
-    sqlite3_finalize(st);
-    return rc;
+    char missing[PL_NAME_SIZE + 32];
+    snprintf(missing, sizeof missing, "no airframe with serial %.*s", PL_NAME_SIZE, serial);
+    pl_value arg = pl_store__arg_text(serial);
+    return current_key(s, "SELECT stable_key, id FROM airframe_current WHERE serial = ?1", &arg,
+                       1, key, current, err, label, missing);
+}
+
+int pl_store__site_key(pl_store *s, pl_id af_key, const char *code, pl_id *key, pl_id *current,
+                       pl_err *err, const char *label)
+{
+    pl_value args[2] = { pl_store__arg_id(af_key), pl_store__arg_text(code) };
+    return current_key(s, "SELECT stable_key, id FROM site_current WHERE airframe_key = ?1 AND "
+                       "code = ?2", args, 2, key, current, err, label, "no such site");
 }
 
 /* ---- airframes ------------------------------------------------------------------- */
 
-#define AIRFRAME_SELECT                                                                    \
-    "SELECT a.id, a.stable_key, a.serial, a.aircraft_type, a.manufactured, a.notes, "     \
-    "a.recorded_at, "                                                                      \
-    "(SELECT o.operator_name FROM airframe_operator o WHERE o.airframe_key = a.stable_key " \
-    " ORDER BY o.since DESC, o.id DESC LIMIT 1) AS operator_name, "                        \
-    "(SELECT o.since FROM airframe_operator o WHERE o.airframe_key = a.stable_key "        \
-    " ORDER BY o.since DESC, o.id DESC LIMIT 1) AS operator_since "                        \
-    "FROM airframe_current a "
-
-static void read_airframe(sqlite3_stmt *st, pl_airframe *af)
-{
-    memset(af, 0, sizeof *af);
-    af->id = sqlite3_column_int64(st, 0);
-    af->key = sqlite3_column_int64(st, 1);
-    col_text(st, 2, af->serial, sizeof af->serial);
-    col_text(st, 3, af->aircraft_type, sizeof af->aircraft_type);
-    col_text(st, 4, af->manufactured, sizeof af->manufactured);
-    col_text(st, 5, af->notes, sizeof af->notes);
-    col_text(st, 6, af->recorded_at, sizeof af->recorded_at);
-    col_text(st, 7, af->operator_name, sizeof af->operator_name);
-    col_text(st, 8, af->operator_since, sizeof af->operator_since);
-}
-
-static int check_airframe(const pl_airframe *af, const char *label, pl_err *err)
-{
-    int rc = check_name(err, label, "serial", af->serial, sizeof af->serial, 1);
-    if (!rc)
-        rc = check_name(err, label, "aircraft_type", af->aircraft_type,
-                        sizeof af->aircraft_type, 1);
-    if (!rc)
-        rc = check_date(err, label, "manufactured", af->manufactured, sizeof af->manufactured, 0);
-    if (!rc)
-        rc = check_text(err, label, "notes", af->notes, sizeof af->notes, 0);
-    return rc;
-}
-
 static int insert_airframe(pl_store *s, const pl_airframe *af, pl_id key, pl_id supersedes,
                            const char *reason, pl_id *id, pl_err *err, const char *label)
 {
-    sqlite3_stmt *st;
-    char now[PL_DATE_SIZE];
-    int rc = prepare(s, &st,
-                     "INSERT INTO airframe (key, supersedes, reason, serial, aircraft_type, "
-                     "manufactured, notes, recorded_at) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-                     err);
-    if (rc)
-        return rc;
-    now_utc(now);
-    int b = bind_opt_id(st, 1, key) | bind_opt_id(st, 2, supersedes) |
-            bind_opt_text(st, 3, reason) |
-            sqlite3_bind_text(st, 4, af->serial, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 5, af->aircraft_type, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 6, af->manufactured) | bind_opt_text(st, 7, af->notes) |
-            sqlite3_bind_text(st, 8, now, -1, SQLITE_STATIC);
-    return finish_insert(s, st, b, id, err, label);
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_AIRFRAME), af);
+    pl_row__set_correction(&row, key, supersedes, reason);
+    return pl_store__insert(s, &row, id, err, label);
 }
 
 static int insert_operator(pl_store *s, pl_id af_key, const char *name, const char *since,
                            pl_err *err, const char *label)
 {
-    sqlite3_stmt *st;
-    char now[PL_DATE_SIZE];
-    int rc = prepare(s, &st,
-                     "INSERT INTO airframe_operator (airframe_key, operator_name, since, "
-                     "recorded_at) VALUES (?1, ?2, ?3, ?4)", err);
-    if (rc)
-        return rc;
-    now_utc(now);
-    sqlite3_bind_int64(st, 1, af_key);
-    sqlite3_bind_text(st, 2, name, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 3, since, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 4, now, -1, SQLITE_STATIC);
-    rc = step_insert(s, st, NULL, err, label);
-    sqlite3_finalize(st);
-    return rc;
+    pl_operator op;
+    memset(&op, 0, sizeof op);
+    op.airframe_key = af_key;
+    snprintf(op.operator_name, sizeof op.operator_name, "%s", name);
+    snprintf(op.since, sizeof op.since, "%s", since);
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_OPERATOR), &op);
+    return pl_store__insert(s, &row, NULL, err, label);
 }
 
 PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *id, pl_err *err)
 {
     assert(s && af);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "airframe %.*s", FLD(af->serial));
-    int rc = check_airframe(af, label, err);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_AIRFRAME), af, label, err);
     if (!rc)
-        rc = check_name(err, label, "operator_name", af->operator_name,
-                        sizeof af->operator_name, 0);
+        rc = pl_row__check_name(err, label, "operator_name", af->operator_name,
+                                sizeof af->operator_name, 0);
     if (!rc)
-        rc = check_date(err, label, "operator_since", af->operator_since,
-                        sizeof af->operator_since, 0);
+        rc = pl_row__check_date(err, label, "operator_since", af->operator_since,
+                                sizeof af->operator_since, 0);
     if (rc)
         return rc;
     const char *since = af->operator_since[0] ? af->operator_since : af->manufactured;
@@ -844,10 +652,10 @@ PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *i
     sqlite3_stmt *st;
     int found = 0;
     pl_id newid = 0;
-    rc = prepare(s, &st, "SELECT 1 FROM airframe WHERE serial = ?1", err);
+    rc = pl_store__prepare(s, &st, "SELECT 1 FROM airframe WHERE serial = ?1", err);
     if (!rc) {
         sqlite3_bind_text(st, 1, af->serial, -1, SQLITE_STATIC);
-        rc = finish_int(s, st, &found, NULL, err, label);
+        rc = pl_store__finish_int(s, st, &found, NULL, err, label);
     }
     if (!rc && found)
         rc = pl__err(err, PL_EEXISTS, "%s: serial already registered", label);
@@ -855,10 +663,7 @@ PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *i
         rc = insert_airframe(s, af, 0, 0, NULL, &newid, err, label);
     if (!rc && af->operator_name[0])
         rc = insert_operator(s, newid, af->operator_name, since, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
 PL_EXPORT int pl_store_get_airframe(pl_store *s, const char *serial, pl_airframe *af,
@@ -867,19 +672,12 @@ PL_EXPORT int pl_store_get_airframe(pl_store *s, const char *serial, pl_airframe
     assert(s && af);
     if (!serial)
         serial = "";
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, AIRFRAME_SELECT "WHERE a.serial = ?1", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_text(st, 1, serial, -1, SQLITE_STATIC);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW)
-        read_airframe(st, af);
-    else if (r == SQLITE_DONE)
+    pl_value arg = pl_store__arg_text(serial);
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_AIRFRAME, "WHERE t.serial = ?1", &arg, 1, af, &found,
+                           err, NULL);
+    if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "airframe %s: not registered", serial);
-    else
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
     return rc;
 }
 
@@ -889,11 +687,14 @@ PL_EXPORT int pl_store_add_operator(pl_store *s, const char *serial, const char 
     assert(s);
     if (!serial)
         serial = "";
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "airframe %.*s", PL_NAME_SIZE, serial);
-    int rc = check_name(err, label, "operator_name", operator_name, PL_TEXT_SIZE, 1);
+    pl_operator op;
+    memset(&op, 0, sizeof op);
+    int rc = pl_row__check_name(err, label, "operator_name", operator_name,
+                                sizeof op.operator_name, 1);
     if (!rc)
-        rc = check_date(err, label, "since", since, PL_DATE_SIZE, 1);
+        rc = pl_row__check_date(err, label, "since", since, sizeof op.since, 1);
     if (rc)
         return rc;
     int owned;
@@ -901,21 +702,27 @@ PL_EXPORT int pl_store_add_operator(pl_store *s, const char *serial, const char 
     if (rc)
         return rc;
     pl_id key = 0;
-    rc = airframe_key(s, serial, &key, NULL, err, label);
+    rc = pl_store__airframe_key(s, serial, &key, NULL, err, label);
     sqlite3_stmt *st = NULL;
     if (!rc)
-        rc = prepare(s, &st,
-                     "SELECT max(coalesce((SELECT max(since) FROM airframe_operator "
-                     "WHERE airframe_key = ?1), ''), "
-                     "coalesce((SELECT manufactured FROM airframe_current WHERE stable_key = ?1), ''))",
-                     err);
+        rc = pl_store__prepare(s, &st,
+                               "SELECT (SELECT max(since) FROM airframe_operator "
+                               "WHERE airframe_key = ?1), "
+                               "(SELECT manufactured FROM airframe_current WHERE stable_key = ?1)",
+                               err);
     if (!rc) {
         sqlite3_bind_int64(st, 1, key);
         if (sqlite3_step(st) != SQLITE_ROW) {
-            rc = db_fail(s, err, label);
+            rc = pl_store__fail(s, err, label);
         } else {
-            const char *latest = (const char *)sqlite3_column_text(st, 0);
-            if (latest && strcmp(since, latest) < 0)
+            /* the later of the current operator's start and the manufacture */
+            const char *latest = "";
+            for (int i = 0; i < 2; i++) {
+                const char *d = (const char *)sqlite3_column_text(st, i);
+                if (d && strcmp(d, latest) > 0)
+                    latest = d;
+            }
+            if (strcmp(since, latest) < 0)
                 rc = pl__err(err, PL_EINVAL,
                              "%s: operator since %s goes back before %s (the current operator's "
                              "start or the date of manufacture)", label, since, latest);
@@ -927,69 +734,60 @@ PL_EXPORT int pl_store_add_operator(pl_store *s, const char *serial, const char 
     return pl_store__write_end(s, owned, rc, err);
 }
 
+typedef struct operator_cb {
+    pl_operator_fn fn;
+    void *ud;
+} operator_cb;
+
+static int call_operator(void *ud, void *rec)
+{
+    operator_cb *c = ud;
+    const pl_operator *op = rec;
+    return c->fn(c->ud, op->operator_name, op->since, op->recorded_at) ? 1 : 0;
+}
+
 PL_EXPORT int pl_store_list_operators(pl_store *s, const char *serial, pl_operator_fn fn,
                                       void *ud, pl_err *err)
 {
     assert(s && fn);
     if (!serial)
         serial = "";
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "airframe %.*s", PL_NAME_SIZE, serial);
     pl_id key = 0;
-    int rc = airframe_key(s, serial, &key, NULL, err, label);
+    int rc = pl_store__airframe_key(s, serial, &key, NULL, err, label);
     if (rc)
         return rc;
-    sqlite3_stmt *st;
-    rc = prepare(s, &st,
-                 "SELECT operator_name, since, recorded_at FROM airframe_operator "
-                 "WHERE airframe_key = ?1 ORDER BY since, id", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, key);
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        if (fn(ud, (const char *)sqlite3_column_text(st, 0),
-               (const char *)sqlite3_column_text(st, 1),
-               (const char *)sqlite3_column_text(st, 2)))
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, label);
+    operator_cb cb = { fn, ud };
+    pl_value arg = pl_store__arg_id(key);
+    return pl_store__list(s, PL_TABLE_OPERATOR, "WHERE t.airframe_key = ?1 ORDER BY t.since, t.id",
+                          &arg, 1, call_operator, &cb, err, label);
 }
+
+PL_STORE_CALLBACK(airframe, pl_airframe_fn)
 
 PL_EXPORT int pl_store_list_airframes(pl_store *s, const pl_airframe_filter *filter,
                                       pl_airframe_fn fn, void *ud, pl_err *err)
 {
     assert(s && fn);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT * FROM (" AIRFRAME_SELECT ") "
-                     "WHERE (?1 IS NULL OR aircraft_type = ?1) "
-                     "AND (?2 IS NULL OR operator_name = ?2) ORDER BY serial", err);
-    if (rc)
-        return rc;
-    if (filter) {
-        bind_opt_text(st, 1, filter->aircraft_type);
-        bind_opt_text(st, 2, filter->operator_name);
-    }
-    pl_airframe af;
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        read_airframe(st, &af);
-        if (fn(ud, &af))
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, s->path);
+    pl_value args[2] = { pl_store__arg_text(filter ? filter->aircraft_type : NULL),
+                         pl_store__arg_text(filter ? filter->operator_name : NULL) };
+    airframe_cb cb = { fn, ud };
+    return pl_store__list(s, PL_TABLE_AIRFRAME,
+                          "WHERE (?1 IS NULL OR t.aircraft_type = ?1) AND (?2 IS NULL OR "
+                          "?2 = " PL_STORE_LATEST_OPERATOR("operator_name") ") ORDER BY t.serial",
+                          args, 2, call_airframe, &cb, err, NULL);
 }
 
 PL_EXPORT int pl_store_correct_airframe(pl_store *s, const pl_airframe *af, const char *reason,
                                         pl_id *id, pl_err *err)
 {
     assert(s && af);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "airframe %.*s", FLD(af->serial));
-    int rc = check_airframe(af, label, err);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_AIRFRAME), af, label, err);
     if (!rc)
-        rc = check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
+        rc = pl_row__check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
     if (rc)
         return rc;
     int owned;
@@ -997,79 +795,31 @@ PL_EXPORT int pl_store_correct_airframe(pl_store *s, const pl_airframe *af, cons
     if (rc)
         return rc;
     pl_id key = 0, current = 0, newid = 0;
-    rc = airframe_key(s, af->serial, &key, &current, err, label);
+    rc = pl_store__airframe_key(s, af->serial, &key, &current, err, label);
     if (!rc)
         rc = insert_airframe(s, af, key, current, reason, &newid, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
 /* ---- sites ------------------------------------------------------------------------- */
 
-PL_EXPORT int pl_method_check(const char *method, pl_err *err)
-{
-    if (method)
-        for (size_t i = 0; i < sizeof methods / sizeof methods[0]; i++)
-            if (strcmp(method, methods[i]) == 0)
-                return PL_OK;
-    return pl__err(err, PL_EINVAL,
-                   "method '%s' is not one of flash-thermography, ultrasound-pulse-echo, "
-                   "ultrasound-through-transmission, eddy-current", method ? method : "");
-}
-
 static void site_label(char *label, const pl_site *site)
 {
     if (strnlen(site->airframe_serial, sizeof site->airframe_serial))
-        snprintf(label, LABEL_SIZE, "site %.*s on %.*s", FLD(site->code),
+        snprintf(label, STORE_LABEL_SIZE, "site %.*s on %.*s", FLD(site->code),
                  FLD(site->airframe_serial));
     else
-        snprintf(label, LABEL_SIZE, "site %.*s", FLD(site->code));
+        snprintf(label, STORE_LABEL_SIZE, "site %.*s", FLD(site->code));
 }
 
 static int check_site(const pl_site *site, const char *label, pl_err *err)
 {
-    int rc = check_name(err, label, "code", site->code, sizeof site->code, 1);
-    if (!rc)
-        rc = check_name(err, label, "airframe_serial", site->airframe_serial,
-                        sizeof site->airframe_serial, 0);
-    if (!rc)
-        rc = check_name(err, label, "zone", site->zone, sizeof site->zone, 0);
-    if (!rc)
-        rc = check_text(err, label, "description", site->description,
-                        sizeof site->description, 0);
-    if (!rc)
-        rc = check_name(err, label, "frame", site->frame, sizeof site->frame, 0);
-    if (!rc)
-        rc = check_name(err, label, "stringer", site->stringer, sizeof site->stringer, 0);
-    if (!rc)
-        rc = check_name(err, label, "material", site->material, sizeof site->material, 0);
-    if (!rc)
-        rc = check_name(err, label, "method", site->method, sizeof site->method, 1);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_SITE), site, label, err);
     if (rc)
         return rc;
     pl_err e = { 0 };
-    if (pl_method_check(site->method, &e))
-        return pl__err(err, PL_EINVAL, "%s: %s", label, e.msg);
-    rc = check_name(err, label, "coordinate system", site->map_frame.system,
-                    sizeof site->map_frame.system, 1);
-    if (!rc)
-        rc = check_name(err, label, "coordinate unit", site->map_frame.unit,
-                        sizeof site->map_frame.unit, 1);
-    if (rc)
-        return rc;
     if (pl_placement_check(&site->map_frame, &e))
         return pl__err(err, PL_EINVAL, "%s: %s", label, e.msg);
-    if (!(isfinite(site->pitch_u) && site->pitch_u > 0))
-        return pl__err(err, PL_EINVAL, "%s: pitch_u must be > 0 (got %g)", label, site->pitch_u);
-    if (!(isfinite(site->pitch_v) && site->pitch_v > 0))
-        return pl__err(err, PL_EINVAL, "%s: pitch_v must be > 0 (got %g)", label, site->pitch_v);
-    rc = check_positive_or_nan(err, label, "thickness_mm", site->thickness_mm);
-    if (!rc)
-        rc = check_positive_or_nan(err, label, "diffusivity_mm2_s", site->diffusivity_mm2_s);
-    if (rc)
-        return rc;
     if (site->width_px > PL_MAP_MAX_SIDE || site->height_px > PL_MAP_MAX_SIDE)
         return pl__err(err, PL_EINVAL, "%s: expected map size %ux%u exceeds %u pixels a side",
                        label, site->width_px, site->height_px, PL_MAP_MAX_SIDE);
@@ -1079,92 +829,37 @@ static int check_site(const pl_site *site, const char *label, pl_err *err)
 PL_EXPORT int pl_site_check(const pl_site *site, pl_err *err)
 {
     assert(site);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     site_label(label, site);
     return check_site(site, label, err);
 }
 
-#define SITE_SELECT                                                                         \
-    "SELECT s.id, s.stable_key, a.serial, s.code, s.zone, s.description, s.frame, "        \
-    "s.stringer, s.method, s.material, s.thickness_mm, s.diffusivity_mm2_s, "              \
-    "s.coord_system, s.coord_unit, s.origin_x, s.origin_y, s.origin_z, s.u_x, s.u_y, "     \
-    "s.u_z, s.v_x, s.v_y, s.v_z, s.width_px, s.height_px, s.pitch_u_mm, s.pitch_v_mm, "    \
-    "s.recorded_at FROM site_current s JOIN airframe a ON a.id = s.airframe_key "
-
-static void read_site(sqlite3_stmt *st, pl_site *site)
+/* A site to add or correct: checked, with its airframe named. */
+static int check_named_site(const pl_site *site, const char *label, pl_err *err)
 {
-    memset(site, 0, sizeof *site);
-    site->id = sqlite3_column_int64(st, 0);
-    site->key = sqlite3_column_int64(st, 1);
-    col_text(st, 2, site->airframe_serial, sizeof site->airframe_serial);
-    col_text(st, 3, site->code, sizeof site->code);
-    col_text(st, 4, site->zone, sizeof site->zone);
-    col_text(st, 5, site->description, sizeof site->description);
-    col_text(st, 6, site->frame, sizeof site->frame);
-    col_text(st, 7, site->stringer, sizeof site->stringer);
-    col_text(st, 8, site->method, sizeof site->method);
-    col_text(st, 9, site->material, sizeof site->material);
-    site->thickness_mm = col_real(st, 10);
-    site->diffusivity_mm2_s = col_real(st, 11);
-    col_text(st, 12, site->map_frame.system, sizeof site->map_frame.system);
-    col_text(st, 13, site->map_frame.unit, sizeof site->map_frame.unit);
-    for (int k = 0; k < 3; k++) {
-        site->map_frame.origin[k] = sqlite3_column_double(st, 14 + k);
-        site->map_frame.u[k] = sqlite3_column_double(st, 17 + k);
-        site->map_frame.v[k] = sqlite3_column_double(st, 20 + k);
-    }
-    site->width_px = (uint32_t)sqlite3_column_int64(st, 23);
-    site->height_px = (uint32_t)sqlite3_column_int64(st, 24);
-    site->pitch_u = sqlite3_column_double(st, 25);
-    site->pitch_v = sqlite3_column_double(st, 26);
-    col_text(st, 27, site->recorded_at, sizeof site->recorded_at);
+    int rc = check_site(site, label, err);
+    if (!rc && !site->airframe_serial[0])
+        rc = pl__err(err, PL_EINVAL, "%s: airframe_serial is required", label);
+    return rc;
 }
 
 static int insert_site(pl_store *s, const pl_site *site, pl_id af_key, pl_id key,
                        pl_id supersedes, const char *reason, pl_id *id, pl_err *err,
                        const char *label)
 {
-    sqlite3_stmt *st;
-    char now[PL_DATE_SIZE];
-    int rc = prepare(s, &st,
-                     "INSERT INTO site (key, supersedes, reason, airframe_key, code, zone, "
-                     "description, frame, stringer, method, material, thickness_mm, "
-                     "diffusivity_mm2_s, coord_system, coord_unit, origin_x, origin_y, origin_z, "
-                     "u_x, u_y, u_z, v_x, v_y, v_z, width_px, height_px, pitch_u_mm, pitch_v_mm, "
-                     "recorded_at) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, "
-                     "?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22, ?23, ?24, ?25, ?26, "
-                     "?27, ?28, ?29)", err);
-    if (rc)
-        return rc;
-    now_utc(now);
-    const pl_placement *p = &site->map_frame;
-    int b = bind_opt_id(st, 1, key) | bind_opt_id(st, 2, supersedes) |
-            bind_opt_text(st, 3, reason) | sqlite3_bind_int64(st, 4, af_key) |
-            sqlite3_bind_text(st, 5, site->code, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 6, site->zone) | bind_opt_text(st, 7, site->description) |
-            bind_opt_text(st, 8, site->frame) | bind_opt_text(st, 9, site->stringer) |
-            sqlite3_bind_text(st, 10, site->method, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 11, site->material) | bind_opt_real(st, 12, site->thickness_mm) |
-            bind_opt_real(st, 13, site->diffusivity_mm2_s) |
-            sqlite3_bind_text(st, 14, p->system, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 15, p->unit, -1, SQLITE_STATIC);
-    for (int k = 0; k < 3; k++)
-        b |= sqlite3_bind_double(st, 16 + k, p->origin[k]) |
-             sqlite3_bind_double(st, 19 + k, p->u[k]) | sqlite3_bind_double(st, 22 + k, p->v[k]);
-    b |= sqlite3_bind_int64(st, 25, site->width_px) | sqlite3_bind_int64(st, 26, site->height_px) |
-         sqlite3_bind_double(st, 27, site->pitch_u) | sqlite3_bind_double(st, 28, site->pitch_v) |
-         sqlite3_bind_text(st, 29, now, -1, SQLITE_STATIC);
-    return finish_insert(s, st, b, id, err, label);
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_SITE), site);
+    pl_row__set_id(&row, "airframe_key", af_key);
+    pl_row__set_correction(&row, key, supersedes, reason);
+    return pl_store__insert(s, &row, id, err, label);
 }
 
 PL_EXPORT int pl_store_add_site(pl_store *s, const pl_site *site, pl_id *id, pl_err *err)
 {
     assert(s && site);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     site_label(label, site);
-    int rc = check_site(site, label, err);
-    if (!rc && !site->airframe_serial[0])
-        rc = pl__err(err, PL_EINVAL, "%s: airframe_serial is required", label);
+    int rc = check_named_site(site, label, err);
     if (rc)
         return rc;
     int owned;
@@ -1172,25 +867,23 @@ PL_EXPORT int pl_store_add_site(pl_store *s, const pl_site *site, pl_id *id, pl_
     if (rc)
         return rc;
     pl_id af = 0, newid = 0;
-    rc = airframe_key(s, site->airframe_serial, &af, NULL, err, label);
+    rc = pl_store__airframe_key(s, site->airframe_serial, &af, NULL, err, label);
     if (!rc) {
         sqlite3_stmt *st;
         int found = 0;
-        rc = prepare(s, &st, "SELECT 1 FROM site WHERE airframe_key = ?1 AND code = ?2", err);
+        rc = pl_store__prepare(s, &st, "SELECT 1 FROM site WHERE airframe_key = ?1 AND code = ?2",
+                               err);
         if (!rc) {
             sqlite3_bind_int64(st, 1, af);
             sqlite3_bind_text(st, 2, site->code, -1, SQLITE_STATIC);
-            rc = finish_int(s, st, &found, NULL, err, label);
+            rc = pl_store__finish_int(s, st, &found, NULL, err, label);
         }
         if (!rc && found)
             rc = pl__err(err, PL_EEXISTS, "%s: code already exists on this airframe", label);
     }
     if (!rc)
         rc = insert_site(s, site, af, 0, 0, NULL, &newid, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
 PL_EXPORT int pl_store_get_site(pl_store *s, const char *serial, const char *code, pl_site *site,
@@ -1201,20 +894,12 @@ PL_EXPORT int pl_store_get_site(pl_store *s, const char *serial, const char *cod
         serial = "";
     if (!code)
         code = "";
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, SITE_SELECT "WHERE a.serial = ?1 AND s.code = ?2", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_text(st, 1, serial, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 2, code, -1, SQLITE_STATIC);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW)
-        read_site(st, site);
-    else if (r == SQLITE_DONE)
+    pl_value args[2] = { pl_store__arg_text(serial), pl_store__arg_text(code) };
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_SITE, "WHERE a.serial = ?1 AND t.code = ?2", args, 2,
+                           site, &found, err, NULL);
+    if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "site %s on %s: no such site", code, serial);
-    else
-        rc = db_fail(s, err, s->path);
-    sqlite3_finalize(st);
     return rc;
 }
 
@@ -1222,13 +907,11 @@ PL_EXPORT int pl_store_correct_site(pl_store *s, const pl_site *site, const char
                                     pl_id *id, pl_err *err)
 {
     assert(s && site);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     site_label(label, site);
-    int rc = check_site(site, label, err);
-    if (!rc && !site->airframe_serial[0])
-        rc = pl__err(err, PL_EINVAL, "%s: airframe_serial is required", label);
+    int rc = check_named_site(site, label, err);
     if (!rc)
-        rc = check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
+        rc = pl_row__check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
     if (rc)
         return rc;
     int owned;
@@ -1236,183 +919,52 @@ PL_EXPORT int pl_store_correct_site(pl_store *s, const pl_site *site, const char
     if (rc)
         return rc;
     pl_id af = 0, key = 0, current = 0, newid = 0;
-    rc = airframe_key(s, site->airframe_serial, &af, NULL, err, label);
+    rc = pl_store__airframe_key(s, site->airframe_serial, &af, NULL, err, label);
     if (!rc)
-        rc = site_key(s, af, site->code, &key, &current, err, label);
+        rc = pl_store__site_key(s, af, site->code, &key, &current, err, label);
     if (!rc)
         rc = insert_site(s, site, af, key, current, reason, &newid, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
+
+PL_STORE_CALLBACK(site, pl_site_fn)
 
 PL_EXPORT int pl_store_list_sites(pl_store *s, const pl_site_filter *filter, pl_site_fn fn,
                                   void *ud, pl_err *err)
 {
     assert(s && fn);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     SITE_SELECT "WHERE (?1 IS NULL OR a.serial = ?1) "
-                     "AND (?2 IS NULL OR s.zone = ?2) AND (?3 IS NULL OR s.method = ?3) "
-                     "ORDER BY a.serial, s.code", err);
-    if (rc)
-        return rc;
-    if (filter) {
-        bind_opt_text(st, 1, filter->airframe_serial);
-        bind_opt_text(st, 2, filter->zone);
-        bind_opt_text(st, 3, filter->method);
-    }
-    pl_site site;
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        read_site(st, &site);
-        if (fn(ud, &site))
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, s->path);
+    pl_value args[3] = { pl_store__arg_text(filter ? filter->airframe_serial : NULL),
+                         pl_store__arg_text(filter ? filter->zone : NULL),
+                         pl_store__arg_text(filter ? filter->method : NULL) };
+    site_cb cb = { fn, ud };
+    return pl_store__list(s, PL_TABLE_SITE,
+                          "WHERE (?1 IS NULL OR a.serial = ?1) AND (?2 IS NULL OR t.zone = ?2) "
+                          "AND (?3 IS NULL OR t.method = ?3) ORDER BY a.serial, t.code",
+                          args, 3, call_site, &cb, err, NULL);
 }
 
 /* ---- inspections ------------------------------------------------------------------- */
+
+/* Pitches of a map and its site agree within this fraction. */
+#define PITCH_TOLERANCE 1e-3
 
 PL_EXPORT void pl_inspection_clear(pl_inspection *insp)
 {
     if (!insp)
         return;
-    free(insp->parameters_json);
+    pl_row__release(pl_row__table(PL_TABLE_INSPECTION), insp);
     memset(insp, 0, sizeof *insp);
-}
-
-PL_EXPORT int pl_inspection_kind_check(const char *kind, pl_err *err)
-{
-    if (kind)
-        for (size_t i = 0; i < 4; i++)
-            if (strcmp(kind, inspection_kinds[i]) == 0)
-                return PL_OK;
-    return pl__err(err, PL_EINVAL,
-                   "inspection kind '%s' is not one of baseline, scheduled, unscheduled, "
-                   "post-repair", kind ? kind : "");
-}
-
-static int check_inspection(pl_store *s, const pl_inspection *in, const char *label,
-                            pl_err *err)
-{
-    int rc = check_name(err, label, "airframe_serial", in->airframe_serial,
-                        sizeof in->airframe_serial, 1);
-    if (!rc)
-        rc = check_name(err, label, "site_code", in->site_code, sizeof in->site_code, 1);
-    if (!rc)
-        rc = check_name(err, label, "kind", in->kind, sizeof in->kind, 1);
-    if (rc)
-        return rc;
-    pl_err e = { 0 };
-    if (pl_inspection_kind_check(in->kind, &e))
-        return pl__err(err, PL_EINVAL, "%s: %s", label, e.msg);
-    static const struct {
-        const char *name;
-        size_t off, size;
-        int required;
-    } names[] = {
-        { "task_ref", offsetof(pl_inspection, task_ref), PL_NAME_SIZE, 0 },
-        { "procedure", offsetof(pl_inspection, procedure), PL_NAME_SIZE, 1 },
-        { "procedure_rev", offsetof(pl_inspection, procedure_rev), PL_WORD_SIZE, 1 },
-        { "calibration_ref", offsetof(pl_inspection, calibration_ref), PL_TEXT_SIZE, 1 },
-        { "inspector", offsetof(pl_inspection, inspector), PL_NAME_SIZE, 1 },
-        { "inspector_level", offsetof(pl_inspection, inspector_level), PL_WORD_SIZE, 1 },
-        { "software_version", offsetof(pl_inspection, software_version), PL_WORD_SIZE, 0 },
-    };
-    for (size_t i = 0; i < sizeof names / sizeof names[0]; i++) {
-        rc = check_name(err, label, names[i].name, (const char *)in + names[i].off,
-                        names[i].size, names[i].required);
-        if (rc)
-            return rc;
-    }
-    rc = check_text(err, label, "equipment", in->equipment, sizeof in->equipment, 1);
-    if (!rc)
-        rc = check_text(err, label, "notes", in->notes, sizeof in->notes, 0);
-    if (!rc)
-        rc = check_date(err, label, "performed_on", in->performed_on, sizeof in->performed_on,
-                        1);
-    if (rc)
-        return rc;
-    if (!isnan(in->aircraft_hours) && !(isfinite(in->aircraft_hours) && in->aircraft_hours >= 0))
-        return pl__err(err, PL_EINVAL, "%s: aircraft_hours must be >= 0 or unknown (got %g)",
-                       label, in->aircraft_hours);
-    if (in->aircraft_cycles < -1)
-        return pl__err(err, PL_EINVAL, "%s: aircraft_cycles must be >= 0 or -1 for unknown "
-                       "(got %lld)", label, (long long)in->aircraft_cycles);
-    return check_json_object(s, err, label, "parameters_json", in->parameters_json);
-}
-
-#define INSPECTION_SELECT                                                                   \
-    "SELECT i.id, i.stable_key, a.serial, s.code, i.kind, i.task_ref, i.performed_on, "    \
-    "i.aircraft_hours, i.aircraft_cycles, i.procedure, i.procedure_rev, i.equipment, "     \
-    "i.calibration_ref, i.inspector, i.inspector_level, i.software_version, i.notes, "     \
-    "i.parameters_json, i.recorded_at FROM inspection_current i "                          \
-    "JOIN site s ON s.id = i.site_key JOIN airframe a ON a.id = s.airframe_key "
-
-/* Fill `in` from a row of INSPECTION_SELECT; parameters_json is malloc'd. */
-static int read_inspection(sqlite3_stmt *st, pl_inspection *in)
-{
-    memset(in, 0, sizeof *in);
-    in->id = sqlite3_column_int64(st, 0);
-    in->key = sqlite3_column_int64(st, 1);
-    col_text(st, 2, in->airframe_serial, sizeof in->airframe_serial);
-    col_text(st, 3, in->site_code, sizeof in->site_code);
-    col_text(st, 4, in->kind, sizeof in->kind);
-    col_text(st, 5, in->task_ref, sizeof in->task_ref);
-    col_text(st, 6, in->performed_on, sizeof in->performed_on);
-    in->aircraft_hours = col_real(st, 7);
-    in->aircraft_cycles = sqlite3_column_type(st, 8) == SQLITE_NULL
-                              ? -1 : sqlite3_column_int64(st, 8);
-    col_text(st, 9, in->procedure, sizeof in->procedure);
-    col_text(st, 10, in->procedure_rev, sizeof in->procedure_rev);
-    col_text(st, 11, in->equipment, sizeof in->equipment);
-    col_text(st, 12, in->calibration_ref, sizeof in->calibration_ref);
-    col_text(st, 13, in->inspector, sizeof in->inspector);
-    col_text(st, 14, in->inspector_level, sizeof in->inspector_level);
-    col_text(st, 15, in->software_version, sizeof in->software_version);
-    col_text(st, 16, in->notes, sizeof in->notes);
-    int oom = 0;
-    in->parameters_json = col_dup(st, 17, &oom);
-    col_text(st, 18, in->recorded_at, sizeof in->recorded_at);
-    return oom ? PL_ENOMEM : PL_OK;
 }
 
 static int insert_inspection(pl_store *s, const pl_inspection *in, pl_id site, pl_id key,
                              pl_id supersedes, const char *reason, pl_id *id, pl_err *err,
                              const char *label)
 {
-    sqlite3_stmt *st;
-    char now[PL_DATE_SIZE];
-    int rc = prepare(s, &st,
-                     "INSERT INTO inspection (key, supersedes, reason, site_key, kind, task_ref, "
-                     "performed_on, aircraft_hours, aircraft_cycles, procedure, procedure_rev, "
-                     "equipment, calibration_ref, inspector, inspector_level, software_version, "
-                     "parameters_json, notes, recorded_at) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, "
-                     "?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19)", err);
-    if (rc)
-        return rc;
-    now_utc(now);
-    const char *sw = software_version(in->software_version);
-    int b = bind_opt_id(st, 1, key) | bind_opt_id(st, 2, supersedes) |
-            bind_opt_text(st, 3, reason) | sqlite3_bind_int64(st, 4, site) |
-            sqlite3_bind_text(st, 5, in->kind, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 6, in->task_ref) |
-            sqlite3_bind_text(st, 7, in->performed_on, -1, SQLITE_STATIC) |
-            bind_opt_real(st, 8, in->aircraft_hours) |
-            (in->aircraft_cycles >= 0 ? sqlite3_bind_int64(st, 9, in->aircraft_cycles)
-                                      : sqlite3_bind_null(st, 9)) |
-            sqlite3_bind_text(st, 10, in->procedure, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 11, in->procedure_rev, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 12, in->equipment, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 13, in->calibration_ref, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 14, in->inspector, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 15, in->inspector_level, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 16, sw, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 17, in->parameters_json) |
-            bind_opt_text(st, 18, in->notes) | sqlite3_bind_text(st, 19, now, -1, SQLITE_STATIC);
-    return finish_insert(s, st, b, id, err, label);
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_INSPECTION), in);
+    pl_row__set_id(&row, "site_key", site);
+    pl_row__set_correction(&row, key, supersedes, reason);
+    return pl_store__insert(s, &row, id, err, label);
 }
 
 /* Refuse a second current baseline of a site, naming the one that exists. */
@@ -1420,13 +972,18 @@ static int check_baseline(pl_store *s, pl_id site, pl_id replacing, pl_err *err,
                           const char *label)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT stable_key, performed_on FROM inspection_current WHERE site_key = ?1"
-                     " AND kind = 'baseline' AND id IS NOT ?2", err);
+    int rc = pl_store__prepare(s, &st,
+                               "SELECT stable_key, performed_on FROM inspection_current WHERE "
+                               "site_key = ?1 AND kind = 'baseline' AND id IS DISTINCT FROM ?2",
+                               err);
     if (rc)
         return rc;
-    sqlite3_bind_int64(st, 1, site);
-    bind_opt_id(st, 2, replacing);
+    pl_value args[2] = { pl_store__arg_id(site), pl_store__arg_id(replacing) };
+    pl_store__bind(st, 1, &args[0]);
+    if (replacing)
+        pl_store__bind(st, 2, &args[1]);
+    else
+        sqlite3_bind_null(st, 2);
     int r = sqlite3_step(st);
     if (r == SQLITE_ROW)
         rc = pl__err(err, PL_EEXISTS,
@@ -1434,7 +991,7 @@ static int check_baseline(pl_store *s, pl_id site, pl_id replacing, pl_err *err,
                      label, (long long)sqlite3_column_int64(st, 0),
                      (const char *)sqlite3_column_text(st, 1));
     else if (r != SQLITE_DONE)
-        rc = db_fail(s, err, label);
+        rc = pl_store__fail(s, err, label);
     sqlite3_finalize(st);
     return rc;
 }
@@ -1443,10 +1000,10 @@ PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_i
                                       pl_err *err)
 {
     assert(s && in);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "inspection of site %.*s on %.*s", FLD(in->site_code),
              FLD(in->airframe_serial));
-    int rc = check_inspection(s, in, label, err);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_INSPECTION), in, label, err);
     if (rc)
         return rc;
     int owned;
@@ -1454,39 +1011,25 @@ PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_i
     if (rc)
         return rc;
     pl_id af = 0, site = 0, newid = 0;
-    rc = airframe_key(s, in->airframe_serial, &af, NULL, err, label);
+    rc = pl_store__airframe_key(s, in->airframe_serial, &af, NULL, err, label);
     if (!rc)
-        rc = site_key(s, af, in->site_code, &site, NULL, err, label);
+        rc = pl_store__site_key(s, af, in->site_code, &site, NULL, err, label);
     if (!rc && strcmp(in->kind, "baseline") == 0)
         rc = check_baseline(s, site, 0, err, label);
     if (!rc)
         rc = insert_inspection(s, in, site, 0, 0, NULL, &newid, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
 PL_EXPORT int pl_store_get_inspection(pl_store *s, pl_id key, pl_inspection *in, pl_err *err)
 {
     assert(s && in);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, INSPECTION_SELECT "WHERE i.stable_key = ?1", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, key);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW) {
-        if (read_inspection(st, in)) {
-            pl_inspection_clear(in);
-            rc = pl__err(err, PL_ENOMEM, "inspection %lld: out of memory", (long long)key);
-        }
-    } else if (r == SQLITE_DONE) {
+    pl_value arg = pl_store__arg_id(key);
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_INSPECTION, "WHERE t.stable_key = ?1", &arg, 1, in,
+                           &found, err, NULL);
+    if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "inspection %lld: no such inspection", (long long)key);
-    } else {
-        rc = db_fail(s, err, s->path);
-    }
-    sqlite3_finalize(st);
     return rc;
 }
 
@@ -1494,11 +1037,11 @@ PL_EXPORT int pl_store_correct_inspection(pl_store *s, pl_id key, const pl_inspe
                                           const char *reason, pl_id *id, pl_err *err)
 {
     assert(s && in);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "inspection %lld", (long long)key);
-    int rc = check_inspection(s, in, label, err);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_INSPECTION), in, label, err);
     if (!rc)
-        rc = check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
+        rc = pl_row__check_text(err, label, "correction reason", reason, PL_TEXT_SIZE, 1);
     if (rc)
         return rc;
     int owned;
@@ -1507,25 +1050,17 @@ PL_EXPORT int pl_store_correct_inspection(pl_store *s, pl_id key, const pl_inspe
         return rc;
     pl_id current = 0, site = 0, af = 0, named_site = 0, newid = 0;
     sqlite3_stmt *st;
-    rc = prepare(s, &st, "SELECT id, site_key FROM inspection_current WHERE stable_key = ?1",
-                 err);
+    rc = pl_store__row_by_id(s, &st, "SELECT id, site_key FROM inspection_current WHERE "
+                             "stable_key = ?1", key, err, label, "no such inspection");
     if (!rc) {
-        sqlite3_bind_int64(st, 1, key);
-        int r = sqlite3_step(st);
-        if (r == SQLITE_ROW) {
-            current = sqlite3_column_int64(st, 0);
-            site = sqlite3_column_int64(st, 1);
-        } else if (r == SQLITE_DONE) {
-            rc = pl__err(err, PL_ENOTFOUND, "%s: no such inspection", label);
-        } else {
-            rc = db_fail(s, err, label);
-        }
+        current = sqlite3_column_int64(st, 0);
+        site = sqlite3_column_int64(st, 1);
         sqlite3_finalize(st);
     }
     if (!rc)
-        rc = airframe_key(s, in->airframe_serial, &af, NULL, err, label);
+        rc = pl_store__airframe_key(s, in->airframe_serial, &af, NULL, err, label);
     if (!rc)
-        rc = site_key(s, af, in->site_code, &named_site, NULL, err, label);
+        rc = pl_store__site_key(s, af, in->site_code, &named_site, NULL, err, label);
     if (!rc && named_site != site)
         rc = pl__err(err, PL_EINVAL, "%s: a correction cannot move the inspection to another "
                      "site (%s on %s)", label, in->site_code, in->airframe_serial);
@@ -1533,11 +1068,10 @@ PL_EXPORT int pl_store_correct_inspection(pl_store *s, pl_id key, const pl_inspe
         rc = check_baseline(s, site, current, err, label);
     if (!rc)
         rc = insert_inspection(s, in, site, key, current, reason, &newid, err, label);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
+
+PL_STORE_CALLBACK(inspection, pl_inspection_fn)
 
 PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter *filter,
                                         pl_inspection_fn fn, void *ud, pl_err *err)
@@ -1545,9 +1079,9 @@ PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter 
     assert(s && fn);
     if (filter) {
         const char *label = "inspection filter";
-        int rc = check_date(err, label, "from", filter->from, PL_DATE_SIZE, 0);
+        int rc = pl_row__check_date(err, label, "from", filter->from, PL_DATE_SIZE, 0);
         if (!rc)
-            rc = check_date(err, label, "to", filter->to, PL_DATE_SIZE, 0);
+            rc = pl_row__check_date(err, label, "to", filter->to, PL_DATE_SIZE, 0);
         if (!rc && filter->kind && *filter->kind) {
             pl_err e = { 0 };
             if (pl_inspection_kind_check(filter->kind, &e))
@@ -1556,36 +1090,21 @@ PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter 
         if (rc)
             return rc;
     }
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     INSPECTION_SELECT "WHERE (?1 IS NULL OR a.serial = ?1) "
-                     "AND (?2 IS NULL OR s.code = ?2) AND (?3 IS NULL OR i.kind = ?3) "
-                     "AND (?4 IS NULL OR i.performed_on >= ?4) "
-                     "AND (?5 IS NULL OR i.performed_on <= ?5) "
-                     "ORDER BY i.performed_on, i.stable_key", err);
-    if (rc)
-        return rc;
-    if (filter) {
-        bind_opt_text(st, 1, filter->airframe_serial);
-        bind_opt_text(st, 2, filter->site_code);
-        bind_opt_text(st, 3, filter->kind);
-        bind_opt_text(st, 4, filter->from);
-        bind_opt_text(st, 5, filter->to);
-    }
-    pl_inspection in;
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        if (read_inspection(st, &in)) {
-            pl_inspection_clear(&in);
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
-            break;
-        }
-        int stop = fn(ud, &in);
-        pl_inspection_clear(&in);
-        if (stop)
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, s->path);
+    pl_value args[5] = {
+        pl_store__arg_text(filter ? filter->airframe_serial : NULL),
+        pl_store__arg_text(filter ? filter->site_code : NULL),
+        pl_store__arg_text(filter ? filter->kind : NULL),
+        pl_store__arg_text(filter ? filter->from : NULL),
+        pl_store__arg_text(filter ? filter->to : NULL),
+    };
+    inspection_cb cb = { fn, ud };
+    return pl_store__list(s, PL_TABLE_INSPECTION,
+                          "WHERE (?1 IS NULL OR a.serial = ?1) AND (?2 IS NULL OR s.code = ?2) "
+                          "AND (?3 IS NULL OR t.kind = ?3) "
+                          "AND (?4 IS NULL OR t.performed_on >= ?4) "
+                          "AND (?5 IS NULL OR t.performed_on <= ?5) "
+                          "ORDER BY t.performed_on, t.stable_key", args, 5, call_inspection, &cb,
+                          err, NULL);
 }
 
 /* ---- maps -------------------------------------------------------------------------- */
@@ -1594,35 +1113,19 @@ PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter 
 static int inspection_site(pl_store *s, pl_id key, pl_site *site, pl_err *err,
                            const char *label)
 {
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     SITE_SELECT "JOIN inspection_current i ON i.site_key = s.stable_key "
-                     "WHERE i.stable_key = ?1", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, key);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW)
-        read_site(st, site);
-    else if (r == SQLITE_DONE)
+    pl_value arg = pl_store__arg_id(key);
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_SITE,
+                           "JOIN inspection_current i ON i.site_key = t.stable_key "
+                           "WHERE i.stable_key = ?1", &arg, 1, site, &found, err, label);
+    if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "%s: no inspection with key %lld", label, (long long)key);
-    else
-        rc = db_fail(s, err, label);
-    sqlite3_finalize(st);
     return rc;
 }
 
-static int check_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
-                     const char *label, pl_err *err)
+static int check_map(const pl_map_record *rec, const pl_map *map, const char *label, pl_err *err)
 {
-    int rc = check_text(err, label, "source", rec->source, sizeof rec->source, 0);
-    if (!rc)
-        rc = check_name(err, label, "origin", rec->origin, sizeof rec->origin, 1);
-    if (!rc)
-        rc = check_name(err, label, "software_version", rec->software_version,
-                        sizeof rec->software_version, 0);
-    if (!rc)
-        rc = check_json_object(s, err, label, "parameters_json", rec->parameters_json);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_MAP), rec, label, err);
     if (rc)
         return rc;
     if (!map->data || !map->channels || map->width == 0 || map->height == 0 ||
@@ -1672,67 +1175,36 @@ static int check_map_fits_site(const pl_map *map, const pl_site *site, const cha
     return PL_OK;
 }
 
+/* The map record as stored: the caller's fields, the map's geometry and
+ * channels, the source's base name and the content digest. */
 static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
                       const unsigned char *blob, size_t blob_len, const char *hex, pl_id *id,
                       pl_err *err, const char *label)
 {
-    sqlite3_stmt *st;
-    char now[PL_DATE_SIZE];
-    int rc = prepare(s, &st,
-                     "INSERT INTO map (inspection_key, source, made_by, software_version, "
-                     "parameters_json, width, height, nchannels, pitch_u_mm, pitch_v_mm, "
-                     "coord_system, coord_unit, origin_x, origin_y, origin_z, u_x, u_y, u_z, "
-                     "v_x, v_y, v_z, encoding, data, sha256, recorded_at) VALUES (?1, ?2, ?3, "
-                     "?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, "
-                     "?20, ?21, 'zlib-f32le', ?22, ?23, ?24)", err);
-    if (rc)
-        return rc;
-    now_utc(now);
-    const pl_placement *p = &map->placement;
-    const char *sw = software_version(rec->software_version);
-    int b = sqlite3_bind_int64(st, 1, rec->inspection_key) |
-            bind_opt_text(st, 2, rec->source[0] ? pl__basename(rec->source) : NULL) |
-            sqlite3_bind_text(st, 3, rec->origin, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 4, sw, -1, SQLITE_STATIC) |
-            bind_opt_text(st, 5, rec->parameters_json) |
-            sqlite3_bind_int64(st, 6, map->width) | sqlite3_bind_int64(st, 7, map->height) |
-            sqlite3_bind_int64(st, 8, map->nchannels) |
-            sqlite3_bind_double(st, 9, map->pitch_u) | sqlite3_bind_double(st, 10, map->pitch_v) |
-            sqlite3_bind_text(st, 11, p->system, -1, SQLITE_STATIC) |
-            sqlite3_bind_text(st, 12, p->unit, -1, SQLITE_STATIC);
-    for (int k = 0; k < 3; k++)
-        b |= sqlite3_bind_double(st, 13 + k, p->origin[k]) |
-             sqlite3_bind_double(st, 16 + k, p->u[k]) | sqlite3_bind_double(st, 19 + k, p->v[k]);
-    b |= sqlite3_bind_blob64(st, 22, blob, blob_len, SQLITE_STATIC) |
-         sqlite3_bind_text(st, 23, hex, -1, SQLITE_STATIC) |
-         sqlite3_bind_text(st, 24, now, -1, SQLITE_STATIC);
-    rc = finish_insert(s, st, b, id, err, label);
-    if (rc)
-        return rc;
-    rc = prepare(s, &st, "INSERT INTO map_channel (map_id, idx, quantity, unit, label) "
-                 "VALUES (?1, ?2, ?3, ?4, ?5)", err);
-    if (rc)
-        return rc;
-    for (uint32_t c = 0; c < map->nchannels && !rc; c++) {
-        sqlite3_reset(st);
-        sqlite3_bind_int64(st, 1, *id);
-        sqlite3_bind_int64(st, 2, c);
-        sqlite3_bind_text(st, 3, map->channels[c].quantity, -1, SQLITE_STATIC);
-        sqlite3_bind_text(st, 4, map->channels[c].unit, -1, SQLITE_STATIC);
-        sqlite3_bind_text(st, 5, map->channels[c].label, -1, SQLITE_STATIC);
-        rc = step_insert(s, st, NULL, err, label);
-    }
-    sqlite3_finalize(st);
-    return rc;
+    pl_map_record r = *rec;
+    snprintf(r.source, sizeof r.source, "%s", rec->source[0] ? pl__basename(rec->source) : "");
+    r.width = map->width;
+    r.height = map->height;
+    r.nchannels = map->nchannels;
+    r.pitch_u = map->pitch_u;
+    r.pitch_v = map->pitch_v;
+    r.placement = map->placement;
+    r.channels = map->channels;
+    snprintf(r.sha256, sizeof r.sha256, "%s", hex);
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_MAP), &r);
+    pl_row__set_text(&row, "encoding", "zlib-f32le");
+    pl_row__set_blob(&row, "data", blob, blob_len);
+    return pl_store__insert(s, &row, id, err, label);
 }
 
 PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
                                pl_id *id, pl_err *err)
 {
     assert(s && rec && map);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "map for inspection %lld", (long long)rec->inspection_key);
-    int rc = check_map(s, rec, map, label, err);
+    int rc = check_map(rec, map, label, err);
     if (rc)
         return rc;
     int owned;
@@ -1760,13 +1232,14 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     if (!rc) {
         pl_sha256_hex(hex, digest);
         sqlite3_stmt *st;
-        rc = prepare(s, &st, "SELECT id FROM map WHERE inspection_key = ?1 AND sha256 = ?2", err);
+        rc = pl_store__prepare(s, &st, "SELECT id FROM map WHERE inspection_key = ?1 AND "
+                               "sha256 = ?2", err);
         if (!rc) {
             int found = 0;
             int64_t other = 0;
             sqlite3_bind_int64(st, 1, rec->inspection_key);
             sqlite3_bind_text(st, 2, hex, -1, SQLITE_STATIC);
-            rc = finish_int(s, st, &found, &other, err, label);
+            rc = pl_store__finish_int(s, st, &found, &other, err, label);
             if (!rc && found)
                 rc = pl__err(err, PL_EEXISTS, "%s: the same content is already stored as map %lld",
                              label, (long long)other);
@@ -1775,73 +1248,35 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     if (!rc)
         rc = insert_map(s, rec, map, blob, blob_len, hex, &newid, err, label);
     free(blob);
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
-#define MAP_SELECT                                                                          \
-    "SELECT m.id, m.inspection_key, m.source, m.made_by, m.software_version, "             \
-    "m.parameters_json, m.width, m.height, m.nchannels, m.pitch_u_mm, m.pitch_v_mm, "      \
-    "m.coord_system, m.coord_unit, m.origin_x, m.origin_y, m.origin_z, m.u_x, m.u_y, "     \
-    "m.u_z, m.v_x, m.v_y, m.v_z, m.sha256, length(m.data), m.recorded_at "
-
-/* Column of the data blob in a MAP_SELECT ", m.data" row: only a load reads
- * the blob, a listing leaves it on disk. */
-#define MAP_DATA_COLUMN 25
-
-/* The record part of a MAP_SELECT row (channels and parameters left alone). */
-static void read_map_record(sqlite3_stmt *st, pl_map_record *rec)
-{
-    memset(rec, 0, sizeof *rec);
-    rec->id = sqlite3_column_int64(st, 0);
-    rec->inspection_key = sqlite3_column_int64(st, 1);
-    col_text(st, 2, rec->source, sizeof rec->source);
-    col_text(st, 3, rec->origin, sizeof rec->origin);
-    col_text(st, 4, rec->software_version, sizeof rec->software_version);
-    rec->width = (uint32_t)sqlite3_column_int64(st, 6);
-    rec->height = (uint32_t)sqlite3_column_int64(st, 7);
-    rec->nchannels = (uint32_t)sqlite3_column_int64(st, 8);
-    rec->pitch_u = sqlite3_column_double(st, 9);
-    rec->pitch_v = sqlite3_column_double(st, 10);
-    col_text(st, 11, rec->placement.system, sizeof rec->placement.system);
-    col_text(st, 12, rec->placement.unit, sizeof rec->placement.unit);
-    for (int k = 0; k < 3; k++) {
-        rec->placement.origin[k] = sqlite3_column_double(st, 13 + k);
-        rec->placement.u[k] = sqlite3_column_double(st, 16 + k);
-        rec->placement.v[k] = sqlite3_column_double(st, 19 + k);
-    }
-    col_text(st, 22, rec->sha256, sizeof rec->sha256);
-    rec->stored_bytes = (size_t)sqlite3_column_int64(st, 23);
-    col_text(st, 24, rec->recorded_at, sizeof rec->recorded_at);
-}
-
-/* Channels of map `id` into `ch` (room for n). */
+/* Channels of map `id` into `ch` (room for n), checking they are 0..n-1. */
 static int read_channels(pl_store *s, pl_id id, pl_channel *ch, uint32_t n, pl_err *err,
                          const char *label)
 {
+    const pl_table_desc *t = pl_row__table(PL_TABLE_MAP_CHANNEL);
+    char sql[1024];
+    pl_row__select(sql, sizeof sql, t, "t.idx");
+    size_t len = strlen(sql);
+    snprintf(sql + len, sizeof sql - len, "WHERE t.map_id = ?1 ORDER BY t.idx");
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT idx, quantity, unit, label FROM map_channel WHERE map_id = ?1 "
-                     "ORDER BY idx", err);
+    int rc = pl_store__prepare(s, &st, sql, err);
     if (rc)
         return rc;
     sqlite3_bind_int64(st, 1, id);
+    int idx_col = pl_row__select_count(t);
     uint32_t got = 0;
     int r;
     while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        int64_t idx = sqlite3_column_int64(st, 0);
-        if (idx != got || got >= n) {
+        if (sqlite3_column_int64(st, idx_col) != got || got >= n) {
             rc = pl__err(err, PL_EFORMAT, "%s: channel list does not match its %u channels",
                          label, n);
             break;
         }
-        col_text(st, 1, ch[got].quantity, sizeof ch[got].quantity);
-        col_text(st, 2, ch[got].unit, sizeof ch[got].unit);
-        col_text(st, 3, ch[got].label, sizeof ch[got].label);
-        got++;
+        pl_row__read(t, st, &ch[got++]);
     }
-    rc = finish_listing(s, st, r, rc, err, label);
+    rc = pl_store__finish_listing(s, st, r, rc, err, label);
     if (!rc && got != n)
         rc = pl__err(err, PL_EFORMAT, "%s: %u channel records for %u channels", label, got, n);
     return rc;
@@ -1852,27 +1287,25 @@ PL_EXPORT int pl_store_load_map(pl_store *s, pl_id id, pl_map **out, pl_map_reco
 {
     assert(s && out);
     *out = NULL;
-    char label[LABEL_SIZE];
+    const pl_table_desc *t = pl_row__table(PL_TABLE_MAP);
+    char label[STORE_LABEL_SIZE], sql[2048];
     snprintf(label, sizeof label, "%s: map %lld", s->path, (long long)id);
+    /* only a load reads the blob; a listing leaves it on disk */
+    pl_row__select(sql, sizeof sql, t, "t.data");
+    size_t len = strlen(sql);
+    snprintf(sql + len, sizeof sql - len, "WHERE t.id = ?1");
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, MAP_SELECT ", m.data FROM map m WHERE m.id = ?1", err);
+    int rc = pl_store__row_by_id(s, &st, sql, id, err, label, "no such map");
     if (rc)
         return rc;
-    sqlite3_bind_int64(st, 1, id);
-    int r = sqlite3_step(st);
-    if (r != SQLITE_ROW) {
-        rc = r == SQLITE_DONE ? pl__err(err, PL_ENOTFOUND, "%s: no such map", label)
-                              : db_fail(s, err, label);
-        sqlite3_finalize(st);
-        return rc;
-    }
     pl_map_record tmp;
-    read_map_record(st, &tmp);
     pl_map *map = NULL;
     pl_err e = { 0 };
     unsigned char digest[PL_SHA256_SIZE];
-    rc = pl_map_new(&map, tmp.width, tmp.height, tmp.nchannels, &e);
+    rc = pl_row__read(t, st, &tmp);
     if (rc)
+        pl__err(err, rc, "%s: out of memory", label);
+    if (!rc && (rc = pl_map_new(&map, tmp.width, tmp.height, tmp.nchannels, &e)))
         pl__err(err, rc == PL_ENOMEM ? PL_ENOMEM : PL_EFORMAT, "%s: %s", label, e.msg);
     if (!rc) {
         map->pitch_u = tmp.pitch_u;
@@ -1883,70 +1316,68 @@ PL_EXPORT int pl_store_load_map(pl_store *s, pl_id id, pl_map **out, pl_map_reco
     if (!rc && pl_sha256_from_hex(digest, tmp.sha256) != PL_OK)
         rc = pl__err(err, PL_EFORMAT, "%s: stored digest is not SHA-256 hex", label);
     if (!rc) {
-        const void *blob = sqlite3_column_blob(st, MAP_DATA_COLUMN);
-        size_t len = (size_t)sqlite3_column_bytes(st, MAP_DATA_COLUMN);
-        rc = pl_map_decode(map, blob, len, digest, &e);
+        int data = pl_row__select_count(t);
+        const void *blob = sqlite3_column_blob(st, data);
+        size_t blob_len = (size_t)sqlite3_column_bytes(st, data);
+        rc = pl_map_decode(map, blob, blob_len, digest, &e);
         if (rc == PL_ENOMATCH)
             pl__err(err, rc, "%s: content does not match its stored SHA-256 (%s)", label, e.msg);
         else if (rc)
             pl__err(err, rc, "%s: %s", label, e.msg);
     }
-    if (!rc && rec) {
-        int oom = 0;
-        tmp.parameters_json = col_dup(st, 5, &oom);
-        if (oom)
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", label);
-        tmp.channels = map->channels;
-        *rec = tmp;
-    }
     sqlite3_finalize(st);
+    if (rc || !rec)
+        free(tmp.parameters_json);
     if (rc) {
         pl_map_free(map);
         return rc;
     }
+    if (rec) {
+        tmp.channels = map->channels;
+        *rec = tmp;
+    }
     *out = map;
     return PL_OK;
+}
+
+typedef struct map_cb {
+    pl_store *s;
+    pl_map_fn fn;
+    void *ud;
+    pl_err *err;
+    const char *label;
+} map_cb;
+
+/* A listed map with its channels (freed with the record after the call). */
+static int call_map(void *ud, void *rec)
+{
+    map_cb *c = ud;
+    pl_map_record *m = rec;
+    pl_channel *ch = calloc(m->nchannels ? m->nchannels : 1, sizeof *ch);
+    if (!ch)
+        return pl__err(c->err, PL_ENOMEM, "%s: out of memory", c->label);
+    m->channels = ch;
+    int rc = read_channels(c->s, m->id, ch, m->nchannels, c->err, c->label);
+    if (rc)
+        return rc;
+    return c->fn(c->ud, m) ? 1 : 0;
 }
 
 PL_EXPORT int pl_store_list_maps(pl_store *s, pl_id inspection_key, pl_map_fn fn, void *ud,
                                  pl_err *err)
 {
     assert(s && fn);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "maps of inspection %lld", (long long)inspection_key);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, MAP_SELECT "FROM map_current m WHERE m.inspection_key = ?1 "
-                     "ORDER BY m.id", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, inspection_key);
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        pl_map_record rec;
-        read_map_record(st, &rec);
-        pl_channel *ch = calloc(rec.nchannels ? rec.nchannels : 1, sizeof *ch);
-        int oom = !ch;
-        rec.parameters_json = oom ? NULL : col_dup(st, 5, &oom);
-        if (oom) {
-            free(ch);
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", label);
-            break;
-        }
-        rc = read_channels(s, rec.id, ch, rec.nchannels, err, label);
-        int stop = 0;
-        if (!rc) {
-            rec.channels = ch;
-            stop = fn(ud, &rec);
-        }
-        free(rec.parameters_json);
-        free(ch);
-        if (rc || stop)
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, label);
+    map_cb cb = { s, fn, ud, err, label };
+    pl_value arg = pl_store__arg_id(inspection_key);
+    return pl_store__list(s, PL_TABLE_MAP,
+                          "WHERE t.inspection_key = ?1 AND NOT EXISTS "
+                          "(SELECT 1 FROM map n WHERE n.supersedes = t.id) ORDER BY t.id",
+                          &arg, 1, call_map, &cb, err, label);
 }
 
-/* ---- registrations and comparisons --------------------------------------------- */
+/* ---- registrations ---------------------------------------------------------------- */
 
 /* Where a map stands in its site's history: the site, and the key, kind and
  * date of the inspection it belongs to. */
@@ -1960,26 +1391,20 @@ static int find_map_owner(pl_store *s, pl_id map_id, map_owner *o, const char *l
                           pl_err *err)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st,
-                     "SELECT i.site_key, i.stable_key, i.kind, i.performed_on FROM map m "
-                     "JOIN inspection_current i ON i.stable_key = m.inspection_key "
-                     "WHERE m.id = ?1", err);
+    char missing[48];
+    snprintf(missing, sizeof missing, "no map %lld", (long long)map_id);
+    int rc = pl_store__row_by_id(s, &st,
+                                 "SELECT i.site_key, i.stable_key, i.kind, i.performed_on FROM "
+                                 "map m JOIN inspection_current i ON i.stable_key = "
+                                 "m.inspection_key WHERE m.id = ?1", map_id, err, label, missing);
     if (rc)
         return rc;
-    sqlite3_bind_int64(st, 1, map_id);
-    int r = sqlite3_step(st);
-    if (r == SQLITE_ROW) {
-        o->site = sqlite3_column_int64(st, 0);
-        o->inspection = sqlite3_column_int64(st, 1);
-        col_text(st, 2, o->kind, sizeof o->kind);
-        col_text(st, 3, o->performed_on, sizeof o->performed_on);
-    } else if (r == SQLITE_DONE) {
-        rc = pl__err(err, PL_ENOTFOUND, "%s: no map %lld", label, (long long)map_id);
-    } else {
-        rc = db_fail(s, err, label);
-    }
+    o->site = sqlite3_column_int64(st, 0);
+    o->inspection = sqlite3_column_int64(st, 1);
+    pl_store__col_text(st, 2, o->kind, sizeof o->kind);
+    pl_store__col_text(st, 3, o->performed_on, sizeof o->performed_on);
     sqlite3_finalize(st);
-    return rc;
+    return PL_OK;
 }
 
 /* Whether inspection `a` comes before `b` in a site's history: by date,
@@ -1998,28 +1423,13 @@ static int finite_all(const double *v, size_t n)
     return 1;
 }
 
-static int check_registration(pl_store *s, const pl_registration_record *r, const char *label,
-                              pl_err *err)
+static int check_registration(const pl_registration_record *r, const char *label, pl_err *err)
 {
-    int aligned = strcmp(r->status, "aligned") == 0;
-    int manual = strcmp(r->status, "manual") == 0;
-    int refused = strcmp(r->status, "refused") == 0;
-    if (!aligned && !manual && !refused)
-        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not aligned, refused or manual",
-                       label, FLD(r->status));
-    int rc = check_name(err, label, "method", r->method, sizeof r->method, 1);
-    if (!rc)
-        rc = check_text(err, label, "refusal", r->refusal, sizeof r->refusal, 0);
-    if (!rc)
-        rc = check_name(err, label, "supplied_by", r->supplied_by, sizeof r->supplied_by, 0);
-    if (!rc)
-        rc = check_text(err, label, "supplied_reason", r->supplied_reason,
-                        sizeof r->supplied_reason, 0);
-    if (!rc)
-        rc = check_name(err, label, "software_version", r->software_version,
-                        sizeof r->software_version, 0);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_REGISTRATION), r, label, err);
     if (rc)
         return rc;
+    int manual = strcmp(r->status, "manual") == 0;
+    int refused = strcmp(r->status, "refused") == 0;
     if (refused && !r->refusal[0])
         return pl__err(err, PL_EINVAL, "%s: a refused registration needs its reason", label);
     if (manual && (!r->supplied_by[0] || !r->supplied_reason[0]))
@@ -2035,17 +1445,17 @@ static int check_registration(pl_store *s, const pl_registration_record *r, cons
         if (r->overlap_fraction < 0 || r->overlap_fraction > 1 || r->overlap_mm2 < 0)
             return pl__err(err, PL_EINVAL, "%s: overlap out of range", label);
     }
-    return check_json_object(s, err, label, "parameters_json", r->parameters_json);
+    return PL_OK;
 }
 
 PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_record *r, pl_id *id,
                                         pl_err *err)
 {
     assert(s && r);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "registration of map %lld onto map %lld",
              (long long)r->current_map_id, (long long)r->baseline_map_id);
-    int rc = check_registration(s, r, label, err);
+    int rc = check_registration(r, label, err);
     if (rc)
         return rc;
     map_owner base, cur;
@@ -2061,147 +1471,71 @@ PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_recor
                        "%s: map %lld is of a %s inspection (%s) that is not earlier than map "
                        "%lld's (%s)", label, (long long)r->baseline_map_id, base.kind,
                        base.performed_on, (long long)r->current_map_id, cur.performed_on);
-    int owned;
-    if ((rc = pl_store__write_begin(s, &owned, err)))
-        return rc;
-    sqlite3_stmt *st;
-    pl_id newid = 0;
-    rc = prepare(s, &st,
-                 "INSERT INTO registration (baseline_map_id, current_map_id, method, status, "
-                 "refusal, shift_col_px, shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, "
-                 "scale, ncc, peak_sidelobe, overlap_fraction, overlap_mm2, supplied_by, "
-                 "supplied_reason, parameters_json, software_version, recorded_at) VALUES "
-                 "(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, "
-                 "?18, ?19, ?20)", err);
-    if (!rc) {
-        char now[PL_DATE_SIZE];
-        now_utc(now);
-        int b = sqlite3_bind_int64(st, 1, r->baseline_map_id)
-                | sqlite3_bind_int64(st, 2, r->current_map_id)
-                | sqlite3_bind_text(st, 3, r->method, -1, SQLITE_STATIC)
-                | sqlite3_bind_text(st, 4, r->status, -1, SQLITE_STATIC)
-                | bind_opt_text(st, 5, r->refusal)
-                | bind_opt_real(st, 6, r->shift_col_px) | bind_opt_real(st, 7, r->shift_row_px)
-                | bind_opt_real(st, 8, r->shift_u_mm) | bind_opt_real(st, 9, r->shift_v_mm)
-                | bind_opt_real(st, 10, r->rotation_deg) | bind_opt_real(st, 11, r->scale)
-                | bind_opt_real(st, 12, r->ncc) | bind_opt_real(st, 13, r->peak_sidelobe)
-                | bind_opt_real(st, 14, r->overlap_fraction)
-                | bind_opt_real(st, 15, r->overlap_mm2) | bind_opt_text(st, 16, r->supplied_by)
-                | bind_opt_text(st, 17, r->supplied_reason)
-                | bind_opt_text(st, 18, r->parameters_json)
-                | sqlite3_bind_text(st, 19, software_version(r->software_version), -1,
-                                    SQLITE_STATIC)
-                | sqlite3_bind_text(st, 20, now, -1, SQLITE_STATIC);
-        rc = finish_insert(s, st, b, &newid, err, label);
-    }
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_REGISTRATION), r);
+    return pl_store__write_row(s, &row, id, err, label);
 }
 
-#define REGISTRATION_SELECT                                                                 \
-    "SELECT id, baseline_map_id, current_map_id, method, status, refusal, shift_col_px, "  \
-    "shift_row_px, shift_u_mm, shift_v_mm, rotation_deg, scale, ncc, peak_sidelobe, "      \
-    "overlap_fraction, overlap_mm2, supplied_by, supplied_reason, parameters_json, "       \
-    "software_version, recorded_at FROM registration "
-
-/* Fill `g` from a row of REGISTRATION_SELECT; parameters_json is malloc'd. */
-static int read_registration(sqlite3_stmt *st, pl_registration_record *g)
+/* The rows of `table` that `where` selects with `id` as ?1, oldest first. */
+static int list_for(pl_store *s, pl_table table, const char *where, pl_id id, pl_row_fn fn,
+                    void *cb, pl_err *err)
 {
-    memset(g, 0, sizeof *g);
-    g->id = sqlite3_column_int64(st, 0);
-    g->baseline_map_id = sqlite3_column_int64(st, 1);
-    g->current_map_id = sqlite3_column_int64(st, 2);
-    col_text(st, 3, g->method, sizeof g->method);
-    col_text(st, 4, g->status, sizeof g->status);
-    col_text(st, 5, g->refusal, sizeof g->refusal);
-    double *nums[] = { &g->shift_col_px, &g->shift_row_px, &g->shift_u_mm, &g->shift_v_mm,
-                       &g->rotation_deg, &g->scale, &g->ncc, &g->peak_sidelobe,
-                       &g->overlap_fraction, &g->overlap_mm2 };
-    for (int k = 0; k < 10; k++)
-        *nums[k] = col_real(st, 6 + k);
-    col_text(st, 16, g->supplied_by, sizeof g->supplied_by);
-    col_text(st, 17, g->supplied_reason, sizeof g->supplied_reason);
-    int oom = 0;
-    g->parameters_json = col_dup(st, 18, &oom);
-    col_text(st, 19, g->software_version, sizeof g->software_version);
-    col_text(st, 20, g->recorded_at, sizeof g->recorded_at);
-    return oom ? PL_ENOMEM : PL_OK;
+    pl_value arg = pl_store__arg_id(id);
+    return pl_store__list(s, table, where, &arg, 1, fn, cb, err, NULL);
 }
+
+PL_STORE_CALLBACK(registration, pl_registration_fn)
 
 PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
                                           pl_registration_fn fn, void *ud, pl_err *err)
 {
     assert(s && fn);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, REGISTRATION_SELECT "WHERE ?1 = 0 OR current_map_id = ?1 "
-                     "ORDER BY id", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, current_map_id);
-    pl_registration_record g;
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        if (read_registration(st, &g)) {
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
-            break;
-        }
-        int stop = fn(ud, &g);
-        free(g.parameters_json);
-        if (stop)
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, s->path);
+    registration_cb cb = { fn, ud };
+    return list_for(s, PL_TABLE_REGISTRATION, "WHERE ?1 = 0 OR t.current_map_id = ?1 "
+                    "ORDER BY t.id", current_map_id, call_registration, &cb, err);
 }
+
+/* ---- comparisons --------------------------------------------------------------------- */
 
 /* The site key of an inspection (by key). */
 static int inspection_site_key(pl_store *s, pl_id key, pl_id *site, const char *label,
                                pl_err *err)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT site_key FROM inspection_current WHERE stable_key = ?1", err);
+    int rc = pl_store__prepare(s, &st, "SELECT site_key FROM inspection_current WHERE "
+                               "stable_key = ?1", err);
     if (rc)
         return rc;
     sqlite3_bind_int64(st, 1, key);
     int found = 0;
     int64_t v = 0;
-    rc = finish_int(s, st, &found, &v, err, label);
+    rc = pl_store__finish_int(s, st, &found, &v, err, label);
     if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "%s: no inspection with key %lld", label, (long long)key);
     *site = v;
     return rc;
 }
 
-static int check_comparison(pl_store *s, const pl_comparison_record *c, const char *label,
-                            pl_err *err)
+static int check_comparison(const pl_comparison_record *c, const char *label, pl_err *err)
 {
-    int done = strcmp(c->status, "done") == 0, not_done = strcmp(c->status, "not-done") == 0;
-    if (!done && !not_done)
-        return pl__err(err, PL_EINVAL, "%s: status '%.*s' is not done or not-done", label,
-                       FLD(c->status));
-    int rc = check_text(err, label, "not_done_reason", c->not_done_reason,
-                        sizeof c->not_done_reason, 0);
-    if (!rc)
-        rc = check_name(err, label, "software_version", c->software_version,
-                        sizeof c->software_version, 0);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_COMPARISON), c, label, err);
     if (rc)
         return rc;
-    if (not_done && !c->not_done_reason[0])
+    if (strcmp(c->status, "not-done") == 0 && !c->not_done_reason[0])
         return pl__err(err, PL_EINVAL, "%s: a comparison not done needs its reason", label);
     if (c->baseline_inspection == c->current_inspection)
         return pl__err(err, PL_EINVAL, "%s: an inspection cannot be compared with itself", label);
-    return check_json_object(s, err, label, "parameters_json", c->parameters_json);
+    return PL_OK;
 }
 
 PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c, pl_id *id,
                                       pl_err *err)
 {
     assert(s && c);
-    char label[LABEL_SIZE];
+    char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "comparison of inspection %lld with %lld",
              (long long)c->current_inspection, (long long)c->baseline_inspection);
-    int rc = check_comparison(s, c, label, err);
+    int rc = check_comparison(c, label, err);
     pl_id bsite = 0, csite = 0;
     if (!rc)
         rc = inspection_site_key(s, c->baseline_inspection, &bsite, label, err);
@@ -2211,85 +1545,21 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
         return rc;
     if (bsite != csite)
         return pl__err(err, PL_ENOMATCH, "%s: the inspections are of different sites", label);
-    int owned;
-    if ((rc = pl_store__write_begin(s, &owned, err)))
-        return rc;
-    sqlite3_stmt *st;
-    pl_id newid = 0;
-    rc = prepare(s, &st,
-                 "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, "
-                 "registration_id, status, not_done_reason, uncompared_mm2, uncompared_fraction, "
-                 "parameters_json, software_version, recorded_at) VALUES (?1, ?2, ?3, ?4, ?5, "
-                 "?6, ?7, ?8, ?9, ?10, ?11)", err);
-    if (!rc) {
-        char now[PL_DATE_SIZE];
-        now_utc(now);
-        int b = sqlite3_bind_int64(st, 1, bsite) | sqlite3_bind_int64(st, 2, c->baseline_inspection)
-                | sqlite3_bind_int64(st, 3, c->current_inspection)
-                | bind_opt_id(st, 4, c->registration_id)
-                | sqlite3_bind_text(st, 5, c->status, -1, SQLITE_STATIC)
-                | bind_opt_text(st, 6, c->not_done_reason)
-                | bind_opt_real(st, 7, c->uncompared_mm2)
-                | bind_opt_real(st, 8, c->uncompared_fraction)
-                | bind_opt_text(st, 9, c->parameters_json)
-                | sqlite3_bind_text(st, 10, software_version(c->software_version), -1,
-                                    SQLITE_STATIC)
-                | sqlite3_bind_text(st, 11, now, -1, SQLITE_STATIC);
-        rc = finish_insert(s, st, b, &newid, err, label);
-    }
-    rc = pl_store__write_end(s, owned, rc, err);
-    if (!rc && id)
-        *id = newid;
-    return rc;
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_COMPARISON), c);
+    pl_row__set_id(&row, "site_key", bsite);
+    return pl_store__write_row(s, &row, id, err, label);
 }
 
-#define COMPARISON_SELECT                                                                   \
-    "SELECT id, baseline_inspection, current_inspection, registration_id, status, "        \
-    "not_done_reason, uncompared_mm2, uncompared_fraction, parameters_json, "              \
-    "software_version, recorded_at FROM comparison "
-
-/* Fill `c` from a row of COMPARISON_SELECT; parameters_json is malloc'd. */
-static int read_comparison(sqlite3_stmt *st, pl_comparison_record *c)
-{
-    memset(c, 0, sizeof *c);
-    c->id = sqlite3_column_int64(st, 0);
-    c->baseline_inspection = sqlite3_column_int64(st, 1);
-    c->current_inspection = sqlite3_column_int64(st, 2);
-    c->registration_id = sqlite3_column_int64(st, 3);
-    col_text(st, 4, c->status, sizeof c->status);
-    col_text(st, 5, c->not_done_reason, sizeof c->not_done_reason);
-    c->uncompared_mm2 = col_real(st, 6);
-    c->uncompared_fraction = col_real(st, 7);
-    int oom = 0;
-    c->parameters_json = col_dup(st, 8, &oom);
-    col_text(st, 9, c->software_version, sizeof c->software_version);
-    col_text(st, 10, c->recorded_at, sizeof c->recorded_at);
-    return oom ? PL_ENOMEM : PL_OK;
-}
+PL_STORE_CALLBACK(comparison, pl_comparison_fn)
 
 PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
                                         pl_comparison_fn fn, void *ud, pl_err *err)
 {
     assert(s && fn);
-    sqlite3_stmt *st;
-    int rc = prepare(s, &st, COMPARISON_SELECT "WHERE ?1 = 0 OR current_inspection = ?1 "
-                     "ORDER BY id", err);
-    if (rc)
-        return rc;
-    sqlite3_bind_int64(st, 1, current_inspection);
-    pl_comparison_record c;
-    int r;
-    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
-        if (read_comparison(st, &c)) {
-            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", s->path);
-            break;
-        }
-        int stop = fn(ud, &c);
-        free(c.parameters_json);
-        if (stop)
-            break;
-    }
-    return finish_listing(s, st, r, rc, err, s->path);
+    comparison_cb cb = { fn, ud };
+    return list_for(s, PL_TABLE_COMPARISON, "WHERE ?1 = 0 OR t.current_inspection = ?1 "
+                    "ORDER BY t.id", current_inspection, call_comparison, &cb, err);
 }
 
 /* ---- summary ----------------------------------------------------------------------- */
@@ -2297,18 +1567,36 @@ PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
 static int info_value(pl_store *s, const char *name, char *dst, size_t cap, pl_err *err)
 {
     sqlite3_stmt *st;
-    int rc = prepare(s, &st, "SELECT value FROM store_info WHERE name = ?1", err);
+    int rc = pl_store__prepare(s, &st, "SELECT value FROM store_info WHERE name = ?1", err);
     if (rc)
         return rc;
     sqlite3_bind_text(st, 1, name, -1, SQLITE_STATIC);
     int r = sqlite3_step(st);
     dst[0] = '\0';
     if (r == SQLITE_ROW)
-        col_text(st, 0, dst, cap);
+        pl_store__col_text(st, 0, dst, cap);
     else if (r != SQLITE_DONE)
-        rc = db_fail(s, err, s->path);
+        rc = pl_store__fail(s, err, NULL);
     sqlite3_finalize(st);
     return rc;
+}
+
+/* Current inspections counted by kind, in the vocabulary's order. */
+static int count_kinds(pl_store *s, int64_t *by_kind, pl_err *err)
+{
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, "SELECT kind, count(*) FROM inspection_current "
+                               "GROUP BY kind", err);
+    if (rc)
+        return rc;
+    int r;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        int k = pl_vocabulary_index(PL_VOCAB_INSPECTION_KIND,
+                                    (const char *)sqlite3_column_text(st, 0));
+        if (k >= 0)
+            by_kind[k] = sqlite3_column_int64(st, 1);
+    }
+    return pl_store__finish_listing(s, st, r, rc, err, NULL);
 }
 
 PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err)
@@ -2329,14 +1617,6 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT count(*) FROM site_current", &sum->sites },
         { "SELECT count(*) FROM inspection_current", &sum->inspections },
         { "SELECT count(*) FROM map_current", &sum->maps },
-        { "SELECT count(*) FROM inspection_current WHERE kind = 'baseline'",
-          &sum->inspections_by_kind[0] },
-        { "SELECT count(*) FROM inspection_current WHERE kind = 'scheduled'",
-          &sum->inspections_by_kind[1] },
-        { "SELECT count(*) FROM inspection_current WHERE kind = 'unscheduled'",
-          &sum->inspections_by_kind[2] },
-        { "SELECT count(*) FROM inspection_current WHERE kind = 'post-repair'",
-          &sum->inspections_by_kind[3] },
         { "SELECT (SELECT count(supersedes) FROM airframe) + (SELECT count(supersedes) FROM site)"
           " + (SELECT count(supersedes) FROM inspection) + (SELECT count(supersedes) FROM map)"
           " + (SELECT count(supersedes) FROM criteria)"
@@ -2350,19 +1630,21 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT coalesce(sum(length(data)), 0) FROM map", &sum->map_bytes },
     };
     for (size_t i = 0; !rc && i < sizeof counts / sizeof counts[0]; i++)
-        rc = query_int(s, counts[i].sql, counts[i].out, err);
+        rc = pl_store__query_int(s, counts[i].sql, counts[i].out, err);
+    if (!rc)
+        rc = count_kinds(s, sum->inspections_by_kind, err);
     if (rc)
         return rc;
     sqlite3_stmt *st;
-    rc = prepare(s, &st, "SELECT min(performed_on), max(performed_on) FROM inspection_current",
-                 err);
+    rc = pl_store__prepare(s, &st, "SELECT min(performed_on), max(performed_on) FROM "
+                           "inspection_current", err);
     if (rc)
         return rc;
     if (sqlite3_step(st) == SQLITE_ROW) {
-        col_text(st, 0, sum->first_inspection, sizeof sum->first_inspection);
-        col_text(st, 1, sum->last_inspection, sizeof sum->last_inspection);
+        pl_store__col_text(st, 0, sum->first_inspection, sizeof sum->first_inspection);
+        pl_store__col_text(st, 1, sum->last_inspection, sizeof sum->last_inspection);
     } else {
-        rc = db_fail(s, err, s->path);
+        rc = pl_store__fail(s, err, NULL);
     }
     sqlite3_finalize(st);
     return rc;

@@ -97,11 +97,45 @@ PL_EXPORT int pl_store_commit(pl_store *store, pl_err *err);
 /** Roll it back; harmless when none is open. */
 PL_EXPORT void pl_store_rollback(pl_store *store);
 
+/* ---- vocabularies ------------------------------------------------------- */
+
+/** The closed vocabularies of the record. Each has one source, this
+ * library; the schema's CHECK lists and triggers carry the same words (a
+ * test holds them equal). Values are fixed; new vocabularies are appended. */
+typedef enum pl_vocab {
+    PL_VOCAB_INSPECTION_KIND = 0,     /**< baseline, scheduled, unscheduled, post-repair */
+    PL_VOCAB_METHOD = 1,              /**< a site's inspection method */
+    PL_VOCAB_REGISTRATION_STATUS = 2, /**< aligned, refused, manual */
+    PL_VOCAB_COMPARISON_STATUS = 3,   /**< done, not-done */
+    PL_VOCAB_COUNT
+} pl_vocab;
+
+/** A vocabulary: its name (for messages) and its words, in a fixed order. */
+typedef struct pl_vocabulary {
+    const char *name;            /**< e.g. "inspection kind" */
+    size_t count;
+    const char *const *words;
+} pl_vocabulary;
+
+/** Number of inspection kinds (PL_VOCAB_INSPECTION_KIND). */
+#define PL_INSPECTION_KIND_COUNT 4
+
+/** The vocabulary `which` (static storage); NULL out of range. */
+PL_EXPORT const pl_vocabulary *pl_vocabulary_get(pl_vocab which);
+
+/** Position of `word` in vocabulary `which`, or -1. */
+PL_EXPORT int pl_vocabulary_index(pl_vocab which, const char *word);
+
+/** Check a word: PL_OK, or PL_EINVAL with "<name> '<word>' is not one of
+ * <words>". */
+PL_EXPORT int pl_vocabulary_check(pl_vocab which, const char *word, pl_err *err);
+
 /**
- * The underlying SQLite handle (sqlite3 *), borrowed, for modules that add
- * their own records in later schema versions. Valid until pl_store_close().
+ * The words of `which` as prose into `buf`: "a, b, c or d" (the last
+ * joined by `last`, e.g. " or "; NULL gives ", "). Always terminated.
+ * @return the length the whole text needs (as snprintf).
  */
-PL_EXPORT void *pl_store_db(pl_store *store);
+PL_EXPORT size_t pl_vocabulary_text(char *buf, size_t cap, pl_vocab which, const char *last);
 
 /* ---- airframes ------------------------------------------------------------ */
 
@@ -142,6 +176,15 @@ PL_EXPORT int pl_store_get_airframe(pl_store *store, const char *serial, pl_airf
 PL_EXPORT int pl_store_add_operator(pl_store *store, const char *serial, const char *operator_name,
                                     const char *since, pl_err *err);
 
+/** One entry of an airframe's operator history, as read. */
+typedef struct pl_operator {
+    pl_id id;                            /**< (read) */
+    pl_id airframe_key;                  /**< (read) the airframe's key */
+    char operator_name[PL_TEXT_SIZE];
+    char since[PL_DATE_SIZE];            /**< YYYY-MM-DD */
+    char recorded_at[PL_DATE_SIZE];      /**< (read) */
+} pl_operator;
+
 typedef int (*pl_operator_fn)(void *ud, const char *operator_name, const char *since,
                               const char *recorded_at);
 /** The operator history of an airframe, oldest first (by since, then as
@@ -181,7 +224,7 @@ typedef struct pl_site {
     char description[PL_TEXT_SIZE];
     char frame[PL_NAME_SIZE];          /**< structural frame, e.g. "FR 41" */
     char stringer[PL_NAME_SIZE];       /**< stringer, e.g. "STR 12L" */
-    char method[PL_NAME_SIZE];         /**< see pl_method_check(); required */
+    char method[PL_NAME_SIZE];         /**< PL_VOCAB_METHOD; required */
     char material[PL_NAME_SIZE];       /**< laminate or material name */
     double thickness_mm;               /**< nominal thickness; NaN unknown */
     double diffusivity_mm2_s;          /**< through-thickness thermal diffusivity; NaN unknown */
@@ -201,11 +244,7 @@ typedef struct pl_site {
  */
 PL_EXPORT int pl_site_check(const pl_site *site, pl_err *err);
 
-/**
- * Check an inspection method name: "flash-thermography",
- * "ultrasound-pulse-echo", "ultrasound-through-transmission" or
- * "eddy-current". @return PL_OK, PL_EINVAL.
- */
+/** Check an inspection method name (PL_VOCAB_METHOD). @return PL_OK, PL_EINVAL. */
 PL_EXPORT int pl_method_check(const char *method, pl_err *err);
 
 /**
@@ -240,7 +279,7 @@ typedef struct pl_inspection {
     pl_id key;                            /**< (read) stable identity */
     char airframe_serial[PL_NAME_SIZE];   /**< required */
     char site_code[PL_NAME_SIZE];         /**< required */
-    char kind[PL_WORD_SIZE];              /**< baseline | scheduled | unscheduled | post-repair */
+    char kind[PL_WORD_SIZE];              /**< PL_VOCAB_INSPECTION_KIND */
     char task_ref[PL_NAME_SIZE];          /**< maintenance task or check reference */
     char performed_on[PL_DATE_SIZE];      /**< YYYY-MM-DD; required */
     double aircraft_hours;                /**< flight hours at inspection; NaN unknown */
@@ -262,7 +301,7 @@ typedef struct pl_inspection {
 /** Free what a read put in `insp` (parameters_json) and zero it. */
 PL_EXPORT void pl_inspection_clear(pl_inspection *insp);
 
-/** Check an inspection kind word. @return PL_OK, PL_EINVAL. */
+/** Check an inspection kind word (PL_VOCAB_INSPECTION_KIND). @return PL_OK, PL_EINVAL. */
 PL_EXPORT int pl_inspection_kind_check(const char *kind, pl_err *err);
 
 /**
@@ -363,7 +402,7 @@ typedef struct pl_registration_record {
     pl_id baseline_map_id;                /**< the map aligned to; required */
     pl_id current_map_id;                 /**< the map aligned; required */
     char method[PL_NAME_SIZE];            /**< how, e.g. "phase-correlation"; required */
-    char status[PL_WORD_SIZE];            /**< "aligned", "refused" or "manual" */
+    char status[PL_WORD_SIZE];            /**< PL_VOCAB_REGISTRATION_STATUS */
     char refusal[PL_TEXT_SIZE];           /**< why, when refused (required then) */
     double shift_col_px, shift_row_px;    /**< transform shift, baseline pixels */
     double shift_u_mm, shift_v_mm;        /**< the same in mm along u, v */
@@ -407,7 +446,7 @@ typedef struct pl_comparison_record {
     pl_id baseline_inspection;            /**< key; required */
     pl_id current_inspection;             /**< key; required, same site */
     pl_id registration_id;                /**< the registration it rests on, or 0 */
-    char status[PL_WORD_SIZE];            /**< "done" or "not-done" */
+    char status[PL_WORD_SIZE];            /**< PL_VOCAB_COMPARISON_STATUS */
     char not_done_reason[PL_TEXT_SIZE];   /**< why, when not done (required then) */
     double uncompared_mm2;                /**< area that could not be compared; NaN unknown */
     double uncompared_fraction;           /**< the same as a fraction of the site */
@@ -437,7 +476,7 @@ typedef struct pl_store_summary {
     char created_at[PL_DATE_SIZE];
     char created_by[PL_WORD_SIZE];     /**< plyledger version that created it */
     int64_t airframes, sites, inspections, maps;
-    int64_t inspections_by_kind[4];    /**< baseline, scheduled, unscheduled, post-repair */
+    int64_t inspections_by_kind[PL_INSPECTION_KIND_COUNT]; /**< in PL_VOCAB_INSPECTION_KIND order */
     int64_t corrections;               /**< rows that supersede another */
     int64_t indications, comparisons, dispositions, ledger_links;
     int64_t registrations;             /**< registrations recorded (any status) */

@@ -1,0 +1,1533 @@
+/*
+ * store_row.c - the recorded tables described once, and what the
+ * descriptions drive: checks of a caller's record, the one insert path,
+ * reads into the public structs, copies, the JSON form and the canonical
+ * encoding (plyledger/store_row.h); and the record's closed vocabularies.
+ *
+ * A description lists a table's columns in the order its JSON form shows
+ * them. Each entry says where the value lives in the public struct (or that
+ * the store supplies it, or that a read takes it from a join), its SQL type,
+ * whether it may be absent, and how a caller's value is checked.
+ */
+#include "record/store_int.h"
+
+#include "common/common_int.h"
+#include "plyledger/hash.h"
+
+#include <assert.h>
+#include <cjson/cJSON.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* ---- vocabularies ------------------------------------------------------------ */
+
+static const char *const inspection_kinds[PL_INSPECTION_KIND_COUNT] = {
+    "baseline", "scheduled", "unscheduled", "post-repair"
+};
+static const char *const methods[] = {
+    "flash-thermography", "ultrasound-pulse-echo", "ultrasound-through-transmission",
+    "eddy-current"
+};
+static const char *const registration_statuses[] = { "aligned", "refused", "manual" };
+static const char *const comparison_statuses[] = { "done", "not-done" };
+
+#define WORDS(a) sizeof a / sizeof a[0], a
+static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
+    { "inspection kind", WORDS(inspection_kinds) },
+    { "method", WORDS(methods) },
+    { "registration status", WORDS(registration_statuses) },
+    { "comparison status", WORDS(comparison_statuses) },
+};
+
+PL_EXPORT const pl_vocabulary *pl_vocabulary_get(pl_vocab which)
+{
+    return (unsigned)which < PL_VOCAB_COUNT ? &vocabularies[which] : NULL;
+}
+
+PL_EXPORT int pl_vocabulary_index(pl_vocab which, const char *word)
+{
+    const pl_vocabulary *v = pl_vocabulary_get(which);
+    if (v && word)
+        for (size_t i = 0; i < v->count; i++)
+            if (strcmp(word, v->words[i]) == 0)
+                return (int)i;
+    return -1;
+}
+
+PL_EXPORT size_t pl_vocabulary_text(char *buf, size_t cap, pl_vocab which, const char *last)
+{
+    const pl_vocabulary *v = pl_vocabulary_get(which);
+    size_t n = 0;
+    if (cap)
+        buf[0] = '\0';
+    for (size_t i = 0; v && i < v->count; i++) {
+        const char *sep = i == 0 ? "" : (i + 1 == v->count && last) ? last : ", ";
+        int k = snprintf(buf + (n < cap ? n : cap), n < cap ? cap - n : 0, "%s%s", sep,
+                         v->words[i]);
+        n += (size_t)(k > 0 ? k : 0);
+    }
+    return n;
+}
+
+PL_EXPORT int pl_vocabulary_check(pl_vocab which, const char *word, pl_err *err)
+{
+    const pl_vocabulary *v = pl_vocabulary_get(which);
+    assert(v);
+    if (pl_vocabulary_index(which, word) >= 0)
+        return PL_OK;
+    char list[256];
+    pl_vocabulary_text(list, sizeof list, which, NULL);
+    return pl__err(err, PL_EINVAL, "%s '%s' is not one of %s", v->name, word ? word : "",
+                   list);
+}
+
+PL_EXPORT int pl_inspection_kind_check(const char *kind, pl_err *err)
+{
+    return pl_vocabulary_check(PL_VOCAB_INSPECTION_KIND, kind, err);
+}
+
+PL_EXPORT int pl_method_check(const char *method, pl_err *err)
+{
+    return pl_vocabulary_check(PL_VOCAB_METHOD, method, err);
+}
+
+/* ---- the descriptions --------------------------------------------------------- */
+
+#define NUL PL_COL_NULLABLE
+#define REQ PL_COL_REQUIRED
+#define IN PL_COL_INPUT
+#define FSIZE(T, f) sizeof(((T *)0)->f)
+
+/* A stored column held in field f of T. */
+#define COLUMN(T, f, name, col, json_, st, ct, fl, form_) \
+    { .column = col, .field = name, .json = json_, .stype = st, .ctype = ct, \
+      .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = fl, .form = form_, .vocab = -1 }
+#define TEXT(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_TEXT, PL_C_TEXT, fl, form)
+#define REAL(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_REAL, PL_C_F64, fl, form)
+#define INT(T, f, col, js, ct, fl, form) COLUMN(T, f, #f, col, js, PL_S_INTEGER, ct, fl, form)
+#define WORD(T, f, col, js, vocab_) \
+    { .column = col, .field = #f, .json = js, .stype = PL_S_TEXT, .ctype = PL_C_TEXT, \
+      .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = IN | REQ, .form = PL_F_NAME, \
+      .vocab = vocab_ }
+#define PARAMETERS(T) \
+    COLUMN(T, parameters_json, "parameters_json", "parameters_json", "parameters", PL_S_TEXT, \
+           PL_C_STR, IN | NUL, PL_F_JSON)
+#define SOFTWARE(T) \
+    TEXT(T, software_version, "software_version", "software_version", IN | PL_COL_VERSION, \
+         PL_F_NAME)
+/* A field a read takes from `expr` (a join or a subquery). */
+#define JOINED(T, f, expr, json_, ct, fl, form_) \
+    { .field = #f, .json = json_, .read = expr, .ctype = ct, .offset = offsetof(T, f), \
+      .size = FSIZE(T, f), .flags = fl, .form = form_, .vocab = -1 }
+#define ROWID(T, json_) \
+    { .column = "id", .field = "id", .json = json_, .stype = PL_S_INTEGER, .ctype = PL_C_ID, \
+      .offset = offsetof(T, id), .size = sizeof(pl_id), .flags = PL_COL_ROWID, .vocab = -1 }
+#define STABLE_KEY(T, js) JOINED(T, key, "t.stable_key", js, PL_C_ID, 0, PL_F_ANY)
+#define RECORDED(T) \
+    { .column = "recorded_at", .field = "recorded_at", .json = "recorded_at", \
+      .stype = PL_S_TEXT, .ctype = PL_C_TEXT, .offset = offsetof(T, recorded_at), \
+      .size = FSIZE(T, recorded_at), .flags = PL_COL_STORE, .vocab = -1 }
+/* A column the store supplies, not held in the struct. */
+#define SUPPLIED(col, st, fl) \
+    { .column = col, .field = col, .stype = st, .flags = PL_COL_STORE | (fl), .vocab = -1 }
+/* What a correction adds to a row: the record's key, the row superseded, why. */
+#define CORRECTION \
+    SUPPLIED("key", PL_S_INTEGER, NUL), SUPPLIED("supersedes", PL_S_INTEGER, NUL), \
+    SUPPLIED("reason", PL_S_TEXT, NUL)
+/* The eleven columns of a placement in field p of T, under JSON object `json`. */
+#define PLACEMENT_AXIS(T, p, axis, k, xyz, js) \
+    COLUMN(T, p.axis[k], #axis "_" #xyz, #axis "_" #xyz, js "." #axis "." #k, PL_S_REAL, \
+           PL_C_F64, 0, PL_F_ANY)
+#define PLACEMENT_VEC(T, p, axis, js) \
+    PLACEMENT_AXIS(T, p, axis, 0, x, js), PLACEMENT_AXIS(T, p, axis, 1, y, js), \
+    PLACEMENT_AXIS(T, p, axis, 2, z, js)
+#define PLACEMENT(T, p, js, fl) \
+    PLACEMENT_VEC(T, p, origin, js), PLACEMENT_VEC(T, p, u, js), PLACEMENT_VEC(T, p, v, js), \
+    COLUMN(T, p.system, "coordinate system", "coord_system", js ".system", PL_S_TEXT, \
+           PL_C_TEXT, fl, PL_F_NAME), \
+    COLUMN(T, p.unit, "coordinate unit", "coord_unit", js ".unit", PL_S_TEXT, PL_C_TEXT, fl, \
+           PL_F_NAME)
+
+static const pl_column airframe_cols[] = {
+    TEXT(pl_airframe, serial, "serial", "serial", IN | REQ, PL_F_NAME),
+    TEXT(pl_airframe, aircraft_type, "aircraft_type", "aircraft_type", IN | REQ, PL_F_NAME),
+    TEXT(pl_airframe, manufactured, "manufactured", "manufactured", IN | NUL, PL_F_DATE),
+    JOINED(pl_airframe, operator_name, PL_STORE_LATEST_OPERATOR("operator_name"), "operator",
+           PL_C_TEXT, 0, PL_F_ANY),
+    JOINED(pl_airframe, operator_since, PL_STORE_LATEST_OPERATOR("since"), "operator_since",
+           PL_C_TEXT, 0, PL_F_ANY),
+    TEXT(pl_airframe, notes, "notes", "notes", IN | NUL, PL_F_TEXT),
+    STABLE_KEY(pl_airframe, "key"),
+    ROWID(pl_airframe, "version_id"),
+    RECORDED(pl_airframe),
+    CORRECTION,
+};
+
+static const pl_column operator_cols[] = {
+    ROWID(pl_operator, NULL),
+    INT(pl_operator, airframe_key, "airframe_key", NULL, PL_C_ID, 0, PL_F_ANY),
+    TEXT(pl_operator, operator_name, "operator_name", "operator", IN | REQ, PL_F_NAME),
+    TEXT(pl_operator, since, "since", "since", IN | REQ, PL_F_DATE),
+    RECORDED(pl_operator),
+};
+
+static const pl_column site_cols[] = {
+    JOINED(pl_site, airframe_serial, "a.serial", "airframe", PL_C_TEXT, IN, PL_F_NAME),
+    TEXT(pl_site, code, "code", "site", IN | REQ, PL_F_NAME),
+    TEXT(pl_site, zone, "zone", "zone", IN | NUL, PL_F_NAME),
+    TEXT(pl_site, description, "description", "description", IN | NUL, PL_F_TEXT),
+    TEXT(pl_site, frame, "frame", "frame", IN | NUL, PL_F_NAME),
+    TEXT(pl_site, stringer, "stringer", "stringer", IN | NUL, PL_F_NAME),
+    WORD(pl_site, method, "method", "method", PL_VOCAB_METHOD),
+    TEXT(pl_site, material, "material", "material", IN | NUL, PL_F_NAME),
+    REAL(pl_site, thickness_mm, "thickness_mm", "thickness_mm", IN | NUL, PL_F_POSITIVE),
+    REAL(pl_site, diffusivity_mm2_s, "diffusivity_mm2_s", "diffusivity_mm2_s", IN | NUL,
+         PL_F_POSITIVE),
+    PLACEMENT(pl_site, map_frame, "map_frame", IN | REQ),
+    INT(pl_site, width_px, "width_px", "width_px", PL_C_U32, 0, PL_F_ANY),
+    INT(pl_site, height_px, "height_px", "height_px", PL_C_U32, 0, PL_F_ANY),
+    REAL(pl_site, pitch_u, "pitch_u_mm", "pitch_u_mm", IN | REQ, PL_F_POSITIVE),
+    REAL(pl_site, pitch_v, "pitch_v_mm", "pitch_v_mm", IN | REQ, PL_F_POSITIVE),
+    STABLE_KEY(pl_site, "key"),
+    ROWID(pl_site, "version_id"),
+    RECORDED(pl_site),
+    CORRECTION,
+    SUPPLIED("airframe_key", PL_S_INTEGER, 0),
+};
+
+static const pl_column inspection_cols[] = {
+    STABLE_KEY(pl_inspection, "inspection"),
+    ROWID(pl_inspection, "version_id"),
+    JOINED(pl_inspection, airframe_serial, "a.serial", "airframe", PL_C_TEXT, IN | REQ,
+           PL_F_NAME),
+    JOINED(pl_inspection, site_code, "s.code", "site", PL_C_TEXT, IN | REQ, PL_F_NAME),
+    WORD(pl_inspection, kind, "kind", "kind", PL_VOCAB_INSPECTION_KIND),
+    TEXT(pl_inspection, task_ref, "task_ref", "task", IN | NUL, PL_F_NAME),
+    TEXT(pl_inspection, performed_on, "performed_on", "date", IN | REQ, PL_F_DATE),
+    REAL(pl_inspection, aircraft_hours, "aircraft_hours", "hours", IN | NUL, PL_F_NONNEGATIVE),
+    INT(pl_inspection, aircraft_cycles, "aircraft_cycles", "cycles", PL_C_I64, IN | NUL,
+        PL_F_NONNEGATIVE),
+    TEXT(pl_inspection, procedure, "procedure", "procedure", IN | REQ, PL_F_NAME),
+    TEXT(pl_inspection, procedure_rev, "procedure_rev", "procedure_revision", IN | REQ,
+         PL_F_NAME),
+    TEXT(pl_inspection, equipment, "equipment", "equipment", IN | REQ, PL_F_TEXT),
+    TEXT(pl_inspection, calibration_ref, "calibration_ref", "calibration", IN | REQ, PL_F_NAME),
+    TEXT(pl_inspection, inspector, "inspector", "inspector", IN | REQ, PL_F_NAME),
+    TEXT(pl_inspection, inspector_level, "inspector_level", "inspector_level", IN | REQ,
+         PL_F_NAME),
+    SOFTWARE(pl_inspection),
+    TEXT(pl_inspection, notes, "notes", "notes", IN | NUL, PL_F_TEXT),
+    PARAMETERS(pl_inspection),
+    RECORDED(pl_inspection),
+    CORRECTION,
+    SUPPLIED("site_key", PL_S_INTEGER, 0),
+};
+
+static const pl_column channel_cols[] = {
+    SUPPLIED("map_id", PL_S_INTEGER, 0),
+    SUPPLIED("idx", PL_S_INTEGER, 0),
+    TEXT(pl_channel, quantity, "quantity", "quantity", 0, PL_F_ANY),
+    TEXT(pl_channel, unit, "unit", "unit", 0, PL_F_ANY),
+    TEXT(pl_channel, label, "label", "label", 0, PL_F_ANY),
+};
+
+static const pl_table_desc channel_table = {
+    PL_TABLE_MAP_CHANNEL, "map_channel", "map_channel t", channel_cols,
+    sizeof channel_cols / sizeof channel_cols[0], sizeof(pl_channel), "map_id", "idx"
+};
+
+static const pl_column map_cols[] = {
+    ROWID(pl_map_record, "map"),
+    INT(pl_map_record, inspection_key, "inspection_key", "inspection", PL_C_ID, 0, PL_F_ANY),
+    TEXT(pl_map_record, source, "source", "source", IN | NUL, PL_F_TEXT),
+    TEXT(pl_map_record, origin, "made_by", "made_by", IN | REQ, PL_F_NAME),
+    INT(pl_map_record, width, "width", "width", PL_C_U32, 0, PL_F_ANY),
+    INT(pl_map_record, height, "height", "height", PL_C_U32, 0, PL_F_ANY),
+    INT(pl_map_record, nchannels, "nchannels", NULL, PL_C_U32, 0, PL_F_ANY),
+    REAL(pl_map_record, pitch_u, "pitch_u_mm", "pitch_u_mm", 0, PL_F_ANY),
+    REAL(pl_map_record, pitch_v, "pitch_v_mm", "pitch_v_mm", 0, PL_F_ANY),
+    { .field = "channels", .json = "channels", .stype = PL_S_ROWS, .ctype = PL_C_ROWS,
+      .offset = offsetof(pl_map_record, channels), .vocab = -1, .child = &channel_table,
+      .count_offset = offsetof(pl_map_record, nchannels) },
+    PLACEMENT(pl_map_record, placement, "placement", 0),
+    TEXT(pl_map_record, sha256, "sha256", "sha256", 0, PL_F_ANY),
+    JOINED(pl_map_record, stored_bytes, "length(t.data)", "stored_bytes", PL_C_SIZE, 0,
+           PL_F_ANY),
+    SOFTWARE(pl_map_record),
+    PARAMETERS(pl_map_record),
+    RECORDED(pl_map_record),
+    SUPPLIED("supersedes", PL_S_INTEGER, NUL),
+    SUPPLIED("reason", PL_S_TEXT, NUL),
+    SUPPLIED("encoding", PL_S_TEXT, 0),
+    SUPPLIED("data", PL_S_BLOB, PL_COL_NOCONTENT),
+};
+
+static const pl_column registration_cols[] = {
+    ROWID(pl_registration_record, "registration"),
+    INT(pl_registration_record, baseline_map_id, "baseline_map_id", "baseline_map", PL_C_ID,
+        0, PL_F_ANY),
+    INT(pl_registration_record, current_map_id, "current_map_id", "current_map", PL_C_ID, 0,
+        PL_F_ANY),
+    TEXT(pl_registration_record, method, "method", "method", IN | REQ, PL_F_NAME),
+    WORD(pl_registration_record, status, "status", "status", PL_VOCAB_REGISTRATION_STATUS),
+    TEXT(pl_registration_record, refusal, "refusal", "refusal", IN | NUL, PL_F_TEXT),
+    REAL(pl_registration_record, shift_col_px, "shift_col_px", "transform.shift_col_px", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, shift_row_px, "shift_row_px", "transform.shift_row_px", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, shift_u_mm, "shift_u_mm", "transform.shift_u_mm", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, shift_v_mm, "shift_v_mm", "transform.shift_v_mm", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, rotation_deg, "rotation_deg", "transform.rotation_deg", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, scale, "scale", "transform.scale", NUL, PL_F_ANY),
+    REAL(pl_registration_record, ncc, "ncc", "quality.ncc", NUL, PL_F_ANY),
+    REAL(pl_registration_record, peak_sidelobe, "peak_sidelobe", "quality.peak_sidelobe", NUL,
+         PL_F_ANY),
+    REAL(pl_registration_record, overlap_fraction, "overlap_fraction",
+         "quality.overlap_fraction", NUL, PL_F_ANY),
+    REAL(pl_registration_record, overlap_mm2, "overlap_mm2", "quality.overlap_mm2", NUL,
+         PL_F_ANY),
+    TEXT(pl_registration_record, supplied_by, "supplied_by", "supplied_by", IN | NUL,
+         PL_F_NAME),
+    TEXT(pl_registration_record, supplied_reason, "supplied_reason", "supplied_reason",
+         IN | NUL, PL_F_TEXT),
+    PARAMETERS(pl_registration_record),
+    SOFTWARE(pl_registration_record),
+    RECORDED(pl_registration_record),
+};
+
+static const pl_column comparison_cols[] = {
+    ROWID(pl_comparison_record, "comparison"),
+    SUPPLIED("site_key", PL_S_INTEGER, 0),
+    INT(pl_comparison_record, baseline_inspection, "baseline_inspection",
+        "baseline_inspection", PL_C_ID, 0, PL_F_ANY),
+    INT(pl_comparison_record, current_inspection, "current_inspection", "current_inspection",
+        PL_C_ID, 0, PL_F_ANY),
+    SUPPLIED("criteria_id", PL_S_INTEGER, NUL),
+    INT(pl_comparison_record, registration_id, "registration_id", "registration", PL_C_ID, NUL,
+        PL_F_ANY),
+    WORD(pl_comparison_record, status, "status", "status", PL_VOCAB_COMPARISON_STATUS),
+    TEXT(pl_comparison_record, not_done_reason, "not_done_reason", "not_done_reason", IN | NUL,
+         PL_F_TEXT),
+    REAL(pl_comparison_record, uncompared_mm2, "uncompared_mm2", "uncompared_mm2", NUL,
+         PL_F_ANY),
+    REAL(pl_comparison_record, uncompared_fraction, "uncompared_fraction",
+         "uncompared_fraction", NUL, PL_F_ANY),
+    PARAMETERS(pl_comparison_record),
+    SOFTWARE(pl_comparison_record),
+    RECORDED(pl_comparison_record),
+};
+
+#define TABLE(id, name, from, cols, T) \
+    { id, name, from, cols, sizeof cols / sizeof cols[0], sizeof(T), NULL, NULL }
+static const pl_table_desc tables[PL_TABLE_COUNT] = {
+    TABLE(PL_TABLE_AIRFRAME, "airframe", "airframe_current t", airframe_cols, pl_airframe),
+    TABLE(PL_TABLE_OPERATOR, "airframe_operator", "airframe_operator t", operator_cols,
+          pl_operator),
+    TABLE(PL_TABLE_SITE, "site", "site_current t JOIN airframe a ON a.id = t.airframe_key",
+          site_cols, pl_site),
+    TABLE(PL_TABLE_INSPECTION, "inspection",
+          "inspection_current t JOIN site s ON s.id = t.site_key "
+          "JOIN airframe a ON a.id = s.airframe_key", inspection_cols, pl_inspection),
+    TABLE(PL_TABLE_MAP, "map", "map t", map_cols, pl_map_record),
+    channel_table,
+    TABLE(PL_TABLE_REGISTRATION, "registration", "registration t", registration_cols,
+          pl_registration_record),
+    TABLE(PL_TABLE_COMPARISON, "comparison", "comparison t", comparison_cols,
+          pl_comparison_record),
+};
+
+const pl_table_desc *pl_row__table(pl_table table)
+{
+    assert((unsigned)table < PL_TABLE_COUNT && tables[table].id == table);
+    assert(tables[table].ncols <= PL_ROW_MAX_COLUMNS);
+    return &tables[table];
+}
+
+PL_EXPORT const char *pl_table_name(pl_table table)
+{
+    return (unsigned)table < PL_TABLE_COUNT ? tables[table].name : NULL;
+}
+
+size_t pl_row__column(const pl_table_desc *t, const char *column)
+{
+    for (size_t i = 0; i < t->ncols; i++)
+        if (t->cols[i].column && strcmp(t->cols[i].column, column) == 0)
+            return i;
+    assert(!"no such column in the description");
+    return 0;
+}
+
+/* Where a field lives in a record. */
+static const void *cfield(const pl_column *c, const void *rec)
+{
+    return (const char *)rec + c->offset;
+}
+
+static void *field(const pl_column *c, void *rec)
+{
+    return (char *)rec + c->offset;
+}
+
+static int stored(const pl_column *c)
+{
+    return c->stype != PL_S_NONE && c->stype != PL_S_ROWS;
+}
+
+/* Fields a read fills (pl_row__select() order). */
+static int is_read(const pl_column *c)
+{
+    return c->ctype != PL_C_NONE && c->ctype != PL_C_ROWS;
+}
+
+/* A record's child rows: their array and count. */
+static const void *children_of(const pl_column *c, const void *rec, size_t *n)
+{
+    const void *p;
+    uint32_t count;
+    memcpy(&p, cfield(c, rec), sizeof p);
+    memcpy(&count, (const char *)rec + c->count_offset, sizeof count);
+    *n = p ? count : 0;
+    return p;
+}
+
+/* ---- checks --------------------------------------------------------------------- */
+
+/*
+ * A name (serial, code, reference, person) is one line of text without
+ * leading or trailing blanks, so that it prints and compares as typed.
+ * Fixed buffers from the caller must be NUL terminated inside their size.
+ */
+int pl_row__check_name(pl_err *err, const char *label, const char *field_name, const char *v,
+                       size_t cap, int required)
+{
+    if (!v)
+        v = "";
+    size_t n = strnlen(v, cap);
+    if (n == cap)
+        return pl__err(err, PL_EINVAL, "%s: %s is too long (at most %zu characters)", label,
+                       field_name, cap - 1);
+    if (n == 0)
+        return required ? pl__err(err, PL_EINVAL, "%s: %s is required", label, field_name)
+                        : PL_OK;
+    for (size_t i = 0; i < n; i++) {
+        unsigned char c = (unsigned char)v[i];
+        if (c < 0x20 || c == 0x7f)
+            return pl__err(err, PL_EINVAL, "%s: %s contains a control character", label,
+                           field_name);
+    }
+    if (v[0] == ' ' || v[n - 1] == ' ')
+        return pl__err(err, PL_EINVAL, "%s: %s '%s' has leading or trailing spaces", label,
+                       field_name, v);
+    return PL_OK;
+}
+
+/* Free text (notes, descriptions): any characters but NUL, within its buffer. */
+int pl_row__check_text(pl_err *err, const char *label, const char *field_name, const char *v,
+                       size_t cap, int required)
+{
+    size_t n = v ? strnlen(v, cap) : 0;
+    if (n == cap)
+        return pl__err(err, PL_EINVAL, "%s: %s is too long (at most %zu characters)", label,
+                       field_name, cap - 1);
+    if (n == 0 && required)
+        return pl__err(err, PL_EINVAL, "%s: %s is required", label, field_name);
+    return PL_OK;
+}
+
+int pl_row__check_date(pl_err *err, const char *label, const char *field_name, const char *v,
+                       size_t cap, int required)
+{
+    int rc = pl_row__check_text(err, label, field_name, v, cap, required);
+    if (rc)
+        return rc;
+    if (v && *v && !pl_store__valid_date(v))
+        return pl__err(err, PL_EINVAL, "%s: %s '%s' is not a calendar date YYYY-MM-DD", label,
+                       field_name, v);
+    return PL_OK;
+}
+
+/* JSON text must be a JSON object, and only that (nothing after it). */
+static int check_json_object(pl_err *err, const char *label, const char *field_name,
+                             const char *json)
+{
+    if (!json)
+        return PL_OK;
+    cJSON *j = cJSON_ParseWithOpts(json, NULL, 1);
+    int ok = cJSON_IsObject(j);
+    cJSON_Delete(j);
+    return ok ? PL_OK : pl__err(err, PL_EINVAL, "%s: %s is not a JSON object", label, field_name);
+}
+
+static int check_number(const pl_column *c, double v, const char *label, pl_err *err)
+{
+    int nullable = (c->flags & PL_COL_NULLABLE) != 0;
+    if (c->form != PL_F_POSITIVE && c->form != PL_F_NONNEGATIVE)
+        return PL_OK;
+    if (nullable && isnan(v))
+        return PL_OK;
+    int positive = c->form == PL_F_POSITIVE;
+    if (isfinite(v) && (positive ? v > 0 : v >= 0))
+        return PL_OK;
+    return pl__err(err, PL_EINVAL, "%s: %s must be %s 0%s (got %g)", label, c->field,
+                   positive ? ">" : ">=", nullable ? " or unknown" : "", v);
+}
+
+static int check_field(const pl_column *c, const void *rec, const char *label, pl_err *err)
+{
+    int required = (c->flags & PL_COL_REQUIRED) != 0;
+    switch (c->ctype) {
+    case PL_C_TEXT: {
+        const char *v = cfield(c, rec);
+        int rc = c->form == PL_F_NAME   ? pl_row__check_name(err, label, c->field, v, c->size,
+                                                             required)
+                 : c->form == PL_F_DATE ? pl_row__check_date(err, label, c->field, v, c->size,
+                                                             required)
+                                        : pl_row__check_text(err, label, c->field, v, c->size,
+                                                             required);
+        if (rc || c->vocab < 0 || !v[0])
+            return rc;
+        pl_err e = { 0 };
+        if (pl_vocabulary_check((pl_vocab)c->vocab, v, &e))
+            return pl__err(err, PL_EINVAL, "%s: %s", label, e.msg);
+        return PL_OK;
+    }
+    case PL_C_STR: {
+        const char *v;
+        memcpy(&v, cfield(c, rec), sizeof v);
+        return c->form == PL_F_JSON ? check_json_object(err, label, c->field, v) : PL_OK;
+    }
+    case PL_C_F64: {
+        double v;
+        memcpy(&v, cfield(c, rec), sizeof v);
+        return check_number(c, v, label, err);
+    }
+    case PL_C_I64: {
+        int64_t v;
+        memcpy(&v, cfield(c, rec), sizeof v);
+        if (c->form == PL_F_NONNEGATIVE && v < 0 && !((c->flags & PL_COL_NULLABLE) && v == -1))
+            return pl__err(err, PL_EINVAL, "%s: %s must be >= 0 or -1 for unknown (got %lld)",
+                           label, c->field, (long long)v);
+        return PL_OK;
+    }
+    default:
+        return PL_OK;
+    }
+}
+
+int pl_row__check(const pl_table_desc *t, const void *rec, const char *label, pl_err *err)
+{
+    for (size_t i = 0; i < t->ncols; i++) {
+        if (!(t->cols[i].flags & PL_COL_INPUT))
+            continue;
+        int rc = check_field(&t->cols[i], rec, label, err);
+        if (rc)
+            return rc;
+    }
+    return PL_OK;
+}
+
+/* ---- rows on their way in ------------------------------------------------------------ */
+
+static pl_value null_value(void)
+{
+    pl_value v = { PL_S_NONE, 0, 0.0, NULL, 0 };
+    return v;
+}
+
+static pl_value int_value(int64_t i)
+{
+    pl_value v = { PL_S_INTEGER, i, 0.0, NULL, 0 };
+    return v;
+}
+
+static pl_value text_value(const char *p, size_t n)
+{
+    pl_value v = { PL_S_TEXT, 0, 0.0, p, n };
+    return v;
+}
+
+/* Field c of rec as a value (ids, counts and sizes as integers), and
+ * whether it holds the field's "absent" value. */
+static pl_value field_value(const pl_column *c, const void *rec, int *absent)
+{
+    const void *f = cfield(c, rec);
+    int64_t i = 0;
+    *absent = 0;
+    switch (c->ctype) {
+    case PL_C_ID:
+    case PL_C_I64: {
+        memcpy(&i, f, sizeof i);
+        *absent = c->ctype == PL_C_ID ? i == 0 : i < 0;
+        return int_value(i);
+    }
+    case PL_C_U32: {
+        uint32_t v;
+        memcpy(&v, f, sizeof v);
+        *absent = v == 0;
+        return int_value(v);
+    }
+    case PL_C_SIZE: {
+        size_t v;
+        memcpy(&v, f, sizeof v);
+        return int_value((int64_t)v);
+    }
+    case PL_C_F64: {
+        pl_value v = { PL_S_REAL, 0, 0.0, NULL, 0 };
+        memcpy(&v.r, f, sizeof v.r);
+        *absent = isnan(v.r);
+        return v;
+    }
+    case PL_C_TEXT:
+        *absent = strnlen(f, c->size) == 0;
+        return text_value(f, strnlen(f, c->size));
+    case PL_C_STR: {
+        const char *p;
+        memcpy(&p, f, sizeof p);
+        *absent = !p || !*p;
+        return text_value(p ? p : "", p ? strlen(p) : 0);
+    }
+    default:
+        *absent = 1;
+        return null_value();
+    }
+}
+
+/* The stored value of field c of rec: absent is NULL where the column
+ * allows it (a real always: SQLite keeps no NaN), the library's version
+ * for a software version. */
+static pl_value value_of(const pl_column *c, const void *rec)
+{
+    int absent;
+    pl_value v = field_value(c, rec, &absent);
+    if (absent && (c->flags & PL_COL_VERSION))
+        return text_value(pl_version(), strlen(pl_version()));
+    if (absent && ((c->flags & PL_COL_NULLABLE) || c->ctype == PL_C_F64))
+        return null_value();
+    return v;
+}
+
+void pl_row__from_record(pl_row *row, const pl_table_desc *t, const void *rec)
+{
+    memset(row, 0, sizeof *row);
+    row->t = t;
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        row->v[i] = null_value();
+        if (c->stype == PL_S_ROWS)
+            row->children = children_of(c, rec, &row->nchildren);
+        else if (stored(c) && c->ctype != PL_C_NONE &&
+                 !(c->flags & (PL_COL_STORE | PL_COL_ROWID)))
+            row->v[i] = value_of(c, rec);
+    }
+}
+
+void pl_row__set_id(pl_row *row, const char *column, pl_id v)
+{
+    row->v[pl_row__column(row->t, column)] = v ? int_value(v) : null_value();
+}
+
+void pl_row__set_text(pl_row *row, const char *column, const char *v)
+{
+    row->v[pl_row__column(row->t, column)] = v ? text_value(v, strlen(v)) : null_value();
+}
+
+void pl_row__set_blob(pl_row *row, const char *column, const void *p, size_t n)
+{
+    pl_value v = { PL_S_BLOB, 0, 0.0, p, n };
+    row->v[pl_row__column(row->t, column)] = v;
+}
+
+void pl_row__set_correction(pl_row *row, pl_id key, pl_id supersedes, const char *reason)
+{
+    pl_row__set_id(row, "key", key);
+    pl_row__set_id(row, "supersedes", supersedes);
+    pl_row__set_text(row, "reason", supersedes ? reason : NULL);
+}
+
+int pl_store__prepare_args(pl_store *s, sqlite3_stmt **st, const char *sql, const pl_value *args,
+                           int nargs, pl_err *err)
+{
+    int rc = pl_store__prepare(s, st, sql, err);
+    for (int i = 0; !rc && i < nargs; i++)
+        pl_store__bind(*st, i + 1, &args[i]);
+    return rc;
+}
+
+pl_value pl_store__arg_text(const char *v)
+{
+    return v && *v ? text_value(v, strlen(v)) : null_value();
+}
+
+pl_value pl_store__arg_id(pl_id v)
+{
+    return int_value(v);
+}
+
+/* ---- the canonical encoding ---------------------------------------------------------- */
+
+typedef struct enc {
+    unsigned char *p;
+    size_t n, cap;
+    int oom;
+} enc;
+
+static void put(enc *e, const void *src, size_t n)
+{
+    if (e->oom)
+        return;
+    if (e->n + n > e->cap) {
+        size_t cap = e->cap ? e->cap : 256;
+        while (cap < e->n + n)
+            cap *= 2;
+        unsigned char *p = realloc(e->p, cap);
+        if (!p) {
+            e->oom = 1;
+            return;
+        }
+        e->p = p;
+        e->cap = cap;
+    }
+    memcpy(e->p + e->n, src, n);
+    e->n += n;
+}
+
+static void put_byte(enc *e, unsigned char b)
+{
+    put(e, &b, 1);
+}
+
+static void put_u32(enc *e, uint32_t v)
+{
+    unsigned char b[4] = { (unsigned char)v, (unsigned char)(v >> 8), (unsigned char)(v >> 16),
+                           (unsigned char)(v >> 24) };
+    put(e, b, 4);
+}
+
+static void put_u64(enc *e, uint64_t v)
+{
+    put_u32(e, (uint32_t)v);
+    put_u32(e, (uint32_t)(v >> 32));
+}
+
+static void patch_u32(enc *e, size_t at, uint32_t v)
+{
+    if (e->oom)
+        return;
+    for (int k = 0; k < 4; k++)
+        e->p[at + (size_t)k] = (unsigned char)(v >> (8 * k));
+}
+
+static int put_bytes(enc *e, const void *p, size_t n, const char *label, const char *what,
+                     pl_err *err)
+{
+    if (n > UINT32_MAX)
+        return pl__err(err, PL_EINVAL, "%s: %s is too long to encode", label, what);
+    put_u32(e, (uint32_t)n);
+    put(e, p, n);
+    return PL_OK;
+}
+
+/* Whether p[0..n) is well-formed UTF-8 (RFC 3629: no overlong forms, no
+ * surrogates, nothing above U+10FFFF). */
+static int valid_utf8(const unsigned char *p, size_t n)
+{
+    size_t i = 0;
+    while (i < n) {
+        unsigned c = p[i];
+        size_t len;
+        unsigned lo = 0x80, hi = 0xbf;
+        if (c < 0x80) {
+            i++;
+            continue;
+        } else if (c >= 0xc2 && c <= 0xdf) {
+            len = 2;
+        } else if (c >= 0xe0 && c <= 0xef) {
+            len = 3;
+            if (c == 0xe0)
+                lo = 0xa0;
+            if (c == 0xed)
+                hi = 0x9f;
+        } else if (c >= 0xf0 && c <= 0xf4) {
+            len = 4;
+            if (c == 0xf0)
+                lo = 0x90;
+            if (c == 0xf4)
+                hi = 0x8f;
+        } else {
+            return 0;
+        }
+        if (i + len > n)
+            return 0;
+        for (size_t k = 1; k < len; k++) {
+            unsigned b = p[i + k];
+            if (b < (k == 1 ? lo : 0x80) || b > (k == 1 ? hi : 0xbf))
+                return 0;
+        }
+        i += len;
+    }
+    return 1;
+}
+
+/* One value, typed by the declared type of its column. */
+static int put_value(enc *e, pl_stype declared, const pl_value *v, const char *label,
+                     const char *column, pl_err *err)
+{
+    if (v->type == PL_S_NONE) {
+        put_byte(e, 0x00);
+        return PL_OK;
+    }
+    switch (declared) {
+    case PL_S_INTEGER:
+        put_byte(e, 0x01);
+        put_u64(e, (uint64_t)(v->type == PL_S_REAL ? (int64_t)v->r : v->i));
+        return PL_OK;
+    case PL_S_REAL: {
+        double d = v->type == PL_S_INTEGER ? (double)v->i : v->r;
+        if (isnan(d))
+            return pl__err(err, PL_EINVAL, "%s: %s is NaN, which has no canonical form", label,
+                           column);
+        if (d == 0.0)
+            d = 0.0; /* -0.0 is written as +0.0 */
+        uint64_t bits;
+        memcpy(&bits, &d, sizeof bits);
+        put_byte(e, 0x02);
+        put_u64(e, bits);
+        return PL_OK;
+    }
+    case PL_S_TEXT:
+        if (!valid_utf8(v->p, v->n))
+            return pl__err(err, PL_EINVAL, "%s: %s is not valid UTF-8", label, column);
+        put_byte(e, 0x03);
+        return put_bytes(e, v->p, v->n, label, column, err);
+    case PL_S_BLOB:
+        put_byte(e, 0x04);
+        return put_bytes(e, v->p, v->n, label, column, err);
+    default:
+        assert(!"not a stored type");
+        return PL_EINVAL;
+    }
+}
+
+/* Child rows, one at a time: 1 with `v` filled, 0 at the end, or a failure. */
+typedef struct child_source {
+    int (*next)(void *ctx, pl_value *v, pl_err *err);
+    void *ctx;
+} child_source;
+
+static int content(const pl_column *c)
+{
+    return c->stype == PL_S_ROWS || (stored(c) && !(c->flags & PL_COL_NOCONTENT));
+}
+
+static const char *entry_name(const pl_column *c)
+{
+    return c->stype == PL_S_ROWS ? c->child->name : c->column;
+}
+
+/* body = count:u32 entry*, entries sorted by name. */
+static int put_body(enc *e, const pl_table_desc *t, const pl_value *v, const child_source *kids,
+                    const char *label, pl_err *err)
+{
+    size_t order[PL_ROW_MAX_COLUMNS], n = 0;
+    for (size_t i = 0; i < t->ncols; i++) {
+        if (!content(&t->cols[i]))
+            continue;
+        size_t k = n++;
+        while (k > 0 && strcmp(entry_name(&t->cols[order[k - 1]]),
+                               entry_name(&t->cols[i])) > 0) {
+            order[k] = order[k - 1];
+            k--;
+        }
+        order[k] = i;
+    }
+    put_u32(e, (uint32_t)n);
+    for (size_t k = 0; k < n; k++) {
+        const pl_column *c = &t->cols[order[k]];
+        const char *name = entry_name(c);
+        put_bytes(e, name, strlen(name), label, "a name", err);
+        if (c->stype != PL_S_ROWS) {
+            int rc = put_value(e, c->stype, &v[order[k]], label, c->column, err);
+            if (rc)
+                return rc;
+            continue;
+        }
+        assert(kids);
+        put_byte(e, 0x05);
+        size_t at = e->n;
+        put_u32(e, 0);
+        uint32_t count = 0;
+        pl_value cv[PL_ROW_MAX_COLUMNS];
+        int r;
+        while ((r = kids->next(kids->ctx, cv, err)) == 1) {
+            int rc = put_body(e, c->child, cv, NULL, label, err);
+            if (rc)
+                return rc;
+            count++;
+        }
+        if (r < 0)
+            return r;
+        patch_u32(e, at, count);
+    }
+    return PL_OK;
+}
+
+static int encode(enc *e, const pl_table_desc *t, const pl_value *v, const child_source *kids,
+                  const char *label, pl_err *err)
+{
+    put(e, "PLRW", 4);
+    put_u32(e, PL_ROW_ENCODING_VERSION);
+    put_bytes(e, t->name, strlen(t->name), label, "the table name", err);
+    int rc = put_body(e, t, v, kids, label, err);
+    if (!rc && e->oom)
+        rc = pl__err(err, PL_ENOMEM, "%s: out of memory", label);
+    return rc;
+}
+
+/* Child rows of a row on its way in: each child struct, with its
+ * record's id and its position. */
+typedef struct insert_kids {
+    const pl_table_desc *t;
+    const void *recs;
+    size_t n, next;
+    pl_id parent;
+} insert_kids;
+
+static void child_row(pl_row *cr, const insert_kids *k, size_t i)
+{
+    pl_row__from_record(cr, k->t, (const char *)k->recs + i * k->t->record_size);
+    pl_row__set_id(cr, k->t->parent_column, k->parent);
+    cr->v[pl_row__column(k->t, k->t->index_column)] = int_value((int64_t)i);
+}
+
+static int next_insert_kid(void *ctx, pl_value *v, pl_err *err)
+{
+    (void)err;
+    insert_kids *k = ctx;
+    if (k->next == k->n)
+        return 0;
+    pl_row cr;
+    child_row(&cr, k, k->next++);
+    memcpy(v, cr.v, sizeof cr.v);
+    return 1;
+}
+
+/* ---- the one insert path ---------------------------------------------------------------- */
+
+/* Append the texts (up to a NULL) to the SQL in buf; descriptions are
+ * static, so a statement that does not fit is a programming error. */
+static void add_sql(char *buf, size_t cap, size_t *n, ...)
+{
+    va_list ap;
+    va_start(ap, n);
+    for (const char *s; (s = va_arg(ap, const char *));) {
+        size_t len = strlen(s);
+        assert(*n + len < cap);
+        memcpy(buf + *n, s, len + 1);
+        *n += len;
+    }
+    va_end(ap);
+}
+
+/* The table's INSERT, prepared once per store. */
+static int insert_statement(pl_store *s, const pl_table_desc *t, sqlite3_stmt **out, pl_err *err)
+{
+    if (s->insert[t->id]) {
+        *out = s->insert[t->id];
+        return PL_OK;
+    }
+    char cols[2048], vals[512];
+    size_t nc = 0, nv = 0;
+    int k = 0;
+    add_sql(cols, sizeof cols, &nc, "INSERT INTO ", t->name, " (", (char *)NULL);
+    vals[0] = '\0';
+    for (size_t i = 0; i < t->ncols; i++) {
+        if (!stored(&t->cols[i]) || (t->cols[i].flags & PL_COL_ROWID))
+            continue;
+        char param[16];
+        snprintf(param, sizeof param, "?%d", ++k);
+        const char *sep = k > 1 ? ", " : "";
+        add_sql(cols, sizeof cols, &nc, sep, t->cols[i].column, (char *)NULL);
+        add_sql(vals, sizeof vals, &nv, sep, param, (char *)NULL);
+    }
+    char sql[2600];
+    snprintf(sql, sizeof sql, "%s) VALUES (%s)", cols, vals);
+    if (sqlite3_prepare_v3(s->db, sql, -1, SQLITE_PREPARE_PERSISTENT, &s->insert[t->id], NULL)
+        != SQLITE_OK) {
+        s->insert[t->id] = NULL;
+        return pl_store__fail(s, err, NULL);
+    }
+    *out = s->insert[t->id];
+    return PL_OK;
+}
+
+int pl_store__bind(sqlite3_stmt *st, int i, const pl_value *v)
+{
+    switch (v->type) {
+    case PL_S_INTEGER: return sqlite3_bind_int64(st, i, v->i);
+    case PL_S_REAL: return sqlite3_bind_double(st, i, v->r);
+    case PL_S_TEXT: return sqlite3_bind_text64(st, i, v->p, v->n, SQLITE_STATIC, SQLITE_UTF8);
+    case PL_S_BLOB: return sqlite3_bind_blob64(st, i, v->p, v->n, SQLITE_STATIC);
+    default: return sqlite3_bind_null(st, i);
+    }
+}
+
+/* Bind and run one row's INSERT; *id gets the new rowid. */
+static int insert_one(pl_store *s, const pl_row *row, pl_id *id, pl_err *err, const char *label)
+{
+    sqlite3_stmt *st;
+    int rc = insert_statement(s, row->t, &st, err);
+    if (rc)
+        return rc;
+    int k = 0, b = SQLITE_OK;
+    for (size_t i = 0; i < row->t->ncols; i++)
+        if (stored(&row->t->cols[i]) && !(row->t->cols[i].flags & PL_COL_ROWID))
+            b |= pl_store__bind(st, ++k, &row->v[i]);
+    if (b != SQLITE_OK || sqlite3_step(st) != SQLITE_DONE)
+        rc = pl_store__fail(s, err, label);
+    else
+        *id = sqlite3_last_insert_rowid(s->db);
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return rc;
+}
+
+int pl_store__insert(pl_store *s, pl_row *row, pl_id *id, pl_err *err, const char *label)
+{
+    assert(s && row && row->t);
+    /* always inside a command's write scope, never a statement of its own */
+    assert(!sqlite3_get_autocommit(s->db));
+    const pl_table_desc *t = row->t;
+    char now[PL_DATE_SIZE];
+    pl_store__now(now);
+    for (size_t i = 0; i < t->ncols; i++)
+        if (t->cols[i].column && strcmp(t->cols[i].column, "recorded_at") == 0)
+            row->v[i] = text_value(now, strlen(now));
+    pl_id newid = 0;
+    int rc = insert_one(s, row, &newid, err, label);
+    const pl_column *rows = NULL;
+    for (size_t i = 0; i < t->ncols; i++) {
+        if (t->cols[i].flags & PL_COL_ROWID)
+            row->v[i] = int_value(newid);
+        if (t->cols[i].stype == PL_S_ROWS)
+            rows = &t->cols[i];
+    }
+    insert_kids kids = { rows ? rows->child : NULL, row->children, row->nchildren, 0, newid };
+    for (size_t i = 0; !rc && rows && i < row->nchildren; i++) {
+        pl_row cr;
+        pl_id ignored;
+        child_row(&cr, &kids, i);
+        rc = insert_one(s, &cr, &ignored, err, label);
+    }
+    if (!rc) {
+        enc e = { 0 };
+        child_source src = { next_insert_kid, &kids };
+        rc = encode(&e, t, row->v, &src, label, err);
+        if (!rc)
+            pl_sha256(s->last_row, e.p, e.n);
+        free(e.p);
+    }
+    if (!rc && id)
+        *id = newid;
+    return rc;
+}
+
+/* ---- reads ------------------------------------------------------------------------------ */
+
+int pl_row__select_count(const pl_table_desc *t)
+{
+    int n = 0;
+    for (size_t i = 0; i < t->ncols; i++)
+        n += is_read(&t->cols[i]);
+    return n;
+}
+
+void pl_row__select(char *buf, size_t cap, const pl_table_desc *t, const char *extra)
+{
+    size_t n = 0;
+    int k = 0;
+    add_sql(buf, cap, &n, "SELECT ", (char *)NULL);
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        if (!is_read(c))
+            continue;
+        const char *sep = k++ ? ", " : "";
+        if (c->read)
+            add_sql(buf, cap, &n, sep, c->read, " AS ", c->field, (char *)NULL);
+        else
+            add_sql(buf, cap, &n, sep, "t.", c->column, (char *)NULL);
+    }
+    if (extra)
+        add_sql(buf, cap, &n, ", ", extra, (char *)NULL);
+    add_sql(buf, cap, &n, " FROM ", t->from, " ", (char *)NULL);
+}
+
+int pl_row__read(const pl_table_desc *t, sqlite3_stmt *st, void *rec)
+{
+    memset(rec, 0, t->record_size);
+    int k = 0, oom = 0;
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        if (!is_read(c))
+            continue;
+        int col = k++, null = sqlite3_column_type(st, col) == SQLITE_NULL;
+        void *f = field(c, rec);
+        switch (c->ctype) {
+        case PL_C_ID: {
+            pl_id v = sqlite3_column_int64(st, col);
+            memcpy(f, &v, sizeof v);
+            break;
+        }
+        case PL_C_I64: {
+            int64_t v = null ? -1 : sqlite3_column_int64(st, col);
+            memcpy(f, &v, sizeof v);
+            break;
+        }
+        case PL_C_U32: {
+            uint32_t v = (uint32_t)sqlite3_column_int64(st, col);
+            memcpy(f, &v, sizeof v);
+            break;
+        }
+        case PL_C_SIZE: {
+            size_t v = (size_t)sqlite3_column_int64(st, col);
+            memcpy(f, &v, sizeof v);
+            break;
+        }
+        case PL_C_F64: {
+            double v = null ? NAN : sqlite3_column_double(st, col);
+            memcpy(f, &v, sizeof v);
+            break;
+        }
+        case PL_C_TEXT:
+            pl_store__col_text(st, col, f, c->size);
+            break;
+        case PL_C_STR: {
+            const unsigned char *txt = sqlite3_column_text(st, col);
+            char *d = txt ? pl__strdup((const char *)txt) : NULL;
+            oom |= txt && !d;
+            memcpy(f, &d, sizeof d);
+            break;
+        }
+        default:
+            break;
+        }
+    }
+    if (oom) {
+        pl_row__release(t, rec);
+        return PL_ENOMEM;
+    }
+    return PL_OK;
+}
+
+int pl_store__list(pl_store *s, pl_table table, const char *tail, const pl_value *args,
+                   int nargs, pl_row_fn fn, void *ud, pl_err *err, const char *label)
+{
+    const pl_table_desc *t = pl_row__table(table);
+    char sql[4096];
+    pl_row__select(sql, sizeof sql, t, NULL);
+    size_t n = strlen(sql);
+    int k = snprintf(sql + n, sizeof sql - n, "%s", tail);
+    assert(k >= 0 && (size_t)k < sizeof sql - n);
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare_args(s, &st, sql, args, nargs, err);
+    if (rc)
+        return rc;
+    void *rec = malloc(t->record_size);
+    if (!rec) {
+        sqlite3_finalize(st);
+        return pl__err(err, PL_ENOMEM, "%s: out of memory", label ? label : s->path);
+    }
+    int r;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        if (pl_row__read(t, st, rec)) {
+            rc = pl__err(err, PL_ENOMEM, "%s: out of memory", label ? label : s->path);
+            break;
+        }
+        int stop = fn(ud, rec);
+        pl_row__release(t, rec);
+        if (stop < 0)
+            rc = stop;
+        if (stop)
+            break;
+    }
+    free(rec);
+    return pl_store__finish_listing(s, st, r, rc, err, label);
+}
+
+typedef struct take_one {
+    void *dst;
+    size_t size;
+    int found;
+} take_one;
+
+/* Hand the record over to the caller, so the listing releases nothing. */
+static int take_first(void *ud, void *rec)
+{
+    take_one *o = ud;
+    memcpy(o->dst, rec, o->size);
+    memset(rec, 0, o->size);
+    o->found = 1;
+    return 1;
+}
+
+int pl_store__get(pl_store *s, pl_table table, const char *tail, const pl_value *args,
+                  int nargs, void *rec, int *found, pl_err *err, const char *label)
+{
+    take_one o = { rec, pl_row__table(table)->record_size, 0 };
+    int rc = pl_store__list(s, table, tail, args, nargs, take_first, &o, err, label);
+    *found = o.found;
+    return rc;
+}
+
+void pl_row__release(const pl_table_desc *t, void *rec)
+{
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        void *p;
+        if (c->ctype != PL_C_STR && c->ctype != PL_C_ROWS)
+            continue;
+        memcpy(&p, field(c, rec), sizeof p);
+        if (p && c->ctype == PL_C_ROWS) {
+            size_t n;
+            children_of(c, rec, &n);
+            for (size_t k = 0; k < n; k++)
+                pl_row__release(c->child, (char *)p + k * c->child->record_size);
+        }
+        free(p);
+        p = NULL;
+        memcpy(field(c, rec), &p, sizeof p);
+    }
+}
+
+int pl_row__copy(const pl_table_desc *t, void *dst, const void *src)
+{
+    memcpy(dst, src, t->record_size);
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        void *copy = NULL;
+        if (c->ctype == PL_C_STR) {
+            const char *s;
+            memcpy(&s, cfield(c, src), sizeof s);
+            memcpy(field(c, dst), &copy, sizeof copy);
+            if (s && !(copy = pl__strdup(s)))
+                goto oom;
+            memcpy(field(c, dst), &copy, sizeof copy);
+        } else if (c->ctype == PL_C_ROWS) {
+            size_t n;
+            const char *kids = children_of(c, src, &n);
+            memcpy(field(c, dst), &copy, sizeof copy);
+            if (!kids)
+                continue;
+            if (!(copy = calloc(n ? n : 1, c->child->record_size)))
+                goto oom;
+            memcpy(field(c, dst), &copy, sizeof copy);
+            for (size_t k = 0; k < n; k++)
+                if (pl_row__copy(c->child, (char *)copy + k * c->child->record_size,
+                                 kids + k * c->child->record_size))
+                    goto oom;
+        }
+    }
+    return PL_OK;
+oom:
+    /* fields not reached yet still hold src's pointers: clear them first */
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        void *mine, *theirs;
+        if (c->ctype != PL_C_STR && c->ctype != PL_C_ROWS)
+            continue;
+        memcpy(&mine, field(c, dst), sizeof mine);
+        memcpy(&theirs, cfield(c, src), sizeof theirs);
+        if (mine == theirs) {
+            mine = NULL;
+            memcpy(field(c, dst), &mine, sizeof mine);
+        }
+    }
+    pl_row__release(t, dst);
+    return PL_ENOMEM;
+}
+
+/* ---- JSON ----------------------------------------------------------------------------------- */
+
+/* Put `value` at `path` under `o`: "a.b.0" is object a, its key b, element 0
+ * of that array (elements are appended in order). */
+static int json_put(cJSON *o, const char *path, cJSON *value)
+{
+    if (!value)
+        return 0;
+    cJSON *cur = o;
+    for (const char *p = path;;) {
+        size_t n = strcspn(p, ".");
+        char seg[64];
+        assert(n < sizeof seg);
+        memcpy(seg, p, n);
+        seg[n] = '\0';
+        int array = cJSON_IsArray(cur);
+        if (!p[n]) {
+            int ok = array ? cJSON_AddItemToArray(cur, value)
+                           : cJSON_AddItemToObject(cur, seg, value);
+            if (!ok)
+                cJSON_Delete(value);
+            return ok;
+        }
+        p += n + 1;
+        cJSON *child = array ? cJSON_GetArrayItem(cur, atoi(seg))
+                             : cJSON_GetObjectItemCaseSensitive(cur, seg);
+        if (!child) {
+            child = *p >= '0' && *p <= '9' ? cJSON_CreateArray() : cJSON_CreateObject();
+            if (!child || !(array ? cJSON_AddItemToArray(cur, child)
+                                  : cJSON_AddItemToObject(cur, seg, child))) {
+                cJSON_Delete(child);
+                cJSON_Delete(value);
+                return 0;
+            }
+        }
+        cur = child;
+    }
+}
+
+static cJSON *json_number(double v)
+{
+    return isfinite(v) ? cJSON_CreateNumber(v) : cJSON_CreateNull();
+}
+
+/* A field's JSON value: absent is null, recorded JSON an object. */
+static cJSON *json_value(const pl_column *c, const void *rec)
+{
+    if (c->ctype == PL_C_ROWS) {
+        size_t n;
+        const char *kids = children_of(c, rec, &n);
+        cJSON *a = cJSON_CreateArray();
+        for (size_t k = 0; a && k < n; k++) {
+            cJSON *item = pl_row__json(c->child, kids + k * c->child->record_size);
+            if (!item || !cJSON_AddItemToArray(a, item)) {
+                cJSON_Delete(item);
+                cJSON_Delete(a);
+                return NULL;
+            }
+        }
+        return a;
+    }
+    int absent;
+    pl_value v = field_value(c, rec, &absent);
+    if (absent)
+        return cJSON_CreateNull();
+    switch (v.type) {
+    case PL_S_INTEGER: return cJSON_CreateNumber((double)v.i);
+    case PL_S_REAL: return json_number(v.r);
+    case PL_S_TEXT:
+        if (c->form == PL_F_JSON) {
+            cJSON *j = cJSON_Parse(v.p);
+            return j ? j : cJSON_CreateNull();
+        }
+        return cJSON_CreateString(v.p);
+    default: return cJSON_CreateNull();
+    }
+}
+
+cJSON *pl_row__json(const pl_table_desc *t, const void *rec)
+{
+    cJSON *o = cJSON_CreateObject();
+    for (size_t i = 0; o && i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        if (c->json && !json_put(o, c->json, json_value(c, rec))) {
+            cJSON_Delete(o);
+            return NULL;
+        }
+    }
+    return o;
+}
+
+int pl_row__print_json(char **out, cJSON *value, pl_err *err)
+{
+    *out = value ? cJSON_Print(value) : NULL;
+    cJSON_Delete(value);
+    return *out ? PL_OK : pl__err(err, PL_ENOMEM, "out of memory");
+}
+
+PL_EXPORT int pl_row_json(char **out, pl_table table, const void *record, pl_err *err)
+{
+    assert(out && record);
+    return pl_row__print_json(out, pl_row__json(pl_row__table(table), record), err);
+}
+
+struct pl_json_list {
+    cJSON *array;
+};
+
+PL_EXPORT int pl_json_list_new(pl_json_list **out, pl_err *err)
+{
+    pl_json_list *l = malloc(sizeof *l);
+    if (!l || !(l->array = cJSON_CreateArray())) {
+        free(l);
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    }
+    *out = l;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_json_list_add(pl_json_list *list, pl_table table, const void *record,
+                               pl_err *err)
+{
+    assert(list && record);
+    cJSON *o = pl_row__json(pl_row__table(table), record);
+    if (!o || !cJSON_AddItemToArray(list->array, o)) {
+        cJSON_Delete(o);
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    }
+    return PL_OK;
+}
+
+PL_EXPORT int pl_json_list_text(char **out, const pl_json_list *list, pl_err *err)
+{
+    assert(out && list);
+    *out = cJSON_Print(list->array);
+    return *out ? PL_OK : pl__err(err, PL_ENOMEM, "out of memory");
+}
+
+PL_EXPORT void pl_json_list_free(pl_json_list *list)
+{
+    if (!list)
+        return;
+    cJSON_Delete(list->array);
+    free(list);
+}
+
+/* ---- encoding a stored row ------------------------------------------------------------------- */
+
+/* A stored column's value from a statement, borrowed until the next step. */
+static pl_value column_value(sqlite3_stmt *st, int col, pl_stype declared)
+{
+    pl_value v = null_value();
+    if (sqlite3_column_type(st, col) == SQLITE_NULL)
+        return v;
+    v.type = declared;
+    switch (declared) {
+    case PL_S_INTEGER: v.i = sqlite3_column_int64(st, col); break;
+    case PL_S_REAL: v.r = sqlite3_column_double(st, col); break;
+    case PL_S_TEXT:
+        v.p = sqlite3_column_text(st, col);
+        v.n = (size_t)sqlite3_column_bytes(st, col);
+        break;
+    default:
+        v.p = sqlite3_column_blob(st, col);
+        v.n = (size_t)sqlite3_column_bytes(st, col);
+        break;
+    }
+    return v;
+}
+
+/* "SELECT <content columns> FROM <table> t WHERE t.<key> = ?1 [ORDER BY ...]" */
+static void content_select(char *buf, size_t cap, const pl_table_desc *t, const char *key,
+                           const char *order)
+{
+    size_t n = 0;
+    int k = 0;
+    add_sql(buf, cap, &n, "SELECT ", (char *)NULL);
+    for (size_t i = 0; i < t->ncols; i++) {
+        if (!content(&t->cols[i]) || t->cols[i].stype == PL_S_ROWS)
+            continue;
+        add_sql(buf, cap, &n, k++ ? ", t." : "t.", t->cols[i].column, (char *)NULL);
+    }
+    add_sql(buf, cap, &n, " FROM ", t->name, " t WHERE t.", key, " = ?1", (char *)NULL);
+    if (order)
+        add_sql(buf, cap, &n, " ORDER BY t.", order, (char *)NULL);
+}
+
+static void content_values(sqlite3_stmt *st, const pl_table_desc *t, pl_value *v)
+{
+    int k = 0;
+    for (size_t i = 0; i < t->ncols; i++) {
+        v[i] = null_value();
+        if (content(&t->cols[i]) && t->cols[i].stype != PL_S_ROWS)
+            v[i] = column_value(st, k++, t->cols[i].stype);
+    }
+}
+
+typedef struct stored_kids {
+    pl_store *s;
+    sqlite3_stmt *st;
+    const pl_table_desc *t;
+    const char *label;
+} stored_kids;
+
+static int next_stored_kid(void *ctx, pl_value *v, pl_err *err)
+{
+    stored_kids *k = ctx;
+    int r = sqlite3_step(k->st);
+    if (r == SQLITE_DONE)
+        return 0;
+    if (r != SQLITE_ROW)
+        return pl_store__fail(k->s, err, k->label);
+    content_values(k->st, k->t, v);
+    return 1;
+}
+
+PL_EXPORT int pl_store_row_encode(unsigned char **out, size_t *len, pl_store *s, pl_table table,
+                                  pl_id id, pl_err *err)
+{
+    assert(out && len && s);
+    *out = NULL;
+    *len = 0;
+    if ((unsigned)table >= PL_TABLE_COUNT || table == PL_TABLE_MAP_CHANNEL)
+        return pl__err(err, PL_EINVAL, "table %d has no rows of its own to encode", (int)table);
+    const pl_table_desc *t = pl_row__table(table);
+    char label[STORE_LABEL_SIZE], sql[2048];
+    snprintf(label, sizeof label, "%s: %s %lld", s->path, t->name, (long long)id);
+    content_select(sql, sizeof sql, t, "id", NULL);
+    sqlite3_stmt *st = NULL, *kst = NULL;
+    int rc = pl_store__row_by_id(s, &st, sql, id, err, label, "no such row");
+    if (rc)
+        return rc;
+    pl_value v[PL_ROW_MAX_COLUMNS];
+    content_values(st, t, v);
+    stored_kids kids = { s, NULL, NULL, label };
+    for (size_t i = 0; !rc && i < t->ncols; i++) {
+        const pl_table_desc *ct = t->cols[i].child;
+        if (t->cols[i].stype != PL_S_ROWS)
+            continue;
+        content_select(sql, sizeof sql, ct, ct->parent_column, ct->index_column);
+        if (!(rc = pl_store__prepare(s, &kst, sql, err))) {
+            sqlite3_bind_int64(kst, 1, id);
+            kids.st = kst;
+            kids.t = ct;
+        }
+    }
+    enc e = { 0 };
+    child_source src = { next_stored_kid, &kids };
+    if (!rc)
+        rc = encode(&e, t, v, &src, label, err);
+    sqlite3_finalize(kst);
+    sqlite3_finalize(st);
+    if (rc) {
+        free(e.p);
+        return rc;
+    }
+    *out = e.p;
+    *len = e.n;
+    return PL_OK;
+}
+
+/* For the tests: the canonical encoding of a row given as values. */
+int pl_row__encode(unsigned char **out, size_t *len, const pl_row *row, pl_id id, pl_err *err)
+{
+    enc e = { 0 };
+    const pl_column *rows = NULL;
+    for (size_t i = 0; i < row->t->ncols; i++)
+        if (row->t->cols[i].stype == PL_S_ROWS)
+            rows = &row->t->cols[i];
+    insert_kids kids = { rows ? rows->child : NULL, row->children, row->nchildren, 0, id };
+    child_source src = { next_insert_kid, &kids };
+    int rc = encode(&e, row->t, row->v, &src, "row", err);
+    if (rc) {
+        free(e.p);
+        return rc;
+    }
+    *out = e.p;
+    *len = e.n;
+    return PL_OK;
+}
