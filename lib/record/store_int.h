@@ -104,6 +104,11 @@ int pl_store__write_begin(pl_store *store, int *owned, pl_err *err);
  */
 int pl_store__write_end(pl_store *store, int owned, int rc, pl_err *err);
 
+/* Check a correction's reason (required, free text) and open its write
+ * scope as pl_store__write_begin() does. */
+int pl_store__correction_begin(pl_store *s, const char *reason, int *owned, pl_err *err,
+                               const char *label);
+
 /* pl_store__write_end(), then *id (may be NULL) = newid when all went well. */
 int pl_store__write_end_id(pl_store *store, int owned, int rc, pl_id newid, pl_id *id,
                            pl_err *err);
