@@ -117,12 +117,9 @@ void cli_table_free(cli_table *t);
  * or CLI_ERROR when it is NULL (out of memory). */
 int cli_print_json(cJSON *value);
 
-/* JSON forms of the records (NaN / unknown become null). */
-cJSON *cli_json_airframe(const pl_airframe *af);
-cJSON *cli_json_site(const pl_site *s);
-cJSON *cli_json_inspection(const pl_inspection *in);
-cJSON *cli_json_map(const pl_map_record *m);
-cJSON *cli_json_placement(const pl_placement *p);
+/* Print JSON text the library built and free it, or, when rc is a
+ * failure, print its message: CLI_OK or CLI_ERROR. */
+int cli_print_json_text(int rc, char *text, const pl_err *err);
 
 /* "%g" of a double, or "-" when NaN; returns buf. */
 const char *cli_fmt_num(char *buf, size_t size, double v);

@@ -90,8 +90,10 @@ int cmd_add_airframe(int argc, char **argv)
     pl_store_close(store);
     if (st)
         return cli_fail_err(st, &err);
-    if (common.json)
-        return cli_print_json(cli_json_airframe(&af));
+    if (common.json) {
+        char *text = NULL;
+        return cli_print_json_text(pl_row_json(&text, PL_TABLE_AIRFRAME, &af, &err), text, &err);
+    }
     if (!common.quiet)
         printf("registered airframe %s (%s)\n", af.serial, af.aircraft_type);
     return CLI_OK;
@@ -115,25 +117,11 @@ static const char op_help[] =
     "  -q, --quiet           print nothing on success\n"
     "  -h, --help            show this help\n";
 
-typedef struct history_out {
-    cJSON *array;
-    cli_table *table;
-} history_out;
-
 static int on_operator(void *ud, const char *name, const char *since, const char *recorded_at)
 {
-    history_out *h = ud;
-    if (h->array) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "operator", name);
-        cJSON_AddStringToObject(o, "since", since);
-        cJSON_AddStringToObject(o, "recorded_at", recorded_at);
-        cJSON_AddItemToArray(h->array, o);
-    }
-    if (h->table) {
-        const char *row[] = { since, name };
-        cli_table_row(h->table, row);
-    }
+    (void)recorded_at;
+    const char *row[] = { since, name };
+    cli_table_row(ud, row);
     return 0;
 }
 
@@ -157,31 +145,27 @@ int cmd_set_operator(int argc, char **argv)
         return rc;
     pl_err err = { 0 };
     int st = pl_store_add_operator(store, a.serial, a.operator_name, a.since, &err);
-    history_out h = { 0 };
-    if (!st && common.json)
-        h.array = cJSON_CreateArray();
-    else if (!st && !common.quiet) {
-        const char *hdr[] = { "SINCE", "OPERATOR" };
-        h.table = cli_table_new(2, hdr);
+    if (!st && common.json) {
+        char *text = NULL;
+        st = pl_operators_json(&text, store, a.serial, &err);
+        pl_store_close(store);
+        return cli_print_json_text(st, text, &err);
     }
-    if (!st)
-        st = pl_store_list_operators(store, a.serial, on_operator, &h, &err);
+    cli_table *table = NULL;
+    if (!st && !common.quiet) {
+        const char *hdr[] = { "SINCE", "OPERATOR" };
+        table = cli_table_new(2, hdr);
+        st = pl_store_list_operators(store, a.serial, on_operator, table, &err);
+    }
     pl_store_close(store);
     if (st) {
-        cJSON_Delete(h.array);
-        cli_table_free(h.table);
+        cli_table_free(table);
         return cli_fail_err(st, &err);
     }
-    if (h.array) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "airframe", a.serial);
-        cJSON_AddItemToObject(o, "operators", h.array);
-        return cli_print_json(o);
-    }
-    if (h.table) {
+    if (table) {
         printf("operator history of %s:\n", a.serial);
-        cli_table_print(h.table, stdout);
-        cli_table_free(h.table);
+        cli_table_print(table, stdout);
+        cli_table_free(table);
     }
     return CLI_OK;
 }

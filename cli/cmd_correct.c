@@ -139,9 +139,10 @@ static int correct_inspection(const correct_args *a, pl_store *store, const cli_
         st = pl_store_get_inspection(store, (pl_id)key, &in, &err);
     if (st)
         return cli_fail_err(st, &err);
-    if (common->json)
-        rc = cli_print_json(cli_json_inspection(&in));
-    else if (!common->quiet)
+    if (common->json) {
+        char *text = NULL;
+        rc = cli_print_json_text(pl_row_json(&text, PL_TABLE_INSPECTION, &in, &err), text, &err);
+    } else if (!common->quiet)
         printf("corrected inspection %lld (now version %lld): %s\n", key, (long long)in.id,
                a->reason);
     pl_inspection_clear(&in);
@@ -187,8 +188,10 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
         st = pl_store_get_site(store, a->insp.airframe, a->insp.site, &s, &err);
     if (st)
         return cli_fail_err(st, &err);
-    if (common->json)
-        return cli_print_json(cli_json_site(&s));
+    if (common->json) {
+        char *text = NULL;
+        return cli_print_json_text(pl_row_json(&text, PL_TABLE_SITE, &s, &err), text, &err);
+    }
     if (!common->quiet)
         printf("corrected site %s on %s (now version %lld): %s\n", s.code, s.airframe_serial,
                (long long)s.id, a->reason);

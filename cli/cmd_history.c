@@ -43,68 +43,9 @@ static int take_opt(void *ctx, int opt, const char *arg)
     return 0;
 }
 
-typedef struct insp_list {
-    pl_inspection *items;
-    size_t n, cap;
-    int oom;
-} insp_list;
-
-static int collect(void *ud, const pl_inspection *in)
-{
-    insp_list *l = ud;
-    if (l->n == l->cap) {
-        size_t cap = l->cap ? l->cap * 2 : 8;
-        pl_inspection *grown = realloc(l->items, cap * sizeof *grown);
-        if (!grown) {
-            l->oom = 1;
-            return 1;
-        }
-        l->items = grown;
-        l->cap = cap;
-    }
-    pl_inspection *copy = &l->items[l->n++];
-    *copy = *in;
-    copy->parameters_json = in->parameters_json ? strdup(in->parameters_json) : NULL;
-    return 0;
-}
-
-typedef struct map_out {
-    pl_store *store;
-    cJSON *array;  /* JSON mode */
-    int printed;   /* text mode */
-    int failed;    /* a registration listing failed */
-    pl_err err;
-} map_out;
-
 /* One registration of a map onto its baseline, under the map. */
-static int on_registration(void *ud, const pl_registration_record *g)
+static void print_registration(const pl_registration_record *g)
 {
-    cJSON *array = ud;
-    if (array) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddNumberToObject(o, "registration", (double)g->id);
-        cJSON_AddNumberToObject(o, "baseline_map", (double)g->baseline_map_id);
-        cJSON_AddStringToObject(o, "status", g->status);
-        cJSON_AddStringToObject(o, "method", g->method);
-        if (g->refusal[0])
-            cJSON_AddStringToObject(o, "refusal", g->refusal);
-        cli_json_num(o, "shift_col_px", g->shift_col_px);
-        cli_json_num(o, "shift_row_px", g->shift_row_px);
-        cli_json_num(o, "shift_u_mm", g->shift_u_mm);
-        cli_json_num(o, "shift_v_mm", g->shift_v_mm);
-        cli_json_num(o, "rotation_deg", g->rotation_deg);
-        cli_json_num(o, "scale", g->scale);
-        cli_json_num(o, "ncc", g->ncc);
-        cli_json_num(o, "peak_sidelobe", g->peak_sidelobe);
-        cli_json_num(o, "overlap_fraction", g->overlap_fraction);
-        if (g->supplied_by[0]) {
-            cJSON_AddStringToObject(o, "supplied_by", g->supplied_by);
-            cJSON_AddStringToObject(o, "supplied_reason", g->supplied_reason);
-        }
-        cJSON_AddStringToObject(o, "recorded_at", g->recorded_at);
-        cJSON_AddItemToArray(array, o);
-        return 0;
-    }
     if (strcmp(g->status, "refused") == 0)
         printf("        registration %lld onto map %lld refused: %s\n", (long long)g->id,
                (long long)g->baseline_map_id, g->refusal);
@@ -114,22 +55,11 @@ static int on_registration(void *ud, const pl_registration_record *g)
                (long long)g->id, (long long)g->baseline_map_id, g->status, g->shift_u_mm,
                g->shift_v_mm, g->rotation_deg, g->ncc, 100.0 * g->overlap_fraction,
                g->supplied_by[0] ? ", supplied by " : "", g->supplied_by);
-    return 0;
 }
 
-static int on_map(void *ud, const pl_map_record *m)
+static void print_map(const pl_history_map *hm)
 {
-    map_out *o = ud;
-    if (o->array) {
-        cJSON *jm = cli_json_map(m);
-        cJSON *regs = cJSON_AddArrayToObject(jm, "registrations");
-        cJSON_AddItemToArray(o->array, jm);
-        if (pl_store_list_registrations(o->store, m->id, on_registration, regs, &o->err)) {
-            o->failed = 1;
-            return 1;
-        }
-        return 0;
-    }
+    const pl_map_record *m = &hm->map;
     printf("      map %lld: %ux%u px at %g x %g mm, %s from %s, sha256 %.16s...\n",
            (long long)m->id, m->width, m->height, m->pitch_u, m->pitch_v, m->origin,
            m->source[0] ? m->source : "-", m->sha256);
@@ -147,12 +77,19 @@ static int on_map(void *ud, const pl_map_record *m)
         col += printf("%s%s", col > 8 ? " " : "", item);
     }
     printf("\n");
-    o->printed++;
-    if (pl_store_list_registrations(o->store, m->id, on_registration, NULL, &o->err)) {
-        o->failed = 1;
-        return 1;
-    }
-    return 0;
+    for (size_t k = 0; k < hm->nregistrations; k++)
+        print_registration(&hm->registrations[k]);
+}
+
+/* A comparison of the inspection with a baseline. */
+static void print_comparison(const pl_comparison_record *c)
+{
+    if (strcmp(c->status, "not-done") == 0)
+        printf("      comparison %lld with inspection %lld not done: %s\n", (long long)c->id,
+               (long long)c->baseline_inspection, c->not_done_reason);
+    else
+        printf("      comparison %lld with inspection %lld done\n", (long long)c->id,
+               (long long)c->baseline_inspection);
 }
 
 static void print_site(const pl_site *s)
@@ -206,52 +143,30 @@ int cmd_history(int argc, char **argv)
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
     pl_err err = { 0 };
-    pl_site site;
-    insp_list list = { 0 };
-    int st = pl_store_get_site(store, a.airframe, a.site, &site, &err);
-    if (!st) {
-        pl_inspection_filter f = { a.airframe, a.site, NULL, NULL, NULL };
-        st = pl_store_list_inspections(store, &f, collect, &list, &err);
-        if (!st && list.oom)
-            st = PL_ENOMEM;
-    }
-    cJSON *root = NULL, *jinsp = NULL;
-    if (!st && common.json) {
-        root = cJSON_CreateObject();
-        cJSON_AddItemToObject(root, "site", cli_json_site(&site));
-        jinsp = cJSON_AddArrayToObject(root, "inspections");
-    } else if (!st) {
-        print_site(&site);
-        if (!list.n)
-            printf("\n  no inspections recorded\n");
-    }
-    for (size_t i = 0; !st && i < list.n; i++) {
-        map_out mo = { 0 };
-        mo.store = store;
-        if (jinsp) {
-            cJSON *o = cli_json_inspection(&list.items[i]);
-            mo.array = cJSON_AddArrayToObject(o, "maps");
-            cJSON_AddItemToArray(jinsp, o);
-        } else {
-            print_inspection(&list.items[i]);
-        }
-        st = pl_store_list_maps(store, list.items[i].key, on_map, &mo, &err);
-        if (!st && mo.failed) {
-            st = mo.err.code ? mo.err.code : PL_EDB;
-            err = mo.err;
-        }
-        if (!st && !jinsp && !mo.printed)
-            printf("      no maps\n");
-    }
+    pl_history *h = NULL;
+    int st = pl_history_load(&h, store, a.airframe, a.site, &err);
     pl_store_close(store);
-    for (size_t i = 0; i < list.n; i++)
-        free(list.items[i].parameters_json);
-    free(list.items);
-    if (st) {
-        cJSON_Delete(root);
+    if (st)
         return cli_fail_err(st, &err);
+    if (common.json) {
+        char *text = NULL;
+        st = pl_history_json(&text, h, &err);
+        pl_history_free(h);
+        return cli_print_json_text(st, text, &err);
     }
-    if (root)
-        return cli_print_json(root);
+    print_site(&h->site);
+    if (!h->ninspections)
+        printf("\n  no inspections recorded\n");
+    for (size_t i = 0; i < h->ninspections; i++) {
+        const pl_history_inspection *hi = &h->inspections[i];
+        print_inspection(&hi->inspection);
+        for (size_t j = 0; j < hi->nmaps; j++)
+            print_map(&hi->maps[j]);
+        if (!hi->nmaps)
+            printf("      no maps\n");
+        for (size_t j = 0; j < hi->ncomparisons; j++)
+            print_comparison(&hi->comparisons[j]);
+    }
+    pl_history_free(h);
     return CLI_OK;
 }

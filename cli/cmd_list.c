@@ -32,24 +32,51 @@ static int take_opt(void *ctx, int opt, const char *arg)
     return 0;
 }
 
-/* What a listing collects into: a JSON array or a table. */
+/* What a listing collects into: the records as JSON, or a table. */
 typedef struct sink {
-    cJSON *array;
+    pl_json_list *list;
     cli_table *table;
     size_t count;
+    int failed;
+    pl_err err;
 } sink;
 
-static int finish(pl_store *store, int st, const pl_err *err, sink *s, const char *noun,
+/* A sink for --json or for a table with these headers. */
+static void sink_init(sink *s, const cli_common *common, int ncols, const char *const *headers)
+{
+    memset(s, 0, sizeof *s);
+    if (!common->json)
+        s->table = cli_table_new(ncols, headers);
+    else if (pl_json_list_new(&s->list, &s->err))
+        s->failed = PL_ENOMEM;
+}
+
+/* Take a record for JSON; 1 (stop) on failure. */
+static int sink_json(sink *s, pl_table table, const void *record)
+{
+    if (pl_json_list_add(s->list, table, record, &s->err)) {
+        s->failed = PL_ENOMEM;
+        return 1;
+    }
+    return 0;
+}
+
+static int finish(pl_store *store, int st, pl_err *err, sink *s, const char *noun,
                   const cli_common *common)
 {
     pl_store_close(store);
-    if (st) {
-        cJSON_Delete(s->array);
-        cli_table_free(s->table);
-        return cli_fail_err(st, err);
+    if (!st && s->failed) {
+        st = s->failed;
+        *err = s->err;
     }
-    if (common->json)
-        return cli_print_json(s->array);
+    char *text = NULL;
+    if (!st && common->json)
+        st = pl_json_list_text(&text, s->list, err);
+    pl_json_list_free(s->list);
+    if (st || common->json) {
+        cli_table_free(s->table);
+        return cli_print_json_text(st, text, err);
+    }
     if (s->count)
         cli_table_print(s->table, stdout);
     else if (!common->quiet)
@@ -83,8 +110,8 @@ static int on_airframe(void *ud, const pl_airframe *af)
 {
     sink *s = ud;
     s->count++;
-    if (s->array)
-        cJSON_AddItemToArray(s->array, cli_json_airframe(af));
+    if (s->list)
+        return sink_json(s, PL_TABLE_AIRFRAME, af);
     else {
         const char *row[] = { af->serial, af->aircraft_type,
                               af->manufactured[0] ? af->manufactured : "-",
@@ -108,12 +135,9 @@ int cmd_airframes(int argc, char **argv)
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
-    sink s = { 0 };
     const char *hdr[] = { "SERIAL", "TYPE", "MANUFACTURED", "OPERATOR", "SINCE" };
-    if (common.json)
-        s.array = cJSON_CreateArray();
-    else
-        s.table = cli_table_new(5, hdr);
+    sink s;
+    sink_init(&s, &common, 5, hdr);
     pl_airframe_filter f = { a.type, a.operator_name };
     pl_err err = { 0 };
     int st = pl_store_list_airframes(store, &f, on_airframe, &s, &err);
@@ -147,10 +171,8 @@ static int on_site(void *ud, const pl_site *site)
 {
     sink *s = ud;
     s->count++;
-    if (s->array) {
-        cJSON_AddItemToArray(s->array, cli_json_site(site));
-        return 0;
-    }
+    if (s->list)
+        return sink_json(s, PL_TABLE_SITE, site);
     char origin[96], size[48], pitch[48];
     snprintf(origin, sizeof origin, "%g/%g/%g", site->map_frame.origin[0],
              site->map_frame.origin[1], site->map_frame.origin[2]);
@@ -184,13 +206,10 @@ int cmd_sites(int argc, char **argv)
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
-    sink s = { 0 };
     const char *hdr[] = { "AIRFRAME", "SITE", "ZONE", "FRAME", "STRINGER", "METHOD",
                           "ORIGIN (STA/BL/WL)", "SIZE PX", "PITCH MM" };
-    if (common.json)
-        s.array = cJSON_CreateArray();
-    else
-        s.table = cli_table_new(9, hdr);
+    sink s;
+    sink_init(&s, &common, 9, hdr);
     pl_site_filter f = { a.airframe, a.zone, a.method };
     pl_err err = { 0 };
     int st = PL_OK;
@@ -236,10 +255,8 @@ static int on_inspection(void *ud, const pl_inspection *in)
 {
     sink *s = ud;
     s->count++;
-    if (s->array) {
-        cJSON_AddItemToArray(s->array, cli_json_inspection(in));
-        return 0;
-    }
+    if (s->list)
+        return sink_json(s, PL_TABLE_INSPECTION, in);
     char id[32], hours[32], cycles[32];
     snprintf(id, sizeof id, "%lld", (long long)in->key);
     cli_fmt_num(hours, sizeof hours, in->aircraft_hours);
@@ -272,13 +289,10 @@ int cmd_inspections(int argc, char **argv)
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
-    sink s = { 0 };
     const char *hdr[] = { "INSPECTION", "DATE", "AIRFRAME", "SITE", "KIND", "TASK", "HOURS",
                           "CYCLES", "INSPECTOR" };
-    if (common.json)
-        s.array = cJSON_CreateArray();
-    else
-        s.table = cli_table_new(9, hdr);
+    sink s;
+    sink_init(&s, &common, 9, hdr);
     pl_inspection_filter f = { a.airframe, a.site, a.kind, a.from, a.to };
     int st = PL_OK;
     if (a.airframe && a.site) {

@@ -1,0 +1,259 @@
+/*
+ * test_history.c - the models behind every output: a site's history built
+ * from the store, and its JSON form.
+ *
+ * External reference: the JSON texts are parsed back by Python's json
+ * module (Debian's python3, tests/ref/json_ref.py) as a reader other than
+ * the one that wrote them.
+ */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <cjson/cJSON.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "plyledger.h"
+#include "testutil.h"
+
+typedef struct fixture {
+    char *dir;
+    char *path;
+    pl_store *store;
+} fixture;
+
+static int setup(void **state)
+{
+    fixture *f = calloc(1, sizeof *f);
+    assert_non_null(f);
+    f->dir = tu_tmpdir();
+    f->path = tu_path(f->dir, "h.plyledger");
+    pl_err err = { 0 };
+    TU_OK(pl_store_create(&f->store, f->path, &err));
+    pl_airframe af;
+    memset(&af, 0, sizeof af);
+    strcpy(af.serial, "HIS-0001");
+    strcpy(af.aircraft_type, "TX-1");
+    strcpy(af.manufactured, "2030-01-02");
+    strcpy(af.operator_name, "Operator One");
+    TU_OK(pl_store_add_airframe(f->store, &af, NULL, &err));
+    TU_OK(pl_store_add_operator(f->store, "HIS-0001", "Operator Two", "2034-06-01", &err));
+    pl_site s;
+    memset(&s, 0, sizeof s);
+    strcpy(s.airframe_serial, "HIS-0001");
+    strcpy(s.code, "H01");
+    strcpy(s.method, "flash-thermography");
+    s.thickness_mm = 4.0;
+    s.diffusivity_mm2_s = NAN;
+    s.map_frame.origin[0] = 100;
+    s.map_frame.u[0] = 1;
+    s.map_frame.v[1] = 1;
+    strcpy(s.map_frame.system, "STA/BL/WL");
+    strcpy(s.map_frame.unit, "mm");
+    s.pitch_u = s.pitch_v = 0.5;
+    TU_OK(pl_store_add_site(f->store, &s, NULL, &err));
+    *state = f;
+    return 0;
+}
+
+static int teardown(void **state)
+{
+    fixture *f = *state;
+    pl_store_close(f->store);
+    free(f->path);
+    tu_rmtree(f->dir);
+    free(f);
+    return 0;
+}
+
+/* An inspection of H01 with one 6x4 two-channel map made in memory. */
+static pl_id inspect(pl_store *st, const char *kind, const char *date, float base, pl_id *map)
+{
+    pl_inspection in;
+    memset(&in, 0, sizeof in);
+    in.aircraft_hours = NAN;
+    in.aircraft_cycles = -1;
+    strcpy(in.airframe_serial, "HIS-0001");
+    strcpy(in.site_code, "H01");
+    strcpy(in.kind, kind);
+    strcpy(in.performed_on, date);
+    strcpy(in.procedure, "P");
+    strcpy(in.procedure_rev, "A");
+    strcpy(in.equipment, "E");
+    strcpy(in.calibration_ref, "C");
+    strcpy(in.inspector, "I. Nspector");
+    strcpy(in.inspector_level, "2");
+    pl_map *m;
+    pl_err err = { 0 };
+    TU_OK(pl_map_new(&m, 6, 4, 2, &err));
+    for (uint32_t i = 0; i < 48; i++)
+        m->data[i] = base + (float)i;
+    TU_OK(pl_map_set_channel(m, 0, "phase", "rad", &err));
+    TU_OK(pl_map_set_channel(m, 1, "temperature-contrast", "K", &err));
+    strcpy(m->channels[1].label, "t=0.5 s");
+    m->pitch_u = m->pitch_v = NAN;
+    pl_id key = 0;
+    TU_OK(pl_record_map_inspection(st, &in, m, "reduce", "seq.json", "{\"k\":1}", &key, map,
+                                   &err));
+    pl_map_free(m);
+    return key;
+}
+
+/* Parse JSON text, failing the test when it is not JSON. */
+static cJSON *parse(const char *text)
+{
+    cJSON *j = cJSON_Parse(text);
+    if (!j)
+        fail_msg("not JSON: %s", text);
+    return j;
+}
+
+static cJSON *at(const cJSON *o, const char *key)
+{
+    cJSON *v = cJSON_GetObjectItemCaseSensitive(o, key);
+    if (!v)
+        fail_msg("no key %s", key);
+    return v;
+}
+
+/* Python's json module reads the text and finds `path` (keys and indexes
+ * joined by '/') equal to `want` (JSON). */
+static void python_agrees(const fixture *f, const char *text, const char *path, const char *want)
+{
+    char *file = tu_path(f->dir, "doc.json");
+    assert_int_equal(tu_write_file(file, text, strlen(text)), 0);
+    assert_int_equal(tu_python("json_ref.py", file, path, want, NULL), 0);
+    free(file);
+}
+
+/*
+ * The history holds the site, its inspections oldest first (the scheduled
+ * one was recorded first but performed later), each map with its channels
+ * and registrations, and each inspection's comparisons; its JSON nests them
+ * in that shape with the records' own field names.
+ */
+static void test_history__gathers_a_site_oldest_first(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_id m2 = 0, m1 = 0;
+    pl_id k2 = inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m2);
+    pl_id k1 = inspect(f->store, "baseline", "2030-02-01", 1.0f, &m1);
+    pl_record_pair pair = { 0 };
+    TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
+    pl_register_result res;
+    memset(&res, 0, sizeof res);
+    res.refused = 1;
+    snprintf(res.reason, sizeof res.reason, "correlation 0.2 below the limit 0.6");
+    res.ncc = 0.2;
+    res.psr = NAN;
+    pl_id rid = 0, cid = 0;
+    TU_OK(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL, NULL,
+                                 NULL, &rid, &cid, &err));
+
+    pl_history *h = NULL;
+    TU_OK(pl_history_load(&h, f->store, "HIS-0001", "H01", &err));
+    assert_string_equal(h->site.code, "H01");
+    assert_int_equal(h->ninspections, 2);
+    assert_int_equal(h->inspections[0].inspection.key, k1);
+    assert_int_equal(h->inspections[1].inspection.key, k2);
+    assert_null(h->inspections[0].inspection.parameters_json);
+    assert_string_equal(h->inspections[0].maps[0].map.parameters_json, "{\"k\":1}");
+    const pl_history_inspection *later = &h->inspections[1];
+    assert_int_equal(later->nmaps, 1);
+    assert_int_equal(later->maps[0].map.id, m2);
+    assert_int_equal(later->maps[0].map.nchannels, 2);
+    assert_string_equal(later->maps[0].map.channels[1].label, "t=0.5 s");
+    assert_int_equal(later->maps[0].nregistrations, 1);
+    assert_int_equal(later->maps[0].registrations[0].id, rid);
+    assert_int_equal(later->maps[0].registrations[0].baseline_map_id, m1);
+    assert_string_equal(later->maps[0].registrations[0].status, "refused");
+    assert_int_equal(later->ncomparisons, 1);
+    assert_int_equal(later->comparisons[0].id, cid);
+    assert_int_equal(h->inspections[0].maps[0].nregistrations, 0);
+    assert_int_equal(h->inspections[0].ncomparisons, 0);
+
+    char *text = NULL;
+    TU_OK(pl_history_json(&text, h, &err));
+    pl_history_free(h);
+    cJSON *j = parse(text);
+    assert_string_equal(at(at(j, "site"), "site")->valuestring, "H01");
+    assert_true(cJSON_IsNull(at(at(j, "site"), "diffusivity_mm2_s")));
+    assert_true(at(at(at(j, "site"), "map_frame"), "origin")->child->valuedouble == 100.0);
+    cJSON *ins = at(j, "inspections");
+    assert_int_equal(cJSON_GetArraySize(ins), 2);
+    cJSON *second = cJSON_GetArrayItem(ins, 1);
+    assert_string_equal(at(second, "date")->valuestring, "2036-03-01");
+    assert_true(cJSON_IsNull(at(second, "cycles")));
+    assert_true(cJSON_IsNull(at(second, "parameters")));
+    cJSON *map = cJSON_GetArrayItem(at(second, "maps"), 0);
+    assert_int_equal(at(at(map, "parameters"), "k")->valueint, 1);
+    assert_int_equal(at(map, "map")->valueint, (int)m2);
+    cJSON *ch = at(map, "channels");
+    assert_true(cJSON_IsNull(at(cJSON_GetArrayItem(ch, 0), "label")));
+    assert_string_equal(at(cJSON_GetArrayItem(ch, 1), "unit")->valuestring, "K");
+    cJSON *reg = cJSON_GetArrayItem(at(map, "registrations"), 0);
+    assert_int_equal(at(reg, "registration")->valueint, (int)rid);
+    assert_true(at(at(reg, "quality"), "ncc")->valuedouble == 0.2);
+    assert_true(cJSON_IsNull(at(at(reg, "quality"), "peak_sidelobe")));
+    assert_true(cJSON_IsNull(at(at(reg, "transform"), "shift_col_px")));
+    cJSON *cmp = cJSON_GetArrayItem(at(second, "comparisons"), 0);
+    assert_string_equal(at(cmp, "status")->valuestring, "not-done");
+    assert_int_equal(at(cmp, "registration")->valueint, (int)rid);
+    cJSON_Delete(j);
+    python_agrees(f, text, "inspections/1/maps/0/registrations/0/status", "\"refused\"");
+    python_agrees(f, text, "inspections/0/maps/0/channels/1/label", "\"t=0.5 s\"");
+    free(text);
+}
+
+/* A site without inspections has an empty history; an unknown one none. */
+static void test_history__empty_and_unknown_sites(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_history *h = NULL;
+    TU_OK(pl_history_load(&h, f->store, "HIS-0001", "H01", &err));
+    assert_int_equal(h->ninspections, 0);
+    char *text = NULL;
+    TU_OK(pl_history_json(&text, h, &err));
+    python_agrees(f, text, "inspections", "[]");
+    free(text);
+    pl_history_free(h);
+    h = NULL;
+    assert_int_equal(pl_history_load(&h, f->store, "HIS-0001", "H99", &err), PL_ENOTFOUND);
+    assert_null(h);
+    tu_assert_msg_has(err.msg, "H99");
+}
+
+/* The operator history, oldest first, in the records' field names. */
+static void test_history__operators(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    char *text = NULL;
+    TU_OK(pl_operators_json(&text, f->store, "HIS-0001", &err));
+    python_agrees(f, text, "airframe", "\"HIS-0001\"");
+    python_agrees(f, text, "operators/0/operator", "\"Operator One\"");
+    python_agrees(f, text, "operators/0/since", "\"2030-01-02\"");
+    python_agrees(f, text, "operators/1/operator", "\"Operator Two\"");
+    free(text);
+    assert_int_equal(pl_operators_json(&text, f->store, "NOPE-1", &err), PL_ENOTFOUND);
+    assert_null(text);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+#define T(name) cmocka_unit_test_setup_teardown(name, setup, teardown)
+        T(test_history__gathers_a_site_oldest_first),
+        T(test_history__empty_and_unknown_sites),
+        T(test_history__operators),
+#undef T
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
