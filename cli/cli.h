@@ -71,9 +71,6 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
 /* The command takes no operands: 0, or CLI_USAGE (printed) naming the first. */
 int cli_no_operands(int argc, char **argv, int first, const char *usage);
 
-/* Add a number to a JSON object, null when it is not finite (unknown). */
-void cli_json_num(cJSON *o, const char *key, double v);
-
 /* Open the store named by common->store; prints the failure itself.
  * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
@@ -117,9 +114,11 @@ void cli_table_free(cli_table *t);
  * or CLI_ERROR when it is NULL (out of memory). */
 int cli_print_json(cJSON *value);
 
-/* Print JSON text the library built and free it, or, when rc is a
- * failure, print its message: CLI_OK or CLI_ERROR. */
-int cli_print_json_text(int rc, char *text, const pl_err *err);
+/* Print the JSON text the library built into *text (rc its status) and
+ * free it, or, when rc is a failure, print its message: CLI_OK or
+ * CLI_ERROR. A pointer to the text, so a call may build it in the same
+ * expression: cli_print_json_text(pl_row_json(&text, ...), &text, &err). */
+int cli_print_json_text(int rc, char **text, const pl_err *err);
 
 /* "%g" of a double, or "-" when NaN; returns buf. */
 const char *cli_fmt_num(char *buf, size_t size, double v);

@@ -92,7 +92,7 @@ int cmd_add_airframe(int argc, char **argv)
         return cli_fail_err(st, &err);
     if (common.json) {
         char *text = NULL;
-        return cli_print_json_text(pl_row_json(&text, PL_TABLE_AIRFRAME, &af, &err), text, &err);
+        return cli_print_json_text(pl_row_json(&text, PL_TABLE_AIRFRAME, &af, &err), &text, &err);
     }
     if (!common.quiet)
         printf("registered airframe %s (%s)\n", af.serial, af.aircraft_type);
@@ -149,7 +149,7 @@ int cmd_set_operator(int argc, char **argv)
         char *text = NULL;
         st = pl_operators_json(&text, store, a.serial, &err);
         pl_store_close(store);
-        return cli_print_json_text(st, text, &err);
+        return cli_print_json_text(st, &text, &err);
     }
     cli_table *table = NULL;
     if (!st && !common.quiet) {

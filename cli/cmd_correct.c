@@ -141,7 +141,7 @@ static int correct_inspection(const correct_args *a, pl_store *store, const cli_
         return cli_fail_err(st, &err);
     if (common->json) {
         char *text = NULL;
-        rc = cli_print_json_text(pl_row_json(&text, PL_TABLE_INSPECTION, &in, &err), text, &err);
+        rc = cli_print_json_text(pl_row_json(&text, PL_TABLE_INSPECTION, &in, &err), &text, &err);
     } else if (!common->quiet)
         printf("corrected inspection %lld (now version %lld): %s\n", key, (long long)in.id,
                a->reason);
@@ -190,7 +190,7 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
         return cli_fail_err(st, &err);
     if (common->json) {
         char *text = NULL;
-        return cli_print_json_text(pl_row_json(&text, PL_TABLE_SITE, &s, &err), text, &err);
+        return cli_print_json_text(pl_row_json(&text, PL_TABLE_SITE, &s, &err), &text, &err);
     }
     if (!common->quiet)
         printf("corrected site %s on %s (now version %lld): %s\n", s.code, s.airframe_serial,

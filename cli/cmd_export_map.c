@@ -84,8 +84,8 @@ static int take_opt(void *ctx, int opt, const char *arg)
     case O_ZOOM:
         if (cli_count("--zoom", arg, &a->zoom, usage))
             return CLI_USAGE;
-        if (a->zoom < 1 || a->zoom > 64)
-            return cli_usage_error(usage, "--zoom must be 1 to 64");
+        if (a->zoom < 1 || a->zoom > PL_RENDER_MAX_ZOOM)
+            return cli_usage_error(usage, "--zoom must be 1 to %u", PL_RENDER_MAX_ZOOM);
         a->ropts.zoom = (unsigned)a->zoom;
         break;
     case O_NO_COLORBAR: a->ropts.colorbar = 0; break;

@@ -12,8 +12,10 @@ static const char help[] =
     "usage: plyledger history --airframe SERIAL --site CODE [--json]\n"
     "\n"
     "Show a site's whole record: where it is on the airframe, then every\n"
-    "inspection of it, oldest first, with who did it, how, and the maps it\n"
-    "produced (size, pitch, quantities and content digest).\n"
+    "inspection of it, oldest first, with who did it, how, the maps it produced\n"
+    "(size, pitch, quantities and content digest), each map's registrations onto\n"
+    "the baseline and the inspection's comparisons. --json gives the same record,\n"
+    "each registration in the shape 'plyledger register --json' prints.\n"
     "\n"
     "Options:\n"
     "      --airframe SERIAL  the airframe (required)\n"
@@ -152,7 +154,7 @@ int cmd_history(int argc, char **argv)
         char *text = NULL;
         st = pl_history_json(&text, h, &err);
         pl_history_free(h);
-        return cli_print_json_text(st, text, &err);
+        return cli_print_json_text(st, &text, &err);
     }
     print_site(&h->site);
     if (!h->ninspections)

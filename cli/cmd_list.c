@@ -75,7 +75,7 @@ static int finish(pl_store *store, int st, pl_err *err, sink *s, const char *nou
     pl_json_list_free(s->list);
     if (st || common->json) {
         cli_table_free(s->table);
-        return cli_print_json_text(st, text, err);
+        return cli_print_json_text(st, &text, err);
     }
     if (s->count)
         cli_table_print(s->table, stdout);

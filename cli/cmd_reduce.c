@@ -209,52 +209,33 @@ static int take_opt(void *ctx, int opt, const char *arg)
     return 0;
 }
 
-static int print_result(const reduce_args *a, const char *seq_path, const pl_map *map,
-                        const pl_reduce_stats *st, pl_id insp_key, pl_id map_id,
+static int print_result(const pl_reduction_summary *r, const reduce_args *a,
                         const cli_common *common)
 {
     if (common->json) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "sequence", seq_path);
-        cJSON_AddNumberToObject(o, "width", map->width);
-        cJSON_AddNumberToObject(o, "height", map->height);
-        cJSON_AddNumberToObject(o, "frames_used", st->frames_used);
-        cJSON_AddNumberToObject(o, "samples_used", st->samples_used);
-        cJSON_AddNumberToObject(o, "saturated_values", (double)st->saturated_values);
-        cJSON_AddNumberToObject(o, "pixels_masked", st->pixels_masked);
-        cJSON_AddNumberToObject(o, "pixels_partial", st->pixels_partial);
-        cJSON *chs = cJSON_AddArrayToObject(o, "channels");
-        for (uint32_t c = 0; c < map->nchannels; c++) {
-            cJSON *ch = cJSON_CreateObject();
-            cJSON_AddStringToObject(ch, "quantity", map->channels[c].quantity);
-            cJSON_AddStringToObject(ch, "unit", map->channels[c].unit);
-            cJSON_AddStringToObject(ch, "label", map->channels[c].label);
-            cJSON_AddItemToArray(chs, ch);
-        }
-        if (a->output)
-            cJSON_AddStringToObject(o, "output", a->output);
-        if (map_id) {
-            cJSON_AddNumberToObject(o, "inspection", (double)insp_key);
-            cJSON_AddNumberToObject(o, "map", (double)map_id);
-        }
-        return cli_print_json(o);
+        char *text = NULL;
+        pl_err err = { 0 };
+        return cli_print_json_text(pl_reduction_json(&text, r, &err), &text, &err);
     }
     if (common->quiet)
         return CLI_OK;
+    const pl_map *map = r->map;
+    const pl_reduce_stats *st = &r->stats;
     printf("reduced %s: %ux%u px, %u frames in %u samples; %u px masked, %u fitted on part of "
            "the curve, %llu saturated values\n",
-           seq_path, map->width, map->height, st->frames_used, st->samples_used,
+           r->sequence, map->width, map->height, st->frames_used, st->samples_used,
            st->pixels_masked, st->pixels_partial, (unsigned long long)st->saturated_values);
     printf("  %u channels:", map->nchannels);
     for (uint32_t c = 0; c < map->nchannels; c++)
         printf("%s %s%s%s", c ? "," : "", map->channels[c].quantity,
                map->channels[c].label[0] ? " " : "", map->channels[c].label);
     printf("\n");
-    if (a->output)
-        printf("  wrote %s\n", a->output);
-    if (map_id)
-        printf("  recorded inspection %lld of %s site %s with map %lld\n", (long long)insp_key,
-               a->insp.airframe, a->insp.site, (long long)map_id);
+    if (r->output)
+        printf("  wrote %s\n", r->output);
+    if (r->map_id)
+        printf("  recorded inspection %lld of %s site %s with map %lld\n",
+               (long long)r->inspection_key, a->insp.airframe, a->insp.site,
+               (long long)r->map_id);
     return CLI_OK;
 }
 
@@ -355,8 +336,10 @@ int cmd_reduce(int argc, char **argv)
                                       &map_id, &err);
     pl_store_close(store);
     st = pl_outfile_finish(out, st, &err);
-    if (!st)
-        rc = print_result(&a, seq_path, map, &stats, insp_key, map_id, &common);
+    if (!st) {
+        pl_reduction_summary sum = { seq_path, map, stats, params, a.output, insp_key, map_id };
+        rc = print_result(&sum, &a, &common);
+    }
     pl_map_free(map);
     free(params);
     pl_inspection_clear(&insp);

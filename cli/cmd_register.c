@@ -110,8 +110,8 @@ static int take_opt(void *ctx, int opt, const char *arg)
     case O_UPSAMPLE:
         if (cli_count("--upsample", arg, &n, usage))
             return CLI_USAGE;
-        if (n < 1 || n > 1000)
-            return cli_usage_error(usage, "--upsample must be 1 to 1000");
+        if (n < 1 || n > PL_REGISTER_MAX_UPSAMPLE)
+            return cli_usage_error(usage, "--upsample must be 1 to %u", PL_REGISTER_MAX_UPSAMPLE);
         a->ro.upsample = (unsigned)n;
         break;
     case O_NO_ROTATION: a->ro.rotation = 0; break;
@@ -167,106 +167,38 @@ static int take_opt(void *ctx, int opt, const char *arg)
     return 0;
 }
 
-/* The channel a picture shows: the one registered on, chosen as
- * pl_register_maps() chooses it. */
-static uint32_t view_channel(const pl_map *m, const char *quantity, const char *label)
+static int print_result(const pl_registration_summary *sum, const cli_common *common)
 {
-    static const char *const defaults[] = { "phase", "temperature-contrast" };
-    for (int k = 0; k < (quantity ? 1 : 2); k++) {
-        const char *q = quantity ? quantity : defaults[k];
-        for (uint32_t c = 0; c < m->nchannels; c++)
-            if (strcmp(m->channels[c].quantity, q) == 0
-                && (!label || strcmp(m->channels[c].label, label) == 0))
-                return c;
-    }
-    return 0;
-}
-
-static const char *window_name(pl_window w)
-{
-    return w == PL_WINDOW_TUKEY ? "tukey" : w == PL_WINDOW_NONE ? "none" : "hann";
-}
-
-/* The options used, as the parameters recorded with the registration. */
-static char *parameters(const reg_args *a)
-{
-    cJSON *o = cJSON_CreateObject();
-    cJSON_AddStringToObject(o, "quantity", a->quantity ? a->quantity : "(default)");
-    if (a->label)
-        cJSON_AddStringToObject(o, "label", a->label);
-    cJSON_AddNumberToObject(o, "upsample", a->ro.upsample);
-    cJSON_AddBoolToObject(o, "rotation", a->ro.rotation);
-    cJSON_AddBoolToObject(o, "scale", a->ro.scale);
-    cJSON_AddStringToObject(o, "window", window_name(a->ro.window));
-    if (a->ro.window == PL_WINDOW_TUKEY)
-        cJSON_AddNumberToObject(o, "tukey_alpha", a->ro.tukey_alpha);
-    cJSON_AddStringToObject(o, "interp", a->ro.interp == PL_INTERP_BILINEAR ? "bilinear" : "bicubic");
-    cJSON_AddNumberToObject(o, "min_ncc", a->ro.min_ncc);
-    cJSON_AddNumberToObject(o, "min_psr", a->ro.min_psr);
-    cJSON_AddNumberToObject(o, "max_rotation_deg", a->ro.max_rotation_deg);
-    char *s = cJSON_PrintUnformatted(o);
-    cJSON_Delete(o);
-    return s;
-}
-
-static int print_result(const reg_args *a, const pl_record_pair *pair, const pl_register_result *r,
-                        pl_id rid, pl_id cid, const cli_common *common)
-{
-    const char *status = a->manual ? "manual" : r->refused ? "refused" : "aligned";
     if (common->json) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "airframe", a->airframe);
-        cJSON_AddStringToObject(o, "site", a->site);
-        cJSON_AddNumberToObject(o, "registration", (double)rid);
-        cJSON_AddStringToObject(o, "status", status);
-        if (r->refused)
-            cJSON_AddStringToObject(o, "refusal", r->reason);
-        cJSON_AddNumberToObject(o, "baseline_inspection", (double)pair->baseline_inspection);
-        cJSON_AddNumberToObject(o, "baseline_map", (double)pair->baseline_map);
-        cJSON_AddNumberToObject(o, "current_inspection", (double)pair->current_inspection);
-        cJSON_AddNumberToObject(o, "current_map", (double)pair->current_map);
-        cJSON *t = cJSON_AddObjectToObject(o, "transform");
-        cli_json_num(t, "shift_col_px", r->transform.dx);
-        cli_json_num(t, "shift_row_px", r->transform.dy);
-        cli_json_num(t, "shift_u_mm", r->shift_u_mm);
-        cli_json_num(t, "shift_v_mm", r->shift_v_mm);
-        cli_json_num(t, "rotation_deg", r->transform.rotation_deg);
-        cli_json_num(t, "scale", r->transform.scale);
-        cJSON *q = cJSON_AddObjectToObject(o, "quality");
-        cli_json_num(q, "ncc", r->ncc);
-        cli_json_num(q, "peak_sidelobe", r->psr);
-        cli_json_num(q, "overlap_fraction", r->overlap_fraction);
-        cli_json_num(q, "overlap_mm2", r->overlap_mm2);
-        if (cid)
-            cJSON_AddNumberToObject(o, "comparison_not_done", (double)cid);
-        if (a->aligned && !r->refused)
-            cJSON_AddStringToObject(o, "aligned", a->aligned);
-        if (a->view && !r->refused)
-            cJSON_AddStringToObject(o, "view", a->view);
-        return cli_print_json(o);
+        char *text = NULL;
+        pl_err err = { 0 };
+        return cli_print_json_text(pl_registration_summary_json(&text, sum, &err), &text, &err);
     }
     if (common->quiet)
         return CLI_OK;
-    printf("registration %lld of %s site %s: %s\n", (long long)rid, a->airframe, a->site, status);
+    const pl_registration_record *g = &sum->registration;
+    const pl_record_pair *pair = &sum->pair;
+    printf("registration %lld of %s site %s: %s\n", (long long)g->id, sum->airframe_serial,
+           sum->site_code, g->status);
     printf("  current map %lld (inspection %lld) onto baseline map %lld (inspection %lld)\n",
            (long long)pair->current_map, (long long)pair->current_inspection,
            (long long)pair->baseline_map, (long long)pair->baseline_inspection);
-    if (r->refused) {
-        printf("  refused: %s\n", r->reason);
-        printf("  comparison %lld recorded as not done\n", (long long)cid);
+    if (strcmp(g->status, "refused") == 0) {
+        printf("  refused: %s\n", g->refusal);
+        printf("  comparison %lld recorded as not done\n", (long long)sum->comparison_not_done);
         return CLI_OK;
     }
     printf("  shift      %+.3f, %+.3f px  (%+.3f mm along u, %+.3f mm along v)\n",
-           r->transform.dx, r->transform.dy, r->shift_u_mm, r->shift_v_mm);
-    printf("  rotation   %+.3f deg   scale %.4f\n", r->transform.rotation_deg, r->transform.scale);
-    printf("  quality    ncc %.3f", r->ncc);
-    if (isfinite(r->psr))
-        printf(", peak-to-sidelobe %.1f", r->psr);
-    printf("\n  overlap    %.1f %% (%.0f mm^2)\n", 100.0 * r->overlap_fraction, r->overlap_mm2);
-    if (a->aligned)
-        printf("  wrote %s\n", a->aligned);
-    if (a->view)
-        printf("  wrote %s\n", a->view);
+           g->shift_col_px, g->shift_row_px, g->shift_u_mm, g->shift_v_mm);
+    printf("  rotation   %+.3f deg   scale %.4f\n", g->rotation_deg, g->scale);
+    printf("  quality    ncc %.3f", g->ncc);
+    if (isfinite(g->peak_sidelobe))
+        printf(", peak-to-sidelobe %.1f", g->peak_sidelobe);
+    printf("\n  overlap    %.1f %% (%.0f mm^2)\n", 100.0 * g->overlap_fraction, g->overlap_mm2);
+    if (sum->aligned)
+        printf("  wrote %s\n", sum->aligned);
+    if (sum->view)
+        printf("  wrote %s\n", sum->view);
     return CLI_OK;
 }
 
@@ -312,6 +244,8 @@ int cmd_register(int argc, char **argv)
     pl_map *base = NULL, *cur = NULL, *aligned = NULL;
     pl_register_result res;
     memset(&res, 0, sizeof res);
+    pl_registration_summary sum;
+    memset(&sum, 0, sizeof sum);
     char *params = NULL;
     pl_id rid = 0, cid = 0;
     int st = pl_record_find_pair(store, a.airframe, a.site, &pair, &err);
@@ -324,16 +258,18 @@ int cmd_register(int argc, char **argv)
                                a.ro.interp, &err);
     else if (!st)
         st = pl_register_maps(&res, &aligned, base, cur, a.quantity, a.label, &a.ro, &err);
-    if (!st && !(params = parameters(&a)))
-        st = PL_ENOMEM;
+    if (!st)
+        st = pl_record_registration_parameters(&params, a.quantity, a.label, &a.ro, &err);
     if (!st && !res.refused && aligned_out)
         st = pl_map_write_npy(aligned, aligned_out, &err);
     if (!st && !res.refused && view_out) {
         pl_image *img = NULL;
         pl_render_options ropts = PL_RENDER_OPTIONS_INIT;
-        st = pl_render_pair(&img, base, view_channel(base, a.quantity, a.label), aligned,
-                            view_channel(aligned, a.quantity, a.label), a.view_mode, 0, &ropts,
-                            &err);
+        int cb = 0, cc = 0; /* the channels registered on */
+        st = pl_register_channels(&cb, &cc, base, aligned, a.quantity, a.label, &err);
+        if (!st)
+            st = pl_render_pair(&img, base, (uint32_t)cb, aligned, (uint32_t)cc, a.view_mode, 0,
+                                &ropts, &err);
         if (!st)
             st = pl_image_write_png(img, view_out, &err);
         pl_image_free(img);
@@ -342,6 +278,9 @@ int cmd_register(int argc, char **argv)
         st = pl_record_registration(store, &pair, &res, a.manual,
                                     a.manual ? "manual" : "phase-correlation log-polar",
                                     a.by, a.why, params, &rid, &cid, &err);
+    if (!st)
+        st = pl_registration_summary_load(&sum, store, a.airframe, a.site, &pair, rid, cid,
+                                          &err);
     pl_store_close(store);
     free(params);
     if (st || res.refused) { /* a refusal writes no outputs */
@@ -350,13 +289,18 @@ int cmd_register(int argc, char **argv)
     } else {
         st = pl_outfile_commit(aligned_out, &err);
         st = pl_outfile_finish(view_out, st, &err);
+        sum.aligned = aligned_out ? a.aligned : NULL;
+        sum.view = view_out ? a.view : NULL;
     }
     pl_map_free(base);
     pl_map_free(cur);
     pl_map_free(aligned);
-    if (st)
+    if (st) {
+        pl_registration_summary_clear(&sum);
         return cli_fail_err(st, &err);
-    rc = print_result(&a, &pair, &res, rid, cid, &common);
+    }
+    rc = print_result(&sum, &common);
+    pl_registration_summary_clear(&sum);
     if (res.refused) {
         fprintf(stderr, "plyledger: %s site %s: registration refused: %s\n", a.airframe, a.site,
                 res.reason);

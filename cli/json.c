@@ -21,21 +21,11 @@ int cli_print_json(cJSON *value)
     return CLI_OK;
 }
 
-void cli_json_num(cJSON *o, const char *key, double v)
+int cli_print_json_text(int rc, char **text, const pl_err *err)
 {
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-int cli_print_json_text(int rc, char *text, const pl_err *err)
-{
-    if (rc) {
-        free(text);
-        return cli_fail_err(rc, err);
-    }
-    puts(text);
-    free(text);
-    return CLI_OK;
+    if (!rc)
+        puts(*text);
+    free(*text);
+    *text = NULL;
+    return rc ? cli_fail_err(rc, err) : CLI_OK;
 }

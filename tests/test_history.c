@@ -1,6 +1,7 @@
 /*
  * test_history.c - the models behind every output: a site's history built
- * from the store, and its JSON form.
+ * from the store, a registration's summary and a reduction's outcome, and
+ * their JSON forms.
  *
  * External reference: the JSON texts are parsed back by Python's json
  * module (Debian's python3, tests/ref/json_ref.py) as a reader other than
@@ -246,6 +247,122 @@ static void test_history__operators(void **state)
     assert_null(text);
 }
 
+/*
+ * A registration's summary is the registration as recorded, read back, with
+ * the pair it aligned; the registration in it has the one JSON shape the
+ * site's history shows too.
+ */
+static void test_history__registration_summary_has_the_history_shape(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_id m1 = 0, m2 = 0;
+    pl_id k1 = inspect(f->store, "baseline", "2030-02-01", 1.0f, &m1);
+    pl_id k2 = inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m2);
+    pl_record_pair pair = { 0 };
+    TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
+    assert_int_equal(pair.baseline_inspection, k1);
+    assert_int_equal(pair.current_inspection, k2);
+    pl_register_options o = PL_REGISTER_OPTIONS_INIT;
+    o.window = PL_WINDOW_TUKEY;
+    char *params = NULL;
+    TU_OK(pl_record_registration_parameters(&params, NULL, "t=0.5 s", &o, &err));
+    pl_register_result res;
+    memset(&res, 0, sizeof res);
+    res.transform.dx = 1.25;
+    res.transform.dy = -0.5;
+    res.transform.rotation_deg = 0.3;
+    res.transform.scale = 1.0;
+    res.shift_u_mm = 0.625;
+    res.shift_v_mm = -0.25;
+    res.ncc = 0.97;
+    res.psr = 12.5;
+    res.overlap_fraction = 0.9;
+    res.overlap_mm2 = 5.4;
+    pl_id rid = 0, cid = 0;
+    TU_OK(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL, NULL,
+                                 params, &rid, &cid, &err));
+    free(params);
+    assert_int_equal(cid, 0);
+    pl_registration_summary sum;
+    TU_OK(pl_registration_summary_load(&sum, f->store, "HIS-0001", "H01", &pair, rid, cid, &err));
+    assert_string_equal(sum.registration.status, "aligned");
+    assert_true(sum.registration.shift_col_px == 1.25 && sum.registration.ncc == 0.97);
+    sum.view = "view.png";
+    char *text = NULL;
+    TU_OK(pl_registration_summary_json(&text, &sum, &err));
+    pl_registration_summary_clear(&sum);
+    python_agrees(f, text, "transform/shift_col_px", "1.25");
+    python_agrees(f, text, "quality/peak_sidelobe", "12.5");
+    python_agrees(f, text, "parameters/window", "\"tukey\"");
+    python_agrees(f, text, "parameters/label", "\"t=0.5 s\"");
+    python_agrees(f, text, "parameters/quantity", "\"(default)\"");
+    python_agrees(f, text, "current_inspection", "2");
+    python_agrees(f, text, "comparison_not_done", "null");
+    python_agrees(f, text, "aligned", "null");
+    python_agrees(f, text, "view", "\"view.png\"");
+
+    /* the same registration in the history, field for field */
+    cJSON *summary = parse(text);
+    free(text);
+    static const char *const context[] = { "airframe", "site", "baseline_inspection",
+                                           "current_inspection", "comparison_not_done",
+                                           "aligned", "view" };
+    for (size_t i = 0; i < sizeof context / sizeof context[0]; i++)
+        cJSON_DeleteItemFromObjectCaseSensitive(summary, context[i]);
+    pl_history *h = NULL;
+    TU_OK(pl_history_load(&h, f->store, "HIS-0001", "H01", &err));
+    TU_OK(pl_history_json(&text, h, &err));
+    pl_history_free(h);
+    cJSON *hist = parse(text);
+    free(text);
+    cJSON *in_history = cJSON_GetArrayItem(
+        at(cJSON_GetArrayItem(at(cJSON_GetArrayItem(at(hist, "inspections"), 1), "maps"), 0),
+           "registrations"), 0);
+    assert_non_null(in_history);
+    assert_true(cJSON_Compare(summary, in_history, 1));
+    cJSON_Delete(summary);
+    cJSON_Delete(hist);
+
+    /* a registration the store does not hold for that map has no summary */
+    assert_int_equal(pl_registration_summary_load(&sum, f->store, "HIS-0001", "H01", &pair,
+                                                  rid + 5, 0, &err), PL_ENOTFOUND);
+}
+
+/* A reduction's outcome: the maps made, the statistics, the parameters and
+ * where the maps went. */
+static void test_history__reduction_json(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_map *m = NULL;
+    TU_OK(pl_map_new(&m, 5, 3, 2, &err));
+    TU_OK(pl_map_set_channel(m, 0, "temperature-rise", "K", &err));
+    TU_OK(pl_map_set_channel(m, 1, "depth", "mm", &err));
+    strcpy(m->channels[1].label, "peak d2");
+    pl_reduction_summary r;
+    memset(&r, 0, sizeof r);
+    r.sequence = "seq.json";
+    r.map = m;
+    r.stats.frames_used = 200;
+    r.stats.samples_used = 52;
+    r.stats.saturated_values = 3;
+    r.parameters_json = "{\"degree\":10}";
+    r.output = "maps.npy";
+    char *text = NULL;
+    TU_OK(pl_reduction_json(&text, &r, &err));
+    pl_map_free(m);
+    python_agrees(f, text, "width", "5");
+    python_agrees(f, text, "frames_used", "200");
+    python_agrees(f, text, "saturated_values", "3");
+    python_agrees(f, text, "channels/0/quantity", "\"temperature-rise\"");
+    python_agrees(f, text, "channels/1/label", "\"peak d2\"");
+    python_agrees(f, text, "parameters/degree", "10");
+    python_agrees(f, text, "output", "\"maps.npy\"");
+    python_agrees(f, text, "map", "null");
+    free(text);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -253,6 +370,8 @@ int main(void)
         T(test_history__gathers_a_site_oldest_first),
         T(test_history__empty_and_unknown_sites),
         T(test_history__operators),
+        T(test_history__registration_summary_has_the_history_shape),
+        T(test_history__reduction_json),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

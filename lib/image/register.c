@@ -20,7 +20,7 @@
 #include <string.h>
 
 #define MIN_SIDE 16u
-#define MAX_UPSAMPLE 1000u
+#define MAX_UPSAMPLE PL_REGISTER_MAX_UPSAMPLE
 #define PARALLEL_MIN_PIXELS 32768u /* below this one thread is quicker */
 #define PSR_HALF 5                 /* the 11 x 11 window around the peak */
 
@@ -1833,8 +1833,8 @@ static int find_channel(const pl_map *m, const char *quantity, const char *label
 }
 
 /* The channel of each map to register on (see pl_register_maps()). */
-static int choose_channels(int *ib, int *ic, const pl_map *b, const pl_map *c,
-                           const char *quantity, const char *label, pl_err *err)
+PL_EXPORT int pl_register_channels(int *ib, int *ic, const pl_map *b, const pl_map *c,
+                                   const char *quantity, const char *label, pl_err *err)
 {
     static const char *const pref[] = { "phase", "temperature-contrast" };
     if (!quantity)
@@ -1966,7 +1966,7 @@ int pl_register_maps(pl_register_result *res, pl_map **aligned, const pl_map *ba
     pl_register_options o;
     int rc, ib, ic;
     if ((rc = check_options(&o, opts, err)) || (rc = maps_ok(baseline, current, err))
-        || (rc = choose_channels(&ib, &ic, baseline, current, quantity, label, err))
+        || (rc = pl_register_channels(&ib, &ic, baseline, current, quantity, label, err))
         || (rc = pl_register__nominal(&res->nominal, baseline, current, err)))
         return rc;
     uint32_t w = baseline->width, h = baseline->height;
@@ -2013,7 +2013,7 @@ int pl_register_apply(pl_register_result *res, pl_map **aligned, const pl_map *b
     if (interp != PL_INTERP_BICUBIC && interp != PL_INTERP_BILINEAR)
         return pl__err(err, PL_EINVAL, "registration: unknown interpolation %d", (int)interp);
     if ((rc = maps_ok(baseline, current, err))
-        || (rc = choose_channels(&ib, &ic, baseline, current, quantity, label, err)))
+        || (rc = pl_register_channels(&ib, &ic, baseline, current, quantity, label, err)))
         return rc;
     if (pl_register__nominal(&res->nominal, baseline, current, NULL)) {
         res->nominal.dx = res->nominal.dy = NAN;

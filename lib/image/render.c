@@ -743,12 +743,14 @@ static int options_of(pl_render_options *o, const pl_render_options *opts, pl_er
     if (opts->version == 1) {
         memcpy(o, opts, offsetof(pl_render_options, identification));
         o->version = PL_RENDER_OPTIONS_VERSION;
-        return PL_OK;
-    }
-    if (opts->version != PL_RENDER_OPTIONS_VERSION)
+    } else if (opts->version != PL_RENDER_OPTIONS_VERSION) {
         return pl__err(err, PL_EINVAL, "render options version %u is not 1 or %u",
                        opts->version, PL_RENDER_OPTIONS_VERSION);
-    *o = *opts;
+    } else {
+        *o = *opts;
+    }
+    if (o->zoom > PL_RENDER_MAX_ZOOM)
+        return pl__err(err, PL_EINVAL, "zoom %u is above %u", o->zoom, PL_RENDER_MAX_ZOOM);
     return PL_OK;
 }
 

@@ -256,3 +256,141 @@ PL_EXPORT int pl_operators_json(char **out, pl_store *store, const char *serial,
     release_all(g.t, g.items, g.n);
     return rc ? rc : pl_row__print_json(out, root, err);
 }
+
+/* ---- a registration's summary ----------------------------------------------------- */
+
+typedef struct find_registration {
+    pl_id id;
+    pl_registration_record *out;
+    int found, oom;
+} find_registration;
+
+static int on_summary_registration(void *ud, const pl_registration_record *g)
+{
+    find_registration *f = ud;
+    if (g->id != f->id)
+        return 0;
+    f->found = 1;
+    f->oom = pl_row__copy(pl_row__table(PL_TABLE_REGISTRATION), f->out, g) != PL_OK;
+    return 1;
+}
+
+PL_EXPORT int pl_registration_summary_load(pl_registration_summary *out, pl_store *store,
+                                           const char *serial, const char *code,
+                                           const pl_record_pair *pair, pl_id registration_id,
+                                           pl_id comparison_id, pl_err *err)
+{
+    assert(out && store && pair);
+    memset(out, 0, sizeof *out);
+    snprintf(out->airframe_serial, sizeof out->airframe_serial, "%s", serial ? serial : "");
+    snprintf(out->site_code, sizeof out->site_code, "%s", code ? code : "");
+    out->pair = *pair;
+    out->comparison_not_done = comparison_id;
+    find_registration f = { registration_id, &out->registration, 0, 0 };
+    int rc = pl_store_list_registrations(store, pair->current_map, on_summary_registration, &f,
+                                         err);
+    if (!rc && f.oom)
+        rc = pl__err(err, PL_ENOMEM, "out of memory");
+    if (!rc && !f.found)
+        rc = pl__err(err, PL_ENOTFOUND, "registration %lld of map %lld: not recorded",
+                     (long long)registration_id, (long long)pair->current_map);
+    if (rc)
+        memset(out, 0, sizeof *out);
+    return rc;
+}
+
+PL_EXPORT void pl_registration_summary_clear(pl_registration_summary *s)
+{
+    if (!s)
+        return;
+    pl_row__release(pl_row__table(PL_TABLE_REGISTRATION), &s->registration);
+    memset(s, 0, sizeof *s);
+}
+
+/* Text under `key`, or null when it is NULL; 0 when out of memory. */
+static int add_text_or_null(cJSON *o, const char *key, const char *v)
+{
+    return v ? cJSON_AddStringToObject(o, key, v) != NULL : cJSON_AddNullToObject(o, key) != NULL;
+}
+
+static int add_id_or_null(cJSON *o, const char *key, pl_id v)
+{
+    return v ? cJSON_AddNumberToObject(o, key, (double)v) != NULL
+             : cJSON_AddNullToObject(o, key) != NULL;
+}
+
+/* `o` with `first` before its own items; NULL (and o deleted) when out of
+ * memory. */
+static cJSON *prepend(cJSON *first, cJSON *o)
+{
+    if (!first || !o) {
+        cJSON_Delete(first);
+        cJSON_Delete(o);
+        return NULL;
+    }
+    while (o->child) {
+        cJSON *item = cJSON_DetachItemViaPointer(o, o->child);
+        char *key = item->string; /* moved over: cJSON would free it first */
+        item->string = NULL;
+        int ok = cJSON_AddItemToObject(first, key, item);
+        cJSON_free(key);
+        if (!ok) {
+            cJSON_Delete(item);
+            cJSON_Delete(o);
+            cJSON_Delete(first);
+            return NULL;
+        }
+    }
+    cJSON_Delete(o);
+    return first;
+}
+
+PL_EXPORT int pl_registration_summary_json(char **out, const pl_registration_summary *s,
+                                           pl_err *err)
+{
+    assert(out && s);
+    cJSON *head = cJSON_CreateObject();
+    int ok = head && cJSON_AddStringToObject(head, "airframe", s->airframe_serial)
+             && cJSON_AddStringToObject(head, "site", s->site_code)
+             && add_id_or_null(head, "baseline_inspection", s->pair.baseline_inspection)
+             && add_id_or_null(head, "current_inspection", s->pair.current_inspection);
+    cJSON *o = prepend(ok ? head : (cJSON_Delete(head), NULL),
+                       pl_row__json(pl_row__table(PL_TABLE_REGISTRATION), &s->registration));
+    if (o && !(add_id_or_null(o, "comparison_not_done", s->comparison_not_done)
+               && add_text_or_null(o, "aligned", s->aligned)
+               && add_text_or_null(o, "view", s->view))) {
+        cJSON_Delete(o);
+        o = NULL;
+    }
+    return pl_row__print_json(out, o, err);
+}
+
+/* ---- a reduction's outcome ------------------------------------------------------------- */
+
+PL_EXPORT int pl_reduction_json(char **out, const pl_reduction_summary *r, pl_err *err)
+{
+    assert(out && r && r->map);
+    const pl_map *m = r->map;
+    cJSON *o = cJSON_CreateObject();
+    int ok = o && add_text_or_null(o, "sequence", r->sequence)
+             && cJSON_AddNumberToObject(o, "width", m->width)
+             && cJSON_AddNumberToObject(o, "height", m->height)
+             && cJSON_AddNumberToObject(o, "frames_used", r->stats.frames_used)
+             && cJSON_AddNumberToObject(o, "samples_used", r->stats.samples_used)
+             && cJSON_AddNumberToObject(o, "saturated_values", (double)r->stats.saturated_values)
+             && cJSON_AddNumberToObject(o, "pixels_masked", r->stats.pixels_masked)
+             && cJSON_AddNumberToObject(o, "pixels_partial", r->stats.pixels_partial)
+             && add_records(o, "channels", PL_TABLE_MAP_CHANNEL, m->channels, m->nchannels,
+                            sizeof *m->channels);
+    cJSON *params = ok && r->parameters_json ? cJSON_Parse(r->parameters_json) : NULL;
+    ok = ok && (params ? cJSON_AddItemToObject(o, "parameters", params)
+                       : (cJSON_AddNullToObject(o, "parameters") != NULL));
+    ok = ok && add_text_or_null(o, "output", r->output)
+         && add_id_or_null(o, "inspection", r->inspection_key)
+         && add_id_or_null(o, "map", r->map_id);
+    if (!ok) {
+        cJSON_Delete(o);
+        o = NULL;
+    }
+    return pl_row__print_json(out, o, err);
+}

@@ -792,3 +792,34 @@ PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair
         *comparison_id = cid;
     return PL_OK;
 }
+
+static const char *window_name(pl_window w)
+{
+    return w == PL_WINDOW_TUKEY ? "tukey" : w == PL_WINDOW_NONE ? "none" : "hann";
+}
+
+PL_EXPORT int pl_record_registration_parameters(char **out, const char *quantity,
+                                                const char *label,
+                                                const pl_register_options *opts, pl_err *err)
+{
+    pl_register_options defaults = PL_REGISTER_OPTIONS_INIT;
+    const pl_register_options *o = opts ? opts : &defaults;
+    cJSON *j = cJSON_CreateObject();
+    int ok = j && cJSON_AddStringToObject(j, "quantity", quantity ? quantity : "(default)");
+    if (ok && label)
+        ok = cJSON_AddStringToObject(j, "label", label) != NULL;
+    ok = ok && cJSON_AddNumberToObject(j, "upsample", o->upsample)
+         && cJSON_AddBoolToObject(j, "rotation", o->rotation)
+         && cJSON_AddBoolToObject(j, "scale", o->scale)
+         && cJSON_AddStringToObject(j, "window", window_name(o->window));
+    if (ok && o->window == PL_WINDOW_TUKEY)
+        ok = cJSON_AddNumberToObject(j, "tukey_alpha", o->tukey_alpha) != NULL;
+    ok = ok && cJSON_AddStringToObject(j, "interp",
+                                       o->interp == PL_INTERP_BILINEAR ? "bilinear" : "bicubic")
+         && cJSON_AddNumberToObject(j, "min_ncc", o->min_ncc)
+         && cJSON_AddNumberToObject(j, "min_psr", o->min_psr)
+         && cJSON_AddNumberToObject(j, "max_rotation_deg", o->max_rotation_deg);
+    *out = ok ? cJSON_PrintUnformatted(j) : NULL;
+    cJSON_Delete(j);
+    return *out ? PL_OK : pl__err(err, PL_ENOMEM, "out of memory");
+}

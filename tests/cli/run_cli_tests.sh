@@ -248,6 +248,7 @@ run "export render" 0 ply export-map --map "$BASE_MAP" --format render --output 
 run "export bad channel" 1 ply export-map --map "$BASE_MAP" --channel 3 --output "$WORK/x.png"
 run "export no map" 1 ply export-map --map 9999 --output "$WORK/x.npy"
 run "export bad format" 2 ply export-map --map "$BASE_MAP" --output "$WORK/x.tif"
+run "export zoom beyond the library's limit" 2 ply export-map --map "$BASE_MAP" --format render --zoom 65 --output "$WORK/x.png"
 
 # ---- corrections -------------------------------------------------------------------
 
@@ -421,12 +422,24 @@ w, h, _, info = png.Reader(filename=d + "/view.png").read()
 assert w > 96 and not info["greyscale"]
 PY
 run "register history" 0 ply history --airframe TST-0002 --site T04 && expect_out "register history" "(aligned): shift"
+# history and register --json describe a registration in one shape
+ply register --airframe TST-0002 --site T04 --no-rotation --json >"$WORK/register.json" || fail "register --json again"
+run "register history json" 0 ply history --airframe TST-0002 --site T04 --json
+"$PY" - "$WORK/register.json" "$WORK/out" <<'PY' || fail "register --json and history --json differ for one registration"
+import json, sys
+r = json.load(open(sys.argv[1]))
+h = json.load(open(sys.argv[2]))
+g = [x for x in h["inspections"][-1]["maps"][0]["registrations"] if x["registration"] == r["registration"]][0]
+for k in ("airframe", "site", "baseline_inspection", "current_inspection", "comparison_not_done", "aligned", "view"):
+    del r[k]
+assert r == g, (r, g)
+PY
 # A refusal is an outcome, recorded with the comparison it stops: exit 1,
 # one line saying why, and the record shows both.
 run "register refused" 1 ply register --airframe TST-0002 --site T04 --min-ncc 0.9999 \
     && expect_one_line_err "register refused" "refused" "correlation"
 run "register refused summary" 0 ply summary --json
-"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["registrations"]==2 and s["comparisons"]==1, s' "$WORK/out" \
+"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["registrations"]==3 and s["comparisons"]==1, s' "$WORK/out" \
     || fail "register refused: the refusal and the comparison not done must be recorded"
 run "register manual" 0 ply register --airframe TST-0002 --site T04 --manual 1.5,-1,0.6 \
     --by "A. Engineer" --why "checked against the stringer edges" --json
@@ -435,6 +448,7 @@ run "register manual" 0 ply register --airframe TST-0002 --site T04 --manual 1.5
 bad "register manual without who" 2 "--by" ply register --airframe TST-0002 --site T04 --manual 3,-2,0.6
 bad "register no later inspection" 1 "no inspection after its baseline" ply register --airframe TST-0002 --site T01
 bad "register unknown site" 1 "T99" ply register --airframe TST-0002 --site T99
+bad "register upsample beyond the library's limit" 2 "--upsample" ply register --airframe TST-0002 --site T04 --upsample 1001
 
 # ---- outputs never land on the store ---------------------------------------------
 # Every option that writes a file, pointed at the store or at the files SQLite

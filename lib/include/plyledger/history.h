@@ -18,6 +18,8 @@
 
 #include "plyledger/common.h"
 #include "plyledger/map.h"
+#include "plyledger/record.h"
+#include "plyledger/reduce.h"
 #include "plyledger/store.h"
 
 #ifdef __cplusplus
@@ -76,6 +78,70 @@ PL_EXPORT int pl_history_json(char **out, const pl_history *history, pl_err *err
  * @return PL_OK, PL_ENOTFOUND, PL_EDB, PL_ENOMEM.
  */
 PL_EXPORT int pl_operators_json(char **out, pl_store *store, const char *serial, pl_err *err);
+
+/* ---- a registration's summary ------------------------------------------ */
+
+/** What one registration of a site did, as recorded. */
+typedef struct pl_registration_summary {
+    char airframe_serial[PL_NAME_SIZE];
+    char site_code[PL_NAME_SIZE];
+    pl_record_pair pair;                   /**< the inspections and maps aligned */
+    pl_registration_record registration;   /**< as recorded; parameters_json owned */
+    pl_id comparison_not_done;             /**< the comparison it stopped, or 0 */
+    const char *aligned;                   /**< file the aligned map went to, or NULL
+                                                (borrowed; set by the caller) */
+    const char *view;                      /**< file the picture went to, or NULL (idem) */
+} pl_registration_summary;
+
+/**
+ * The summary of registration `registration_id` (made of `pair` of site
+ * `code` on `serial`), read back from the store; `comparison_id` is the
+ * comparison it stopped (0: none).
+ * @param[out] out  release with pl_registration_summary_clear()
+ * @return PL_OK, PL_ENOTFOUND (no such registration of that map), PL_EDB,
+ *         PL_ENOMEM.
+ */
+PL_EXPORT int pl_registration_summary_load(pl_registration_summary *out, pl_store *store,
+                                           const char *serial, const char *code,
+                                           const pl_record_pair *pair, pl_id registration_id,
+                                           pl_id comparison_id, pl_err *err);
+
+/** Free what a load put in `summary` and zero it; NULL is accepted. */
+PL_EXPORT void pl_registration_summary_clear(pl_registration_summary *summary);
+
+/**
+ * A summary as JSON: "airframe", "site", "baseline_inspection",
+ * "current_inspection", the registration in its pl_row_json() form (the
+ * same shape a history shows), "comparison_not_done", "aligned" and "view"
+ * (null when absent).
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_registration_summary_json(char **out, const pl_registration_summary *summary,
+                                           pl_err *err);
+
+/* ---- a reduction's outcome --------------------------------------------- */
+
+/** What one reduction of a sequence made; every pointer is borrowed. */
+typedef struct pl_reduction_summary {
+    const char *sequence;          /**< the manifest reduced */
+    const pl_map *map;             /**< the maps it made */
+    pl_reduce_stats stats;
+    const char *parameters_json;   /**< the reduction's parameters (a JSON object) */
+    const char *output;            /**< file the maps went to, or NULL */
+    pl_id inspection_key;          /**< the inspection recorded, or 0 */
+    pl_id map_id;                  /**< the map recorded, or 0 */
+} pl_reduction_summary;
+
+/**
+ * A reduction as JSON: "sequence", "width", "height", the statistics
+ * ("frames_used", "samples_used", "saturated_values", "pixels_masked",
+ * "pixels_partial"), "channels" (each in its pl_row_json() form),
+ * "parameters", "output", "inspection" and "map" (null when absent).
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_reduction_json(char **out, const pl_reduction_summary *reduction, pl_err *err);
 
 #ifdef __cplusplus
 }

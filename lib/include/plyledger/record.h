@@ -174,6 +174,17 @@ PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair
                                      const char *supplied_reason, const char *parameters_json,
                                      pl_id *registration_id, pl_id *comparison_id, pl_err *err);
 
+/**
+ * The parameters recorded with a registration: the channel asked for
+ * (`quantity`, `label`; NULL for the default) and the options used.
+ * @param[out] out  a JSON object; free with free()
+ * @param opts      the options, or NULL for PL_REGISTER_OPTIONS_INIT
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_record_registration_parameters(char **out, const char *quantity,
+                                                const char *label,
+                                                const pl_register_options *opts, pl_err *err);
+
 #ifdef __cplusplus
 }
 #endif

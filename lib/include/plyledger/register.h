@@ -144,7 +144,8 @@ typedef struct pl_transform {
 /** Options. Initialise with PL_REGISTER_OPTIONS_INIT. */
 typedef struct pl_register_options {
     unsigned version;         /**< PL_REGISTER_OPTIONS_VERSION */
-    unsigned upsample;        /**< sub-pixel refinement factor (default 100) */
+    unsigned upsample;        /**< sub-pixel refinement factor, 1 to
+                                   PL_REGISTER_MAX_UPSAMPLE (default 100) */
     int rotation;             /**< 1: estimate rotation (and scale) first (default) */
     int scale;                /**< 1: estimate scale too (default 0: pitches are known) */
     pl_window window;         /**< default PL_WINDOW_HANN */
@@ -161,6 +162,8 @@ typedef struct pl_register_options {
 } pl_register_options;
 
 #define PL_REGISTER_OPTIONS_VERSION 1
+/** Largest sub-pixel refinement factor (upsample) accepted. */
+#define PL_REGISTER_MAX_UPSAMPLE 1000u
 /**
  * Default quality limits, chosen by measurement (tests/test_register.c,
  * above test_register__quality_limits_separate_pairs, has the table).
@@ -228,6 +231,18 @@ PL_EXPORT int pl_register_images(pl_register_result *res, const float *fixed, co
 PL_EXPORT int pl_register_resample(float *out, uint32_t fw, uint32_t fh, const float *moving,
                                    uint32_t mw, uint32_t mh, const pl_transform *t,
                                    pl_interp interp, pl_err *err);
+
+/**
+ * The channel of each map that pl_register_maps() registers on for
+ * `quantity` and `label` (the rule is there), so that a picture or a report
+ * shows the same one.
+ * @param[out] baseline_channel  its index in `baseline`
+ * @param[out] current_channel   its index in `current`
+ * @return PL_OK, PL_ENOTFOUND (no such channel in one of the maps).
+ */
+PL_EXPORT int pl_register_channels(int *baseline_channel, int *current_channel,
+                                   const pl_map *baseline, const pl_map *current,
+                                   const char *quantity, const char *label, pl_err *err);
 
 /**
  * Register map `current` onto map `baseline` using the channel holding

@@ -73,8 +73,9 @@ typedef struct pl_render_options {
     pl_colormap colormap;  /**< default PL_COLORMAP_LEDGER */
     double vmin;           /**< value at the dark end; NaN: 1st percentile */
     double vmax;           /**< value at the light end; NaN: 99th percentile */
-    unsigned zoom;         /**< integer magnification of map pixels; 0: automatic
-                                (smallest making the map at least 256 px wide) */
+    unsigned zoom;         /**< integer magnification of map pixels, at most
+                                PL_RENDER_MAX_ZOOM; 0: automatic (smallest making
+                                the map at least 256 px wide) */
     int colorbar;          /**< draw the colour bar with its labels */
     int scalebar;          /**< draw the scale bar in mm */
     /* version 2 */
@@ -91,6 +92,8 @@ typedef struct pl_render_options {
 /** Version 2 added `identification` and `simulated`; version 1 options
  * (the struct without them) are still accepted. */
 #define PL_RENDER_OPTIONS_VERSION 2
+/** Largest zoom accepted. */
+#define PL_RENDER_MAX_ZOOM 64u
 #define PL_RENDER_OPTIONS_INIT \
     { PL_RENDER_OPTIONS_VERSION, PL_COLORMAP_LEDGER, NAN, NAN, 0, 1, 1, NULL, 0 }
 
