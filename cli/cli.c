@@ -43,9 +43,35 @@ int cli_usage_error(const char *usage, const char *fmt, ...)
     return CLI_USAGE;
 }
 
+/* The words help text names by a placeholder: they come from the library's
+ * vocabularies, so help never lists words the library does not take. */
+static const struct {
+    const char *token;
+    pl_vocab vocab;
+} help_words[] = {
+    { "@KINDS@", PL_VOCAB_INSPECTION_KIND },
+    { "@METHODS@", PL_VOCAB_METHOD },
+};
+
 int cli_help(const char *text)
 {
-    fputs(text, stdout);
+    for (const char *p = text; *p;) {
+        const char *at = strchr(p, '@');
+        size_t i = 0, n = sizeof help_words / sizeof help_words[0];
+        while (at && i < n && strncmp(at, help_words[i].token, strlen(help_words[i].token)))
+            i++;
+        if (!at || i == n) {
+            size_t len = at ? (size_t)(at - p) + 1 : strlen(p);
+            fwrite(p, 1, len, stdout);
+            p += len;
+            continue;
+        }
+        fwrite(p, 1, (size_t)(at - p), stdout);
+        char words[256];
+        pl_vocabulary_text(words, sizeof words, help_words[i].vocab, " or ");
+        fputs(words, stdout);
+        p = at + strlen(help_words[i].token);
+    }
     return CLI_OK;
 }
 

@@ -53,7 +53,8 @@ int cli_fail_err(int code, const pl_err *err);
  * returns CLI_USAGE. */
 int cli_usage_error(const char *usage, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 
-/* Print help text to stdout; returns CLI_OK. */
+/* Print help text to stdout, "@KINDS@" and "@METHODS@" replaced by the
+ * inspection kinds and methods of the library's vocabularies; returns CLI_OK. */
 int cli_help(const char *text);
 
 /*

@@ -235,7 +235,7 @@ static const char insp_help[] =
     "Options:\n"
     "      --airframe SERIAL  only this airframe\n"
     "      --site CODE        only this site (with --airframe)\n"
-    "      --kind KIND        baseline, scheduled, unscheduled or post-repair\n"
+    "      --kind KIND        @KINDS@\n"
     "      --from DATE        performed on or after DATE (YYYY-MM-DD)\n"
     "      --to DATE          performed on or before DATE\n"
     "  -s, --store PATH       the store (default $PLYLEDGER_STORE)\n"

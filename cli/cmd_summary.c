@@ -18,8 +18,6 @@ static const char help[] =
     "      --json         print JSON\n"
     "  -h, --help         show this help\n";
 
-static const char *const kinds[4] = { "baseline", "scheduled", "unscheduled", "post-repair" };
-
 int cmd_summary(int argc, char **argv)
 {
     cli_common common;
@@ -34,6 +32,7 @@ int cmd_summary(int argc, char **argv)
         return rc;
     pl_store_summary s;
     pl_err err = { 0 };
+    const pl_vocabulary *kinds = pl_vocabulary_get(PL_VOCAB_INSPECTION_KIND);
     int st = pl_store_summarize(store, &s, &err);
     pl_store_close(store);
     if (st)
@@ -49,8 +48,8 @@ int cmd_summary(int argc, char **argv)
         cJSON_AddNumberToObject(o, "sites", (double)s.sites);
         cJSON_AddNumberToObject(o, "inspections", (double)s.inspections);
         cJSON *by = cJSON_AddObjectToObject(o, "inspections_by_kind");
-        for (int i = 0; i < 4; i++)
-            cJSON_AddNumberToObject(by, kinds[i], (double)s.inspections_by_kind[i]);
+        for (size_t i = 0; i < kinds->count; i++)
+            cJSON_AddNumberToObject(by, kinds->words[i], (double)s.inspections_by_kind[i]);
         cJSON_AddNumberToObject(o, "maps", (double)s.maps);
         cJSON_AddNumberToObject(o, "map_bytes", (double)s.map_bytes);
         cJSON_AddNumberToObject(o, "corrections", (double)s.corrections);
@@ -73,10 +72,10 @@ int cmd_summary(int argc, char **argv)
            s.schema_version, s.created_at, s.created_by);
     printf("airframes    %lld\n", (long long)s.airframes);
     printf("sites        %lld\n", (long long)s.sites);
-    printf("inspections  %lld (baseline %lld, scheduled %lld, unscheduled %lld, post-repair %lld)\n",
-           (long long)s.inspections, (long long)s.inspections_by_kind[0],
-           (long long)s.inspections_by_kind[1], (long long)s.inspections_by_kind[2],
-           (long long)s.inspections_by_kind[3]);
+    printf("inspections  %lld (", (long long)s.inspections);
+    for (size_t i = 0; i < kinds->count; i++)
+        printf("%s%s %lld", i ? ", " : "", kinds->words[i], (long long)s.inspections_by_kind[i]);
+    printf(")\n");
     if (s.first_inspection[0])
         printf("performed    %s to %s\n", s.first_inspection, s.last_inspection);
     printf("maps         %lld (%.1f MiB stored)\n", (long long)s.maps,

@@ -12,7 +12,7 @@ const char cli_inspection_help[] =
     "What was inspected:\n"
     "      --airframe SERIAL     the airframe\n"
     "      --site CODE           the site\n"
-    "      --kind KIND           baseline, scheduled, unscheduled or post-repair\n"
+    "      --kind KIND           @KINDS@\n"
     "      --date DATE           date performed, YYYY-MM-DD\n"
     "      --task REF            maintenance task or check reference\n"
     "      --hours N             aircraft flight hours at the inspection\n"

@@ -360,6 +360,59 @@ static void test_record__registration_pair_and_outcome(void **state)
     pl_map_free(back);
 }
 
+/*
+ * Every quantity a reduction records is one `plyledger quantities` lists,
+ * with a unit it accepts: the reducer and the vocabulary agree. The frames
+ * are the semi-infinite body's cooling after a flash, dT = 1 / sqrt(t)
+ * (Carslaw & Jaeger, Conduction of Heat in Solids, 2nd ed., 1959, §10.3),
+ * with every product at one time, depth and pulse phase asked for.
+ */
+static void test_record__reduced_quantities_are_in_the_vocabulary(void **state)
+{
+    (void)state;
+    pl_err err = { 0 };
+    enum { W = 8, H = 8, N = 800, PRE = 5 };
+    double *times = malloc(N * sizeof *times);
+    float *frame = malloc(W * H * sizeof *frame);
+    assert_non_null(times);
+    assert_non_null(frame);
+    for (int i = 0; i < N; i++)
+        times[i] = (i - PRE + 1) * 0.02;
+    double at[1] = { 0.5 };
+    pl_reduce_options o = PL_REDUCE_OPTIONS_INIT;
+    o.times_s = at;
+    o.ntimes = 1;
+    o.time_products = PL_REDUCE_AT_ALL;
+    o.diffusivity_mm2_s = 0.42;
+    o.depth_method = PL_DEPTH_BOTH;
+    o.threads = 1;
+    pl_reducer *r = NULL;
+    TU_OK(pl_reducer_new(&r, W, H, times, N, PRE, &o, &err));
+    for (uint32_t i = 0; i < N; i++) {
+        if (!pl_reducer_frame_needed(r, i))
+            continue;
+        for (int p = 0; p < W * H; p++)
+            frame[p] = 293.15f + (times[i] > 0
+                                      ? (float)(1.0 / sqrt(times[i])) * (1.0f + 0.01f * (float)p)
+                                      : 0.0f);
+        TU_OK(pl_reducer_frame(r, i, frame, &err));
+    }
+    pl_map *m = NULL;
+    TU_OK(pl_reducer_finish(r, &m, NULL, &err));
+    pl_reducer_free(r);
+    assert_true(m->nchannels >= 10);
+    for (uint32_t c = 0; c < m->nchannels; c++) {
+        const pl_quantity_info *q = pl_quantity_lookup(m->channels[c].quantity);
+        if (!q)
+            fail_msg("channel %u: quantity %s is not in the vocabulary", c,
+                     m->channels[c].quantity);
+        TU_OK(pl_quantity_check(m->channels[c].quantity, m->channels[c].unit, &err));
+    }
+    pl_map_free(m);
+    free(frame);
+    free(times);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -369,6 +422,7 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_record__apply_is_all_or_nothing, setup, teardown),
         cmocka_unit_test(test_record__add_map_checks_lists),
         cmocka_unit_test_setup_teardown(test_record__registration_pair_and_outcome, setup, teardown),
+        cmocka_unit_test(test_record__reduced_quantities_are_in_the_vocabulary),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -1708,6 +1708,242 @@ static void test_store__registrations_and_comparisons(void **state)
     check_integrity(f->path);
 }
 
+/* ---- vocabularies and the previous schema ------------------------------------------ */
+
+/* The quoted words of the first "<opener> ... )" list in `sql` (as
+ * 'a', 'b'), NUL-separated into words[] (room for n). Returns the count. */
+static int sql_list(const char *sql, const char *opener, char words[][64], int n)
+{
+    const char *p = strstr(sql, opener);
+    if (!p)
+        fail_msg("no '%s' in %s", opener, sql);
+    p += strlen(opener);
+    int k = 0;
+    while (*p && *p != ')') {
+        if (*p++ != '\'')
+            continue;
+        const char *end = strchr(p, '\'');
+        assert_non_null(end);
+        assert_true(k < n && end - p < 64);
+        memcpy(words[k], p, (size_t)(end - p));
+        words[k++][end - p] = '\0';
+        p = end + 1;
+    }
+    return k;
+}
+
+/*
+ * Every closed vocabulary has one source, the library: the schema's CHECK
+ * lists (inspection kinds, registration and comparison statuses) and the
+ * trigger on site methods carry the same words in the same order, and the
+ * trigger refuses a word the vocabulary lacks while taking each it has.
+ */
+static void test_store__schema_checks_equal_the_vocabularies(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    pl_store_close(f->st);
+    f->st = NULL;
+    sqlite3 *db = raw_open(f->path);
+    static const struct {
+        const char *object, *opener;
+        pl_vocab vocab;
+    } lists[] = {
+        { "inspection", "kind IN (", PL_VOCAB_INSPECTION_KIND },
+        { "registration", "status IN (", PL_VOCAB_REGISTRATION_STATUS },
+        { "comparison", "status IN (", PL_VOCAB_COMPARISON_STATUS },
+        { "site_method_known", "NEW.method NOT IN (", PL_VOCAB_METHOD },
+    };
+    for (size_t i = 0; i < sizeof lists / sizeof lists[0]; i++) {
+        char *q = sqlite3_mprintf("SELECT sql FROM sqlite_master WHERE name = '%q'",
+                                  lists[i].object);
+        char *sql = raw_text(db, q);
+        sqlite3_free(q);
+        char words[16][64];
+        int n = sql_list(sql, lists[i].opener, words, 16);
+        const pl_vocabulary *v = pl_vocabulary_get(lists[i].vocab);
+        if ((size_t)n != v->count)
+            fail_msg("%s: %d words in the schema, %zu in the library", lists[i].object, n,
+                     v->count);
+        for (int k = 0; k < n; k++)
+            assert_string_equal(words[k], v->words[k]);
+        free(sql);
+    }
+    assert_int_equal(pl_vocabulary_get(PL_VOCAB_INSPECTION_KIND)->count,
+                     PL_INSPECTION_KIND_COUNT);
+    assert_null(pl_vocabulary_get(PL_VOCAB_COUNT));
+    char text[128];
+    pl_vocabulary_text(text, sizeof text, PL_VOCAB_INSPECTION_KIND, " or ");
+    assert_string_equal(text, "baseline, scheduled, unscheduled or post-repair");
+
+    /* the trigger: every method of the vocabulary goes in, another does not */
+    const pl_vocabulary *m = pl_vocabulary_get(PL_VOCAB_METHOD);
+    for (size_t k = 0; k <= m->count; k++) {
+        char *sql = sqlite3_mprintf(
+            "INSERT INTO site (airframe_key, code, method, coord_system, coord_unit, origin_x, "
+            "origin_y, origin_z, u_x, u_y, u_z, v_x, v_y, v_z, width_px, height_px, pitch_u_mm, "
+            "pitch_v_mm, recorded_at) VALUES (1, 'M%02d', '%q', 'STA/BL/WL', 'mm', 0, 0, 0, 1, "
+            "0, 0, 0, 1, 0, 0, 0, 1, 1, 'now')", (int)k,
+            k < m->count ? m->words[k] : "x-ray");
+        int rc = sqlite3_exec(db, sql, NULL, NULL, NULL);
+        sqlite3_free(sql);
+        if (k < m->count) {
+            assert_int_equal(rc, SQLITE_OK);
+        } else {
+            assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+            assert_int_equal(pl_store__status(SQLITE_CONSTRAINT_TRIGGER, sqlite3_errmsg(db)),
+                             PL_EINVAL);
+        }
+    }
+    sqlite3_close(db);
+    (void)err;
+}
+
+/* A store of schema version `version`: the migrations up to it applied by
+ * hand, as that plyledger left it (identity and history rows included). */
+static void make_old_store(const char *path, int version)
+{
+    sqlite3 *db = raw_open(path);
+    char sql[256];
+    snprintf(sql, sizeof sql, "PRAGMA application_id = %d", PL_STORE_APPLICATION_ID);
+    raw_exec(db, sql);
+    raw_exec(db, "PRAGMA journal_mode = WAL");
+    for (int i = 0; i < version; i++) {
+        raw_exec(db, pl__migrations[i].sql);
+        snprintf(sql, sizeof sql, "INSERT INTO store_info (name, value) VALUES ('schema.%04d', "
+                 "'%s applied 2030-01-01T00:00:00.000Z by plyledger 0.1.0')", i + 1,
+                 pl__migrations[i].name);
+        raw_exec(db, sql);
+    }
+    snprintf(sql, sizeof sql, "PRAGMA user_version = %d", version);
+    raw_exec(db, sql);
+    raw_exec(db, "INSERT INTO store_info (name, value) VALUES ('store_id', "
+             "'0123456789abcdef0123456789abcdef'), ('created_at', '2030-01-01T00:00:00.000Z'), "
+             "('created_by', '0.1.0')");
+    sqlite3_close(db);
+}
+
+/*
+ * A store written by the previous schema (version 1) opens, migrates to
+ * this library's version, records the migration, and keeps every row of
+ * every table exactly; its records read back through the library, and the
+ * new rule (known methods only) holds from then on.
+ */
+static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    assert_true(PL_STORE_SCHEMA_VERSION >= 2);
+    char *old = tu_path(f->dir, "old.db");
+    make_old_store(old, PL_STORE_SCHEMA_VERSION - 1);
+    pl_map *m = test_map(8, 6, 2, 1.0f);
+    unsigned char *blob = NULL, digest[PL_SHA256_SIZE];
+    size_t blob_len = 0;
+    char hex[PL_SHA256_HEX_SIZE];
+    TU_OK(pl_map_encode(&blob, &blob_len, digest, m, &err));
+    pl_sha256_hex(hex, digest);
+    sqlite3 *db = raw_open(old);
+    raw_exec(db, "PRAGMA foreign_keys = ON;"
+             "INSERT INTO airframe (serial, aircraft_type, manufactured, recorded_at) VALUES "
+             "('OLD-0001', 'TX-1', '2029-01-02', '2030-01-01T00:00:01.000Z');"
+             "INSERT INTO airframe_operator (airframe_key, operator_name, since, recorded_at) "
+             "VALUES (1, 'Operator A', '2029-01-02', '2030-01-01T00:00:01.000Z');"
+             "INSERT INTO site (airframe_key, code, method, coord_system, coord_unit, origin_x, "
+             "origin_y, origin_z, u_x, u_y, u_z, v_x, v_y, v_z, width_px, height_px, pitch_u_mm, "
+             "pitch_v_mm, recorded_at) VALUES (1, 'F01', 'flash-thermography', 'STA/BL/WL', "
+             "'mm', 5200, -48, 3480, 1, 0, 0, 0, 1, 0, 8, 6, 0.5, 0.5, "
+             "'2030-01-01T00:00:02.000Z');"
+             "INSERT INTO inspection (site_key, kind, performed_on, procedure, procedure_rev, "
+             "equipment, calibration_ref, inspector, inspector_level, software_version, "
+             "recorded_at) VALUES (1, 'baseline', '2030-01-05', 'P', 'A', 'E', 'C', 'I', '2', "
+             "'0.1.0', '2030-01-05T00:00:00.000Z'), (1, 'scheduled', '2035-01-05', 'P', 'A', "
+             "'E', 'C', 'I', '2', '0.1.0', '2035-01-05T00:00:00.000Z');");
+    sqlite3_stmt *st;
+    for (int k = 1; k <= 2; k++) {
+        assert_int_equal(sqlite3_prepare_v2(db,
+            "INSERT INTO map (inspection_key, made_by, software_version, width, height, "
+            "nchannels, pitch_u_mm, pitch_v_mm, coord_system, coord_unit, origin_x, origin_y, "
+            "origin_z, u_x, u_y, u_z, v_x, v_y, v_z, encoding, data, sha256, recorded_at) "
+            "VALUES (?1, 'import-npy', '0.1.0', 8, 6, 2, 0.5, 0.5, 'STA/BL/WL', 'mm', 5200, "
+            "-48, 3480, 1, 0, 0, 0, 1, 0, 'zlib-f32le', ?2, ?3, '2035-01-05T00:00:00.000Z')",
+            -1, &st, NULL), SQLITE_OK);
+        sqlite3_bind_int64(st, 1, k);
+        sqlite3_bind_blob(st, 2, blob, (int)blob_len, SQLITE_STATIC);
+        sqlite3_bind_text(st, 3, hex, -1, SQLITE_STATIC);
+        assert_int_equal(sqlite3_step(st), SQLITE_DONE);
+        sqlite3_finalize(st);
+    }
+    raw_exec(db, "INSERT INTO map_channel (map_id, idx, quantity, unit, label) VALUES "
+             "(1, 0, 'temperature-contrast', 'K', ''), (1, 1, 'log-derivative-2', '1', "
+             "'t=0.50 s'), (2, 0, 'temperature-contrast', 'K', ''), (2, 1, "
+             "'log-derivative-2', '1', 't=0.50 s');"
+             "INSERT INTO registration (baseline_map_id, current_map_id, method, status, "
+             "refusal, ncc, software_version, recorded_at) VALUES (1, 2, 'phase-correlation', "
+             "'refused', 'ncc 0.1 below the limit 0.6', 0.1, '0.1.0', "
+             "'2035-01-06T00:00:00.000Z');"
+             "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, "
+             "registration_id, status, not_done_reason, software_version, recorded_at) VALUES "
+             "(1, 1, 2, 1, 'not-done', 'registration refused', '0.1.0', "
+             "'2035-01-06T00:00:00.000Z')");
+    sqlite3_close(db);
+    free(blob);
+    pl_map_free(m);
+
+    /* every table but store_info, which gains the migration's row */
+    const char *rows = "SELECT group_concat(t, char(10)) FROM ("
+        "SELECT 'a|' || quote(id) || quote(serial) || quote(manufactured) AS t FROM airframe "
+        "UNION ALL SELECT 'o|' || quote(operator_name) || quote(since) FROM airframe_operator "
+        "UNION ALL SELECT 's|' || quote(id) || quote(code) || quote(method) || quote(origin_x) "
+        "FROM site UNION ALL SELECT 'i|' || quote(id) || quote(kind) || quote(performed_on) "
+        "FROM inspection UNION ALL SELECT 'm|' || quote(id) || quote(sha256) || quote(data) "
+        "FROM map UNION ALL SELECT 'c|' || quote(map_id) || quote(idx) || quote(label) FROM "
+        "map_channel UNION ALL SELECT 'r|' || quote(id) || quote(status) || quote(ncc) FROM "
+        "registration UNION ALL SELECT 'x|' || quote(id) || quote(not_done_reason) FROM "
+        "comparison)";
+    db = raw_open(old);
+    char *before = raw_text(db, rows);
+    sqlite3_close(db);
+
+    pl_store *st2 = NULL;
+    expect_fail(pl_store_open(&st2, old, PL_STORE_READONLY, &err), PL_EVERSION, &err, "older");
+    TU_OK(pl_store_open(&st2, old, 0, &err));
+    assert_int_equal(pl_store_schema_version(st2), PL_STORE_SCHEMA_VERSION);
+    pl_map *back = NULL;
+    pl_map_record rec;
+    TU_OK(pl_store_load_map(st2, 2, &back, &rec, &err)); /* the digest still holds */
+    assert_string_equal(rec.channels[1].label, "t=0.50 s");
+    free(rec.parameters_json);
+    pl_map_free(back);
+    pl_store_close(st2);
+
+    db = raw_open(old);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
+    char *history = raw_text(db, "SELECT value FROM store_info WHERE name = 'schema.0002'");
+    assert_non_null(strstr(history, pl__migrations[1].name));
+    assert_non_null(strstr(history, pl_version()));
+    free(history);
+    char *after = raw_text(db, rows);
+    assert_string_equal(before, after);
+    /* from now on a site's method must be a known one */
+    assert_int_not_equal(sqlite3_exec(db, "INSERT INTO site (airframe_key, code, method, "
+                                      "coord_system, coord_unit, origin_x, origin_y, origin_z, "
+                                      "u_x, u_y, u_z, v_x, v_y, v_z, width_px, height_px, "
+                                      "pitch_u_mm, pitch_v_mm, recorded_at) VALUES (1, 'F09', "
+                                      "'x-ray', 'STA', 'mm', 0, 0, 0, 1, 0, 0, 0, 1, 0, 0, 0, "
+                                      "1, 1, 'now')", NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+    sqlite3_close(db);
+    TU_OK(pl_store_open(&st2, old, 0, &err));
+    pl_site s = site("OLD-0001", "F02");
+    TU_OK(pl_store_add_site(st2, &s, NULL, &err));
+    pl_store_close(st2);
+    free(before);
+    free(after);
+    check_integrity(old);
+    free(old);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1731,6 +1967,8 @@ int main(void)
         T(test_store__listings_filter_and_order),
         T(test_store__summary_counts_the_record),
         T(test_store__registrations_and_comparisons),
+        T(test_store__schema_checks_equal_the_vocabularies),
+        T(test_store__previous_schema_migrates_and_keeps_its_rows),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

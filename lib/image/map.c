@@ -33,6 +33,8 @@ static const struct vocab_entry {
     pl_quantity_info info;
     const char *default_unit;
 } quantities[] = {
+    {{"temperature-rise", "K mK",
+      "surface temperature rise over the pre-flash level after the flash"}, "K"},
     {{"temperature-contrast", "K mK",
       "surface temperature rise over the sound-area reference after the flash"}, "K"},
     {{"normalised-contrast", "1 %",
@@ -43,6 +45,8 @@ static const struct vocab_entry {
       "second derivative of ln(temperature) against ln(time) from the fitted cooling curve"}, "1"},
     {{"time-of-peak-d2", "s ms",
       "time after the flash at which the second log-derivative peaks"}, "s"},
+    {{"time-of-peak-contrast", "s ms",
+      "time after the flash at which the temperature contrast peaks"}, "s"},
     {{"depth", "mm",
       "estimated depth of the feature below the inspected surface"}, "mm"},
     {{"phase", "rad deg",

@@ -45,7 +45,7 @@ extern "C" {
 #endif
 
 /** The schema version this library writes (PRAGMA user_version). */
-#define PL_STORE_SCHEMA_VERSION 1
+#define PL_STORE_SCHEMA_VERSION 2
 /** PRAGMA application_id of a plyledger store: "PlyL". */
 #define PL_STORE_APPLICATION_ID 0x506c794c
 
