@@ -15,6 +15,7 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include <dirent.h>
 #include <math.h>
 #include <sqlite3.h>
 #include <stdio.h>
@@ -1944,6 +1945,37 @@ static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state
     free(old);
 }
 
+/*
+ * The schema version is made, not written: the build counts the numbered
+ * files in schema/ (schema/embed.py), so PL_STORE_SCHEMA_VERSION, the
+ * migrations compiled in and the files in the source tree all agree, and
+ * a schema file forgotten in lib/meson.build is noticed.
+ */
+static void test_store__schema_version_is_the_number_of_schema_files(void **state)
+{
+    (void)state;
+    const char *root = getenv("PL_SOURCE_ROOT");
+    if (!root)
+        fail_msg("PL_SOURCE_ROOT is not set (run through meson test)");
+    char *dir = tu_path(root, "schema");
+    DIR *d = opendir(dir);
+    if (!d)
+        fail_msg("%s: cannot list", dir);
+    int files = 0;
+    for (struct dirent *e; (e = readdir(d));) {
+        const char *n = e->d_name;
+        size_t len = strlen(n);
+        if (len > 9 && strspn(n, "0123456789") == 4 && n[4] == '_' &&
+            strcmp(n + len - 4, ".sql") == 0)
+            files++;
+    }
+    closedir(d);
+    free(dir);
+    assert_int_equal(files, PL_STORE_SCHEMA_VERSION);
+    assert_int_equal(pl__migration_count, PL_STORE_SCHEMA_VERSION);
+    assert_int_equal(pl__migrations[pl__migration_count - 1].version, PL_STORE_SCHEMA_VERSION);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1969,6 +2001,7 @@ int main(void)
         T(test_store__registrations_and_comparisons),
         T(test_store__schema_checks_equal_the_vocabularies),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
+        T(test_store__schema_version_is_the_number_of_schema_files),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

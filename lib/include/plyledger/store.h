@@ -39,13 +39,12 @@
 
 #include "plyledger/common.h"
 #include "plyledger/map.h"
+#include "plyledger/schema_version.h" /* PL_STORE_SCHEMA_VERSION */
 
 #ifdef __cplusplus
 extern "C" {
 #endif
 
-/** The schema version this library writes (PRAGMA user_version). */
-#define PL_STORE_SCHEMA_VERSION 2
 /** PRAGMA application_id of a plyledger store: "PlyL". */
 #define PL_STORE_APPLICATION_ID 0x506c794c
 
