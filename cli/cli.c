@@ -13,14 +13,20 @@
 
 const char *cli_current = "plyledger";
 
+/* "plyledger: <message>" and a newline on stderr. */
+static void say(const char *fmt, va_list ap)
+{
+    fputs("plyledger: ", stderr);
+    vfprintf(stderr, fmt, ap);
+    fputc('\n', stderr);
+}
+
 int cli_fail(const char *fmt, ...)
 {
     va_list ap;
-    fputs("plyledger: ", stderr);
     va_start(ap, fmt);
-    vfprintf(stderr, fmt, ap);
+    say(fmt, ap);
     va_end(ap);
-    fputc('\n', stderr);
     return CLI_ERROR;
 }
 
@@ -32,11 +38,9 @@ int cli_fail_err(int code, const pl_err *err)
 int cli_usage_error(const char *usage, const char *fmt, ...)
 {
     va_list ap;
-    fputs("plyledger: ", stderr);
     va_start(ap, fmt);
-    vfprintf(stderr, fmt, ap);
+    say(fmt, ap);
     va_end(ap);
-    fputc('\n', stderr);
     if (usage)
         fprintf(stderr, "usage: plyledger %s %s\n", cli_current, usage);
     fprintf(stderr, "Try 'plyledger %s --help' for more.\n", cli_current);
@@ -132,15 +136,11 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
         }
     }
     free(all);
-    *first_arg = optind;
+    if (first_arg)
+        *first_arg = optind;
+    else if (rc < 0 && optind < argc)
+        rc = cli_usage_error(usage, "unexpected operand '%s'", argv[optind]);
     return rc;
-}
-
-int cli_no_operands(int argc, char **argv, int first, const char *usage)
-{
-    if (first < argc)
-        return cli_usage_error(usage, "unexpected operand '%s'", argv[first]);
-    return 0;
 }
 
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)

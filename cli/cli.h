@@ -62,15 +62,14 @@ int cli_help(const char *text);
  * --json, --quiet/-q and --help/-h. Calls `on_opt` for the command's own
  * options; it returns 0, or CLI_USAGE after printing a problem. Returns -1
  * to go on, or an exit code (help printed, usage error). On return
- * *first_arg is the index of the first operand.
+ * *first_arg is the index of the first operand; with first_arg NULL the
+ * command takes none, and an operand is a usage error.
  */
 typedef int (*cli_opt_fn)(void *ctx, int opt, const char *arg);
 int cli_parse(int argc, char **argv, const char *shortopts, const struct option *longopts,
               cli_common *common, cli_opt_fn on_opt, void *ctx, const char *usage,
               const char *help, int *first_arg);
 
-/* The command takes no operands: 0, or CLI_USAGE (printed) naming the first. */
-int cli_no_operands(int argc, char **argv, int first, const char *usage);
 
 /* Open the store named by common->store; prints the failure itself.
  * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */

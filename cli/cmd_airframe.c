@@ -60,12 +60,9 @@ int cmd_add_airframe(int argc, char **argv)
 {
     cli_common common;
     airframe_args a = { 0 };
-    int first;
     int rc = cli_parse(argc, argv, "", add_opts, &common, take_airframe_opt, &a, add_usage,
-                       add_help, &first);
+                       add_help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, add_usage)))
         return rc;
     if (!a.serial || !a.type)
         return cli_usage_error(add_usage, "--serial and --type are required");
@@ -129,12 +126,9 @@ int cmd_set_operator(int argc, char **argv)
 {
     cli_common common;
     airframe_args a = { 0 };
-    int first;
     int rc = cli_parse(argc, argv, "", add_opts, &common, take_airframe_opt, &a, op_usage,
-                       op_help, &first);
+                       op_help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, op_usage)))
         return rc;
     if (a.type || a.manufactured || a.notes)
         return cli_usage_error(op_usage, "only --serial, --operator and --since apply here");

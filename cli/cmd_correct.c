@@ -204,11 +204,8 @@ int cmd_correct(int argc, char **argv)
     correct_args a;
     memset(&a, 0, sizeof a);
     cli_inspection_init(&a.insp);
-    int first;
-    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, &first);
+    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     int is_insp = a.inspection != NULL;
     int is_site = a.insp.site != NULL || a.insp.airframe != NULL;

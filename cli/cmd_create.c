@@ -13,7 +13,7 @@ static const char help[] =
     "Options:\n"
     "  -s, --store PATH   the store to create (or give PATH as the operand)\n"
     "  -q, --quiet        print nothing on success\n"
-    "      --json         print the result as JSON\n"
+    "      --json         print the new store's summary as JSON\n"
     "  -h, --help         show this help\n";
 
 int cmd_create(int argc, char **argv)
@@ -41,11 +41,9 @@ int cmd_create(int argc, char **argv)
     if (st)
         return cli_fail_err(st, &err);
     if (common.json) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "store", common.store);
-        cJSON_AddStringToObject(o, "store_id", sum.store_id);
-        cJSON_AddNumberToObject(o, "schema_version", sum.schema_version);
-        return cli_print_json(o);
+        char *text = NULL;
+        return cli_print_json_text(pl_summary_json(&text, &sum, common.store, &err), &text,
+                                   &err);
     }
     if (!common.quiet)
         printf("created store %s (id %s, schema %d)\n", common.store, sum.store_id,

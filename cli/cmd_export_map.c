@@ -112,11 +112,8 @@ int cmd_export_map(int argc, char **argv)
     memset(&a, 0, sizeof a);
     pl_render_options init = PL_RENDER_OPTIONS_INIT;
     a.ropts = init;
-    int first;
-    int rc = cli_parse(argc, argv, "o:", opts, &common, take_opt, &a, usage, help, &first);
+    int rc = cli_parse(argc, argv, "o:", opts, &common, take_opt, &a, usage, help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     if (!a.has_map || !a.output)
         return cli_usage_error(usage, "--map and --output are required");

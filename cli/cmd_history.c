@@ -133,11 +133,8 @@ int cmd_history(int argc, char **argv)
 {
     cli_common common;
     hist_args a = { 0 };
-    int first;
-    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, &first);
+    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     if (!a.airframe || !a.site)
         return cli_usage_error(usage, "--airframe and --site are required");

@@ -126,11 +126,8 @@ int cmd_airframes(int argc, char **argv)
 {
     cli_common common;
     list_args a = { 0 };
-    int first;
-    int rc = cli_parse(argc, argv, "", af_opts, &common, take_opt, &a, af_usage, af_help, &first);
+    int rc = cli_parse(argc, argv, "", af_opts, &common, take_opt, &a, af_usage, af_help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, af_usage)))
         return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
@@ -196,12 +193,9 @@ int cmd_sites(int argc, char **argv)
 {
     cli_common common;
     list_args a = { 0 };
-    int first;
     int rc = cli_parse(argc, argv, "", site_opts, &common, take_opt, &a, site_usage, site_help,
-                       &first);
+                       NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, site_usage)))
         return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
@@ -274,12 +268,9 @@ int cmd_inspections(int argc, char **argv)
 {
     cli_common common;
     list_args a = { 0 };
-    int first;
     int rc = cli_parse(argc, argv, "", insp_opts, &common, take_opt, &a, insp_usage, insp_help,
-                       &first);
+                       NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, insp_usage)))
         return rc;
     if (a.site && !a.airframe)
         return cli_usage_error(insp_usage, "--site needs --airframe (site codes are per airframe)");

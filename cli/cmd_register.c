@@ -212,11 +212,8 @@ int cmd_register(int argc, char **argv)
     char helptext[sizeof help + 64];
     snprintf(helptext, sizeof helptext, help, PL_REGISTER_DEFAULT_MAX_ROTATION,
              PL_REGISTER_DEFAULT_MIN_NCC, PL_REGISTER_DEFAULT_MIN_PSR);
-    int first;
-    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, helptext, &first);
+    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, helptext, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     if (!a.airframe || !a.site)
         return cli_usage_error(usage, "--airframe and --site are required");

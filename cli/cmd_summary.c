@@ -21,11 +21,8 @@ static const char help[] =
 int cmd_summary(int argc, char **argv)
 {
     cli_common common;
-    int first;
-    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, help, &first);
+    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
@@ -38,34 +35,8 @@ int cmd_summary(int argc, char **argv)
     if (st)
         return cli_fail_err(st, &err);
     if (common.json) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "store", common.store);
-        cJSON_AddStringToObject(o, "store_id", s.store_id);
-        cJSON_AddNumberToObject(o, "schema_version", s.schema_version);
-        cJSON_AddStringToObject(o, "created_at", s.created_at);
-        cJSON_AddStringToObject(o, "created_by", s.created_by);
-        cJSON_AddNumberToObject(o, "airframes", (double)s.airframes);
-        cJSON_AddNumberToObject(o, "sites", (double)s.sites);
-        cJSON_AddNumberToObject(o, "inspections", (double)s.inspections);
-        cJSON *by = cJSON_AddObjectToObject(o, "inspections_by_kind");
-        for (size_t i = 0; i < kinds->count; i++)
-            cJSON_AddNumberToObject(by, kinds->words[i], (double)s.inspections_by_kind[i]);
-        cJSON_AddNumberToObject(o, "maps", (double)s.maps);
-        cJSON_AddNumberToObject(o, "map_bytes", (double)s.map_bytes);
-        cJSON_AddNumberToObject(o, "corrections", (double)s.corrections);
-        cJSON_AddNumberToObject(o, "indications", (double)s.indications);
-        cJSON_AddNumberToObject(o, "registrations", (double)s.registrations);
-        cJSON_AddNumberToObject(o, "comparisons", (double)s.comparisons);
-        cJSON_AddNumberToObject(o, "dispositions", (double)s.dispositions);
-        cJSON_AddNumberToObject(o, "ledger_links", (double)s.ledger_links);
-        if (s.first_inspection[0]) {
-            cJSON_AddStringToObject(o, "first_inspection", s.first_inspection);
-            cJSON_AddStringToObject(o, "last_inspection", s.last_inspection);
-        } else {
-            cJSON_AddNullToObject(o, "first_inspection");
-            cJSON_AddNullToObject(o, "last_inspection");
-        }
-        return cli_print_json(o);
+        char *text = NULL;
+        return cli_print_json_text(pl_summary_json(&text, &s, common.store, &err), &text, &err);
     }
     printf("store        %s\n", common.store);
     printf("store id     %s (schema %d, created %s by plyledger %s)\n", s.store_id,
@@ -101,11 +72,8 @@ static const char q_help[] =
 int cmd_quantities(int argc, char **argv)
 {
     cli_common common;
-    int first;
-    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, q_help, &first);
+    int rc = cli_parse(argc, argv, "", NULL, &common, NULL, NULL, usage, q_help, NULL);
     if (rc >= 0)
-        return rc;
-    if ((rc = cli_no_operands(argc, argv, first, usage)))
         return rc;
     size_t n = pl_quantity_count();
     if (common.json) {

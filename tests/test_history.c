@@ -363,6 +363,32 @@ static void test_history__reduction_json(void **state)
     free(text);
 }
 
+/* A store's summary: counts by the kind vocabulary's words, no dates when
+ * nothing was inspected. */
+static void test_history__summary_json(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->store, &sum, &err));
+    char *text = NULL;
+    TU_OK(pl_summary_json(&text, &sum, "h.plyledger", &err));
+    python_agrees(f, text, "first_inspection", "null");
+    python_agrees(f, text, "inspections_by_kind/post-repair", "0");
+    free(text);
+    pl_id m = 0;
+    inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m);
+    inspect(f->store, "baseline", "2030-02-01", 1.0f, &m);
+    TU_OK(pl_store_summarize(f->store, &sum, &err));
+    TU_OK(pl_summary_json(&text, &sum, "h.plyledger", &err));
+    python_agrees(f, text, "store", "\"h.plyledger\"");
+    python_agrees(f, text, "inspections_by_kind/baseline", "1");
+    python_agrees(f, text, "inspections_by_kind/scheduled", "1");
+    python_agrees(f, text, "first_inspection", "\"2030-02-01\"");
+    python_agrees(f, text, "sites", "1");
+    free(text);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -372,6 +398,7 @@ int main(void)
         T(test_history__operators),
         T(test_history__registration_summary_has_the_history_shape),
         T(test_history__reduction_json),
+        T(test_history__summary_json),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

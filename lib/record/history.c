@@ -394,3 +394,46 @@ PL_EXPORT int pl_reduction_json(char **out, const pl_reduction_summary *r, pl_er
     }
     return pl_row__print_json(out, o, err);
 }
+
+/* ---- a store's summary ------------------------------------------------------------------ */
+
+PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char *path,
+                              pl_err *err)
+{
+    assert(out && s);
+    const pl_vocabulary *kinds = pl_vocabulary_get(PL_VOCAB_INSPECTION_KIND);
+    cJSON *o = cJSON_CreateObject();
+    int ok = o && add_text_or_null(o, "store", path)
+             && cJSON_AddStringToObject(o, "store_id", s->store_id)
+             && cJSON_AddNumberToObject(o, "schema_version", s->schema_version)
+             && cJSON_AddStringToObject(o, "created_at", s->created_at)
+             && cJSON_AddStringToObject(o, "created_by", s->created_by);
+    const struct {
+        const char *key;
+        int64_t n;
+    } counts[] = {
+        { "airframes", s->airframes }, { "sites", s->sites }, { "inspections", s->inspections },
+    }, more[] = {
+        { "maps", s->maps }, { "map_bytes", s->map_bytes }, { "corrections", s->corrections },
+        { "indications", s->indications }, { "registrations", s->registrations },
+        { "comparisons", s->comparisons }, { "dispositions", s->dispositions },
+        { "ledger_links", s->ledger_links },
+    };
+    for (size_t i = 0; ok && i < sizeof counts / sizeof counts[0]; i++)
+        ok = cJSON_AddNumberToObject(o, counts[i].key, (double)counts[i].n) != NULL;
+    cJSON *by = ok ? cJSON_AddObjectToObject(o, "inspections_by_kind") : NULL;
+    ok = by != NULL;
+    for (size_t i = 0; ok && i < kinds->count; i++)
+        ok = cJSON_AddNumberToObject(by, kinds->words[i], (double)s->inspections_by_kind[i])
+             != NULL;
+    for (size_t i = 0; ok && i < sizeof more / sizeof more[0]; i++)
+        ok = cJSON_AddNumberToObject(o, more[i].key, (double)more[i].n) != NULL;
+    int dated = s->first_inspection[0] != '\0';
+    ok = ok && add_text_or_null(o, "first_inspection", dated ? s->first_inspection : NULL)
+         && add_text_or_null(o, "last_inspection", dated ? s->last_inspection : NULL);
+    if (!ok) {
+        cJSON_Delete(o);
+        o = NULL;
+    }
+    return pl_row__print_json(out, o, err);
+}

@@ -120,6 +120,19 @@ PL_EXPORT void pl_registration_summary_clear(pl_registration_summary *summary);
 PL_EXPORT int pl_registration_summary_json(char **out, const pl_registration_summary *summary,
                                            pl_err *err);
 
+/* ---- a store's summary -------------------------------------------------- */
+
+/**
+ * A store's summary (pl_store_summarize()) as JSON: "store" (`path`),
+ * "store_id", "schema_version", "created_at", "created_by", the counts,
+ * "inspections_by_kind" (by the kind vocabulary's words), "map_bytes",
+ * "first_inspection" and "last_inspection" (null when there is none).
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *summary, const char *path,
+                              pl_err *err);
+
 /* ---- a reduction's outcome --------------------------------------------- */
 
 /** What one reduction of a sequence made; every pointer is borrowed. */
