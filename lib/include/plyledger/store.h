@@ -33,6 +33,11 @@
  * -1 (counts). Listing calls hand each record to a callback; the record is
  * borrowed for the callback's duration only. A callback returns 0 to go on
  * or non-zero to stop the listing (which then returns PL_OK).
+ *
+ * Each record's columns are described once inside the library; its JSON
+ * form and its canonical byte encoding (what the hash chain will cover)
+ * are in plyledger/store_row.h, the models built from several records (a
+ * site's history, a summary) in plyledger/history.h.
  */
 #ifndef PLYLEDGER_STORE_H
 #define PLYLEDGER_STORE_H
