@@ -70,11 +70,11 @@ static void test_hash__hex_round_trip_and_rejects_bad_hex(void **state)
     char hex[65];
     pl_sha256(d, "abc", 3);
     pl_sha256_hex(hex, d);
-    assert_int_equal(pl_sha256_from_hex(e, hex), 0);
+    assert_int_equal(pl_sha256_from_hex(e, hex), PL_OK);
     assert_memory_equal(d, e, 32);
     hex[10] = 'g';
-    assert_int_equal(pl_sha256_from_hex(e, hex), -4);
-    assert_int_equal(pl_sha256_from_hex(e, "abcd"), -4);
+    assert_int_equal(pl_sha256_from_hex(e, hex), PL_EFORMAT);
+    assert_int_equal(pl_sha256_from_hex(e, "abcd"), PL_EFORMAT);
 }
 
 int main(void)

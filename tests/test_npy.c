@@ -21,33 +21,6 @@
 
 /* ---- helpers ---------------------------------------------------------- */
 
-/* A .npy file around a hand-written header dict: the prefix of format
- * `major`.0, the dict, padding and a newline as numpy lays them out. */
-static void write_npy_text(const char *path, int major, const char *dict,
-                           const void *data, size_t data_len)
-{
-    size_t lenbytes = major == 1 ? 2 : 4;
-    size_t n = strlen(dict);
-    size_t hlen = n + 1;
-    size_t pad = 64 - ((6 + 2 + lenbytes + hlen) % 64);
-    size_t total_h = n + pad + 1;
-    size_t size = 8 + lenbytes + total_h + data_len;
-    unsigned char *b = malloc(size);
-    assert_non_null(b);
-    memcpy(b, "\x93NUMPY", 6);
-    b[6] = (unsigned char)major;
-    b[7] = 0;
-    for (size_t k = 0; k < lenbytes; k++)
-        b[8 + k] = (unsigned char)(total_h >> (8 * k));
-    memcpy(b + 8 + lenbytes, dict, n);
-    memset(b + 8 + lenbytes + n, ' ', pad);
-    b[8 + lenbytes + n + pad] = '\n';
-    if (data_len)
-        memcpy(b + 8 + lenbytes + total_h, data, data_len);
-    assert_int_equal(tu_write_file(path, b, size), 0);
-    free(b);
-}
-
 static int read_header_of(pl_npy_header *hdr, const char *path, pl_err *err)
 {
     FILE *f = fopen(path, "rb");
@@ -242,7 +215,7 @@ static void test_npy__header_syntax_variants(void **state)
     char *dir = tu_tmpdir();
     char *path = tu_path(dir, "h.npy");
     for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
-        write_npy_text(path, cases[k].major, cases[k].dict, NULL, 0);
+        tu_write_npy_text(path, cases[k].major, cases[k].dict, NULL, 0);
         pl_npy_header hdr;
         pl_err err = {0};
         int rc = read_header_of(&hdr, path, &err);
@@ -375,7 +348,7 @@ static void test_npy__malformed_headers_refused(void **state)
     for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
         char *path = tu_path(dir, cases[k].file);
         if (cases[k].dict)
-            write_npy_text(path, cases[k].major, cases[k].dict, NULL, 0);
+            tu_write_npy_text(path, cases[k].major, cases[k].dict, NULL, 0);
         else
             assert_int_equal(tu_write_file(path, cases[k].raw, cases[k].raw_len), 0);
         pl_npy_header hdr;
@@ -434,7 +407,7 @@ static void test_npy__non_map_arrays_refused(void **state)
     for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
         char *path = tu_path(dir, cases[k].file);
         if (cases[k].dict)
-            write_npy_text(path, 1, cases[k].dict, four, cases[k].data_len);
+            tu_write_npy_text(path, 1, cases[k].dict, four, cases[k].data_len);
         pl_map *m = (pl_map *)1;
         pl_err err = {0};
         int rc = pl_map_load_npy(&m, path, &err);
@@ -582,7 +555,7 @@ static void test_npy__trailing_bytes_refused(void **state)
     char *dir = tu_tmpdir();
     char *path = tu_path(dir, "trailing.npy");
     float v[4] = {1, 2, 3, 4};
-    write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
+    tu_write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
                    sizeof v);
     pl_map *m = (pl_map *)1;
     pl_err err = {0};
@@ -591,7 +564,7 @@ static void test_npy__trailing_bytes_refused(void **state)
     tu_assert_msg_has(err.msg, path);
     tu_assert_msg_has(err.msg, "4 bytes after the 12 bytes of data");
     /* the same file without them loads */
-    write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
+    tu_write_npy_text(path, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 3)}", v,
                    3 * sizeof v[0]);
     TU_OK(pl_map_load_npy(&m, path, &err));
     assert_true(m->data[2] == 3.0f);

@@ -33,11 +33,11 @@ static void write_text(const char *dir, const char *name, const char *text)
 static void write_npy(const char *dir, const char *name, uint32_t w, uint32_t h, float base)
 {
     pl_map *m;
-    assert_int_equal(pl_map_new(&m, w, h, 1, NULL), 0);
+    assert_int_equal(pl_map_new(&m, w, h, 1, NULL), PL_OK);
     for (uint32_t i = 0; i < w * h; i++)
         m->data[i] = base + (float)i * 0.25f;
     char *p = tu_path(dir, name);
-    assert_int_equal(pl_map_save_npy(m, p, NULL), 0);
+    assert_int_equal(pl_map_save_npy(m, p, NULL), PL_OK);
     free(p);
     pl_map_free(m);
 }
@@ -48,12 +48,12 @@ static int setup(void **state)
     f->dir = tu_tmpdir();
     f->store_path = tu_path(f->dir, "s.plyledger");
     pl_err err = { 0 };
-    assert_int_equal(pl_store_create(&f->store, f->store_path, &err), 0);
+    assert_int_equal(pl_store_create(&f->store, f->store_path, &err), PL_OK);
     pl_airframe af;
     memset(&af, 0, sizeof af);
     strcpy(af.serial, "REC-0001");
     strcpy(af.aircraft_type, "TX-1");
-    assert_int_equal(pl_store_add_airframe(f->store, &af, NULL, &err), 0);
+    assert_int_equal(pl_store_add_airframe(f->store, &af, NULL, &err), PL_OK);
     const char *plan =
         "site,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,width_px,height_px,pitch_mm\n"
         "A1,flash-thermography,100,20,30,1,0,0,0,1,0,6,4,0.5\n"
@@ -61,8 +61,8 @@ static int setup(void **state)
     write_text(f->dir, "plan.csv", plan);
     char *pp = tu_path(f->dir, "plan.csv");
     pl_plan *p;
-    assert_int_equal(pl_plan_load(&p, pp, &err), 0);
-    assert_int_equal(pl_plan_apply(f->store, p, "REC-0001", NULL, &err), 0);
+    assert_int_equal(pl_plan_load(&p, pp, &err), PL_OK);
+    assert_int_equal(pl_plan_apply(f->store, p, "REC-0001", NULL, &err), PL_OK);
     pl_plan_free(p);
     free(pp);
     write_npy(f->dir, "a1.npy", 6, 4, 1.0f);
@@ -102,7 +102,7 @@ static void test_record__sidecar_gives_sites_overrides_and_paths(void **state)
     char *path = tu_path(f->dir, "c.json");
     pl_record *rec;
     pl_err err = { 0 };
-    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), 0);
+    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), PL_OK);
     assert_int_equal(rec->nsites, 2);
     assert_string_equal(rec->sites[0].insp.inspector, "someone");
     assert_string_equal(rec->sites[1].insp.inspector, "someone else");
@@ -141,7 +141,7 @@ static void test_record__sidecar_refuses_unknown_keys_and_bad_types(void **state
         pl_record *rec = NULL;
         pl_err err = { 0 };
         int rc = pl_record_load_sidecar(&rec, path, &err);
-        if (rc == 0 || !strstr(err.msg, cases[i].needle))
+        if (rc == PL_OK || !strstr(err.msg, cases[i].needle))
             fail_msg("case %zu: rc %d, message '%s'", i, rc, err.msg);
         assert_null(rec);
         free(path);
@@ -155,7 +155,7 @@ static void test_record__apply_records_and_completes_from_the_site(void **state)
     char *path = tu_path(f->dir, "c.json");
     pl_record *rec;
     pl_err err = { 0 };
-    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), 0);
+    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), PL_OK);
     int rc = pl_record_apply(f->store, rec, NULL, NULL, &err);
     if (rc)
         fail_msg("apply: %s", err.msg);
@@ -165,14 +165,14 @@ static void test_record__apply_records_and_completes_from_the_site(void **state)
     /* Site A1's pitch and frame came from the site; A2 kept its placement. */
     pl_map *m;
     pl_map_record mr;
-    assert_int_equal(pl_store_load_map(f->store, rec->sites[0].maps[0].map_id, &m, &mr, &err), 0);
+    assert_int_equal(pl_store_load_map(f->store, rec->sites[0].maps[0].map_id, &m, &mr, &err), PL_OK);
     assert_true(m->pitch_u == 0.5 && m->pitch_v == 0.5);
     assert_true(m->placement.origin[0] == 100.0);
     assert_string_equal(m->channels[0].quantity, "temperature-contrast");
     assert_true(m->data[5] == 1.0f + 5 * 0.25f);
     free(mr.parameters_json);
     pl_map_free(m);
-    assert_int_equal(pl_store_load_map(f->store, rec->sites[1].maps[0].map_id, &m, &mr, &err), 0);
+    assert_int_equal(pl_store_load_map(f->store, rec->sites[1].maps[0].map_id, &m, &mr, &err), PL_OK);
     assert_true(m->pitch_u == 0.25);
     assert_true(m->placement.origin[0] == 1.0 && m->placement.u[1] == 1.0);
     assert_string_equal(m->channels[0].unit, "deg");
@@ -195,7 +195,7 @@ static void test_record__apply_is_all_or_nothing(void **state)
     fixture *f = *state;
     pl_record *rec;
     pl_err err = { 0 };
-    assert_int_equal(pl_record_new(&rec, &err), 0);
+    assert_int_equal(pl_record_new(&rec, &err), PL_OK);
     pl_inspection in;
     memset(&in, 0, sizeof in);
     in.aircraft_hours = NAN;
@@ -211,18 +211,18 @@ static void test_record__apply_is_all_or_nothing(void **state)
     strcpy(in.inspector_level, "2");
     size_t s0, s1;
     strcpy(in.site_code, "A2");
-    assert_int_equal(pl_record_add_site(rec, &in, &s0, &err), 0);
+    assert_int_equal(pl_record_add_site(rec, &in, &s0, &err), PL_OK);
     strcpy(in.site_code, "A1");
-    assert_int_equal(pl_record_add_site(rec, &in, &s1, &err), 0);
+    assert_int_equal(pl_record_add_site(rec, &in, &s1, &err), PL_OK);
     char *a2 = tu_path(f->dir, "a2.npy"), *wrong = tu_path(f->dir, "wrong.npy");
-    assert_int_equal(pl_record_add_map(rec, s0, a2, "depth", NULL, NAN, NAN, &err), 0);
-    assert_int_equal(pl_record_add_map(rec, s1, wrong, "depth", "mm", NAN, NAN, &err), 0);
+    assert_int_equal(pl_record_add_map(rec, s0, a2, "depth", NULL, NAN, NAN, &err), PL_OK);
+    assert_int_equal(pl_record_add_map(rec, s1, wrong, "depth", "mm", NAN, NAN, &err), PL_OK);
     int rc = pl_record_apply(f->store, rec, NULL, NULL, &err);
     assert_int_equal(rc, PL_ENOMATCH);
     assert_non_null(strstr(err.msg, "A1"));
     assert_int_equal(rec->sites[0].inspection_key, 0);
     int n = 0;
-    assert_int_equal(pl_store_list_inspections(f->store, NULL, count_rows, &n, &err), 0);
+    assert_int_equal(pl_store_list_inspections(f->store, NULL, count_rows, &n, &err), PL_OK);
     assert_int_equal(n, 0);
     pl_record_free(rec);
     free(a2);
@@ -234,16 +234,16 @@ static void test_record__add_map_checks_lists(void **state)
     (void)state;
     pl_record *rec;
     pl_err err = { 0 };
-    assert_int_equal(pl_record_new(&rec, &err), 0);
+    assert_int_equal(pl_record_new(&rec, &err), PL_OK);
     pl_inspection in;
     memset(&in, 0, sizeof in);
-    assert_int_equal(pl_record_add_site(rec, &in, NULL, &err), 0);
+    assert_int_equal(pl_record_add_site(rec, &in, NULL, &err), PL_OK);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth,phase", "mm", NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth", "K", NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "my-quantity", NULL, NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth", NULL, -1.0, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 1, "x.npy", "depth", NULL, NAN, NAN, &err), PL_EINVAL);
-    assert_int_equal(pl_record_add_map(rec, 0, "x.npy", " depth , phase ", "mm,rad", NAN, NAN, &err), 0);
+    assert_int_equal(pl_record_add_map(rec, 0, "x.npy", " depth , phase ", "mm,rad", NAN, NAN, &err), PL_OK);
     assert_string_equal(rec->sites[0].maps[0].channels[1].quantity, "phase");
     assert_int_equal(rec->sites[0].nmaps, 1);
     pl_record_free(rec);
@@ -273,10 +273,10 @@ static pl_id record_one(pl_store *st, const char *site, const char *kind, const 
 {
     pl_inspection in = traced(site, kind, date);
     pl_map *m;
-    assert_int_equal(pl_map_new(&m, 6, 4, 1, NULL), 0);
+    assert_int_equal(pl_map_new(&m, 6, 4, 1, NULL), PL_OK);
     for (uint32_t i = 0; i < 24; i++)
         m->data[i] = base + (float)i;
-    assert_int_equal(pl_map_set_channel(m, 0, "phase", "rad", NULL), 0);
+    assert_int_equal(pl_map_set_channel(m, 0, "phase", "rad", NULL), PL_OK);
     m->pitch_u = m->pitch_v = NAN;
     pl_id key = 0;
     pl_err err = { 0 };

@@ -32,37 +32,6 @@ static void write_text(const char *path, const char *text)
     assert_int_equal(tu_write_file(path, text, strlen(text)), 0);
 }
 
-/* Little-endian raw values written by numpy's ndarray.tofile(). */
-static void *read_raw(const char *path, size_t elem, size_t *n)
-{
-    size_t len = 0;
-    unsigned char *b = tu_read_file(path, &len);
-    assert_non_null(b);
-    assert_int_equal(len % elem, 0);
-    *n = len / elem;
-    return b; /* the host is checked to be little-endian in main() */
-}
-
-static void write_f4(const char *path, const float *v, size_t n)
-{
-    assert_int_equal(tu_write_file(path, v, n * sizeof *v), 0);
-}
-
-/* Same float, bit for bit, except that any NaN matches any NaN. */
-static void assert_same_float(float got, float want, const char *what, size_t i)
-{
-    if (isnan(want) || isnan(got)) {
-        if (!(isnan(want) && isnan(got)))
-            fail_msg("%s value %zu: %.9g, %.9g expected", what, i, (double)got, (double)want);
-        return;
-    }
-    uint32_t a, b;
-    memcpy(&a, &got, 4);
-    memcpy(&b, &want, 4);
-    if (a != b)
-        fail_msg("%s value %zu: %.9g, %.9g expected", what, i, (double)got, (double)want);
-}
-
 /* The message is one line and names `name` and every other string given. */
 static void assert_msg(const pl_err *err, const char *name, ...)
 {
@@ -116,23 +85,14 @@ static void write_cube(const char *path, const char *descr, uint64_t f, uint64_t
     assert_int_equal(fclose(fp), 0);
 }
 
-/* A .npy file with a hand-written header dict. */
+/* A .npy file with a hand-written header dict and data_bytes bytes of 1. */
 static void write_npy_dict(const char *path, const char *dict, size_t data_bytes)
 {
-    char text[256];
-    int n = snprintf(text, sizeof text, "%s", dict);
-    while ((10 + n + 1) % 64)
-        text[n++] = ' ';
-    text[n++] = '\n';
-    FILE *fp = fopen(path, "wb");
-    assert_non_null(fp);
-    fwrite("\x93NUMPY\x01\x00", 1, 8, fp);
-    fputc(n & 0xff, fp);
-    fputc(n >> 8, fp);
-    fwrite(text, 1, (size_t)n, fp);
-    for (size_t i = 0; i < data_bytes; i++)
-        fputc(1, fp);
-    assert_int_equal(fclose(fp), 0);
+    unsigned char *data = malloc(data_bytes + 1);
+    assert_non_null(data);
+    memset(data, 1, data_bytes);
+    tu_write_npy_text(path, 1, dict, data, data_bytes);
+    free(data);
 }
 
 static void shorten(const char *path, long by)
@@ -250,7 +210,7 @@ static void round_trip(pl_seq_storage storage)
         if (!counts) {
             assert_int_equal(nsat, 0);
             for (size_t i = 0; i < n; i++)
-                assert_same_float(got[i], want[i], "float32", i);
+                tu_assert_same_float(got[i], want[i], "float32", i);
             continue;
         }
         /* every NaN and 350 K pixel saturated, nothing else */
@@ -278,7 +238,7 @@ static void round_trip(pl_seq_storage storage)
     assert_int_equal(pl_seq_read_frame(s, 0, again, NULL, &err), PL_OK);
     assert_int_equal(pl_seq_read_frame(s, 8, again, NULL, &err), PL_OK);
     for (size_t i = 0; i < n; i++)
-        assert_same_float(again[i], got[i], "re-read", i);
+        tu_assert_same_float(again[i], got[i], "re-read", i);
     assert_int_equal(pl_seq_read_frame(s, 9, got, NULL, &err), PL_EINVAL);
     assert_msg(&err, man, "frame 9", NULL);
     free(again);
@@ -317,18 +277,18 @@ static void check_reference(const char *dir, const char *manifest, const char *v
     char *man = tu_path(dir, manifest);
     char *vpath = tu_path(dir, values);
     size_t nv;
-    float *want = read_raw(vpath, 4, &nv);
+    float *want = tu_read_f4(vpath, &nv);
     int32_t *nsat_want = NULL;
     double *times_want = NULL;
     size_t nn = 0, nt = 0;
     if (nsat_file) {
         char *p = tu_path(dir, nsat_file);
-        nsat_want = read_raw(p, 4, &nn);
+        nsat_want = tu_read_i4(p, &nn);
         free(p);
     }
     if (times_file) {
         char *p = tu_path(dir, times_file);
-        times_want = read_raw(p, 8, &nt);
+        times_want = tu_read_f8(p, &nt);
         free(p);
     }
     pl_err err = {0};
@@ -347,7 +307,7 @@ static void check_reference(const char *dir, const char *manifest, const char *v
         if (rc)
             fail_msg("%s: %s", manifest, err.msg);
         for (size_t i = 0; i < n; i++)
-            assert_same_float(got[i], want[k * n + i], manifest, k * n + i);
+            tu_assert_same_float(got[i], want[k * n + i], manifest, k * n + i);
         if (nsat_want)
             assert_int_equal(nsat, nsat_want[k]);
     }
@@ -503,7 +463,7 @@ static void test_seq__written_sequences_load_in_numpy_and_pypng(void **state)
         assert_int_equal(pl_seq_writer_close(w, &err), PL_OK);
         snprintf(name, sizeof name, "%s_in.f4", out[j].name);
         char *raw = tu_path(dir, name);
-        write_f4(raw, in, n * info.frame_count);
+        tu_write_f4(raw, in, n * info.frame_count);
         free(raw);
         free(man);
         free(in);
@@ -1109,13 +1069,6 @@ static void test_seq__reading_is_streamed(void **state)
 
 int main(void)
 {
-    const uint16_t one = 1;
-    unsigned char first;
-    memcpy(&first, &one, 1);
-    if (first != 1) {
-        fprintf(stderr, "test_seq reads numpy's raw files as little-endian\n");
-        return 1;
-    }
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_seq__round_trip_npy_float32),
         cmocka_unit_test(test_seq__round_trip_npy_uint16),

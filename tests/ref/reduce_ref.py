@@ -43,15 +43,14 @@ All binary files are raw little-endian arrays.
       record at its own harmonics does not see). Checks first that
       arg coth((1+i)) = -14.075 degrees and arg coth((1+i) pi/2) = 0.
 
-  reduce_ref.py rfft IN K OUT
-      IN holds float64 samples (float32 values, widened exactly); OUT
-      receives float64 pairs (real, imag) of numpy.fft.rfft(samples) at
-      bins 0..K.
+  reduce_ref.py rfft IN K OUT [ROWS]
+      IN holds ROWS (default 1) records of float64 samples of equal length
+      (float32 values, widened exactly); OUT receives, record after record,
+      float64 pairs (real, imag) of numpy.fft.rfft(samples) at bins 0..K.
 """
 import sys
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
 
 def polyfit(args):
@@ -117,6 +116,17 @@ def slab_series(v):
     return np.log(f), f1 / f, f2 / f - (f1 / f) ** 2
 
 
+def slab_d2_many(vs):
+    """slab_series(v)[2] for each v of vs at once (the same sums)."""
+    u = np.exp(vs)[:, None]
+    a = N * N * np.pi * np.pi * u
+    e = np.exp(-a)
+    f = 1.0 + 2.0 * e.sum(axis=1)
+    f1 = -2.0 * (a * e).sum(axis=1)
+    f2 = 2.0 * ((a * a - a) * e).sum(axis=1)
+    return f2 / f - (f1 / f) ** 2
+
+
 def slab(args):
     out = args[0]
     res = []
@@ -126,6 +136,7 @@ def slab(args):
 
 
 def slab_peak(_args):
+    from scipy.optimize import minimize_scalar  # only here: scipy is slow to import
     r = minimize_scalar(lambda v: -slab_series(v)[2], bracket=(-2.0, -1.2, -0.5),
                         tol=1e-12)
     u = np.exp(r.x)
@@ -134,7 +145,7 @@ def slab_peak(_args):
     bad = abs(u * np.pi - 1.0) > 1e-6 or abs(d1 + 0.25) > 1e-6
     # it is the global maximum over the range of interest
     grid = np.linspace(-8.0, 3.0, 2201)
-    d2 = np.array([slab_series(v)[2] for v in grid])
+    d2 = np.concatenate([slab_d2_many(grid[i:i + 100]) for i in range(0, grid.size, 100)])
     if abs(np.exp(grid[np.argmax(d2)]) * np.pi - 1.0) > 0.01:
         bad = True
     return 1 if bad else 0
@@ -161,9 +172,10 @@ def phase(args):
 
 def rfft(args):
     path, k, out = args[0], int(args[1]), args[2]
-    x = np.fromfile(path, dtype='<f8')
-    f = np.fft.rfft(x)[:k + 1]
-    np.column_stack([f.real, f.imag]).astype('<f8').tofile(out)
+    rows = int(args[3]) if len(args) > 3 else 1
+    x = np.fromfile(path, dtype='<f8').reshape(rows, -1)
+    f = np.fft.rfft(x, axis=1)[:, :k + 1]
+    np.stack([f.real, f.imag], axis=2).astype('<f8').tofile(out)
 
 
 def main(argv):
