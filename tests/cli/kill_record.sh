@@ -20,7 +20,7 @@ PLY_BIN=$1
 HERE=$2
 PY=${PL_PYTHON:-/usr/bin/python3}
 SITES=100
-KILLS=24
+KILLS=20
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-kill-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
 PREP="$WORK/prepared.plyledger"
