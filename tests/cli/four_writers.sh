@@ -13,14 +13,17 @@
 # Environment: PL_PYTHON (Debian's python3 with numpy), TMPDIR.
 #
 # Each round starts from a fresh store holding four airframes of 100 sites
-# (make_batch.py) and starts the four records together; the store must then
-# hold all 400 inspections and pass PRAGMA integrity_check.
+# and starts the four records together, each of 100 maps of 8 channels of
+# 96 x 72 (make_batch.py: the sample fleet's sites, as a reduction records
+# them); the store must then hold all 400 inspections and pass PRAGMA
+# integrity_check.
 set -u
 PLY_BIN=$1
 HERE=$2
-ROUNDS=${3:-3}
+ROUNDS=${3:-5}
 PY=${PL_PYTHON:-/usr/bin/python3}
 SITES=100
+CHANNELS=8
 WRITERS="WRA-0001 WRB-0002 WRC-0003 WRD-0004"
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-writers-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
@@ -35,7 +38,7 @@ RAW_SQLITE='database is locked|database table is locked|disk image is malformed|
 
 "$PLY_BIN" create "$PREP" >/dev/null || exit 1
 for w in $WRITERS; do
-    "$PY" "$HERE/make_batch.py" "$WORK" "$w" "$SITES" || { echo "FAIL: fixtures" >&2; exit 1; }
+    "$PY" "$HERE/make_batch.py" "$WORK" "$w" "$SITES" "$CHANNELS" || { echo "FAIL: fixtures" >&2; exit 1; }
     "$PLY_BIN" add-airframe --store "$PREP" --serial "$w" --type TX-1 >/dev/null || exit 1
     "$PLY_BIN" import-plan --store "$PREP" --airframe "$w" "$WORK/plan-$w.csv" >/dev/null || exit 1
 done
