@@ -57,6 +57,8 @@ static const struct {
     { "@METHODS@", PL_VOCAB_METHOD },
 };
 
+#define WAIT_TOKEN "@WAIT@"
+
 int cli_help(const char *text)
 {
     for (const char *p = text; *p;) {
@@ -64,6 +66,16 @@ int cli_help(const char *text)
         size_t i = 0, n = sizeof help_words / sizeof help_words[0];
         while (at && i < n && strncmp(at, help_words[i].token, strlen(help_words[i].token)))
             i++;
+        if (at && i == n && strncmp(at, WAIT_TOKEN, strlen(WAIT_TOKEN)) == 0) {
+            const char *line = at;
+            while (line > text && line[-1] != '\n')
+                line--;
+            fwrite(p, 1, (size_t)(at - p), stdout);
+            printf("wait up to SECONDS while another process writes to the\n"
+                   "%*sstore (default %g)", (int)(at - line), "", PL_STORE_WAIT_DEFAULT_S);
+            p = at + strlen(WAIT_TOKEN);
+            continue;
+        }
         if (!at || i == n) {
             size_t len = at ? (size_t)(at - p) + 1 : strlen(p);
             fwrite(p, 1, len, stdout);
@@ -80,10 +92,11 @@ int cli_help(const char *text)
 }
 
 /* The options every command takes, appended after the command's own. */
-enum { OPT_JSON = 0x1001, OPT_HELP_LONG };
+enum { OPT_JSON = 0x1001, OPT_HELP_LONG, OPT_WAIT };
 static const struct option common_options[] = {
     { "store", required_argument, NULL, 's' },
     { "json", no_argument, NULL, OPT_JSON },
+    { "wait", required_argument, NULL, OPT_WAIT },
     { "quiet", no_argument, NULL, 'q' },
     { "help", no_argument, NULL, 'h' },
 };
@@ -106,6 +119,7 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
     snprintf(shorts, sizeof shorts, ":s:qh%s", shortopts ? shortopts : "");
 
     memset(common, 0, sizeof *common);
+    common->wait_s = NAN;
     common->store = getenv("PLYLEDGER_STORE");
     if (common->store && !*common->store)
         common->store = NULL;
@@ -117,6 +131,13 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
         case 's': common->store = optarg; break;
         case 'q': common->quiet = 1; break;
         case OPT_JSON: common->json = 1; break;
+        case OPT_WAIT:
+            if (cli_number("--wait", optarg, &common->wait_s, usage))
+                rc = CLI_USAGE;
+            else if (!(common->wait_s >= 0 && common->wait_s <= PL_STORE_WAIT_MAX_S))
+                rc = cli_usage_error(usage, "--wait: %s is not 0 to %g seconds", optarg,
+                                     PL_STORE_WAIT_MAX_S);
+            break;
         case 'h': rc = cli_help(help); break;
         case ':':
             rc = cli_usage_error(usage, "option '%s' needs a value", argv[optind - 1]);
@@ -149,6 +170,10 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
         return cli_usage_error(NULL, "no store given: use --store PATH or set PLYLEDGER_STORE");
     pl_err err = { 0 };
     int rc = pl_store_open(out, common->store, flags, &err);
+    if (!rc && !isnan(common->wait_s) && (rc = pl_store_set_wait(*out, common->wait_s, &err))) {
+        pl_store_close(*out);
+        *out = NULL;
+    }
     if (rc)
         return cli_fail_err(rc, &err);
     return CLI_OK;

@@ -38,6 +38,8 @@ typedef struct cli_common {
     const char *store;  /* --store, else $PLYLEDGER_STORE */
     int json;           /* --json */
     int quiet;          /* -q / --quiet */
+    double wait_s;      /* --wait: how long a write waits for another writer; NaN: the
+                           library's default */
 } cli_common;
 
 /* The command being run, for messages ("plyledger record: ..."). */
@@ -54,12 +56,14 @@ int cli_fail_err(int code, const pl_err *err);
 int cli_usage_error(const char *usage, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 
 /* Print help text to stdout, "@KINDS@" and "@METHODS@" replaced by the
- * inspection kinds and methods of the library's vocabularies; returns CLI_OK. */
+ * inspection kinds and methods of the library's vocabularies, "@LEVELS@" by
+ * the qualification levels and "@WAIT@" by what --wait does; returns
+ * CLI_OK. */
 int cli_help(const char *text);
 
 /*
  * getopt_long over argv with the command's options plus --store/-s,
- * --json, --quiet/-q and --help/-h. Calls `on_opt` for the command's own
+ * --json, --quiet/-q, --wait and --help/-h. Calls `on_opt` for the command's own
  * options; it returns 0, or CLI_USAGE after printing a problem. Returns -1
  * to go on, or an exit code (help printed, usage error). On return
  * *first_arg is the index of the first operand; with first_arg NULL the
@@ -71,8 +75,9 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
               const char *help, int *first_arg);
 
 
-/* Open the store named by common->store; prints the failure itself.
- * Returns CLI_OK with *out set, or CLI_ERROR / CLI_USAGE. */
+/* Open the store named by common->store, with the wait of --wait; prints
+ * the failure itself. Returns CLI_OK with *out set, or CLI_ERROR /
+ * CLI_USAGE. */
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
 
 /* Refuse an output file that is the store named by common->store (from

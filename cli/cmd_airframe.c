@@ -21,6 +21,7 @@ static const char add_help[] =
     "      --since DATE         date the operator took it over (default: manufacture)\n"
     "      --notes TEXT         free notes\n"
     "  -s, --store PATH         the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS       @WAIT@\n"
     "      --json               print the registered airframe as JSON\n"
     "  -q, --quiet              print nothing on success\n"
     "  -h, --help               show this help\n";
@@ -110,6 +111,7 @@ static const char op_help[] =
     "      --operator NAME   the new operator (required)\n"
     "      --since DATE      YYYY-MM-DD (required)\n"
     "  -s, --store PATH      the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS    @WAIT@\n"
     "      --json            print the operator history as JSON\n"
     "  -q, --quiet           print nothing on success\n"
     "  -h, --help            show this help\n";

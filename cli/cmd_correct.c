@@ -34,6 +34,7 @@ static const char help[] =
     "      --site CODE\n"
     "      --reason TEXT      why (required)\n"
     "  -s, --store PATH       the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS     @WAIT@\n"
     "      --json             print the corrected record as JSON\n"
     "  -q, --quiet            print nothing on success\n"
     "  -h, --help             show this help\n";

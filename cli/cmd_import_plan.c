@@ -20,6 +20,7 @@ static const char help[] =
     "Options:\n"
     "      --airframe SERIAL  the airframe (required)\n"
     "  -s, --store PATH       the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS     @WAIT@\n"
     "      --json             print the sites added as JSON\n"
     "  -q, --quiet            print nothing on success\n"
     "  -h, --help             show this help\n";

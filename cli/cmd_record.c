@@ -29,6 +29,7 @@ static const char help_tail[] =
     "      --pitch MM[,MM]       mm per pixel along u[,v] (default: file, else site)\n"
     "Common:\n"
     "  -s, --store PATH          the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS        @WAIT@\n"
     "      --json                print what was recorded as JSON\n"
     "  -q, --quiet               no progress, nothing printed on success\n"
     "  -h, --help                show this help\n";

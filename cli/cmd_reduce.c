@@ -48,6 +48,7 @@ static const char help_head[] =
 static const char help_tail[] =
     "Common:\n"
     "  -s, --store PATH          the store, when recording (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS        @WAIT@\n"
     "      --json                print the result as JSON\n"
     "  -q, --quiet               no progress, nothing printed on success\n"
     "  -h, --help                show this help\n";

@@ -48,6 +48,7 @@ static const char help[] =
     "      --view FILE.png      a picture of the alignment\n"
     "      --view-mode M        checkerboard (default) or blend\n"
     "  -s, --store PATH         the store (default $PLYLEDGER_STORE)\n"
+    "      --wait SECONDS       @WAIT@\n"
     "      --json               print the result as JSON\n"
     "  -q, --quiet              print nothing on success\n"
     "  -h, --help               show this help\n";

@@ -9,6 +9,7 @@
 #include <cmocka.h>
 
 #include <math.h>
+#include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -229,6 +230,52 @@ static void test_record__apply_is_all_or_nothing(void **state)
     free(wrong);
 }
 
+/* What the progress of a recording saw: each call, another connection
+ * tries to take the write lock at once (no waiting). */
+typedef struct lock_probe {
+    const char *path;
+    int calls, free;
+} lock_probe;
+
+static int probe_write_lock(void *ud, double fraction)
+{
+    (void)fraction;
+    lock_probe *p = ud;
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open_v2(p->path, &db, SQLITE_OPEN_READWRITE, NULL), SQLITE_OK);
+    sqlite3_busy_timeout(db, 0);
+    if (sqlite3_exec(db, "BEGIN IMMEDIATE", NULL, NULL, NULL) == SQLITE_OK) {
+        p->free++;
+        sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
+    }
+    sqlite3_close(db);
+    p->calls++;
+    return 0;
+}
+
+/*
+ * The costly part of a recording (reading, checking, compressing and
+ * hashing each map) is done before the write lock is taken: while the
+ * progress is told about each map, another writer could take the lock.
+ * The lock is held only for the inserts.
+ */
+static void test_record__apply_prepares_maps_before_taking_the_write_lock(void **state)
+{
+    fixture *f = *state;
+    write_text(f->dir, "c.json", sidecar_text);
+    char *path = tu_path(f->dir, "c.json");
+    pl_record *rec;
+    pl_err err = { 0 };
+    TU_OK(pl_record_load_sidecar(&rec, path, &err));
+    lock_probe p = { f->store_path, 0, 0 };
+    TU_OK(pl_record_apply(f->store, rec, probe_write_lock, &p, &err));
+    assert_int_equal(p.calls, 2);
+    assert_int_equal(p.free, 2);
+    assert_true(rec->sites[1].maps[0].map_id > 0);
+    pl_record_free(rec);
+    free(path);
+}
+
 static void test_record__add_map_checks_lists(void **state)
 {
     (void)state;
@@ -420,6 +467,7 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_record__sidecar_refuses_unknown_keys_and_bad_types, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_records_and_completes_from_the_site, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_is_all_or_nothing, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__apply_prepares_maps_before_taking_the_write_lock, setup, teardown),
         cmocka_unit_test(test_record__add_map_checks_lists),
         cmocka_unit_test_setup_teardown(test_record__registration_pair_and_outcome, setup, teardown),
         cmocka_unit_test(test_record__reduced_quantities_are_in_the_vocabulary),

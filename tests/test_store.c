@@ -17,11 +17,13 @@
 
 #include <dirent.h>
 #include <math.h>
+#include <pthread.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "record/store_int.h"
@@ -986,7 +988,11 @@ static void test_store__sqlite_refusals_map_to_status_codes(void **state)
     assert_int_equal(pl_store__status(SQLITE_NOTADB, "file is not a database"), PL_ENOTSTORE);
     assert_int_equal(pl_store__status(SQLITE_IOERR_READ, "disk I/O error"), PL_EIO);
     assert_int_equal(pl_store__status(SQLITE_NOMEM, "out of memory"), PL_ENOMEM);
-    assert_int_equal(pl_store__status(SQLITE_BUSY, "database is locked"), PL_EDB);
+    assert_int_equal(pl_store__status(SQLITE_BUSY, "database is locked"), PL_EBUSY);
+    assert_int_equal(pl_store__status(SQLITE_BUSY_SNAPSHOT, "database is locked"), PL_EBUSY);
+    assert_int_equal(pl_store__status(SQLITE_LOCKED, "database table is locked"), PL_EBUSY);
+    assert_int_equal(pl_store__status(SQLITE_READONLY, "attempt to write a readonly database"),
+                     PL_EDB);
     check_integrity(f->path);
 }
 
@@ -1709,6 +1715,147 @@ static void test_store__registrations_and_comparisons(void **state)
     check_integrity(f->path);
 }
 
+/* ---- writers waiting for each other ------------------------------------------------------ */
+
+/* Another handle on the same store, in a thread of its own: it takes the
+ * write lock (a transaction that registers an airframe), says so, holds the
+ * lock for hold_s seconds and commits. */
+typedef struct holder {
+    const char *path;
+    double hold_s;
+    int ready, rc;
+    pl_err err;
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+} holder;
+
+static void *hold_write_lock(void *ud)
+{
+    holder *h = ud;
+    pl_store *st = NULL;
+    h->rc = pl_store_open(&st, h->path, 0, &h->err);
+    if (!h->rc)
+        h->rc = pl_store_begin(st, &h->err);
+    if (!h->rc) {
+        pl_airframe af = airframe("PLX-0100", "PLX-T1");
+        h->rc = pl_store_add_airframe(st, &af, NULL, &h->err);
+    }
+    pthread_mutex_lock(&h->mu);
+    h->ready = 1;
+    pthread_cond_signal(&h->cv);
+    pthread_mutex_unlock(&h->mu);
+    if (!h->rc) {
+        struct timespec ts = { (time_t)h->hold_s,
+                               (long)((h->hold_s - (double)(time_t)h->hold_s) * 1e9) };
+        nanosleep(&ts, NULL);
+        h->rc = pl_store_commit(st, &h->err);
+    }
+    pl_store_close(st);
+    return NULL;
+}
+
+static void start_holder(holder *h, pthread_t *t, const char *path, double hold_s)
+{
+    memset(h, 0, sizeof *h);
+    h->path = path;
+    h->hold_s = hold_s;
+    pthread_mutex_init(&h->mu, NULL);
+    pthread_cond_init(&h->cv, NULL);
+    assert_int_equal(pthread_create(t, NULL, hold_write_lock, h), 0);
+    pthread_mutex_lock(&h->mu);
+    while (!h->ready)
+        pthread_cond_wait(&h->cv, &h->mu);
+    pthread_mutex_unlock(&h->mu);
+    if (h->rc)
+        fail_msg("the other writer: %s", h->err.msg);
+}
+
+static void join_holder(holder *h, pthread_t t)
+{
+    assert_int_equal(pthread_join(t, NULL), 0);
+    if (h->rc)
+        fail_msg("the other writer: %s", h->err.msg);
+    pthread_cond_destroy(&h->cv);
+    pthread_mutex_destroy(&h->mu);
+}
+
+static double seconds_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+/*
+ * A writer that finds the store locked by another waits for it (with the
+ * default wait, PL_STORE_WAIT_DEFAULT_S) and then writes: here the other
+ * holds the lock for 5.5 s, longer than SQLite's busy timeout of 5 s that
+ * the store once used.
+ */
+static void test_store__a_writer_waits_for_another_and_writes(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    holder h;
+    pthread_t t;
+    start_holder(&h, &t, f->path, 5.5);
+    double t0 = seconds_now();
+    pl_airframe af = airframe("PLX-0001", "PLX-T1");
+    int rc = pl_store_add_airframe(f->st, &af, NULL, &err);
+    double waited = seconds_now() - t0;
+    join_holder(&h, t); /* first: the other writer uses this test's memory */
+    if (rc)
+        fail_msg("the waiting write failed after %.2f s: %s", waited, err.msg);
+    if (waited < 4.0)
+        fail_msg("the write went in after %.2f s, while the other held the lock", waited);
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.airframes, 2);
+    check_integrity(f->path);
+}
+
+/*
+ * When the wait runs out the write fails with PL_EBUSY and a sentence that
+ * says what happened and that nothing was recorded, never SQLite's own
+ * text; the store holds only what the other writer committed.
+ */
+static void test_store__a_writer_that_waits_too_long_says_so_plainly(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    expect_fail(pl_store_set_wait(f->st, -1.0, &err), PL_EINVAL, &err, "wait");
+    expect_fail(pl_store_set_wait(f->st, NAN, &err), PL_EINVAL, &err, "wait");
+    TU_OK(pl_store_set_wait(f->st, 0.3, &err));
+    holder h;
+    pthread_t t;
+    start_holder(&h, &t, f->path, 2.0);
+    double t0 = seconds_now();
+    pl_airframe af = airframe("PLX-0001", "PLX-T1");
+    pl_err e1 = { 0 }, e2 = { 0 };
+    int rc1 = pl_store_add_airframe(f->st, &af, NULL, &e1);
+    double waited = seconds_now() - t0;
+    /* the same for a caller's own transaction */
+    int rc2 = pl_store_begin(f->st, &e2);
+    join_holder(&h, t); /* first: the other writer uses this test's memory */
+    expect_fail(rc1, PL_EBUSY, &e1, "another process is writing to the store");
+    tu_assert_msg_has(e1.msg, "nothing was recorded");
+    assert_null(strstr(e1.msg, "locked"));
+    assert_null(strstr(e1.msg, "database"));
+    if (waited < 0.25 || waited > 1.5)
+        fail_msg("gave up after %.2f s with a wait of 0.3 s", waited);
+    expect_fail(rc2, PL_EBUSY, &e2, "nothing was recorded");
+    assert_null(strstr(e2.msg, "locked"));
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.airframes, 1);
+    pl_airframe back;
+    TU_OK(pl_store_get_airframe(f->st, "PLX-0100", &back, &err));
+    expect_fail(pl_store_get_airframe(f->st, "PLX-0001", &back, &err), PL_ENOTFOUND, &err,
+                "PLX-0001");
+    TU_OK(pl_store_add_airframe(f->st, &af, NULL, &err)); /* free again: it goes in */
+    check_integrity(f->path);
+}
+
 /* ---- vocabularies and the previous schema ------------------------------------------ */
 
 /* The quoted words of the first "<opener> ... )" list in `sql` (as
@@ -2007,6 +2154,8 @@ int main(void)
         T(test_store__schema_checks_equal_the_vocabularies),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
         T(test_store__schema_version_is_the_number_of_schema_files),
+        T(test_store__a_writer_waits_for_another_and_writes),
+        T(test_store__a_writer_that_waits_too_long_says_so_plainly),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

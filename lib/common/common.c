@@ -28,6 +28,7 @@ PL_EXPORT const char *pl_strerror(int code)
     case PL_EREFUSED: return "refused by a quality limit";
     case PL_ECANCELED: return "canceled";
     case PL_EREADONLY: return "record is append-only";
+    case PL_EBUSY: return "another process is writing to the store";
     default: return "unknown error";
     }
 }

@@ -530,59 +530,99 @@ static int complete_map(pl_map *map, const pl_record_map *req, const pl_site *si
     return PL_OK;
 }
 
+/* Drop what apply wrote into the batch when it failed. */
+static void forget_ids(pl_record *rec)
+{
+    for (size_t i = 0; i < rec->nsites; i++) {
+        rec->sites[i].inspection_key = 0;
+        for (size_t j = 0; j < rec->sites[i].nmaps; j++)
+            rec->sites[i].maps[j].map_id = 0;
+    }
+}
+
+/* Read, complete, check and encode one map of a site (all before any lock). */
+static int prepare_map(pl_prepared_map **out, const pl_record_map *req, const pl_site *site,
+                       pl_err *err)
+{
+    pl_map *map = NULL;
+    int rc = pl_map_load(&map, req->path, err);
+    if (!rc)
+        rc = complete_map(map, req, site, err);
+    if (!rc)
+        rc = pl_site_check_map(site, map, err);
+    if (!rc) {
+        pl_err e = { 0 };
+        if ((rc = pl_prepared_map_new(out, map, &e)))
+            pl__err(err, rc, "%s", e.msg + (strncmp(e.msg, "map: ", 5) ? 0 : 5));
+    }
+    pl_map_free(map);
+    return rc;
+}
+
+/*
+ * Write a batch in two steps so that the write lock is held only for the
+ * inserts: first every map is read, completed from its site, checked and
+ * compressed and hashed (the costly part, told to `progress`), with no lock
+ * taken; then one transaction adds the inspections and the prepared maps,
+ * the store checking each against its site once more under the lock (a
+ * site corrected meanwhile by another writer is noticed). The prepared
+ * maps, compressed, are held in memory until the commit.
+ */
 PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
                               void *userdata, pl_err *err)
 {
     size_t total = 0, done = 0;
     for (size_t i = 0; i < rec->nsites; i++)
         total += rec->sites[i].nmaps;
-    int rc = pl_store_begin(store, err);
-    if (rc)
-        return rc;
+    pl_prepared_map **prep = calloc(total ? total : 1, sizeof *prep);
+    if (!prep)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    int rc = PL_OK;
     for (size_t i = 0; i < rec->nsites && !rc; i++) {
         pl_record_site *s = &rec->sites[i];
         pl_site site;
-        rc = pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code, &site, err);
-        if (rc)
-            break;
-        pl_id id;
-        rc = name_site(pl_store_add_inspection(store, &s->insp, &id, err), &s->insp, err);
-        if (rc)
-            break;
-        /* The key of a first version is its own id. */
-        s->inspection_key = id;
+        rc = name_site(pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code,
+                                         &site, err), &s->insp, err);
         for (size_t j = 0; j < s->nmaps && !rc; j++) {
-            pl_record_map *req = &s->maps[j];
-            pl_map *map = NULL;
-            rc = pl_map_load(&map, req->path, err);
-            if (!rc)
-                rc = complete_map(map, req, &site, err);
-            if (!rc) {
-                pl_map_record mr;
-                memset(&mr, 0, sizeof mr);
-                mr.inspection_key = s->inspection_key;
-                snprintf(mr.source, sizeof mr.source, "%s", pl__basename(req->path));
-                snprintf(mr.origin, sizeof mr.origin, "%s", made_by_for(req->path));
-                mr.parameters_json = NULL;
-                rc = pl_store_add_map(store, &mr, map, &req->map_id, err);
-            }
-            pl_map_free(map);
-            name_site(name_file(rc, req->path, err), &s->insp, err);
+            rc = prepare_map(&prep[done], &s->maps[j], &site, err);
+            name_site(name_file(rc, s->maps[j].path, err), &s->insp, err);
             done++;
             if (!rc && progress && progress(userdata, total ? (double)done / (double)total : 1.0))
                 rc = pl__err(err, PL_ECANCELED, "recording canceled");
         }
     }
-    if (rc) {
-        pl_store_rollback(store);
-        for (size_t i = 0; i < rec->nsites; i++) {
-            rec->sites[i].inspection_key = 0;
-            for (size_t j = 0; j < rec->sites[i].nmaps; j++)
-                rec->sites[i].maps[j].map_id = 0;
+    if (!rc)
+        rc = pl_store_begin(store, err);
+    if (!rc) {
+        done = 0;
+        for (size_t i = 0; i < rec->nsites && !rc; i++) {
+            pl_record_site *s = &rec->sites[i];
+            pl_id id = 0;
+            rc = name_site(pl_store_add_inspection(store, &s->insp, &id, err), &s->insp, err);
+            /* The key of a first version is its own id. */
+            s->inspection_key = id;
+            for (size_t j = 0; j < s->nmaps && !rc; j++) {
+                pl_record_map *req = &s->maps[j];
+                pl_map_record mr;
+                memset(&mr, 0, sizeof mr);
+                mr.inspection_key = s->inspection_key;
+                snprintf(mr.source, sizeof mr.source, "%s", pl__basename(req->path));
+                snprintf(mr.origin, sizeof mr.origin, "%s", made_by_for(req->path));
+                rc = pl_store_add_prepared_map(store, &mr, prep[done++], &req->map_id, err);
+                name_site(name_file(rc, req->path, err), &s->insp, err);
+            }
         }
-        return rc;
+        if (rc)
+            pl_store_rollback(store);
+        else
+            rc = pl_store_commit(store, err);
     }
-    return pl_store_commit(store, err);
+    for (size_t k = 0; k < total; k++)
+        pl_prepared_map_free(prep[k]);
+    free(prep);
+    if (rc)
+        forget_ids(rec);
+    return rc;
 }
 
 PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,
@@ -599,29 +639,38 @@ PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *ins
     if ((rc = pl_map_set_pitch(map, pu, pv, err)))
         return rc;
     map->placement = site.map_frame;
-    if ((rc = pl_store_begin(store, err)))
+    /* compress and hash before the write lock, as pl_record_apply() does */
+    pl_prepared_map *prep = NULL;
+    if ((rc = name_site(pl_site_check_map(&site, map, err), insp, err)))
         return rc;
+    pl_err e = { 0 };
+    if ((rc = pl_prepared_map_new(&prep, map, &e)))
+        return name_site(pl__err(err, rc, "%s", e.msg), insp, err);
+    pl_map_record mr;
+    memset(&mr, 0, sizeof mr);
+    snprintf(mr.source, sizeof mr.source, "%s", source ? pl__basename(source) : "");
+    snprintf(mr.origin, sizeof mr.origin, "%s", made_by ? made_by : "import");
+    /* the record holds a writable pointer (reads hand out owned text) */
+    mr.parameters_json = parameters_json ? pl__strdup(parameters_json) : NULL;
+    if (parameters_json && !mr.parameters_json) {
+        pl_prepared_map_free(prep);
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    }
     pl_id key = 0, id = 0;
-    rc = name_site(pl_store_add_inspection(store, insp, &key, err), insp, err);
+    rc = pl_store_begin(store, err);
     if (!rc) {
-        pl_map_record mr;
-        memset(&mr, 0, sizeof mr);
+        rc = name_site(pl_store_add_inspection(store, insp, &key, err), insp, err);
         mr.inspection_key = key;
-        snprintf(mr.source, sizeof mr.source, "%s", source ? pl__basename(source) : "");
-        snprintf(mr.origin, sizeof mr.origin, "%s", made_by ? made_by : "import");
-        /* the record holds a writable pointer (reads hand out owned text) */
-        mr.parameters_json = parameters_json ? pl__strdup(parameters_json) : NULL;
-        if (parameters_json && !mr.parameters_json)
-            rc = pl__err(err, PL_ENOMEM, "out of memory");
+        if (!rc)
+            rc = name_site(pl_store_add_prepared_map(store, &mr, prep, &id, err), insp, err);
+        if (rc)
+            pl_store_rollback(store);
         else
-            rc = name_site(pl_store_add_map(store, &mr, map, &id, err), insp, err);
-        free(mr.parameters_json);
+            rc = pl_store_commit(store, err);
     }
-    if (rc) {
-        pl_store_rollback(store);
-        return rc;
-    }
-    if ((rc = pl_store_commit(store, err)))
+    free(mr.parameters_json);
+    pl_prepared_map_free(prep);
+    if (rc)
         return rc;
     if (inspection_key)
         *inspection_key = key;

@@ -56,6 +56,8 @@ int pl_store__status(int xrc, const char *msg)
         break;
     }
     switch (xrc & 0xff) {
+    case SQLITE_BUSY:
+    case SQLITE_LOCKED: return PL_EBUSY;
     case SQLITE_CONSTRAINT: return PL_EINVAL;
     case SQLITE_NOMEM: return PL_ENOMEM;
     case SQLITE_IOERR:
@@ -69,8 +71,11 @@ int pl_store__status(int xrc, const char *msg)
 int pl_store__fail(pl_store *s, pl_err *err, const char *label)
 {
     const char *msg = sqlite3_errmsg(s->db);
-    return pl__err(err, pl_store__status(sqlite3_extended_errcode(s->db), msg), "%s: %s",
-                   label ? label : s->path, msg);
+    int code = pl_store__status(sqlite3_extended_errcode(s->db), msg);
+    if (code == PL_EBUSY)
+        return pl__err(err, code, "%s: another process is writing to the store and was still "
+                       "writing after %g s of waiting; nothing was recorded", s->path, s->wait_s);
+    return pl__err(err, code, "%s: %s", label ? label : s->path, msg);
 }
 
 int pl_store__exec(pl_store *s, const char *sql, pl_err *err)
@@ -260,9 +265,12 @@ PL_EXPORT int pl_store_begin(pl_store *s, pl_err *err)
     assert(s);
     if (s->flags & PL_STORE_READONLY)
         return pl__err(err, PL_EDB, "%s: store is open read-only", s->path);
-    if (sqlite3_exec(s->db, "BEGIN IMMEDIATE", NULL, NULL, NULL) != SQLITE_OK)
+    if (sqlite3_exec(s->db, "BEGIN IMMEDIATE", NULL, NULL, NULL) != SQLITE_OK) {
+        if (pl_store__status(sqlite3_extended_errcode(s->db), NULL) == PL_EBUSY)
+            return pl_store__fail(s, err, NULL);
         return pl__err(err, PL_EDB, "%s: cannot begin a transaction: %s", s->path,
                        sqlite3_errmsg(s->db));
+    }
     return PL_OK;
 }
 
@@ -270,7 +278,10 @@ PL_EXPORT int pl_store_commit(pl_store *s, pl_err *err)
 {
     assert(s);
     if (sqlite3_exec(s->db, "COMMIT", NULL, NULL, NULL) != SQLITE_OK) {
-        int rc = pl__err(err, PL_EDB, "%s: cannot commit: %s", s->path, sqlite3_errmsg(s->db));
+        int rc = pl_store__status(sqlite3_extended_errcode(s->db), NULL) == PL_EBUSY
+                     ? pl_store__fail(s, err, NULL)
+                     : pl__err(err, PL_EDB, "%s: cannot commit: %s", s->path,
+                               sqlite3_errmsg(s->db));
         if (!sqlite3_get_autocommit(s->db))
             sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
         return rc;
@@ -282,6 +293,56 @@ PL_EXPORT void pl_store_rollback(pl_store *s)
 {
     if (s && s->db && !sqlite3_get_autocommit(s->db))
         sqlite3_exec(s->db, "ROLLBACK", NULL, NULL, NULL);
+}
+
+/* ---- waiting for another writer ------------------------------------------------ */
+
+static double since(const struct timespec *t0)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)(now.tv_sec - t0->tv_sec) + 1e-9 * (double)(now.tv_nsec - t0->tv_nsec);
+}
+
+/*
+ * SQLite's busy handler: called while another connection holds the lock a
+ * statement needs, `count` times for the same wait (0 first). Sleep with a
+ * back-off that doubles from 1 ms to 100 ms, each sleep drawn at random
+ * between half and all of it so that writers waiting together do not wake
+ * in step, until s->wait_s seconds have passed since the wait began; then
+ * give up (SQLITE_BUSY, which pl_store__fail() words plainly).
+ */
+static int busy_wait(void *ud, int count)
+{
+    pl_store *s = ud;
+    if (count == 0)
+        clock_gettime(CLOCK_MONOTONIC, &s->busy_since);
+    double left = s->wait_s - since(&s->busy_since);
+    if (left <= 0)
+        return 0;
+    double step = count < 7 ? 1e-3 * (double)(1 << count) : 0.1;
+    step *= 0.5 + 0.5 * (double)randombytes_uniform(1000) / 1000.0;
+    if (step > left)
+        step = left;
+    struct timespec ts = { 0, (long)(step * 1e9) };
+    nanosleep(&ts, NULL);
+    return 1;
+}
+
+PL_EXPORT int pl_store_set_wait(pl_store *s, double seconds, pl_err *err)
+{
+    assert(s);
+    if (!(seconds >= 0 && seconds <= PL_STORE_WAIT_MAX_S))
+        return pl__err(err, PL_EINVAL, "%s: a wait for another writer of %g s is not 0 to %g s",
+                       s->path, seconds, PL_STORE_WAIT_MAX_S);
+    s->wait_s = seconds;
+    return PL_OK;
+}
+
+PL_EXPORT double pl_store_wait(const pl_store *s)
+{
+    assert(s);
+    return s->wait_s;
 }
 
 /* ---- life -------------------------------------------------------------------- */
@@ -320,16 +381,23 @@ static int info_insert(pl_store *s, const char *name, const char *value, pl_err 
 }
 
 /* Give a store its identity (random id, creation time and version) once. */
+static int has_identity(pl_store *s, int *found, pl_err *err)
+{
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, "SELECT 1 FROM store_info WHERE name = 'store_id'", err);
+    return rc ? rc : pl_store__finish_int(s, st, found, NULL, err, s->path);
+}
+
 static int ensure_identity(pl_store *s, pl_err *err)
 {
-    int rc = pl_store__exec(s, "BEGIN IMMEDIATE", err);
-    if (rc)
-        return rc;
-    sqlite3_stmt *st;
     int found = 0;
-    rc = pl_store__prepare(s, &st, "SELECT 1 FROM store_info WHERE name = 'store_id'", err);
-    if (!rc)
-        rc = pl_store__finish_int(s, st, &found, NULL, err, s->path);
+    /* look first without the write lock: an opened store nearly always has it */
+    int rc = has_identity(s, &found, err);
+    if (rc || found)
+        return rc;
+    if ((rc = pl_store__exec(s, "BEGIN IMMEDIATE", err)))
+        return rc;
+    rc = has_identity(s, &found, err);
     if (!rc && !found) {
         unsigned char rnd[16];
         char id[33], now[PL_DATE_SIZE];
@@ -353,16 +421,23 @@ static int ensure_identity(pl_store *s, pl_err *err)
 /*
  * Bring the store to PL_STORE_SCHEMA_VERSION, one migration per transaction.
  * The version is read again under the write lock, so two processes opening
- * the same old store cannot apply a migration twice.
+ * the same old store cannot apply a migration twice; a migration already
+ * applied takes no lock at all, so that opening a store does not wait for
+ * another process's write.
  */
 static int migrate(pl_store *s, pl_err *err)
 {
     for (int i = 0; i < pl__migration_count; i++) {
         const pl_migration *m = &pl__migrations[i];
-        int rc = pl_store__exec(s, "BEGIN IMMEDIATE", err);
+        int64_t uv = 0;
+        /* a store already migrated is not locked for writing just to say so */
+        int rc = pl_store__query_int(s, "PRAGMA user_version", &uv, err);
         if (rc)
             return rc;
-        int64_t uv = 0;
+        if (uv >= m->version)
+            continue;
+        if ((rc = pl_store__exec(s, "BEGIN IMMEDIATE", err)))
+            return rc;
         rc = pl_store__query_int(s, "PRAGMA user_version", &uv, err);
         if (!rc && uv < m->version) {
             if (uv != m->version - 1) {
@@ -413,7 +488,8 @@ static int store_new(pl_store **out, const char *path, unsigned flags, pl_err *e
         return code;
     }
     sqlite3_extended_result_codes(s->db, 1);
-    sqlite3_busy_timeout(s->db, 5000);
+    s->wait_s = PL_STORE_WAIT_DEFAULT_S;
+    sqlite3_busy_handler(s->db, busy_wait, s);
     int rc = pl_store__exec(s, "PRAGMA foreign_keys = ON", err);
     if (rc) {
         pl_store_close(s);

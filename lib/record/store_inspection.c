@@ -185,13 +185,11 @@ static int inspection_site(pl_store *s, pl_id key, pl_site *site, pl_err *err,
     return rc;
 }
 
-static int check_map(const pl_map_record *rec, const pl_map *map, const char *label, pl_err *err)
+/* The map itself, whatever its site: size, pitches, placement, channels. */
+static int check_map_header(const pl_map *map, const char *label, pl_err *err)
 {
-    int rc = pl_row__check(pl_row__table(PL_TABLE_MAP), rec, label, err);
-    if (rc)
-        return rc;
-    if (!map->data || !map->channels || map->width == 0 || map->height == 0 ||
-        map->nchannels == 0 || map->width > PL_MAP_MAX_SIDE || map->height > PL_MAP_MAX_SIDE ||
+    if (!map->channels || map->width == 0 || map->height == 0 || map->nchannels == 0 ||
+        map->width > PL_MAP_MAX_SIDE || map->height > PL_MAP_MAX_SIDE ||
         map->nchannels > PL_MAP_MAX_CHANNELS)
         return pl__err(err, PL_EINVAL, "%s: map has no data or an impossible size (%ux%u, %u "
                        "channels)", label, map->width, map->height, map->nchannels);
@@ -219,8 +217,8 @@ static int check_map(const pl_map_record *rec, const pl_map *map, const char *la
 }
 
 /* A map must be what its site expects: same size when set, pitch within 0.1 %. */
-static int check_map_fits_site(const pl_map *map, const pl_site *site, const char *label,
-                               pl_err *err)
+static int check_fits_site(const pl_site *site, const pl_map *map, const char *label,
+                           pl_err *err)
 {
     if (site->width_px && map->width != site->width_px)
         return pl__err(err, PL_ENOMATCH, "%s: map width %u px differs from the site's %u px",
@@ -237,12 +235,74 @@ static int check_map_fits_site(const pl_map *map, const pl_site *site, const cha
     return PL_OK;
 }
 
+PL_EXPORT int pl_site_check_map(const pl_site *site, const pl_map *map, pl_err *err)
+{
+    assert(site && map);
+    char label[STORE_LABEL_SIZE];
+    if (strnlen(site->airframe_serial, sizeof site->airframe_serial))
+        snprintf(label, sizeof label, "site %.*s on %.*s", FLD(site->code),
+                 FLD(site->airframe_serial));
+    else
+        snprintf(label, sizeof label, "site %.*s", FLD(site->code));
+    return check_fits_site(site, map, label, err);
+}
+
+struct pl_prepared_map {
+    pl_map header;         /* geometry and channels (owned); data NULL */
+    unsigned char *blob;   /* the stored form (pl_map_encode()) */
+    size_t blob_len;
+    char hex[PL_SHA256_HEX_SIZE];
+};
+
+PL_EXPORT void pl_prepared_map_free(pl_prepared_map *p)
+{
+    if (!p)
+        return;
+    free(p->header.channels);
+    free(p->blob);
+    free(p);
+}
+
+PL_EXPORT const pl_map *pl_prepared_map_header(const pl_prepared_map *p)
+{
+    assert(p);
+    return &p->header;
+}
+
+PL_EXPORT int pl_prepared_map_new(pl_prepared_map **out, const pl_map *map, pl_err *err)
+{
+    assert(out && map);
+    *out = NULL;
+    int rc = check_map_header(map, "map", err);
+    if (rc)
+        return rc;
+    if (!map->data)
+        return pl__err(err, PL_EINVAL, "map: no data");
+    pl_prepared_map *p = calloc(1, sizeof *p);
+    if (!p || !(p->header.channels = malloc(map->nchannels * sizeof *map->channels))) {
+        free(p);
+        return pl__err(err, PL_ENOMEM, "map: out of memory");
+    }
+    p->header = (pl_map){ map->width, map->height, map->nchannels, map->pitch_u, map->pitch_v,
+                          map->placement, p->header.channels, NULL };
+    memcpy(p->header.channels, map->channels, map->nchannels * sizeof *map->channels);
+    unsigned char digest[PL_SHA256_SIZE];
+    pl_err e = { 0 };
+    if ((rc = pl_map_encode(&p->blob, &p->blob_len, digest, map, &e))) {
+        pl_prepared_map_free(p);
+        return pl__err(err, rc, "map: %s", e.msg);
+    }
+    pl_sha256_hex(p->hex, digest);
+    *out = p;
+    return PL_OK;
+}
+
 /* The map record as stored: the caller's fields, the map's geometry and
  * channels, the source's base name and the content digest. */
-static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
-                      const unsigned char *blob, size_t blob_len, const char *hex, pl_id *id,
-                      pl_err *err, const char *label)
+static int insert_map(pl_store *s, const pl_map_record *rec, const pl_prepared_map *p,
+                      pl_id *id, pl_err *err, const char *label)
 {
+    const pl_map *map = &p->header;
     pl_map_record r = *rec;
     snprintf(r.source, sizeof r.source, "%s", rec->source[0] ? pl__basename(rec->source) : "");
     r.width = map->width;
@@ -252,12 +312,52 @@ static int insert_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
     r.pitch_v = map->pitch_v;
     r.placement = map->placement;
     r.channels = map->channels;
-    snprintf(r.sha256, sizeof r.sha256, "%s", hex);
+    snprintf(r.sha256, sizeof r.sha256, "%s", p->hex);
     pl_row row;
     pl_row__from_record(&row, pl_row__table(PL_TABLE_MAP), &r);
     pl_row__set_text(&row, "encoding", "zlib-f32le");
-    pl_row__set_blob(&row, "data", blob, blob_len);
+    pl_row__set_blob(&row, "data", p->blob, p->blob_len);
     return pl_store__insert(s, &row, id, err, label);
+}
+
+PL_EXPORT int pl_store_add_prepared_map(pl_store *s, const pl_map_record *rec,
+                                        const pl_prepared_map *p, pl_id *id, pl_err *err)
+{
+    assert(s && rec && p);
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "map for inspection %lld", (long long)rec->inspection_key);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_MAP), rec, label, err);
+    if (!rc)
+        rc = check_map_header(&p->header, label, err);
+    int owned;
+    if (rc || (rc = pl_store__write_begin(s, &owned, err)))
+        return rc;
+    pl_site site;
+    pl_id newid = 0;
+    rc = inspection_site(s, rec->inspection_key, &site, err, label);
+    if (!rc) {
+        snprintf(label, sizeof label, "map for inspection %lld (site %s on %s)",
+                 (long long)rec->inspection_key, site.code, site.airframe_serial);
+        rc = check_fits_site(&site, &p->header, label, err);
+    }
+    if (!rc) {
+        sqlite3_stmt *st;
+        rc = pl_store__prepare(s, &st, "SELECT id FROM map WHERE inspection_key = ?1 AND "
+                               "sha256 = ?2", err);
+        if (!rc) {
+            int found = 0;
+            int64_t other = 0;
+            sqlite3_bind_int64(st, 1, rec->inspection_key);
+            sqlite3_bind_text(st, 2, p->hex, -1, SQLITE_STATIC);
+            rc = pl_store__finish_int(s, st, &found, &other, err, label);
+            if (!rc && found)
+                rc = pl__err(err, PL_EEXISTS, "%s: the same content is already stored as map %lld",
+                             label, (long long)other);
+        }
+    }
+    if (!rc)
+        rc = insert_map(s, rec, p, &newid, err, label);
+    return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
 PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_map *map,
@@ -266,48 +366,18 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     assert(s && rec && map);
     char label[STORE_LABEL_SIZE];
     snprintf(label, sizeof label, "map for inspection %lld", (long long)rec->inspection_key);
-    int rc = check_map(rec, map, label, err);
-    int owned;
-    if (rc || (rc = pl_store__write_begin(s, &owned, err)))
-        return rc;
-    pl_site site;
-    unsigned char *blob = NULL;
-    size_t blob_len = 0;
-    unsigned char digest[PL_SHA256_SIZE];
-    char hex[PL_SHA256_HEX_SIZE];
-    pl_id newid = 0;
-    rc = inspection_site(s, rec->inspection_key, &site, err, label);
-    if (!rc) {
-        snprintf(label, sizeof label, "map for inspection %lld (site %s on %s)",
-                 (long long)rec->inspection_key, site.code, site.airframe_serial);
-        rc = check_map_fits_site(map, &site, label, err);
-    }
-    if (!rc) {
-        pl_err e = { 0 };
-        rc = pl_map_encode(&blob, &blob_len, digest, map, &e);
-        if (rc)
-            pl__err(err, rc, "%s: %s", label, e.msg);
-    }
-    if (!rc) {
-        pl_sha256_hex(hex, digest);
-        sqlite3_stmt *st;
-        rc = pl_store__prepare(s, &st, "SELECT id FROM map WHERE inspection_key = ?1 AND "
-                               "sha256 = ?2", err);
-        if (!rc) {
-            int found = 0;
-            int64_t other = 0;
-            sqlite3_bind_int64(st, 1, rec->inspection_key);
-            sqlite3_bind_text(st, 2, hex, -1, SQLITE_STATIC);
-            rc = pl_store__finish_int(s, st, &found, &other, err, label);
-            if (!rc && found)
-                rc = pl__err(err, PL_EEXISTS, "%s: the same content is already stored as map %lld",
-                             label, (long long)other);
-        }
-    }
+    int rc = pl_row__check(pl_row__table(PL_TABLE_MAP), rec, label, err);
     if (!rc)
-        rc = insert_map(s, rec, map, blob, blob_len, hex, &newid, err, label);
-    free(blob);
-    return pl_store__write_end_id(s, owned, rc, newid, id, err);
+        rc = check_map_header(map, label, err);
+    if (rc)
+        return rc;
+    pl_prepared_map *p = NULL;
+    pl_err e = { 0 };
+    if ((rc = pl_prepared_map_new(&p, map, &e)))
+        return pl__err(err, rc, "%s: %s", label, e.msg + (strncmp(e.msg, "map: ", 5) ? 0 : 5));
+    rc = pl_store_add_prepared_map(s, rec, p, id, err);
+    pl_prepared_map_free(p);
+    return rc;
 }
 
 /* Channels of map `id` into `ch` (room for n), checking they are 0..n-1. */

@@ -14,6 +14,7 @@
 
 #include <sqlite3.h>
 #include <stddef.h>
+#include <time.h>
 
 /* One numbered schema migration, compiled in from schema/NNNN_*.sql. */
 typedef struct pl_migration {
@@ -32,6 +33,8 @@ struct pl_store {
     unsigned flags;
     sqlite3_stmt *insert[PL_TABLE_COUNT];  /* each table's INSERT, prepared once */
     unsigned char last_row[32];            /* SHA-256 of the last row's canonical encoding */
+    double wait_s;                         /* how long a write waits for another's lock */
+    struct timespec busy_since;            /* when the current wait began */
 };
 
 /* A fixed text field as printf arguments: "%.*s" never reads past it. */
@@ -47,13 +50,15 @@ struct pl_store {
  * a trigger's "append-only" refusal is PL_EREADONLY, its "already" refusal
  * and UNIQUE / PRIMARY KEY violations PL_EEXISTS, a foreign key PL_ENOTFOUND,
  * other constraints PL_EINVAL, SQLITE_NOTADB PL_ENOTSTORE, I/O PL_EIO, out
- * of memory PL_ENOMEM, everything else PL_EDB.
+ * of memory PL_ENOMEM, a lock another connection held past the wait
+ * (SQLITE_BUSY, SQLITE_LOCKED) PL_EBUSY, everything else PL_EDB.
  */
 int pl_store__status(int sqlite_extended_code, const char *msg);
 
 /* Report the connection's last error as "<label>: <sqlite message>" (label
- * NULL: the store's path). Call it before anything else touches the
- * connection. */
+ * NULL: the store's path), or, for PL_EBUSY, as a plain sentence that
+ * another process is writing and nothing was recorded. Call it before
+ * anything else touches the connection. */
 int pl_store__fail(pl_store *s, pl_err *err, const char *label);
 
 int pl_store__exec(pl_store *s, const char *sql, pl_err *err);

@@ -44,6 +44,7 @@ typedef enum pl_status {
     PL_EREFUSED = -12,  /**< a quality limit refused the operation */
     PL_ECANCELED = -13, /**< the caller's progress callback asked to stop */
     PL_EREADONLY = -14, /**< the record is append-only */
+    PL_EBUSY = -15,     /**< another process held the store longer than the wait allowed */
 } pl_status;
 
 /** Size of the message buffer in pl_err. */

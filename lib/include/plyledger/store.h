@@ -24,6 +24,17 @@
  * pl_store_commit(), or pl_store_rollback() on failure, so that either all of
  * them land or the store is left exactly as it was.
  *
+ * Several writers. Many processes may open one store; readers never wait,
+ * and one writer at a time holds the write lock, from the start of its
+ * transaction to its end. A writer that finds the lock taken waits for it,
+ * sleeping with a back-off (1 ms doubling to 100 ms, randomised), for up to
+ * PL_STORE_WAIT_DEFAULT_S seconds unless pl_store_set_wait() says otherwise;
+ * when the wait runs out the call fails with PL_EBUSY ("another process is
+ * writing to the store ...; nothing was recorded") and leaves the store as
+ * it was. Callers keep the lock short by doing their costly work first:
+ * pl_prepared_map_new() compresses and hashes a map before any lock, and
+ * plyledger/record.h's batches prepare every map before they begin.
+ *
  * Records are plain structs with fixed text buffers, filled by the caller
  * for writes and by the store for reads. Text that does not fit its buffer
  * is refused with PL_EINVAL. Names (serials, codes, references, people) are
@@ -94,9 +105,26 @@ PL_EXPORT void pl_store_close(pl_store *store);
 /** Schema version of the open store. */
 PL_EXPORT int pl_store_schema_version(const pl_store *store);
 
-/** Begin a transaction spanning several calls. @return PL_OK, PL_EDB. */
+/** How long a writer waits for another's write lock by default (seconds). */
+#define PL_STORE_WAIT_DEFAULT_S 60.0
+/** The longest wait pl_store_set_wait() takes (seconds): one hour. */
+#define PL_STORE_WAIT_MAX_S 3600.0
+
+/**
+ * Set how long a write on this handle waits for another process's write
+ * lock before it fails with PL_EBUSY (0: not at all).
+ * @return PL_OK, PL_EINVAL (NaN, negative, above PL_STORE_WAIT_MAX_S).
+ */
+PL_EXPORT int pl_store_set_wait(pl_store *store, double seconds, pl_err *err);
+
+/** The wait of pl_store_set_wait() (seconds). */
+PL_EXPORT double pl_store_wait(const pl_store *store);
+
+/** Begin a transaction spanning several calls (it takes the write lock,
+ * waiting for another writer as pl_store_set_wait() says).
+ * @return PL_OK, PL_EBUSY, PL_EDB. */
 PL_EXPORT int pl_store_begin(pl_store *store, pl_err *err);
-/** Commit it. @return PL_OK, PL_EDB. */
+/** Commit it. @return PL_OK, PL_EBUSY, PL_EDB. */
 PL_EXPORT int pl_store_commit(pl_store *store, pl_err *err);
 /** Roll it back; harmless when none is open. */
 PL_EXPORT void pl_store_rollback(pl_store *store);
@@ -370,18 +398,56 @@ typedef struct pl_map_record {
 } pl_map_record;
 
 /**
+ * Check a map against what its site expects: the site's size (when set),
+ * its pitches within 0.1 %.
+ * @return PL_OK, PL_ENOMATCH naming what differs.
+ */
+PL_EXPORT int pl_site_check_map(const pl_site *site, const pl_map *map, pl_err *err);
+
+/**
  * Store a map for an inspection. The map's size must equal the site's
  * expected size (when set), its pitches the site's within 0.1 %, every
  * channel must have a valid quantity and unit (pl_quantity_check()), its
  * placement must pass pl_placement_check() and is stored as the map's own,
  * and no other map of the inspection may have the same content (SHA-256 of
  * the decoded data). Only inspection_key, source, origin, software_version
- * and parameters_json are read from `rec`.
+ * and parameters_json are read from `rec`. The map is compressed and
+ * hashed inside the call; pl_prepared_map_new() does that ahead of a
+ * transaction instead.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (inspection), PL_ENOMATCH (size or
- *         pitch differs from the site's), PL_EEXISTS (same content), PL_EDB.
+ *         pitch differs from the site's), PL_EEXISTS (same content),
+ *         PL_EBUSY, PL_EDB.
  */
 PL_EXPORT int pl_store_add_map(pl_store *store, const pl_map_record *rec, const pl_map *map,
                                pl_id *id, pl_err *err);
+
+/** A map made ready for the store: checked, compressed and hashed, without
+ * its float data (see "Several writers" above). */
+typedef struct pl_prepared_map pl_prepared_map;
+
+/**
+ * Check `map` as pl_store_add_map() does (all but what needs its site) and
+ * encode it for the store; the map itself is not kept.
+ * @param[out] out  free with pl_prepared_map_free()
+ * @return PL_OK, PL_EINVAL, PL_ENOMEM.
+ */
+PL_EXPORT int pl_prepared_map_new(pl_prepared_map **out, const pl_map *map, pl_err *err);
+
+/** Release a prepared map; NULL is accepted. */
+PL_EXPORT void pl_prepared_map_free(pl_prepared_map *prepared);
+
+/** The geometry and channels of a prepared map (data NULL); borrowed for
+ * the prepared map's life. */
+PL_EXPORT const pl_map *pl_prepared_map_header(const pl_prepared_map *prepared);
+
+/**
+ * pl_store_add_map() for a prepared map: the same checks against the
+ * inspection's site and the other maps, then the insert.
+ * @return as pl_store_add_map().
+ */
+PL_EXPORT int pl_store_add_prepared_map(pl_store *store, const pl_map_record *rec,
+                                        const pl_prepared_map *prepared, pl_id *id,
+                                        pl_err *err);
 
 /**
  * Load map `id` with its data, checking the stored digest.
