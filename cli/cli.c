@@ -224,6 +224,8 @@ int cli_pitch(const char *opt, const char *arg, double *pu, double *pv, const ch
         return CLI_USAGE;
     if (!(*pu > 0) || !(*pv > 0))
         return cli_usage_error(usage, "%s must be positive", opt);
+    if (cli_bound(PL_BOUND_PITCH, *pu, opt) || cli_bound(PL_BOUND_PITCH, *pv, opt))
+        return CLI_ERROR;
     return 0;
 }
 
@@ -242,11 +244,21 @@ int cli_count(const char *opt, const char *arg, long long *out, const char *usag
 {
     char *end;
     errno = 0;
-    long long v = strtoll(arg, &end, 10);
-    if (end == arg || *end || errno || v < 0)
+    /* strtoll alone would take blanks and a sign before the digits */
+    long long v = arg[0] >= '0' && arg[0] <= '9' ? strtoll(arg, &end, 10) : -1;
+    if (errno == ERANGE)
+        return cli_usage_error(usage, "%s: '%s' is too large a number", opt, arg);
+    if (v < 0 || *end)
         return cli_usage_error(usage, "%s: '%s' is not a whole number >= 0", opt, arg);
     *out = v;
     return 0;
+}
+
+int cli_bound(pl_bound bound, double value, const char *opt)
+{
+    pl_err err = { 0 };
+    int rc = pl_bound_check(bound, value, opt, &err);
+    return rc ? cli_fail_err(rc, &err) : 0;
 }
 
 void cli_progress_init(cli_progress *p, const char *label, const cli_common *common)

@@ -93,9 +93,14 @@ int cli_open_output(pl_outfile **out, const cli_common *common, const char *path
  * Returns 0, or CLI_USAGE (printed) when it does not fit. */
 int cli_text(char *dst, size_t cap, const char *src, const char *opt);
 
-/* Parse a number option strictly; prints a usage error naming `opt`. */
+/* Parse a number option strictly; prints a usage error naming `opt`.
+ * cli_count takes decimal digits only (no sign, no blanks) that fit. */
 int cli_number(const char *opt, const char *arg, double *out, const char *usage);
 int cli_count(const char *opt, const char *arg, long long *out, const char *usage);
+
+/* Check an option's number against the library's bound for it
+ * (pl_bound_check()); prints the refusal. Returns 0 or CLI_ERROR. */
+int cli_bound(pl_bound bound, double value, const char *opt);
 
 /* Progress on stderr when it is a terminal and not quiet. A pl_progress_fn. */
 typedef struct cli_progress {

@@ -171,14 +171,24 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
         || (V(a, O_U) && (rc = vec3("--u", V(a, O_U), s.map_frame.u)))
         || (V(a, O_V) && (rc = vec3("--v", V(a, O_V), s.map_frame.v))))
         return rc;
+    if ((V(a, O_THICKNESS) && (rc = cli_bound(PL_BOUND_THICKNESS, s.thickness_mm, "--thickness")))
+        || (V(a, O_DIFFUSIVITY)
+            && (rc = cli_bound(PL_BOUND_DIFFUSIVITY, s.diffusivity_mm2_s, "--diffusivity"))))
+        return rc;
+    for (int k = 0; V(a, O_ORIGIN) && k < 3; k++)
+        if ((rc = cli_bound(PL_BOUND_COORDINATE, s.map_frame.origin[k], "--origin")))
+            return rc;
     long long n;
     if (V(a, O_WIDTH)) {
-        if ((rc = cli_count("--width", V(a, O_WIDTH), &n, usage)))
+        /* 0 is "any size"; anything else is a map side */
+        if ((rc = cli_count("--width", V(a, O_WIDTH), &n, usage))
+            || (n && (rc = cli_bound(PL_BOUND_MAP_SIDE, (double)n, "--width"))))
             return rc;
         s.width_px = (uint32_t)n;
     }
     if (V(a, O_HEIGHT)) {
-        if ((rc = cli_count("--height", V(a, O_HEIGHT), &n, usage)))
+        if ((rc = cli_count("--height", V(a, O_HEIGHT), &n, usage))
+            || (n && (rc = cli_bound(PL_BOUND_MAP_SIDE, (double)n, "--height"))))
             return rc;
         s.height_px = (uint32_t)n;
     }

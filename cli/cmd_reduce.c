@@ -169,7 +169,7 @@ static int take_opt(void *ctx, int opt, const char *arg)
             return CLI_USAGE;
         if (!(o->diffusivity_mm2_s > 0))
             return cli_usage_error(usage, "--diffusivity must be positive");
-        break;
+        return cli_bound(PL_BOUND_DIFFUSIVITY, o->diffusivity_mm2_s, "--diffusivity");
     case O_DEPTH_METHOD:
         if (strcmp(arg, "peak-d2") == 0)
             o->depth_method = PL_DEPTH_PEAK_D2;

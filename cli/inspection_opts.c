@@ -51,10 +51,14 @@ int cli_inspection_take(cli_inspection_args *a, int opt, const char *arg, const 
     case CLI_O_PARAMETERS: a->parameters = arg; break;
     case CLI_O_HOURS:
         a->has_hours = 1;
-        return cli_number("--hours", arg, &a->hours, usage);
+        if (cli_number("--hours", arg, &a->hours, usage))
+            return CLI_USAGE;
+        return cli_bound(PL_BOUND_HOURS, a->hours, "--hours");
     case CLI_O_CYCLES:
         a->has_cycles = 1;
-        return cli_count("--cycles", arg, &a->cycles, usage);
+        if (cli_count("--cycles", arg, &a->cycles, usage))
+            return CLI_USAGE;
+        return cli_bound(PL_BOUND_CYCLES, (double)a->cycles, "--cycles");
     default:
         return cli_usage_error(usage, "unexpected option");
     }

@@ -275,6 +275,25 @@ static void test_plan__refuses_bad_numbers(void **state)
     expect_refusal(f, "site,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,pitch_mm,"
                    "thickness_mm\nF01,eddy-current,0,0,0,1,0,0,0,1,0,1,-2\n",
                    PL_EINVAL, " line 2: site F01: thickness_mm must be > 0 or unknown (got -2)");
+    /* finite, but out of all plausibility (the bounds of pl_bound_get()) */
+    expect_refusal(f, HEADER "F01,eddy-current,0,0,0,1,0,0,0,1,0,1e308\n", PL_ERANGE,
+                   " line 2: column pitch_mm: 1e+308 mm is outside the plausible pitch, 0.001 to "
+                   "100 mm");
+    expect_refusal(f, "site,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,pitch_mm,"
+                   "pitch_v_mm\nF01,eddy-current,0,0,0,1,0,0,0,1,0,1,0.0000001\n", PL_ERANGE,
+                   " line 2: column pitch_v_mm: 1e-07 mm is outside the plausible pitch, 0.001 "
+                   "to 100 mm");
+    expect_refusal(f, "site,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,pitch_mm,"
+                   "thickness_mm\nF01,eddy-current,0,0,0,1,0,0,0,1,0,1,2e9\n", PL_ERANGE,
+                   " line 2: column thickness_mm: 2000000000 mm is outside the plausible "
+                   "thickness, 0.01 to 500 mm");
+    expect_refusal(f, "site,method,origin_x,origin_y,origin_z,u_x,u_y,u_z,v_x,v_y,v_z,pitch_mm,"
+                   "diffusivity_mm2_s\nF01,eddy-current,0,0,0,1,0,0,0,1,0,1,1e9\n", PL_ERANGE,
+                   " line 2: column diffusivity_mm2_s: 1000000000 mm^2/s is outside the "
+                   "plausible diffusivity, 0.001 to 500 mm^2/s");
+    expect_refusal(f, HEADER "F01,eddy-current,0,1e300,0,1,0,0,0,1,0,1\n", PL_ERANGE,
+                   " line 2: column origin_y: 1e+300 is outside the plausible part coordinate, "
+                   "-1000000 to 1000000");
 }
 
 static void test_plan__refuses_bad_sites(void **state)

@@ -134,6 +134,17 @@ static void test_record__sidecar_refuses_unknown_keys_and_bad_types(void **state
         { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\",\n"
           "   \"placement\": { \"origin\": [0,0,0], \"u\": [1,1,0], \"v\": [0,0,1] } } ] } ] }", "u" },
         { "[1, 2]", "object" },
+        /* numbers out of range: a huge count is not cast, 2^53 + 1 is not rounded */
+        { "{ \"cycles\": 1e30, \"sites\": [ { \"site\": \"A1\" } ] }", "bad.json: top level: \"cycles\": 1e+30 is 2^53 or more" },
+        { "{ \"cycles\": 9007199254740993, \"sites\": [ { \"site\": \"A1\" } ] }", "\"cycles\": 9.0072e+15 is 2^53 or more" },
+        { "{ \"sites\": [ { \"site\": \"A1\", \"cycles\": -4 } ] }", "bad.json: site A1: \"cycles\" must not be negative" },
+        { "{ \"cycles\": 1000001, \"sites\": [ { \"site\": \"A1\" } ] }", "\"cycles\": 1000001 is outside the plausible flight cycles" },
+        { "{ \"hours\": 1e30, \"sites\": [ { \"site\": \"A1\" } ] }", "\"hours\": 1e+30 h is outside the plausible flight hours" },
+        { "{ \"hours\": \"12\", \"sites\": [ { \"site\": \"A1\" } ] }", "\"hours\" must be a number" },
+        { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\", \"pitch_mm\": 1e308 } ] } ] }", "bad.json: site A1: \"pitch_mm\": 1e+308 mm is outside the plausible pitch" },
+        { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\", \"pitch_mm\": [0.5, 1e-9] } ] } ] }", "pitch" },
+        { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\",\n"
+          "   \"placement\": { \"origin\": [0,1e300,0], \"u\": [1,0,0], \"v\": [0,1,0] } } ] } ] }", "site A1: placement origin y: 1e+300 is outside the plausible part coordinate" },
         { "{ \"sites\": [ { \"site\": \"A1\" } ] ", "line 1" },
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
@@ -289,6 +300,8 @@ static void test_record__add_map_checks_lists(void **state)
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth", "K", NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "my-quantity", NULL, NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth", NULL, -1.0, NAN, &err), PL_EINVAL);
+    assert_int_equal(pl_record_add_map(rec, 0, "x.npy", "depth", NULL, 0.5, 1e308, &err), PL_ERANGE);
+    assert_non_null(strstr(err.msg, "x.npy: pitch: 1e+308 mm is outside the plausible pitch"));
     assert_int_equal(pl_record_add_map(rec, 1, "x.npy", "depth", NULL, NAN, NAN, &err), PL_EINVAL);
     assert_int_equal(pl_record_add_map(rec, 0, "x.npy", " depth , phase ", "mm,rad", NAN, NAN, &err), PL_OK);
     assert_string_equal(rec->sites[0].maps[0].channels[1].quantity, "phase");

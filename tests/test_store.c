@@ -895,6 +895,84 @@ static void test_store__validates_records_with_clear_messages(void **state)
 }
 
 /*
+ * Numbers out of all plausibility are refused by the store itself, with
+ * the bound named, whatever way they came in (fault: a pitch of 1e308 mm
+ * or 1e30 flight cycles went in, and later broke rendering and
+ * registration). One table holds the bounds (pl_bound_get()).
+ */
+static void test_store__numbers_keep_to_their_bounds(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    for (int b = 0; b < PL_BOUND_COUNT; b++) {
+        const pl_bound_info *info = pl_bound_get((pl_bound)b);
+        assert_non_null(info);
+        assert_true(info->min < info->max);
+        assert_true(info->name[0] && info->reason[0]);
+        TU_OK(pl_bound_check((pl_bound)b, info->min, "x", &err));
+        TU_OK(pl_bound_check((pl_bound)b, info->max, "x", &err));
+        expect_fail(pl_bound_check((pl_bound)b, info->max * 1.5 + 1, "x", &err), PL_ERANGE, &err,
+                    info->name);
+        expect_fail(pl_bound_check((pl_bound)b, NAN, "x", &err), PL_EINVAL, &err, "finite");
+    }
+    assert_null(pl_bound_get(PL_BOUND_COUNT));
+    expect_fail(pl_bound_check(PL_BOUND_CYCLES, 7.5, "--cycles", &err), PL_EINVAL, &err,
+                "--cycles: 7.5 is not a whole number of flight cycles");
+    expect_fail(pl_bound_check(PL_BOUND_PITCH, 1e308, "plan.csv line 2: column pitch_mm", &err),
+                PL_ERANGE, &err, "plan.csv line 2: column pitch_mm: 1e+308 mm is outside the "
+                "plausible pitch, 0.001 to 100 mm");
+    expect_fail(pl_bound_check(PL_BOUND_CYCLES, 1e30, "c", &err), PL_ERANGE, &err,
+                "c: 1e+30 is outside the plausible flight cycles, 0 to 1000000");
+
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    char *before = dump(f->path);
+    pl_site s = site("PLX-0001", "S07");
+    s.pitch_u = s.pitch_v = 1e308;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_ERANGE, &err,
+                "site S07 on PLX-0001: pitch_u: 1e+308 mm is outside the plausible pitch");
+    s = site("PLX-0001", "S07");
+    s.thickness_mm = 1e9;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_ERANGE, &err, "thickness");
+    s = site("PLX-0001", "S07");
+    s.diffusivity_mm2_s = 1e-9;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_ERANGE, &err, "diffusivity");
+    s = site("PLX-0001", "S07");
+    s.map_frame.origin[1] = -1e300;
+    expect_fail(pl_store_add_site(f->st, &s, NULL, &err), PL_ERANGE, &err, "origin_y");
+    add_site(f->st, "PLX-0001", "S08");
+    char *with_site = dump(f->path);
+    pl_inspection in = inspection("PLX-0001", "S08", "baseline", "2022-03-01");
+    in.aircraft_hours = 1e30;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_ERANGE, &err,
+                "aircraft_hours: 1e+30 h is outside the plausible flight hours");
+    in = inspection("PLX-0001", "S08", "baseline", "2022-03-01");
+    in.aircraft_cycles = INT64_MAX;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_ERANGE, &err,
+                "aircraft_cycles");
+    in.aircraft_cycles = 1000000;
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    /* a map whose own pitch or placement is out of bounds is refused before it is encoded */
+    pl_map *m = test_map(8, 6, 1, 0.0f);
+    pl_prepared_map *p = NULL;
+    m->pitch_u = 1e308;
+    expect_fail(pl_prepared_map_new(&p, m, &err), PL_ERANGE, &err, "pitch along u");
+    assert_null(p);
+    m->pitch_u = 0.5;
+    m->placement.origin[2] = 1e7;
+    pl_map_record r = map_record(1);
+    expect_fail(pl_store_add_map(f->st, &r, m, NULL, &err), PL_ERANGE, &err,
+                "placement origin z");
+    pl_map_free(m);
+    char *after = dump(f->path);
+    assert_string_not_equal(with_site, after); /* the good inspection went in */
+    assert_string_not_equal(before, with_site);
+    free(before);
+    free(with_site);
+    free(after);
+    check_integrity(f->path);
+}
+
+/*
  * Calendar dates: the library's check agrees with SQLite's date() calendar,
  * where date(d, '+0 days') gives d back only for a real date
  * (https://www.sqlite.org/lang_datefunc.html), across leap-year rules.
@@ -2142,6 +2220,7 @@ int main(void)
         T(test_store__corrections_supersede_and_keep_history),
         T(test_store__refuses_duplicates),
         T(test_store__validates_records_with_clear_messages),
+        T(test_store__numbers_keep_to_their_bounds),
         T(test_store__dates_agree_with_sqlite_calendar),
         T(test_store__sqlite_refusals_map_to_status_codes),
         T(test_store__map_round_trip_is_bit_exact),

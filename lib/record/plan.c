@@ -194,13 +194,24 @@ static int text(reader *r, int c, char *dst, size_t cap, const char *fallback)
     return pl__copy_text(dst, cap, *s ? s : fallback, what, r->err);
 }
 
+/* A present number of column c inside bound b. */
+static int bounded(reader *r, int c, double v, int present, pl_bound b)
+{
+    if (!present)
+        return PL_OK;
+    char what[PL_ERR_MSG_SIZE / 2];
+    snprintf(what, sizeof what, "%s line %zu: column %s", r->path, r->row_line,
+             columns[c].name);
+    return pl_bound_check(b, v, what, r->err);
+}
+
 static int pitch(reader *r, int c, double *out, int *present)
 {
     int rc = number(r, c, out, present);
     if (rc == PL_EINVAL || (!rc && *present && !(*out > 0)))
         return pl__err(r->err, PL_EINVAL, "%s line %zu: column %s: '%s' is not a pitch > 0",
                        r->path, r->row_line, columns[c].name, field(r, c));
-    return rc;
+    return rc ? rc : bounded(r, c, *out, *present, PL_BOUND_PITCH);
 }
 
 /* One data record to one site, checked; duplicates of code are refused. */
@@ -239,6 +250,8 @@ static int site_row(reader *r)
                        &site.map_frame.v[2] };
     for (int k = 0; !rc && k < 9; k++)
         rc = number(r, C_OX + k, vec[k], &present);
+    for (int k = 0; !rc && k < 3; k++)
+        rc = bounded(r, C_OX + k, *vec[k], 1, PL_BOUND_COORDINATE);
     /* Absent optional numbers keep these defaults: number() leaves them. */
     if (!rc)
         rc = pitch(r, C_PITCH, &site.pitch_u, &present);
@@ -249,8 +262,12 @@ static int site_row(reader *r)
     site.diffusivity_mm2_s = NAN;
     if (!rc)
         rc = number(r, C_THICKNESS, &site.thickness_mm, &present);
+    if (!rc && site.thickness_mm > 0)
+        rc = bounded(r, C_THICKNESS, site.thickness_mm, present, PL_BOUND_THICKNESS);
     if (!rc)
         rc = number(r, C_DIFFUSIVITY, &site.diffusivity_mm2_s, &present);
+    if (!rc && site.diffusivity_mm2_s > 0)
+        rc = bounded(r, C_DIFFUSIVITY, site.diffusivity_mm2_s, present, PL_BOUND_DIFFUSIVITY);
     if (!rc)
         rc = pixels(r, C_WIDTH, &site.width_px);
     if (!rc)

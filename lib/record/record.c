@@ -126,6 +126,14 @@ static int add_map(pl_record *rec, size_t site, const char *path, pl_channel *ch
     if ((!isnan(pitch_u) && !(pitch_u > 0 && isfinite(pitch_u)))
         || (!isnan(pitch_v) && !(pitch_v > 0 && isfinite(pitch_v))))
         return pl__err(err, PL_EINVAL, "%s: pitch must be a positive number of mm", path);
+    char what[PL_ERR_MSG_SIZE / 2];
+    snprintf(what, sizeof what, "%s: pitch", path);
+    for (int k = 0; k < 2; k++) {
+        double p = k ? pitch_v : pitch_u;
+        int rc = isnan(p) ? PL_OK : pl_bound_check(PL_BOUND_PITCH, p, what, err);
+        if (rc)
+            return rc;
+    }
     pl_record_map *m = NULL;
     int rc = append_map(&rec->sites[site], &m, err);
     if (rc)
@@ -194,6 +202,30 @@ static const text_field text_fields[] = {
     TEXT_FIELD("notes", notes),
 };
 
+/*
+ * A JSON number that must be a whole count inside its bound. cJSON reads
+ * every number as a double, which holds whole numbers exactly only below
+ * 2^53; a larger one is refused rather than taken as a neighbour of what
+ * the file says (2^53 + 1 would read as 2^53).
+ */
+static int take_whole(int64_t *out, const cJSON *it, pl_bound b, const char *what, pl_err *err)
+{
+    if (!cJSON_IsNumber(it))
+        return pl__err(err, PL_EFORMAT, "%s must be a whole number", what);
+    double v = it->valuedouble;
+    if (!(fabs(v) < 9007199254740992.0))
+        return pl__err(err, PL_ERANGE, "%s: %g is 2^53 or more, beyond what a JSON number "
+                       "holds exactly", what, v);
+    if (v != floor(v))
+        return pl__err(err, PL_EFORMAT, "%s must be a whole number (got %.17g)", what, v);
+    if (v < 0)
+        return pl__err(err, PL_ERANGE, "%s must not be negative (got %.0f)", what, v);
+    int rc = pl_bound_check(b, v, what, err);
+    if (!rc)
+        *out = (int64_t)v;
+    return rc;
+}
+
 /* Apply the inspection keys of JSON object `obj` onto `insp`; `where`
  * names the object in messages. Keys in `extra` are allowed and skipped. */
 static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const char *file,
@@ -217,14 +249,19 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
         }
         if (known)
             continue;
+        char what[PL_ERR_MSG_SIZE / 2];
+        snprintf(what, sizeof what, "%s: %s: \"%s\"", file, where, k);
         if (strcmp(k, "hours") == 0) {
-            if (!cJSON_IsNumber(it) || !(it->valuedouble >= 0))
-                return pl__err(err, PL_EFORMAT, "%s: %s: \"hours\" must be a number >= 0", file, where);
+            if (!cJSON_IsNumber(it))
+                return pl__err(err, PL_EFORMAT, "%s must be a number of flight hours", what);
+            int rc = pl_bound_check(PL_BOUND_HOURS, it->valuedouble, what, err);
+            if (rc)
+                return rc;
             insp->aircraft_hours = it->valuedouble;
         } else if (strcmp(k, "cycles") == 0) {
-            if (!cJSON_IsNumber(it) || !(it->valuedouble >= 0) || it->valuedouble != floor(it->valuedouble))
-                return pl__err(err, PL_EFORMAT, "%s: %s: \"cycles\" must be a whole number >= 0", file, where);
-            insp->aircraft_cycles = (int64_t)it->valuedouble;
+            int rc = take_whole(&insp->aircraft_cycles, it, PL_BOUND_CYCLES, what, err);
+            if (rc)
+                return rc;
         } else if (strcmp(k, "parameters") == 0) {
             if (!cJSON_IsObject(it))
                 return pl__err(err, PL_EFORMAT, "%s: %s: \"parameters\" must be an object", file, where);
@@ -248,7 +285,9 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
     return PL_OK;
 }
 
-static int take_vec3(double out[3], const cJSON *arr, const char *file, const char *what, pl_err *err)
+/* Three numbers; with `coordinates`, each a part coordinate in its bound. */
+static int take_vec3(double out[3], const cJSON *arr, const char *file, const char *what,
+                     int coordinates, pl_err *err)
 {
     if (!cJSON_IsArray(arr) || cJSON_GetArraySize(arr) != 3)
         return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
@@ -256,6 +295,12 @@ static int take_vec3(double out[3], const cJSON *arr, const char *file, const ch
         const cJSON *v = cJSON_GetArrayItem(arr, i);
         if (!cJSON_IsNumber(v))
             return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+        char name[PL_ERR_MSG_SIZE / 2];
+        snprintf(name, sizeof name, "%s: %s %c", file, what, "xyz"[i]);
+        int rc = coordinates ? pl_bound_check(PL_BOUND_COORDINATE, v->valuedouble, name, err)
+                             : PL_OK;
+        if (rc)
+            return rc;
         out[i] = v->valuedouble;
     }
     return PL_OK;
@@ -271,11 +316,11 @@ static int take_placement(pl_placement *p, const cJSON *obj, const char *file, p
     for (const cJSON *it = obj->child; it; it = it->next) {
         int rc = PL_OK;
         if (strcmp(it->string, "origin") == 0)
-            rc = take_vec3(p->origin, it, file, "placement origin", err), have |= 1;
+            rc = take_vec3(p->origin, it, file, "placement origin", 1, err), have |= 1;
         else if (strcmp(it->string, "u") == 0)
-            rc = take_vec3(p->u, it, file, "placement u", err), have |= 2;
+            rc = take_vec3(p->u, it, file, "placement u", 0, err), have |= 2;
         else if (strcmp(it->string, "v") == 0)
-            rc = take_vec3(p->v, it, file, "placement v", err), have |= 4;
+            rc = take_vec3(p->v, it, file, "placement v", 0, err), have |= 4;
         else if (strcmp(it->string, "system") == 0 && cJSON_IsString(it))
             rc = pl__copy_text(p->system, sizeof p->system, it->valuestring, "placement system", err);
         else if (strcmp(it->string, "unit") == 0 && cJSON_IsString(it))
@@ -292,7 +337,7 @@ static int take_placement(pl_placement *p, const cJSON *obj, const char *file, p
 }
 
 static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *file,
-                    const char *dir, pl_err *err)
+                    const char *where, const char *dir, pl_err *err)
 {
     if (!cJSON_IsObject(obj))
         return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", file);
@@ -321,6 +366,13 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         }
         if (!(pu > 0) || !(pv > 0))
             return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
+        char what[PL_ERR_MSG_SIZE / 2];
+        snprintf(what, sizeof what, "%s: %s: \"pitch_mm\"", file, where);
+        int rc = pl_bound_check(PL_BOUND_PITCH, pu, what, err);
+        if (!rc)
+            rc = pl_bound_check(PL_BOUND_PITCH, pv, what, err);
+        if (rc)
+            return rc;
     }
     pl_channel ch[MAX_LISTED_CHANNELS];
     memset(ch, 0, sizeof ch);
@@ -359,7 +411,9 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
     if (jplace) {
         pl_record_site *s = &rec->sites[site];
         pl_record_map *m = &s->maps[s->nmaps - 1];
-        if ((rc = take_placement(&m->placement, jplace, file, err)))
+        char at[PL_ERR_MSG_SIZE / 2];
+        snprintf(at, sizeof at, "%s: %s", file, where);
+        if ((rc = take_placement(&m->placement, jplace, at, err)))
             return rc;
         m->has_placement = 1;
     }
@@ -411,7 +465,7 @@ static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, co
         if (!rc && maps && !cJSON_IsArray(maps))
             rc = pl__err(err, PL_EFORMAT, "%s: %s: \"maps\" must be an array", file, where);
         for (const cJSON *m = maps ? maps->child : NULL; !rc && m; m = m->next)
-            rc = take_map(rec, idx, m, file, dir, err);
+            rc = take_map(rec, idx, m, file, where, dir, err);
     }
     free(top.parameters_json);
     return rc;

@@ -197,6 +197,18 @@ static int check_map_header(const pl_map *map, const char *label, pl_err *err)
           map->pitch_v > 0))
         return pl__err(err, PL_EINVAL, "%s: map pitches must be > 0 (got %g, %g)", label,
                        map->pitch_u, map->pitch_v);
+    char what[STORE_LABEL_SIZE + 32];
+    int rc = PL_OK;
+    for (int k = 0; !rc && k < 2; k++) {
+        snprintf(what, sizeof what, "%s: map pitch along %c", label, k ? 'v' : 'u');
+        rc = pl_bound_check(PL_BOUND_PITCH, k ? map->pitch_v : map->pitch_u, what, err);
+    }
+    for (int k = 0; !rc && k < 3; k++) {
+        snprintf(what, sizeof what, "%s: placement origin %c", label, "xyz"[k]);
+        rc = pl_bound_check(PL_BOUND_COORDINATE, map->placement.origin[k], what, err);
+    }
+    if (rc)
+        return rc;
     pl_err e = { 0 };
     if (strnlen(map->placement.system, PL_SYSTEM_SIZE) == PL_SYSTEM_SIZE ||
         strnlen(map->placement.unit, PL_UNIT_SIZE) == PL_UNIT_SIZE ||

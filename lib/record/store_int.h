@@ -211,6 +211,7 @@ typedef struct pl_column {
     unsigned flags;
     pl_form form;
     int vocab;            /* pl_vocab of its words, or -1 */
+    int bound;            /* 1 + the pl_bound its number keeps to; 0: none */
     const struct pl_table_desc *child;  /* PL_S_ROWS: the child table */
     size_t count_offset;  /* PL_S_ROWS: the uint32_t count in the struct */
 } pl_column;
@@ -256,7 +257,8 @@ size_t pl_row__column(const pl_table_desc *t, const char *column);
  * Check every PL_COL_INPUT field of `rec` by its form: text fits its buffer
  * and is terminated, names are one line without outer spaces, dates are
  * calendar dates, words come from their vocabulary, JSON is an object,
- * numbers are in range. Messages start with `label`.
+ * numbers are in range and inside their bound (pl_bound_check()).
+ * Messages start with `label`.
  * Returns PL_OK or PL_EINVAL.
  */
 int pl_row__check(const pl_table_desc *t, const void *rec, const char *label, pl_err *err);

@@ -94,6 +94,67 @@ PL_EXPORT int pl_method_check(const char *method, pl_err *err)
     return pl_vocabulary_check(PL_VOCAB_METHOD, method, err);
 }
 
+/* ---- bounds ------------------------------------------------------------------- */
+
+/*
+ * The plausible range of each number the record takes. The ranges are wide
+ * on purpose, a hundred times or more beyond what the trade meets, so that
+ * they only stop what no inspection could produce (a pitch of 1e308 mm, a
+ * cycle count of 1e30) and never a real but unusual part.
+ */
+static const pl_bound_info bounds[PL_BOUND_COUNT] = {
+    { "pitch", "mm", 1e-3, 100.0, 0,
+      "cameras and C-scans resolve about 0.05 to 5 mm on the part (common practice)" },
+    { "thickness", "mm", 1e-2, 500.0, 0,
+      "composite skins are about 0.5 to 20 mm thick, sandwich panels up to about 100 mm "
+      "(common practice)" },
+    { "diffusivity", "mm^2/s", 1e-3, 500.0, 0,
+      "through-thickness diffusivity of CFRP is about 0.4 mm^2/s, of aluminium about "
+      "97 mm^2/s (from memory)" },
+    { "flight hours", "h", 0.0, 1e6, 0,
+      "the longest-serving airframes log of the order of 1e5 flight hours (from memory)" },
+    { "flight cycles", "", 0.0, 1e6, 1,
+      "the most-cycled airframes log of the order of 1e5 flight cycles (from memory)" },
+    { "part coordinate", "", -1e6, 1e6, 0,
+      "airframes measure under 100 m, 1e5 mm (from memory)" },
+    { "map side", "px", 1.0, (double)PL_MAP_MAX_SIDE, 1,
+      "the largest map the library holds (PL_MAP_MAX_SIDE)" },
+};
+
+PL_EXPORT const pl_bound_info *pl_bound_get(pl_bound which)
+{
+    return (unsigned)which < PL_BOUND_COUNT ? &bounds[which] : NULL;
+}
+
+/* A number as people write it: whole values without an exponent. */
+static void number_text(char *buf, size_t cap, double v)
+{
+    if (v == floor(v) && fabs(v) < 1e15)
+        snprintf(buf, cap, "%.0f", v);
+    else
+        snprintf(buf, cap, "%g", v);
+}
+
+PL_EXPORT int pl_bound_check(pl_bound which, double v, const char *what, pl_err *err)
+{
+    const pl_bound_info *b = pl_bound_get(which);
+    assert(b && what);
+    char got[40], lo[40], hi[40];
+    number_text(got, sizeof got, v);
+    if (!isfinite(v))
+        return pl__err(err, PL_EINVAL, "%s: %s is not a finite number", what, got);
+    if (b->whole && v != floor(v))
+        return pl__err(err, PL_EINVAL, "%s: %s is not a whole number of %s", what, got,
+                       b->name);
+    if (v >= b->min && v <= b->max)
+        return PL_OK;
+    number_text(lo, sizeof lo, b->min);
+    number_text(hi, sizeof hi, b->max);
+    return pl__err(err, PL_ERANGE, "%s: %s%s%s is outside the plausible %s, %s to %s%s%s", what,
+                   got, b->unit[0] ? " " : "", b->unit, b->name, lo, hi, b->unit[0] ? " " : "",
+                   b->unit);
+}
+
 /* ---- the descriptions --------------------------------------------------------- */
 
 #define NUL PL_COL_NULLABLE
@@ -101,13 +162,21 @@ PL_EXPORT int pl_method_check(const char *method, pl_err *err)
 #define IN PL_COL_INPUT
 #define FSIZE(T, f) sizeof(((T *)0)->f)
 
-/* A stored column held in field f of T. */
-#define COLUMN(T, f, name, col, json_, st, ct, fl, form_) \
+/* A stored column held in field f of T (whose number keeps to bound b+1 - 1). */
+#define BCOLUMN(T, f, name, col, json_, st, ct, fl, form_, b) \
     { .column = col, .field = name, .json = json_, .stype = st, .ctype = ct, \
-      .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = fl, .form = form_, .vocab = -1 }
+      .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = fl, .form = form_, .vocab = -1, \
+      .bound = b }
+#define COLUMN(T, f, name, col, json_, st, ct, fl, form_) \
+    BCOLUMN(T, f, name, col, json_, st, ct, fl, form_, 0)
 #define TEXT(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_TEXT, PL_C_TEXT, fl, form)
 #define REAL(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_REAL, PL_C_F64, fl, form)
 #define INT(T, f, col, js, ct, fl, form) COLUMN(T, f, #f, col, js, PL_S_INTEGER, ct, fl, form)
+/* A number that keeps to bound b (pl_bound). */
+#define BREAL(T, f, col, js, fl, form, b) \
+    BCOLUMN(T, f, #f, col, js, PL_S_REAL, PL_C_F64, fl, form, 1 + (b))
+#define BINT(T, f, col, js, ct, fl, form, b) \
+    BCOLUMN(T, f, #f, col, js, PL_S_INTEGER, ct, fl, form, 1 + (b))
 #define WORD(T, f, col, js, vocab_) \
     { .column = col, .field = #f, .json = js, .stype = PL_S_TEXT, .ctype = PL_C_TEXT, \
       .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = IN | REQ, .form = PL_F_NAME, \
@@ -137,15 +206,17 @@ PL_EXPORT int pl_method_check(const char *method, pl_err *err)
 #define CORRECTION \
     SUPPLIED("key", PL_S_INTEGER, NUL), SUPPLIED("supersedes", PL_S_INTEGER, NUL), \
     SUPPLIED("reason", PL_S_TEXT, NUL)
-/* The eleven columns of a placement in field p of T, under JSON object `json`. */
-#define PLACEMENT_AXIS(T, p, axis, k, xyz, js) \
-    COLUMN(T, p.axis[k], #axis "_" #xyz, #axis "_" #xyz, js "." #axis "." #k, PL_S_REAL, \
-           PL_C_F64, 0, PL_F_ANY)
-#define PLACEMENT_VEC(T, p, axis, js) \
-    PLACEMENT_AXIS(T, p, axis, 0, x, js), PLACEMENT_AXIS(T, p, axis, 1, y, js), \
-    PLACEMENT_AXIS(T, p, axis, 2, z, js)
-#define PLACEMENT(T, p, js, fl) \
-    PLACEMENT_VEC(T, p, origin, js), PLACEMENT_VEC(T, p, u, js), PLACEMENT_VEC(T, p, v, js), \
+/* The eleven columns of a placement in field p of T, under JSON object `json`; the
+ * origin's coordinates keep to their bound (checked when ofl holds IN). */
+#define PLACEMENT_AXIS(T, p, axis, k, xyz, js, fl, b) \
+    BCOLUMN(T, p.axis[k], #axis "_" #xyz, #axis "_" #xyz, js "." #axis "." #k, PL_S_REAL, \
+            PL_C_F64, fl, PL_F_ANY, b)
+#define PLACEMENT_VEC(T, p, axis, js, fl, b) \
+    PLACEMENT_AXIS(T, p, axis, 0, x, js, fl, b), PLACEMENT_AXIS(T, p, axis, 1, y, js, fl, b), \
+    PLACEMENT_AXIS(T, p, axis, 2, z, js, fl, b)
+#define PLACEMENT(T, p, js, fl, ofl) \
+    PLACEMENT_VEC(T, p, origin, js, ofl, 1 + PL_BOUND_COORDINATE), \
+    PLACEMENT_VEC(T, p, u, js, 0, 0), PLACEMENT_VEC(T, p, v, js, 0, 0), \
     COLUMN(T, p.system, "coordinate system", "coord_system", js ".system", PL_S_TEXT, \
            PL_C_TEXT, fl, PL_F_NAME), \
     COLUMN(T, p.unit, "coordinate unit", "coord_unit", js ".unit", PL_S_TEXT, PL_C_TEXT, fl, \
@@ -183,14 +254,15 @@ static const pl_column site_cols[] = {
     TEXT(pl_site, stringer, "stringer", "stringer", IN | NUL, PL_F_NAME),
     WORD(pl_site, method, "method", "method", PL_VOCAB_METHOD),
     TEXT(pl_site, material, "material", "material", IN | NUL, PL_F_NAME),
-    REAL(pl_site, thickness_mm, "thickness_mm", "thickness_mm", IN | NUL, PL_F_POSITIVE),
-    REAL(pl_site, diffusivity_mm2_s, "diffusivity_mm2_s", "diffusivity_mm2_s", IN | NUL,
-         PL_F_POSITIVE),
-    PLACEMENT(pl_site, map_frame, "map_frame", IN | REQ),
+    BREAL(pl_site, thickness_mm, "thickness_mm", "thickness_mm", IN | NUL, PL_F_POSITIVE,
+          PL_BOUND_THICKNESS),
+    BREAL(pl_site, diffusivity_mm2_s, "diffusivity_mm2_s", "diffusivity_mm2_s", IN | NUL,
+          PL_F_POSITIVE, PL_BOUND_DIFFUSIVITY),
+    PLACEMENT(pl_site, map_frame, "map_frame", IN | REQ, IN),
     INT(pl_site, width_px, "width_px", "width_px", PL_C_U32, 0, PL_F_ANY),
     INT(pl_site, height_px, "height_px", "height_px", PL_C_U32, 0, PL_F_ANY),
-    REAL(pl_site, pitch_u, "pitch_u_mm", "pitch_u_mm", IN | REQ, PL_F_POSITIVE),
-    REAL(pl_site, pitch_v, "pitch_v_mm", "pitch_v_mm", IN | REQ, PL_F_POSITIVE),
+    BREAL(pl_site, pitch_u, "pitch_u_mm", "pitch_u_mm", IN | REQ, PL_F_POSITIVE, PL_BOUND_PITCH),
+    BREAL(pl_site, pitch_v, "pitch_v_mm", "pitch_v_mm", IN | REQ, PL_F_POSITIVE, PL_BOUND_PITCH),
     STABLE_KEY(pl_site, "key"),
     ROWID(pl_site, "version_id"),
     RECORDED(pl_site),
@@ -207,9 +279,10 @@ static const pl_column inspection_cols[] = {
     WORD(pl_inspection, kind, "kind", "kind", PL_VOCAB_INSPECTION_KIND),
     TEXT(pl_inspection, performed_on, "performed_on", "date", IN | REQ, PL_F_DATE),
     TEXT(pl_inspection, task_ref, "task_ref", "task", IN | NUL, PL_F_NAME),
-    REAL(pl_inspection, aircraft_hours, "aircraft_hours", "hours", IN | NUL, PL_F_NONNEGATIVE),
-    INT(pl_inspection, aircraft_cycles, "aircraft_cycles", "cycles", PL_C_I64, IN | NUL,
-        PL_F_NONNEGATIVE),
+    BREAL(pl_inspection, aircraft_hours, "aircraft_hours", "hours", IN | NUL, PL_F_NONNEGATIVE,
+          PL_BOUND_HOURS),
+    BINT(pl_inspection, aircraft_cycles, "aircraft_cycles", "cycles", PL_C_I64, IN | NUL,
+         PL_F_NONNEGATIVE, PL_BOUND_CYCLES),
     TEXT(pl_inspection, procedure, "procedure", "procedure", IN | REQ, PL_F_NAME),
     TEXT(pl_inspection, procedure_rev, "procedure_rev", "procedure_revision", IN | REQ,
          PL_F_NAME),
@@ -252,7 +325,7 @@ static const pl_column map_cols[] = {
     { .field = "channels", .json = "channels", .stype = PL_S_ROWS, .ctype = PL_C_ROWS,
       .offset = offsetof(pl_map_record, channels), .vocab = -1, .child = &channel_table,
       .count_offset = offsetof(pl_map_record, nchannels) },
-    PLACEMENT(pl_map_record, placement, "placement", 0),
+    PLACEMENT(pl_map_record, placement, "placement", 0, 0),
     TEXT(pl_map_record, sha256, "sha256", "sha256", 0, PL_F_ANY),
     JOINED(pl_map_record, stored_bytes, "length(t.data)", "stored_bytes", PL_C_SIZE, 0,
            PL_F_ANY),
@@ -464,16 +537,26 @@ static int check_json_object(pl_err *err, const char *label, const char *field_n
     return ok ? PL_OK : pl__err(err, PL_EINVAL, "%s: %s is not a JSON object", label, field_name);
 }
 
+/* A number's bound, after its form: "<label>: <field>: ... outside ...". */
+static int check_bound(const pl_column *c, double v, const char *label, pl_err *err)
+{
+    if (!c->bound)
+        return PL_OK;
+    char what[STORE_LABEL_SIZE + 64];
+    snprintf(what, sizeof what, "%s: %s", label, c->field);
+    return pl_bound_check((pl_bound)(c->bound - 1), v, what, err);
+}
+
 static int check_number(const pl_column *c, double v, const char *label, pl_err *err)
 {
     int nullable = (c->flags & PL_COL_NULLABLE) != 0;
-    if (c->form != PL_F_POSITIVE && c->form != PL_F_NONNEGATIVE)
-        return PL_OK;
     if (nullable && isnan(v))
         return PL_OK;
+    if (c->form != PL_F_POSITIVE && c->form != PL_F_NONNEGATIVE)
+        return check_bound(c, v, label, err);
     int positive = c->form == PL_F_POSITIVE;
     if (isfinite(v) && (positive ? v > 0 : v >= 0))
-        return PL_OK;
+        return check_bound(c, v, label, err);
     return pl__err(err, PL_EINVAL, "%s: %s must be %s 0%s (got %g)", label, c->field,
                    positive ? ">" : ">=", nullable ? " or unknown" : "", v);
 }
@@ -510,10 +593,12 @@ static int check_field(const pl_column *c, const void *rec, const char *label, p
     case PL_C_I64: {
         int64_t v;
         memcpy(&v, cfield(c, rec), sizeof v);
-        if (c->form == PL_F_NONNEGATIVE && v < 0 && !((c->flags & PL_COL_NULLABLE) && v == -1))
+        if ((c->flags & PL_COL_NULLABLE) && v == -1)
+            return PL_OK;
+        if (c->form == PL_F_NONNEGATIVE && v < 0)
             return pl__err(err, PL_EINVAL, "%s: %s must be >= 0 or -1 for unknown (got %lld)",
                            label, c->field, (long long)v);
-        return PL_OK;
+        return check_bound(c, (double)v, label, err);
     }
     default:
         return PL_OK;

@@ -169,6 +169,44 @@ PL_EXPORT int pl_vocabulary_check(pl_vocab which, const char *word, pl_err *err)
  */
 PL_EXPORT size_t pl_vocabulary_text(char *buf, size_t cap, pl_vocab which, const char *last);
 
+/* ---- bounds of numbers ---------------------------------------------------- */
+
+/** The quantities whose numbers the record bounds. Each has one range,
+ * here, used by every way in (site plans, sidecars, the command line) and
+ * by the store itself. Values are fixed; new bounds are appended. */
+typedef enum pl_bound {
+    PL_BOUND_PITCH = 0,       /**< map pitch, mm per pixel */
+    PL_BOUND_THICKNESS = 1,   /**< a site's nominal thickness, mm */
+    PL_BOUND_DIFFUSIVITY = 2, /**< through-thickness thermal diffusivity, mm^2/s */
+    PL_BOUND_HOURS = 3,       /**< aircraft flight hours at an inspection */
+    PL_BOUND_CYCLES = 4,      /**< aircraft flight cycles at an inspection (whole) */
+    PL_BOUND_COORDINATE = 5,  /**< a part coordinate: a map frame's origin, in its unit */
+    PL_BOUND_MAP_SIDE = 6,    /**< a map's width or height, pixels (whole) */
+    PL_BOUND_COUNT
+} pl_bound;
+
+/** One bound: the plausible range of a number, inclusive. */
+typedef struct pl_bound_info {
+    const char *name;    /**< what it is, for messages: "flight cycles" */
+    const char *unit;    /**< "mm", "" for a count */
+    double min, max;     /**< the range, both ends allowed */
+    int whole;           /**< 1: whole numbers only */
+    const char *reason;  /**< why the range is this (README lists them) */
+} pl_bound_info;
+
+/** The bound `which` (static storage); NULL out of range. */
+PL_EXPORT const pl_bound_info *pl_bound_get(pl_bound which);
+
+/**
+ * Check a number against its bound: finite, whole when the bound says so,
+ * inside [min, max].
+ * @param what  names the value at the start of the message (a file and
+ *              field, an option), e.g. "plan.csv line 4: column pitch_mm"
+ * @return PL_OK, PL_EINVAL (not finite, not whole), PL_ERANGE ("<what>:
+ *         1e+30 is outside the plausible flight cycles, 0 to 1000000").
+ */
+PL_EXPORT int pl_bound_check(pl_bound which, double value, const char *what, pl_err *err);
+
 /* ---- airframes ------------------------------------------------------------ */
 
 typedef struct pl_airframe {
