@@ -198,15 +198,42 @@ int cli_open_output(pl_outfile **out, const cli_common *common, const char *path
     return rc ? cli_fail_err(rc, &err) : 0;
 }
 
-int cli_text(char *dst, size_t cap, const char *src, const char *opt)
+int cli_check_text(const char *src, cli_text_kind kind, const char *opt)
+{
+    if (!src)
+        return 0;
+    pl_err err = { 0 };
+    int rc = kind == CLI_KEY ? pl_key_check(src, opt, &err)
+                             : pl_text_check(src, kind == CLI_FREE ? PL_TEXT_LINES : 0, opt, &err);
+    return rc ? cli_fail_err(rc, &err) : 0;
+}
+
+static int copy_text(char *dst, size_t cap, const char *src, const char *opt, cli_text_kind kind)
 {
     if (!src)
         return 0;
     size_t n = strlen(src);
     if (n >= cap)
         return cli_usage_error(NULL, "%s: too long (at most %zu characters)", opt, cap - 1);
+    if (cli_check_text(src, kind, opt))
+        return CLI_ERROR;
     memcpy(dst, src, n + 1);
     return 0;
+}
+
+int cli_text(char *dst, size_t cap, const char *src, const char *opt)
+{
+    return copy_text(dst, cap, src, opt, CLI_NAME);
+}
+
+int cli_free(char *dst, size_t cap, const char *src, const char *opt)
+{
+    return copy_text(dst, cap, src, opt, CLI_FREE);
+}
+
+int cli_key(char *dst, size_t cap, const char *src, const char *opt)
+{
+    return copy_text(dst, cap, src, opt, CLI_KEY);
 }
 
 int cli_pitch(const char *opt, const char *arg, double *pu, double *pv, const char *usage)

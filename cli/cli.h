@@ -89,9 +89,22 @@ int cli_guard_output(const cli_common *common, const char *path);
  * failure. A NULL path gives *out NULL. Returns 0 or CLI_ERROR. */
 int cli_open_output(pl_outfile **out, const cli_common *common, const char *path);
 
-/* Copy an option's text into a fixed record field; NULL leaves it alone.
- * Returns 0, or CLI_USAGE (printed) when it does not fit. */
+/* What an option's text is, for the library's checks: a name (one line,
+ * no control characters), free text (line breaks and tabs allowed) or a
+ * key (an airframe serial or site code, pl_key_check()). All are UTF-8. */
+typedef enum cli_text_kind { CLI_NAME, CLI_FREE, CLI_KEY } cli_text_kind;
+
+/* Check an option's text (NULL passes); prints the refusal naming the
+ * option. Returns 0 or CLI_ERROR. */
+int cli_check_text(const char *src, cli_text_kind kind, const char *opt);
+
+/* Copy an option's text into a fixed record field after cli_check_text();
+ * NULL leaves it alone. cli_text takes a name, cli_free free text, cli_key
+ * a key. Returns 0, CLI_USAGE (printed) when it does not fit, or
+ * CLI_ERROR (printed) when the text is refused. */
 int cli_text(char *dst, size_t cap, const char *src, const char *opt);
+int cli_free(char *dst, size_t cap, const char *src, const char *opt);
+int cli_key(char *dst, size_t cap, const char *src, const char *opt);
 
 /* Parse a number option strictly; prints a usage error naming `opt`.
  * cli_count takes decimal digits only (no sign, no blanks) that fit. */

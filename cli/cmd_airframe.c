@@ -71,12 +71,12 @@ int cmd_add_airframe(int argc, char **argv)
         return cli_usage_error(add_usage, "--since goes with --operator");
     pl_airframe af;
     memset(&af, 0, sizeof af);
-    if ((rc = cli_text(af.serial, sizeof af.serial, a.serial, "--serial"))
+    if ((rc = cli_key(af.serial, sizeof af.serial, a.serial, "--serial"))
         || (rc = cli_text(af.aircraft_type, sizeof af.aircraft_type, a.type, "--type"))
         || (rc = cli_text(af.manufactured, sizeof af.manufactured, a.manufactured, "--manufactured"))
         || (rc = cli_text(af.operator_name, sizeof af.operator_name, a.operator_name, "--operator"))
         || (rc = cli_text(af.operator_since, sizeof af.operator_since, a.since, "--since"))
-        || (rc = cli_text(af.notes, sizeof af.notes, a.notes, "--notes")))
+        || (rc = cli_free(af.notes, sizeof af.notes, a.notes, "--notes")))
         return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, 0)))
@@ -136,6 +136,10 @@ int cmd_set_operator(int argc, char **argv)
         return cli_usage_error(op_usage, "only --serial, --operator and --since apply here");
     if (!a.serial || !a.operator_name || !a.since)
         return cli_usage_error(op_usage, "--serial, --operator and --since are required");
+    if ((rc = cli_check_text(a.serial, CLI_KEY, "--serial"))
+        || (rc = cli_check_text(a.operator_name, CLI_NAME, "--operator"))
+        || (rc = cli_check_text(a.since, CLI_NAME, "--since")))
+        return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, 0)))
         return rc;

@@ -159,7 +159,7 @@ static int correct_site(const correct_args *a, pl_store *store, const cli_common
         return cli_fail_err(st, &err);
     int rc;
     if ((rc = cli_text(s.zone, sizeof s.zone, V(a, O_ZONE), "--zone"))
-        || (rc = cli_text(s.description, sizeof s.description, V(a, O_DESCRIPTION), "--description"))
+        || (rc = cli_free(s.description, sizeof s.description, V(a, O_DESCRIPTION), "--description"))
         || (rc = cli_text(s.frame, sizeof s.frame, V(a, O_FRAME), "--frame"))
         || (rc = cli_text(s.stringer, sizeof s.stringer, V(a, O_STRINGER), "--stringer"))
         || (rc = cli_text(s.material, sizeof s.material, V(a, O_MATERIAL), "--material"))
@@ -233,6 +233,10 @@ int cmd_correct(int argc, char **argv)
         return cli_usage_error(usage, "inspection fields cannot correct a site");
     if (!insp_fields && !a.site_fields)
         return cli_usage_error(usage, "nothing to correct: give the fields that change");
+    if ((rc = cli_check_text(a.insp.airframe, CLI_KEY, "--airframe"))
+        || (rc = cli_check_text(a.insp.site, CLI_KEY, "--site"))
+        || (rc = cli_check_text(a.reason, CLI_FREE, "--reason")))
+        return rc;
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, 0)))
         return rc;

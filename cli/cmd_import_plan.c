@@ -48,6 +48,8 @@ int cmd_import_plan(int argc, char **argv)
         return rc;
     if (!serial)
         return cli_usage_error(usage, "--airframe is required");
+    if ((rc = cli_check_text(serial, CLI_KEY, "--airframe")))
+        return rc;
     if (argc - first != 1)
         return cli_usage_error(usage, "give exactly one plan file");
     const char *path = argv[first];

@@ -161,7 +161,7 @@ int cmd_record(int argc, char **argv)
         memset(&in, 0, sizeof in);
         in.aircraft_hours = NAN;
         in.aircraft_cycles = -1;
-        if ((rc = cli_text(in.site_code, sizeof in.site_code, a.insp.site, "--site"))) {
+        if ((rc = cli_key(in.site_code, sizeof in.site_code, a.insp.site, "--site"))) {
             free(params);
             return rc;
         }

@@ -222,6 +222,11 @@ int cmd_register(int argc, char **argv)
         return cli_usage_error(usage, "--manual needs --by and --why");
     if (!a.manual && (a.by || a.why))
         return cli_usage_error(usage, "--by and --why go with --manual");
+    if ((rc = cli_check_text(a.airframe, CLI_KEY, "--airframe"))
+        || (rc = cli_check_text(a.site, CLI_KEY, "--site"))
+        || (rc = cli_check_text(a.by, CLI_NAME, "--by"))
+        || (rc = cli_check_text(a.why, CLI_FREE, "--why")))
+        return rc;
 
     /* The outputs are written before the registration is recorded and put
      * in place after: a file that cannot be written records nothing. */

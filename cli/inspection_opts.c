@@ -111,20 +111,20 @@ int cli_read_json_object(const char *path, char **out)
 int cli_inspection_apply(const cli_inspection_args *a, pl_inspection *in, const char *params)
 {
     int rc;
-    if ((rc = cli_text(in->airframe_serial, sizeof in->airframe_serial, a->airframe, "--airframe"))
-        || (rc = cli_text(in->site_code, sizeof in->site_code, a->site, "--site"))
+    if ((rc = cli_key(in->airframe_serial, sizeof in->airframe_serial, a->airframe, "--airframe"))
+        || (rc = cli_key(in->site_code, sizeof in->site_code, a->site, "--site"))
         || (rc = cli_text(in->kind, sizeof in->kind, a->kind, "--kind"))
         || (rc = cli_text(in->performed_on, sizeof in->performed_on, a->date, "--date"))
         || (rc = cli_text(in->task_ref, sizeof in->task_ref, a->task, "--task"))
         || (rc = cli_text(in->procedure, sizeof in->procedure, a->procedure, "--procedure"))
         || (rc = cli_text(in->procedure_rev, sizeof in->procedure_rev, a->procedure_rev,
                           "--procedure-rev"))
-        || (rc = cli_text(in->equipment, sizeof in->equipment, a->equipment, "--equipment"))
+        || (rc = cli_free(in->equipment, sizeof in->equipment, a->equipment, "--equipment"))
         || (rc = cli_text(in->calibration_ref, sizeof in->calibration_ref, a->calibration,
                           "--calibration"))
         || (rc = cli_text(in->inspector, sizeof in->inspector, a->inspector, "--inspector"))
         || (rc = cli_text(in->inspector_level, sizeof in->inspector_level, a->level, "--level"))
-        || (rc = cli_text(in->notes, sizeof in->notes, a->notes, "--notes")))
+        || (rc = cli_free(in->notes, sizeof in->notes, a->notes, "--notes")))
         return rc;
     if (a->has_hours)
         in->aircraft_hours = a->hours;

@@ -461,7 +461,7 @@ static void test_store_row__stored_rows_encode_as_inserted_and_as_defined(void *
     site = test_site("E02");
     snprintf(site.description, sizeof site.description, "bad \xc0\xaf byte");
     assert_int_equal(pl_store_add_site(f->st, &site, NULL, &err), PL_EINVAL);
-    tu_assert_msg_has(err.msg, "description is not valid UTF-8");
+    tu_assert_msg_has(err.msg, "description: byte 0xc0 at position 5 is not valid UTF-8");
     TU_OK(pl_store_summarize(f->st, &after, &err));
     assert_int_equal(before.sites, after.sites);
 }

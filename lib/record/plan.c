@@ -17,6 +17,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 enum column {
     C_SITE, C_METHOD, C_OX, C_OY, C_OZ, C_UX, C_UY, C_UZ, C_VX, C_VY, C_VZ, C_PITCH,
@@ -146,9 +147,18 @@ static int parse_number(const char *s, double *out)
     return 1;
 }
 
+/* Blanks around a number, as "F01, 1.5" leaves them, are not part of it. */
 static int number(reader *r, int c, double *out, int *present)
 {
-    const char *s = field(r, c);
+    const char *raw = field(r, c);
+    char s[128];
+    size_t b = strspn(raw, " \t"), n = strlen(raw + b);
+    while (n && (raw[b + n - 1] == ' ' || raw[b + n - 1] == '\t'))
+        n--;
+    snprintf(s, sizeof s, "%.*s", (int)(n < sizeof s ? n : sizeof s - 1), raw + b);
+    if (n >= sizeof s)
+        return pl__err(r->err, PL_EFORMAT, "%s line %zu: column %s: '%.20s...' is not a number",
+                       r->path, r->row_line, columns[c].name, s);
     *present = *s != '\0';
     if (!*present)
         return columns[c].required
@@ -168,6 +178,8 @@ static int pixels(reader *r, int c, uint32_t *out)
 {
     const char *s = field(r, c);
     *out = 0;
+    while (*s == ' ' || *s == '\t')
+        s++;
     if (!*s)
         return PL_OK;
     unsigned long v = 0;
@@ -185,13 +197,21 @@ static int pixels(reader *r, int c, uint32_t *out)
     return PL_OK;
 }
 
-static int text(reader *r, int c, char *dst, size_t cap, const char *fallback)
+/*
+ * A text column as written (libcsv trims nothing here): valid UTF-8, and
+ * a name (flags 0) on one line without control characters, free text
+ * (PL_TEXT_LINES) with line breaks allowed; the site code is a key. The
+ * store checks again; this names the line and column.
+ */
+static int text(reader *r, int c, char *dst, size_t cap, const char *fallback, unsigned flags)
 {
     char what[PL_ERR_MSG_SIZE / 2];
     const char *s = field(r, c);
     snprintf(what, sizeof what, "%s line %zu: column %s", r->path, r->row_line,
              columns[c].name);
-    return pl__copy_text(dst, cap, *s ? s : fallback, what, r->err);
+    int rc = c == C_SITE && *s ? pl_key_check(s, what, r->err) : pl_text_check(s, flags, what,
+                                                                               r->err);
+    return rc ? rc : pl__copy_text(dst, cap, *s ? s : fallback, what, r->err);
 }
 
 /* A present number of column c inside bound b. */
@@ -222,24 +242,26 @@ static int site_row(reader *r)
                        r->path, r->row_line, r->nfields, r->ncols);
     pl_site site;
     memset(&site, 0, sizeof site);
-    int rc = text(r, C_SITE, site.code, sizeof site.code, "");
+    int rc = text(r, C_SITE, site.code, sizeof site.code, "", 0);
     const struct {
         int col;
         char *dst;
         size_t cap;
         const char *fallback;
+        unsigned flags;
     } texts[] = {
-        { C_METHOD, site.method, sizeof site.method, "" },
-        { C_ZONE, site.zone, sizeof site.zone, "" },
-        { C_DESCRIPTION, site.description, sizeof site.description, "" },
-        { C_FRAME, site.frame, sizeof site.frame, "" },
-        { C_STRINGER, site.stringer, sizeof site.stringer, "" },
-        { C_MATERIAL, site.material, sizeof site.material, "" },
-        { C_SYSTEM, site.map_frame.system, sizeof site.map_frame.system, DEFAULT_SYSTEM },
-        { C_UNIT, site.map_frame.unit, sizeof site.map_frame.unit, DEFAULT_UNIT },
+        { C_METHOD, site.method, sizeof site.method, "", 0 },
+        { C_ZONE, site.zone, sizeof site.zone, "", 0 },
+        { C_DESCRIPTION, site.description, sizeof site.description, "", PL_TEXT_LINES },
+        { C_FRAME, site.frame, sizeof site.frame, "", 0 },
+        { C_STRINGER, site.stringer, sizeof site.stringer, "", 0 },
+        { C_MATERIAL, site.material, sizeof site.material, "", 0 },
+        { C_SYSTEM, site.map_frame.system, sizeof site.map_frame.system, DEFAULT_SYSTEM, 0 },
+        { C_UNIT, site.map_frame.unit, sizeof site.map_frame.unit, DEFAULT_UNIT, 0 },
     };
     for (size_t i = 0; !rc && i < sizeof texts / sizeof texts[0]; i++)
-        rc = text(r, texts[i].col, texts[i].dst, texts[i].cap, texts[i].fallback);
+        rc = text(r, texts[i].col, texts[i].dst, texts[i].cap, texts[i].fallback,
+                  texts[i].flags);
     if (!rc && !site.code[0])
         rc = pl__err(r->err, PL_EFORMAT, "%s line %zu: column site: a value is required",
                      r->path, r->row_line);
@@ -279,10 +301,17 @@ static int site_row(reader *r)
     rc = pl_site_check(&site, &e);
     if (rc)
         return pl__err(r->err, rc, "%s line %zu: %s", r->path, r->row_line, e.msg);
-    for (size_t i = 0; i < r->nsites; i++)
+    /* codes compare without regard to case, as in the store (store.h, "Keys") */
+    for (size_t i = 0; i < r->nsites; i++) {
+        if (strcasecmp(r->sites[i].code, site.code) != 0)
+            continue;
         if (strcmp(r->sites[i].code, site.code) == 0)
             return pl__err(r->err, PL_EEXISTS, "%s line %zu: duplicate site code %s (first on "
                            "line %zu)", r->path, r->row_line, site.code, r->site_lines[i]);
+        return pl__err(r->err, PL_EEXISTS, "%s line %zu: site code %s is %s of line %zu in "
+                       "another case (codes are compared without regard to case)", r->path,
+                       r->row_line, site.code, r->sites[i].code, r->site_lines[i]);
+    }
     if (r->nsites == r->cap_sites) {
         size_t cap = r->cap_sites ? 2 * r->cap_sites : 16;
         pl_site *ns = realloc(r->sites, cap * sizeof *ns);
@@ -338,11 +367,20 @@ static int csv_failure(reader *r, struct csv_parser *p)
                    "a closing quote)", r->path, r->line);
 }
 
+static int no_blanks(unsigned char c)
+{
+    (void)c;
+    return 0;
+}
+
 static int parse(reader *r, const char *buf, size_t len)
 {
     struct csv_parser p;
     if (csv_init(&p, CSV_STRICT | CSV_STRICT_FINI | CSV_APPEND_NULL) != 0)
         return pl__err(r->err, PL_ENOMEM, "%s: out of memory", r->path);
+    /* libcsv would trim blanks around unquoted fields; a site code " F01 "
+     * must be refused, not quietly read as "F01" */
+    csv_set_space_func(&p, no_blanks);
     /* A UTF-8 byte order mark, as some spreadsheets write, is not data. */
     if (len >= 3 && memcmp(buf, "\xef\xbb\xbf", 3) == 0) {
         buf += 3;

@@ -178,29 +178,43 @@ PL_EXPORT int pl_record_add_map(pl_record *rec, size_t site, const char *path,
 
 /* ---- sidecar ----------------------------------------------------------- */
 
-/* The inspection fields a sidecar may give, at the top or per site. */
+/* The inspection fields a sidecar may give, at the top or per site, and
+ * what their text is: a key, a name (one line) or free text. */
+enum { KEY, NAME, FREE };
 typedef struct text_field {
     const char *key;
     size_t offset;
     size_t size;
+    int kind;
 } text_field;
 
-#define TEXT_FIELD(k, member) { k, offsetof(pl_inspection, member), sizeof(((pl_inspection *)0)->member) }
+#define TEXT_FIELD(k, member, kind) \
+    { k, offsetof(pl_inspection, member), sizeof(((pl_inspection *)0)->member), kind }
 static const text_field text_fields[] = {
-    TEXT_FIELD("airframe", airframe_serial),
-    TEXT_FIELD("site", site_code),
-    TEXT_FIELD("kind", kind),
-    TEXT_FIELD("task", task_ref),
-    TEXT_FIELD("date", performed_on),
-    TEXT_FIELD("procedure", procedure),
-    TEXT_FIELD("procedure_revision", procedure_rev),
-    TEXT_FIELD("equipment", equipment),
-    TEXT_FIELD("calibration", calibration_ref),
-    TEXT_FIELD("inspector", inspector),
-    TEXT_FIELD("inspector_level", inspector_level),
-    TEXT_FIELD("software_version", software_version),
-    TEXT_FIELD("notes", notes),
+    TEXT_FIELD("airframe", airframe_serial, KEY),
+    TEXT_FIELD("site", site_code, KEY),
+    TEXT_FIELD("kind", kind, NAME),
+    TEXT_FIELD("task", task_ref, NAME),
+    TEXT_FIELD("date", performed_on, NAME),
+    TEXT_FIELD("procedure", procedure, NAME),
+    TEXT_FIELD("procedure_revision", procedure_rev, NAME),
+    TEXT_FIELD("equipment", equipment, FREE),
+    TEXT_FIELD("calibration", calibration_ref, NAME),
+    TEXT_FIELD("inspector", inspector, NAME),
+    TEXT_FIELD("inspector_level", inspector_level, NAME),
+    TEXT_FIELD("software_version", software_version, NAME),
+    TEXT_FIELD("notes", notes, FREE),
 };
+
+/* The text of a sidecar string as it can be stored (valid UTF-8, control
+ * characters only in free text, a key in the key alphabet), named by
+ * `what` ("c.json: site A1: \"inspector\""). */
+static int check_string(const char *v, int kind, const char *what, pl_err *err)
+{
+    if (kind == KEY)
+        return pl_key_check(v, what, err);
+    return pl_text_check(v, kind == FREE ? PL_TEXT_LINES : 0, what, err);
+}
 
 /*
  * A JSON number that must be a whole count inside its bound. cJSON reads
@@ -240,9 +254,11 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
             known = 1;
             if (!cJSON_IsString(it))
                 return pl__err(err, PL_EFORMAT, "%s: %s: \"%s\" must be a string", file, where, k);
-            char what[128];
+            char what[PL_ERR_MSG_SIZE / 2];
             snprintf(what, sizeof what, "%s: %s: \"%s\"", file, where, k);
-            int rc = pl__copy_text((char *)insp + text_fields[i].offset, text_fields[i].size,
+            int rc = check_string(it->valuestring, text_fields[i].kind, what, err);
+            if (!rc)
+                rc = pl__copy_text((char *)insp + text_fields[i].offset, text_fields[i].size,
                                    it->valuestring, what, err);
             if (rc)
                 return rc;
@@ -321,10 +337,17 @@ static int take_placement(pl_placement *p, const cJSON *obj, const char *file, p
             rc = take_vec3(p->u, it, file, "placement u", 0, err), have |= 2;
         else if (strcmp(it->string, "v") == 0)
             rc = take_vec3(p->v, it, file, "placement v", 0, err), have |= 4;
-        else if (strcmp(it->string, "system") == 0 && cJSON_IsString(it))
-            rc = pl__copy_text(p->system, sizeof p->system, it->valuestring, "placement system", err);
-        else if (strcmp(it->string, "unit") == 0 && cJSON_IsString(it))
-            rc = pl__copy_text(p->unit, sizeof p->unit, it->valuestring, "placement unit", err);
+        else if ((strcmp(it->string, "system") == 0 || strcmp(it->string, "unit") == 0) &&
+                 cJSON_IsString(it)) {
+            int sys = it->string[0] == 's';
+            char what[PL_ERR_MSG_SIZE];
+            snprintf(what, sizeof what, "%s: placement %.16s", file, it->string);
+            rc = pl_text_check(it->valuestring, 0, what, err);
+            if (!rc)
+                rc = pl__copy_text(sys ? p->system : p->unit, sys ? sizeof p->system
+                                                                   : sizeof p->unit,
+                                   it->valuestring, what, err);
+        }
         else
             return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", file,
                            it->string);
@@ -352,6 +375,12 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
     }
     if (!cJSON_IsString(jfile) || !*jfile->valuestring)
         return pl__err(err, PL_EFORMAT, "%s: map entry needs \"file\" (a string)", file);
+    char what[PL_ERR_MSG_SIZE / 2];
+    snprintf(what, sizeof what, "%s: %s: \"file\"", file, where);
+    /* its name is recorded with the map */
+    int trc = pl_text_check(jfile->valuestring, 0, what, err);
+    if (trc)
+        return trc;
     double pu = NAN, pv = NAN;
     if (jpitch) {
         if (cJSON_IsNumber(jpitch)) {
@@ -366,7 +395,6 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         }
         if (!(pu > 0) || !(pv > 0))
             return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
-        char what[PL_ERR_MSG_SIZE / 2];
         snprintf(what, sizeof what, "%s: %s: \"pitch_mm\"", file, where);
         int rc = pl_bound_check(PL_BOUND_PITCH, pu, what, err);
         if (!rc)
@@ -798,7 +826,7 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
         return rc;
     pair_scan p;
     memset(&p, 0, sizeof p);
-    pl_inspection_filter f = { serial, code, NULL, NULL, NULL };
+    pl_inspection_filter f = { site.airframe_serial, site.code, NULL, NULL, NULL };
     if ((rc = pl_store_list_inspections(store, &f, scan_inspection, &p, err)))
         return rc;
     if (!p.baseline)
@@ -809,7 +837,9 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
         memset(&in, 0, sizeof in);
         if ((rc = pl_store_get_inspection(store, pair->current_inspection, &in, err)))
             return rc;
-        int same = strcmp(in.airframe_serial, serial) == 0 && strcmp(in.site_code, code) == 0;
+        /* the site as stored: keys are looked up without regard to case */
+        int same = strcmp(in.airframe_serial, site.airframe_serial) == 0 &&
+                   strcmp(in.site_code, site.code) == 0;
         int base = strcmp(in.kind, "baseline") == 0;
         pl_inspection_clear(&in);
         if (!same)

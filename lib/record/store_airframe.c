@@ -13,11 +13,18 @@
 
 /* ---- lookups ------------------------------------------------------------------- */
 
-/* The id and key of the current row `sql` (one parameter, `arg`) finds;
- * PL_ENOTFOUND with `missing` when none. */
+/*
+ * The key and current row of the record `sql` finds by a key given as
+ * typed (the last argument; keys compare without regard to case). `sql`
+ * selects stable_key, id and the key as stored, the exact spelling first,
+ * at most two rows. A store written before keys were compared so may hold
+ * two that differ only in case: the exact spelling wins, and a spelling
+ * like neither is refused as ambiguous. PL_ENOTFOUND with `missing` when
+ * there is none.
+ */
 static int current_key(pl_store *s, const char *sql, const pl_value *args, int nargs,
-                       pl_id *key, pl_id *current, pl_err *err, const char *label,
-                       const char *missing)
+                       const char *typed, pl_id *key, pl_id *current, pl_err *err,
+                       const char *label, const char *missing)
 {
     sqlite3_stmt *st;
     int rc = pl_store__prepare_args(s, &st, sql, args, nargs, err);
@@ -28,6 +35,14 @@ static int current_key(pl_store *s, const char *sql, const pl_value *args, int n
         *key = sqlite3_column_int64(st, 0);
         if (current)
             *current = sqlite3_column_int64(st, 1);
+        char first[PL_NAME_SIZE];
+        pl_store__col_text(st, 2, first, sizeof first);
+        if (strcmp(first, typed) != 0 && (r = sqlite3_step(st)) == SQLITE_ROW)
+            rc = pl__err(err, PL_ENOMATCH, "%s: '%s' could be %s or %s, which differ only in "
+                         "case; give it exactly", label, typed, first,
+                         (const char *)sqlite3_column_text(st, 2));
+        else if (r != SQLITE_ROW && r != SQLITE_DONE)
+            rc = pl_store__fail(s, err, label);
     } else if (r == SQLITE_DONE) {
         rc = pl__err(err, PL_ENOTFOUND, "%s: %s", label, missing);
     } else {
@@ -40,19 +55,31 @@ static int current_key(pl_store *s, const char *sql, const pl_value *args, int n
 int pl_store__airframe_key(pl_store *s, const char *serial, pl_id *key, pl_id *current,
                            pl_err *err, const char *label)
 {
+    char what[STORE_LABEL_SIZE + 16];
+    snprintf(what, sizeof what, "%s: serial", label);
+    int rc = pl_key_check(serial, what, err);
+    if (rc)
+        return rc;
     char missing[PL_NAME_SIZE + 32];
     snprintf(missing, sizeof missing, "no airframe with serial %.*s", PL_NAME_SIZE, serial);
     pl_value arg = pl_store__arg_text(serial);
-    return current_key(s, "SELECT stable_key, id FROM airframe_current WHERE serial = ?1", &arg,
-                       1, key, current, err, label, missing);
+    return current_key(s, "SELECT stable_key, id, serial FROM airframe_current WHERE "
+                       "upper(serial) = upper(?1) ORDER BY serial = ?1 DESC, id LIMIT 2", &arg, 1,
+                       serial, key, current, err, label, missing);
 }
 
 int pl_store__site_key(pl_store *s, pl_id af_key, const char *code, pl_id *key, pl_id *current,
                        pl_err *err, const char *label)
 {
+    char what[STORE_LABEL_SIZE + 16];
+    snprintf(what, sizeof what, "%s: site code", label);
+    int rc = pl_key_check(code, what, err);
+    if (rc)
+        return rc;
     pl_value args[2] = { pl_store__arg_id(af_key), pl_store__arg_text(code) };
-    return current_key(s, "SELECT stable_key, id FROM site_current WHERE airframe_key = ?1 AND "
-                       "code = ?2", args, 2, key, current, err, label, "no such site");
+    return current_key(s, "SELECT stable_key, id, code FROM site_current WHERE airframe_key = ?1 "
+                       "AND upper(code) = upper(?2) ORDER BY code = ?2 DESC, id LIMIT 2", args, 2,
+                       code, key, current, err, label, "no such site");
 }
 
 /* ---- airframes ------------------------------------------------------------------- */
@@ -112,13 +139,24 @@ PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *i
     sqlite3_stmt *st;
     int found = 0;
     pl_id newid = 0;
-    rc = pl_store__prepare(s, &st, "SELECT 1 FROM airframe WHERE serial = ?1", err);
+    char other[PL_NAME_SIZE] = "";
+    rc = pl_store__prepare(s, &st, "SELECT serial FROM airframe WHERE upper(serial) = "
+                           "upper(?1) ORDER BY serial = ?1 DESC", err);
     if (!rc) {
         sqlite3_bind_text(st, 1, af->serial, -1, SQLITE_STATIC);
-        rc = pl_store__finish_int(s, st, &found, NULL, err, label);
+        int r = sqlite3_step(st);
+        found = r == SQLITE_ROW;
+        if (found)
+            pl_store__col_text(st, 0, other, sizeof other);
+        else if (r != SQLITE_DONE)
+            rc = pl_store__fail(s, err, label);
+        sqlite3_finalize(st);
     }
-    if (!rc && found)
+    if (!rc && found && strcmp(other, af->serial) == 0)
         rc = pl__err(err, PL_EEXISTS, "%s: serial already registered", label);
+    else if (!rc && found)
+        rc = pl__err(err, PL_EEXISTS, "%s: serial already registered as %s (serials are "
+                     "compared without regard to case)", label, other);
     if (!rc)
         rc = insert_airframe(s, af, 0, 0, NULL, &newid, err, label);
     if (!rc && af->operator_name[0])
@@ -132,10 +170,18 @@ PL_EXPORT int pl_store_get_airframe(pl_store *s, const char *serial, pl_airframe
     assert(s && af);
     if (!serial)
         serial = "";
-    pl_value arg = pl_store__arg_text(serial);
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "airframe %.*s", PL_NAME_SIZE, serial);
+    pl_id key = 0;
+    int rc = pl_store__airframe_key(s, serial, &key, NULL, err, label);
+    if (rc == PL_ENOTFOUND)
+        return pl__err(err, PL_ENOTFOUND, "airframe %s: not registered", serial);
+    if (rc)
+        return rc;
+    pl_value arg = pl_store__arg_id(key);
     int found = 0;
-    int rc = pl_store__get(s, PL_TABLE_AIRFRAME, "WHERE t.serial = ?1", &arg, 1, af, &found,
-                           err, NULL);
+    rc = pl_store__get(s, PL_TABLE_AIRFRAME, "WHERE t.stable_key = ?1", &arg, 1, af, &found,
+                       err, NULL);
     if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "airframe %s: not registered", serial);
     return rc;
@@ -320,15 +366,25 @@ PL_EXPORT int pl_store_add_site(pl_store *s, const pl_site *site, pl_id *id, pl_
     if (!rc) {
         sqlite3_stmt *st;
         int found = 0;
-        rc = pl_store__prepare(s, &st, "SELECT 1 FROM site WHERE airframe_key = ?1 AND code = ?2",
-                               err);
+        char other[PL_NAME_SIZE] = "";
+        rc = pl_store__prepare(s, &st, "SELECT code FROM site WHERE airframe_key = ?1 AND "
+                               "upper(code) = upper(?2) ORDER BY code = ?2 DESC", err);
         if (!rc) {
             sqlite3_bind_int64(st, 1, af);
             sqlite3_bind_text(st, 2, site->code, -1, SQLITE_STATIC);
-            rc = pl_store__finish_int(s, st, &found, NULL, err, label);
+            int r = sqlite3_step(st);
+            found = r == SQLITE_ROW;
+            if (found)
+                pl_store__col_text(st, 0, other, sizeof other);
+            else if (r != SQLITE_DONE)
+                rc = pl_store__fail(s, err, label);
+            sqlite3_finalize(st);
         }
-        if (!rc && found)
+        if (!rc && found && strcmp(other, site->code) == 0)
             rc = pl__err(err, PL_EEXISTS, "%s: code already exists on this airframe", label);
+        else if (!rc && found)
+            rc = pl__err(err, PL_EEXISTS, "%s: code already exists on this airframe as %s "
+                         "(codes are compared without regard to case)", label, other);
     }
     if (!rc)
         rc = insert_site(s, site, af, 0, 0, NULL, &newid, err, label);
@@ -343,10 +399,20 @@ PL_EXPORT int pl_store_get_site(pl_store *s, const char *serial, const char *cod
         serial = "";
     if (!code)
         code = "";
-    pl_value args[2] = { pl_store__arg_text(serial), pl_store__arg_text(code) };
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "site %.*s on %.*s", PL_NAME_SIZE, code, PL_NAME_SIZE, serial);
+    pl_id af = 0, key = 0;
+    int rc = pl_store__airframe_key(s, serial, &af, NULL, err, label);
+    if (!rc)
+        rc = pl_store__site_key(s, af, code, &key, NULL, err, label);
+    if (rc == PL_ENOTFOUND)
+        return pl__err(err, PL_ENOTFOUND, "site %s on %s: no such site", code, serial);
+    if (rc)
+        return rc;
+    pl_value arg = pl_store__arg_id(key);
     int found = 0;
-    int rc = pl_store__get(s, PL_TABLE_SITE, "WHERE a.serial = ?1 AND t.code = ?2", args, 2,
-                           site, &found, err, NULL);
+    rc = pl_store__get(s, PL_TABLE_SITE, "WHERE t.stable_key = ?1", &arg, 1, site, &found, err,
+                       NULL);
     if (!rc && !found)
         rc = pl__err(err, PL_ENOTFOUND, "site %s on %s: no such site", code, serial);
     return rc;
@@ -382,7 +448,8 @@ PL_EXPORT int pl_store_list_sites(pl_store *s, const pl_site_filter *filter, pl_
                          pl_store__arg_text(filter ? filter->method : NULL) };
     site_cb cb = { fn, ud };
     return pl_store__list(s, PL_TABLE_SITE,
-                          "WHERE (?1 IS NULL OR a.serial = ?1) AND (?2 IS NULL OR t.zone = ?2) "
+                          "WHERE (?1 IS NULL OR upper(a.serial) = upper(?1)) "
+                          "AND (?2 IS NULL OR t.zone = ?2) "
                           "AND (?3 IS NULL OR t.method = ?3) ORDER BY a.serial, t.code",
                           args, 3, call_site, &cb, err, NULL);
 }

@@ -161,7 +161,8 @@ PL_EXPORT int pl_store_list_inspections(pl_store *s, const pl_inspection_filter 
     };
     inspection_cb cb = { fn, ud };
     return pl_store__list(s, PL_TABLE_INSPECTION,
-                          "WHERE (?1 IS NULL OR a.serial = ?1) AND (?2 IS NULL OR s.code = ?2) "
+                          "WHERE (?1 IS NULL OR upper(a.serial) = upper(?1)) "
+                          "AND (?2 IS NULL OR upper(s.code) = upper(?2)) "
                           "AND (?3 IS NULL OR t.kind = ?3) "
                           "AND (?4 IS NULL OR t.performed_on >= ?4) "
                           "AND (?5 IS NULL OR t.performed_on <= ?5) "

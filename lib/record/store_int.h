@@ -179,6 +179,7 @@ typedef enum pl_ctype {
 typedef enum pl_form {
     PL_F_ANY = 0,
     PL_F_NAME,         /* one line, no leading or trailing spaces */
+    PL_F_KEY,          /* a key: serial or site code (pl_key_check()) */
     PL_F_TEXT,         /* free text */
     PL_F_DATE,         /* YYYY-MM-DD, a real calendar date */
     PL_F_JSON,         /* a JSON object */
@@ -264,6 +265,8 @@ size_t pl_row__column(const pl_table_desc *t, const char *column);
 int pl_row__check(const pl_table_desc *t, const void *rec, const char *label, pl_err *err);
 
 /* The single checks pl_row__check() uses, for fields outside a description. */
+int pl_row__check_key(pl_err *err, const char *label, const char *field, const char *v,
+                      size_t cap, int required);
 int pl_row__check_name(pl_err *err, const char *label, const char *field, const char *v,
                        size_t cap, int required);
 int pl_row__check_text(pl_err *err, const char *label, const char *field, const char *v,

@@ -155,6 +155,236 @@ PL_EXPORT int pl_bound_check(pl_bound which, double v, const char *what, pl_err 
                    b->unit);
 }
 
+/* ---- keys and text ----------------------------------------------------------- */
+
+/*
+ * The length of the well-formed UTF-8 sequence at p (n bytes left), its
+ * code point in *cp (may be NULL); 0 when it is not one (RFC 3629: no
+ * overlong forms, no surrogates, nothing above U+10FFFF).
+ */
+static size_t utf8_next(const unsigned char *p, size_t n, uint32_t *cp)
+{
+    unsigned c = p[0];
+    size_t len;
+    unsigned lo = 0x80, hi = 0xbf;
+    uint32_t v;
+    if (c < 0x80) {
+        len = 1;
+        v = c;
+    } else if (c >= 0xc2 && c <= 0xdf) {
+        len = 2;
+        v = c & 0x1f;
+    } else if (c >= 0xe0 && c <= 0xef) {
+        len = 3;
+        v = c & 0x0f;
+        if (c == 0xe0)
+            lo = 0xa0;
+        if (c == 0xed)
+            hi = 0x9f;
+    } else if (c >= 0xf0 && c <= 0xf4) {
+        len = 4;
+        v = c & 0x07;
+        if (c == 0xf0)
+            lo = 0x90;
+        if (c == 0xf4)
+            hi = 0x8f;
+    } else {
+        return 0;
+    }
+    if (len > n)
+        return 0;
+    for (size_t k = 1; k < len; k++) {
+        unsigned b = p[k];
+        if (b < (k == 1 ? lo : 0x80) || b > (k == 1 ? hi : 0xbf))
+            return 0;
+        v = (v << 6) | (b & 0x3f);
+    }
+    if (cp)
+        *cp = v;
+    return len;
+}
+
+/* Whether p[0..n) is well-formed UTF-8 (utf8_next()). */
+static int valid_utf8(const unsigned char *p, size_t n)
+{
+    for (size_t i = 0, len; i < n; i += len)
+        if (!(len = utf8_next(p + i, n - i, NULL)))
+            return 0;
+    return 1;
+}
+
+/* Characters that pass for one of the key alphabet's (or for a space), by
+ * their Unicode names, with what to type instead (0: nothing). */
+static const struct lookalike {
+    uint32_t cp;
+    const char *name;
+    char ascii;
+} lookalikes[] = {
+    { 0x00a0, "NO-BREAK SPACE", ' ' },
+    { 0x00ad, "SOFT HYPHEN", 0 },
+    { 0x00b7, "MIDDLE DOT", '.' },
+    { 0x0391, "GREEK CAPITAL LETTER ALPHA", 'A' },
+    { 0x0392, "GREEK CAPITAL LETTER BETA", 'B' },
+    { 0x0395, "GREEK CAPITAL LETTER EPSILON", 'E' },
+    { 0x0396, "GREEK CAPITAL LETTER ZETA", 'Z' },
+    { 0x0397, "GREEK CAPITAL LETTER ETA", 'H' },
+    { 0x0399, "GREEK CAPITAL LETTER IOTA", 'I' },
+    { 0x039a, "GREEK CAPITAL LETTER KAPPA", 'K' },
+    { 0x039c, "GREEK CAPITAL LETTER MU", 'M' },
+    { 0x039d, "GREEK CAPITAL LETTER NU", 'N' },
+    { 0x039f, "GREEK CAPITAL LETTER OMICRON", 'O' },
+    { 0x03a1, "GREEK CAPITAL LETTER RHO", 'P' },
+    { 0x03a4, "GREEK CAPITAL LETTER TAU", 'T' },
+    { 0x03a5, "GREEK CAPITAL LETTER UPSILON", 'Y' },
+    { 0x03a7, "GREEK CAPITAL LETTER CHI", 'X' },
+    { 0x03bf, "GREEK SMALL LETTER OMICRON", 'o' },
+    { 0x0405, "CYRILLIC CAPITAL LETTER DZE", 'S' },
+    { 0x0406, "CYRILLIC CAPITAL LETTER BYELORUSSIAN-UKRAINIAN I", 'I' },
+    { 0x0408, "CYRILLIC CAPITAL LETTER JE", 'J' },
+    { 0x0410, "CYRILLIC CAPITAL LETTER A", 'A' },
+    { 0x0412, "CYRILLIC CAPITAL LETTER VE", 'B' },
+    { 0x0415, "CYRILLIC CAPITAL LETTER IE", 'E' },
+    { 0x041a, "CYRILLIC CAPITAL LETTER KA", 'K' },
+    { 0x041c, "CYRILLIC CAPITAL LETTER EM", 'M' },
+    { 0x041d, "CYRILLIC CAPITAL LETTER EN", 'H' },
+    { 0x041e, "CYRILLIC CAPITAL LETTER O", 'O' },
+    { 0x0420, "CYRILLIC CAPITAL LETTER ER", 'P' },
+    { 0x0421, "CYRILLIC CAPITAL LETTER ES", 'C' },
+    { 0x0422, "CYRILLIC CAPITAL LETTER TE", 'T' },
+    { 0x0425, "CYRILLIC CAPITAL LETTER HA", 'X' },
+    { 0x0430, "CYRILLIC SMALL LETTER A", 'a' },
+    { 0x0435, "CYRILLIC SMALL LETTER IE", 'e' },
+    { 0x043e, "CYRILLIC SMALL LETTER O", 'o' },
+    { 0x0440, "CYRILLIC SMALL LETTER ER", 'p' },
+    { 0x0441, "CYRILLIC SMALL LETTER ES", 'c' },
+    { 0x0443, "CYRILLIC SMALL LETTER U", 'y' },
+    { 0x0445, "CYRILLIC SMALL LETTER HA", 'x' },
+    { 0x2002, "EN SPACE", ' ' },
+    { 0x2003, "EM SPACE", ' ' },
+    { 0x2009, "THIN SPACE", ' ' },
+    { 0x200a, "HAIR SPACE", ' ' },
+    { 0x200b, "ZERO WIDTH SPACE", 0 },
+    { 0x200c, "ZERO WIDTH NON-JOINER", 0 },
+    { 0x200d, "ZERO WIDTH JOINER", 0 },
+    { 0x2010, "HYPHEN", '-' },
+    { 0x2011, "NON-BREAKING HYPHEN", '-' },
+    { 0x2012, "FIGURE DASH", '-' },
+    { 0x2013, "EN DASH", '-' },
+    { 0x2014, "EM DASH", '-' },
+    { 0x2015, "HORIZONTAL BAR", '-' },
+    { 0x2024, "ONE DOT LEADER", '.' },
+    { 0x202f, "NARROW NO-BREAK SPACE", ' ' },
+    { 0x2044, "FRACTION SLASH", '/' },
+    { 0x2212, "MINUS SIGN", '-' },
+    { 0x2215, "DIVISION SLASH", '/' },
+    { 0x3000, "IDEOGRAPHIC SPACE", ' ' },
+    { 0xfe63, "SMALL HYPHEN-MINUS", '-' },
+    { 0xfeff, "ZERO WIDTH NO-BREAK SPACE", 0 },
+};
+
+#define KEY_ALPHABET "ASCII letters, digits and - _ . /"
+
+static int key_char(unsigned char c)
+{
+    return (c >= 'A' && c <= 'Z') || (c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') ||
+           c == '-' || c == '_' || c == '.' || c == '/';
+}
+
+/* "U+2010 HYPHEN is not allowed; use '-'" for a character outside ASCII. */
+static int refuse_char(pl_err *err, const char *what, const char *key, uint32_t cp)
+{
+    const char *name = NULL;
+    char ascii = 0, buf[64];
+    for (size_t i = 0; i < sizeof lookalikes / sizeof lookalikes[0]; i++)
+        if (lookalikes[i].cp == cp) {
+            name = lookalikes[i].name;
+            ascii = lookalikes[i].ascii;
+        }
+    /* the fullwidth forms of ASCII (U+FF01..U+FF5E) are ASCII + 0xFEE0 */
+    if (!name && cp >= 0xff01 && cp <= 0xff5e) {
+        ascii = (char)(cp - 0xfee0);
+        snprintf(buf, sizeof buf, "FULLWIDTH %s '%c'",
+                 ascii >= '0' && ascii <= '9' ? "DIGIT" :
+                 (ascii >= 'A' && ascii <= 'Z') || (ascii >= 'a' && ascii <= 'z') ? "LETTER"
+                                                                                  : "SIGN", ascii);
+        name = buf;
+    }
+    if (name && ascii == ' ')
+        return pl__err(err, PL_EINVAL, "%s '%s': U+%04X %s is not allowed; a key has no spaces",
+                       what, key, (unsigned)cp, name);
+    if (name && !ascii)
+        return pl__err(err, PL_EINVAL, "%s '%s': U+%04X %s is not allowed; remove it", what, key,
+                       (unsigned)cp, name);
+    if (name && key_char((unsigned char)ascii))
+        return pl__err(err, PL_EINVAL, "%s '%s': U+%04X %s is not allowed; use '%c'", what, key,
+                       (unsigned)cp, name, ascii);
+    if (name)
+        return pl__err(err, PL_EINVAL, "%s '%s': U+%04X %s is not allowed (a key is "
+                       KEY_ALPHABET ")", what, key, (unsigned)cp, name);
+    return pl__err(err, PL_EINVAL, "%s '%s': U+%04X is not allowed (a key is " KEY_ALPHABET ")",
+                   what, key, (unsigned)cp);
+}
+
+/* "byte 0xff at position 3 is not valid UTF-8" (positions from 1). */
+static int refuse_utf8(pl_err *err, const char *what, const unsigned char *s, size_t at)
+{
+    return pl__err(err, PL_EINVAL, "%s: byte 0x%02x at position %zu is not valid UTF-8", what,
+                   s[at], at + 1);
+}
+
+PL_EXPORT int pl_text_check(const char *text, unsigned flags, const char *what, pl_err *err)
+{
+    assert(what);
+    const unsigned char *s = (const unsigned char *)(text ? text : "");
+    size_t n = strlen((const char *)s);
+    for (size_t i = 0, len; i < n; i += len) {
+        uint32_t cp;
+        if (!(len = utf8_next(s + i, n - i, &cp)))
+            return refuse_utf8(err, what, s, i);
+        int lines = (flags & PL_TEXT_LINES) && (cp == '\t' || cp == '\n' || cp == '\r');
+        if ((cp < 0x20 || (cp >= 0x7f && cp <= 0x9f)) && !lines)
+            return pl__err(err, PL_EINVAL, "%s contains a control character (U+%04X)", what,
+                           (unsigned)cp);
+    }
+    return PL_OK;
+}
+
+PL_EXPORT int pl_key_check(const char *key, const char *what, pl_err *err)
+{
+    assert(what);
+    const unsigned char *s = (const unsigned char *)(key ? key : "");
+    size_t n = strlen((const char *)s);
+    if (n == 0)
+        return pl__err(err, PL_EINVAL, "%s is required", what);
+    for (size_t i = 0, len; i < n; i += len) {
+        uint32_t cp;
+        if (!(len = utf8_next(s + i, n - i, &cp)))
+            return refuse_utf8(err, what, s, i);
+        if (cp >= 0x80)
+            return refuse_char(err, what, key, cp);
+    }
+    int rc = pl_text_check(key, 0, what, err);
+    if (rc)
+        return rc;
+    if (s[0] == ' ' || s[n - 1] == ' ')
+        return pl__err(err, PL_EINVAL, "%s '%s' has spaces around it; a key has none", what, key);
+    if (n > PL_KEY_MAX)
+        return pl__err(err, PL_EINVAL, "%s '%s' is longer than %d characters", what, key,
+                       PL_KEY_MAX);
+    for (size_t i = 0; i < n; i++) {
+        if (key_char(s[i]))
+            continue;
+        char shown[16];
+        snprintf(shown, sizeof shown, s[i] == ' ' ? "a space" : "'%c'", s[i]);
+        return pl__err(err, PL_EINVAL, "%s '%s': %s is not allowed (a key is " KEY_ALPHABET ")",
+                       what, key, shown);
+    }
+    if (!((s[0] >= 'A' && s[0] <= 'Z') || (s[0] >= 'a' && s[0] <= 'z') ||
+          (s[0] >= '0' && s[0] <= '9')))
+        return pl__err(err, PL_EINVAL, "%s '%s' must start with a letter or a digit", what, key);
+    return PL_OK;
+}
+
 /* ---- the descriptions --------------------------------------------------------- */
 
 #define NUL PL_COL_NULLABLE
@@ -223,7 +453,7 @@ PL_EXPORT int pl_bound_check(pl_bound which, double v, const char *what, pl_err 
            PL_F_NAME)
 
 static const pl_column airframe_cols[] = {
-    TEXT(pl_airframe, serial, "serial", "serial", IN | REQ, PL_F_NAME),
+    TEXT(pl_airframe, serial, "serial", "serial", IN | REQ, PL_F_KEY),
     TEXT(pl_airframe, aircraft_type, "aircraft_type", "aircraft_type", IN | REQ, PL_F_NAME),
     TEXT(pl_airframe, manufactured, "manufactured", "manufactured", IN | NUL, PL_F_DATE),
     JOINED(pl_airframe, operator_name, PL_STORE_LATEST_OPERATOR("operator_name"), "operator",
@@ -246,8 +476,8 @@ static const pl_column operator_cols[] = {
 };
 
 static const pl_column site_cols[] = {
-    JOINED(pl_site, airframe_serial, "a.serial", "airframe", PL_C_TEXT, IN, PL_F_NAME),
-    TEXT(pl_site, code, "code", "site", IN | REQ, PL_F_NAME),
+    JOINED(pl_site, airframe_serial, "a.serial", "airframe", PL_C_TEXT, IN, PL_F_KEY),
+    TEXT(pl_site, code, "code", "site", IN | REQ, PL_F_KEY),
     TEXT(pl_site, zone, "zone", "zone", IN | NUL, PL_F_NAME),
     TEXT(pl_site, description, "description", "description", IN | NUL, PL_F_TEXT),
     TEXT(pl_site, frame, "frame", "frame", IN | NUL, PL_F_NAME),
@@ -274,8 +504,8 @@ static const pl_column inspection_cols[] = {
     STABLE_KEY(pl_inspection, "inspection"),
     ROWID(pl_inspection, "version_id"),
     JOINED(pl_inspection, airframe_serial, "a.serial", "airframe", PL_C_TEXT, IN | REQ,
-           PL_F_NAME),
-    JOINED(pl_inspection, site_code, "s.code", "site", PL_C_TEXT, IN | REQ, PL_F_NAME),
+           PL_F_KEY),
+    JOINED(pl_inspection, site_code, "s.code", "site", PL_C_TEXT, IN | REQ, PL_F_KEY),
     WORD(pl_inspection, kind, "kind", "kind", PL_VOCAB_INSPECTION_KIND),
     TEXT(pl_inspection, performed_on, "performed_on", "date", IN | REQ, PL_F_DATE),
     TEXT(pl_inspection, task_ref, "task_ref", "task", IN | NUL, PL_F_NAME),
@@ -488,19 +718,36 @@ int pl_row__check_name(pl_err *err, const char *label, const char *field_name, c
     if (n == 0)
         return required ? pl__err(err, PL_EINVAL, "%s: %s is required", label, field_name)
                         : PL_OK;
-    for (size_t i = 0; i < n; i++) {
-        unsigned char c = (unsigned char)v[i];
-        if (c < 0x20 || c == 0x7f)
-            return pl__err(err, PL_EINVAL, "%s: %s contains a control character", label,
-                           field_name);
-    }
+    char what[STORE_LABEL_SIZE + 64];
+    snprintf(what, sizeof what, "%s: %s", label, field_name);
+    int rc = pl_text_check(v, 0, what, err);
+    if (rc)
+        return rc;
     if (v[0] == ' ' || v[n - 1] == ' ')
         return pl__err(err, PL_EINVAL, "%s: %s '%s' has leading or trailing spaces", label,
                        field_name, v);
     return PL_OK;
 }
 
-/* Free text (notes, descriptions): any characters but NUL, within its buffer. */
+/* A key (serial, site code): a name in the key alphabet. */
+int pl_row__check_key(pl_err *err, const char *label, const char *field_name, const char *v,
+                      size_t cap, int required)
+{
+    if (!v)
+        v = "";
+    size_t n = strnlen(v, cap);
+    if (n == cap)
+        return pl__err(err, PL_EINVAL, "%s: %s is too long (at most %d characters)", label,
+                       field_name, PL_KEY_MAX);
+    if (n == 0 && !required)
+        return PL_OK;
+    char what[STORE_LABEL_SIZE + 64];
+    snprintf(what, sizeof what, "%s: %s", label, field_name);
+    return pl_key_check(v, what, err);
+}
+
+/* Free text (notes, descriptions): valid UTF-8 within its buffer, line
+ * breaks and tabs allowed but no other control character. */
 int pl_row__check_text(pl_err *err, const char *label, const char *field_name, const char *v,
                        size_t cap, int required)
 {
@@ -510,7 +757,9 @@ int pl_row__check_text(pl_err *err, const char *label, const char *field_name, c
                        field_name, cap - 1);
     if (n == 0 && required)
         return pl__err(err, PL_EINVAL, "%s: %s is required", label, field_name);
-    return PL_OK;
+    char what[STORE_LABEL_SIZE + 64];
+    snprintf(what, sizeof what, "%s: %s", label, field_name);
+    return pl_text_check(v, PL_TEXT_LINES, what, err);
 }
 
 int pl_row__check_date(pl_err *err, const char *label, const char *field_name, const char *v,
@@ -531,6 +780,8 @@ static int check_json_object(pl_err *err, const char *label, const char *field_n
 {
     if (!json)
         return PL_OK;
+    if (!valid_utf8((const unsigned char *)json, strlen(json)))
+        return pl__err(err, PL_EINVAL, "%s: %s is not valid UTF-8", label, field_name);
     cJSON *j = cJSON_ParseWithOpts(json, NULL, 1);
     int ok = cJSON_IsObject(j);
     cJSON_Delete(j);
@@ -569,6 +820,8 @@ static int check_field(const pl_column *c, const void *rec, const char *label, p
         const char *v = cfield(c, rec);
         int rc = c->form == PL_F_NAME   ? pl_row__check_name(err, label, c->field, v, c->size,
                                                              required)
+                 : c->form == PL_F_KEY  ? pl_row__check_key(err, label, c->field, v, c->size,
+                                                            required)
                  : c->form == PL_F_DATE ? pl_row__check_date(err, label, c->field, v, c->size,
                                                              required)
                                         : pl_row__check_text(err, label, c->field, v, c->size,
@@ -816,47 +1069,6 @@ static int put_bytes(enc *e, const void *p, size_t n, const char *label, const c
     put_u32(e, (uint32_t)n);
     put(e, p, n);
     return PL_OK;
-}
-
-/* Whether p[0..n) is well-formed UTF-8 (RFC 3629: no overlong forms, no
- * surrogates, nothing above U+10FFFF). */
-static int valid_utf8(const unsigned char *p, size_t n)
-{
-    size_t i = 0;
-    while (i < n) {
-        unsigned c = p[i];
-        size_t len;
-        unsigned lo = 0x80, hi = 0xbf;
-        if (c < 0x80) {
-            i++;
-            continue;
-        } else if (c >= 0xc2 && c <= 0xdf) {
-            len = 2;
-        } else if (c >= 0xe0 && c <= 0xef) {
-            len = 3;
-            if (c == 0xe0)
-                lo = 0xa0;
-            if (c == 0xed)
-                hi = 0x9f;
-        } else if (c >= 0xf0 && c <= 0xf4) {
-            len = 4;
-            if (c == 0xf0)
-                lo = 0x90;
-            if (c == 0xf4)
-                hi = 0x8f;
-        } else {
-            return 0;
-        }
-        if (i + len > n)
-            return 0;
-        for (size_t k = 1; k < len; k++) {
-            unsigned b = p[i + k];
-            if (b < (k == 1 ? lo : 0x80) || b > (k == 1 ? hi : 0xbf))
-                return 0;
-        }
-        i += len;
-    }
-    return 1;
 }
 
 /* One value, typed by the declared type of its column. */

@@ -37,9 +37,23 @@
  *
  * Records are plain structs with fixed text buffers, filled by the caller
  * for writes and by the store for reads. Text that does not fit its buffer
- * is refused with PL_EINVAL. Names (serials, codes, references, people) are
- * one line without leading or trailing spaces; dates are real calendar
- * dates written YYYY-MM-DD. A writing call on a store opened with
+ * is refused with PL_EINVAL. All text is valid UTF-8 (pl_text_check()).
+ * Names (references, people) are one line without leading or trailing
+ * spaces or control characters; free text (notes, descriptions, reasons)
+ * may hold line breaks and tabs but no other control character; dates are
+ * real calendar dates written YYYY-MM-DD.
+ *
+ * Keys. An airframe's serial and a site's code are its identity, and keep
+ * to a key alphabet (pl_key_check()): 1 to PL_KEY_MAX ASCII letters,
+ * digits, '-', '_', '.' and '/', starting with a letter or a digit; no
+ * spaces, nothing else. A look-alike of one of these (U+2010 HYPHEN for
+ * '-', a Cyrillic 'А' for 'A', a no-break space) is refused by name. Keys
+ * are compared without regard to case: "cr7-0107" cannot be registered
+ * beside "CR7-0107", and a look-up by "cr7-0107" finds "CR7-0107"; the key
+ * keeps the spelling it was registered with, which every output shows. (A
+ * store written before this rule may hold two keys that differ only in
+ * case: a look-up then takes the one spelt exactly as given, and refuses
+ * one spelt like neither as ambiguous.) A writing call on a store opened with
  * PL_STORE_READONLY returns PL_EDB. Numbers that are unknown are NaN (doubles) or
  * -1 (counts). Listing calls hand each record to a callback; the record is
  * borrowed for the callback's duration only. A callback returns 0 to go on
@@ -168,6 +182,35 @@ PL_EXPORT int pl_vocabulary_check(pl_vocab which, const char *word, pl_err *err)
  * @return the length the whole text needs (as snprintf).
  */
 PL_EXPORT size_t pl_vocabulary_text(char *buf, size_t cap, pl_vocab which, const char *last);
+
+/* ---- keys and text -------------------------------------------------------- */
+
+/** Longest key (airframe serial, site code), in characters. */
+#define PL_KEY_MAX 32
+
+/**
+ * Check a key (see "Keys" above).
+ * @param what  names it at the start of the message, e.g. "--serial"
+ * @return PL_OK, PL_EINVAL naming what is wrong: "... ' F01 ' has spaces
+ *         around it", "...: U+2010 HYPHEN is not allowed; use '-'", "...:
+ *         byte 0xe2 at position 3 is not valid UTF-8", ...
+ */
+PL_EXPORT int pl_key_check(const char *key, const char *what, pl_err *err);
+
+/** pl_text_check() flags. */
+enum {
+    PL_TEXT_LINES = 1  /**< free text: line feeds, carriage returns and tabs allowed */
+};
+
+/**
+ * Check that text can be stored: valid UTF-8 (RFC 3629), and no control
+ * character (C0, DEL, C1) but, with PL_TEXT_LINES, tab, line feed and
+ * carriage return.
+ * @param what  names it at the start of the message
+ * @return PL_OK, PL_EINVAL ("<what>: byte 0xff at position 2 is not valid
+ *         UTF-8", "<what>: contains a control character (U+0007)").
+ */
+PL_EXPORT int pl_text_check(const char *text, unsigned flags, const char *what, pl_err *err);
 
 /* ---- bounds of numbers ---------------------------------------------------- */
 
