@@ -1,6 +1,7 @@
 /*
  * cmd_import_plan.c - plyledger import-plan: add a site plan to an airframe.
  */
+#include <stdio.h>
 #include "cli.h"
 
 static const char usage[] = "--airframe SERIAL PLAN.csv";
@@ -67,8 +68,11 @@ int cmd_import_plan(int argc, char **argv)
     st = pl_plan_apply(store, plan, serial, &added, &err);
     pl_store_close(store);
     if (st) {
+        /* the store names the site; the plan file it came from is named here */
+        pl_err named = err;
+        snprintf(named.msg, sizeof named.msg, "%.200s: %.300s", path, err.msg);
         pl_plan_free(plan);
-        return cli_fail_err(st, &err);
+        return cli_fail_err(st, &named);
     }
     if (common.json) {
         cJSON *o = cJSON_CreateObject();
