@@ -23,7 +23,7 @@ const char cli_inspection_help[] =
     "      --equipment TEXT      equipment used\n"
     "      --calibration REF     calibration or reference standard\n"
     "      --inspector NAME      who performed it\n"
-    "      --level LEVEL         the inspector's qualification level\n"
+    "      --level LEVEL         the inspector's level: 1-limited, 1, 2 or 3\n"
     "      --notes TEXT          free notes\n"
     "      --parameters FILE     processing parameters, a JSON object\n";
 

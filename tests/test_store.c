@@ -884,6 +884,17 @@ static void test_store__validates_records_with_clear_messages(void **state)
                 "parameters_json is not a JSON object");
     in.parameters_json = broken;
     expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err, "JSON");
+    /* the inspector's level is a certification level (EN 4179, NAS 410,
+     * ISO 9712), not free text */
+    static const char *const not_levels[] = { "banana", "99", "Level 2", "II", "0" };
+    for (size_t k = 0; k < sizeof not_levels / sizeof not_levels[0]; k++) {
+        in = inspection("PLX-0001", "S07", "scheduled", "2022-03-01");
+        snprintf(in.inspector_level, sizeof in.inspector_level, "%s", not_levels[k]);
+        expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                    "inspector level");
+        tu_assert_msg_has(err.msg, not_levels[k]);
+        tu_assert_msg_has(err.msg, "1-limited, 1, 2, 3");
+    }
     in = inspection("PLX-0001", "S07", "scheduled", "2022-03-01");
     in.aircraft_hours = -3;
     expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,

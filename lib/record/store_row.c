@@ -33,6 +33,10 @@ static const char *const methods[] = {
 };
 static const char *const registration_statuses[] = { "aligned", "refused", "manual" };
 static const char *const comparison_statuses[] = { "done", "not-done" };
+/* The certification levels of NDT personnel: EN 4179 and NAS 410 define
+ * Level 1 Limited, 1, 2 and 3; ISO 9712 levels 1, 2 and 3 (from memory).
+ * A trainee is not certified and signs no inspection. */
+static const char *const inspector_levels[] = { "1-limited", "1", "2", "3" };
 
 #define WORDS(a) sizeof a / sizeof a[0], a
 static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
@@ -40,6 +44,7 @@ static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
     { "method", WORDS(methods) },
     { "registration status", WORDS(registration_statuses) },
     { "comparison status", WORDS(comparison_statuses) },
+    { "inspector level", WORDS(inspector_levels) },
 };
 
 PL_EXPORT const pl_vocabulary *pl_vocabulary_get(pl_vocab which)
@@ -519,8 +524,8 @@ static const pl_column inspection_cols[] = {
     TEXT(pl_inspection, equipment, "equipment", "equipment", IN | REQ, PL_F_TEXT),
     TEXT(pl_inspection, calibration_ref, "calibration_ref", "calibration", IN | REQ, PL_F_NAME),
     TEXT(pl_inspection, inspector, "inspector", "inspector", IN | REQ, PL_F_NAME),
-    TEXT(pl_inspection, inspector_level, "inspector_level", "inspector_level", IN | REQ,
-         PL_F_NAME),
+    WORD(pl_inspection, inspector_level, "inspector_level", "inspector_level",
+         PL_VOCAB_INSPECTOR_LEVEL),
     SOFTWARE(pl_inspection),
     TEXT(pl_inspection, notes, "notes", "notes", IN | NUL, PL_F_TEXT),
     PARAMETERS(pl_inspection),

@@ -153,6 +153,7 @@ typedef enum pl_vocab {
     PL_VOCAB_METHOD = 1,              /**< a site's inspection method */
     PL_VOCAB_REGISTRATION_STATUS = 2, /**< aligned, refused, manual */
     PL_VOCAB_COMPARISON_STATUS = 3,   /**< done, not-done */
+    PL_VOCAB_INSPECTOR_LEVEL = 4,     /**< 1-limited, 1, 2, 3 (EN 4179, NAS 410, ISO 9712) */
     PL_VOCAB_COUNT
 } pl_vocab;
 
@@ -402,7 +403,7 @@ typedef struct pl_inspection {
     char equipment[PL_TEXT_SIZE];         /**< equipment used; required */
     char calibration_ref[PL_TEXT_SIZE];   /**< calibration / reference standard; required */
     char inspector[PL_NAME_SIZE];         /**< who performed it; required */
-    char inspector_level[PL_WORD_SIZE];   /**< qualification level; required */
+    char inspector_level[PL_WORD_SIZE];   /**< PL_VOCAB_INSPECTOR_LEVEL; required */
     char software_version[PL_WORD_SIZE];  /**< empty: this library's version */
     char notes[PL_TEXT_SIZE];
     char *parameters_json;                /**< processing parameters (JSON object) or NULL;
