@@ -808,6 +808,56 @@ static void test_store__refuses_duplicates(void **state)
     check_integrity(f->path);
 }
 
+/*
+ * Serials and site codes keep to the key alphabet and compare without
+ * regard to case (fault: "tst-0001" beside "TST-0001", and a serial with
+ * U+2010 HYPHEN that reads like one with '-', were two airframes).
+ */
+static void test_store__keys_keep_to_one_alphabet_without_case(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    char *before = dump(f->path);
+    static const struct {
+        const char *key, *says;
+    } bad[] = {
+        { "plx-0001", "PLX-0001" },
+        { "PLX\xe2\x80\x90" "0001", "U+2010 HYPHEN is not allowed; use '-'" },
+        { "\xd0\xa0LX-0002", "CYRILLIC CAPITAL LETTER ER" },
+        { "PLX-0002\xc2\xa0", "NO-BREAK SPACE" },
+        { " PLX-0002", "spaces around it" },
+        { "PLX 0002", "a space is not allowed" },
+        { "PLX#0002", "'#' is not allowed" },
+        { "-PLX-0002", "must start with a letter or a digit" },
+        { "PLX\xff" "0002", "byte 0xff at position 4 is not valid UTF-8" },
+        { "PLX-000000000000000000000000000002", "longer than 32" },
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        pl_airframe af = airframe(bad[i].key, "PLX-T1");
+        int rc = pl_store_add_airframe(f->st, &af, NULL, &err);
+        if (rc != PL_EINVAL && rc != PL_EEXISTS)
+            fail_msg("'%s': status %d", bad[i].key, rc);
+        tu_assert_msg_has(err.msg, bad[i].says);
+    }
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(before);
+    free(after);
+    TU_OK(pl_key_check("CR7-0107/B_2.a", "serial", &err));
+
+    /* a look-up in another case finds the key as it was added */
+    pl_airframe got;
+    TU_OK(pl_store_get_airframe(f->st, "plx-0001", &got, &err));
+    assert_string_equal(got.serial, "PLX-0001");
+    add_site(f->st, "PLX-0001", "S01");
+    pl_site s = site("PLX-0001", "s01");
+    int rc = pl_store_add_site(f->st, &s, NULL, &err);
+    if (rc != PL_EEXISTS && rc != PL_EINVAL)
+        fail_msg("site s01 beside S01: status %d", rc);
+    tu_assert_msg_has(err.msg, "S01");
+}
+
 static void test_store__validates_records_with_clear_messages(void **state)
 {
     fixture *f = *state;
@@ -2230,6 +2280,7 @@ int main(void)
         T(test_store__every_table_refuses_update_and_delete),
         T(test_store__corrections_supersede_and_keep_history),
         T(test_store__refuses_duplicates),
+        T(test_store__keys_keep_to_one_alphabet_without_case),
         T(test_store__validates_records_with_clear_messages),
         T(test_store__numbers_keep_to_their_bounds),
         T(test_store__dates_agree_with_sqlite_calendar),
