@@ -9,9 +9,9 @@
 #
 # The batch: one sidecar recording the baselines of SITES sites of one
 # airframe, each with its own map (make_batch.py). A first, whole run
-# measures how long the record takes (T); then each round copies the
-# prepared store, starts the
-# record and kills it after a moment drawn uniformly from [0, T). A round
+# measures how long the record takes (T) and when it starts writing (W); then
+# each round copies the prepared store, starts the record and kills it after a
+# moment drawn uniformly from [0, T) or, every other round, from [W, T). A round
 # whose record finished before its kill counts as no kill; the test needs
 # KILLS kills that landed, a quarter of them at least while the record was
 # writing (its rollback journal or write-ahead log left behind).
@@ -52,18 +52,33 @@ count() { sqlite3 "$STORE" "SELECT (SELECT count(*) FROM inspection) || ' ' || (
 
 cp "$PREP" "$STORE"
 t0=$(now)
-"$PLY_BIN" record --store "$STORE" --sidecar "$WORK/batch-KIL-0001.json" -q >"$WORK/out" 2>&1 \
-    || { fail "the whole record failed"; sed 's/^/    /' "$WORK/out" >&2; exit 1; }
+"$PLY_BIN" record --store "$STORE" --sidecar "$WORK/batch-KIL-0001.json" -q >"$WORK/out" 2>&1 &
+pid=$!
+# when the record starts writing: its journal or write-ahead log appears (the
+# record reads and checks the whole batch first, then inserts it)
+W=""
+while kill -0 "$pid" 2>/dev/null; do
+    if [ -z "$W" ] && { [ -s "$STORE-wal" ] || [ -s "$STORE-journal" ]; }; then
+        W=$(echo "$(now) $t0" | awk '{ printf "%.3f", $1 - $2 }')
+    fi
+    sleep 0.01
+done
+wait "$pid" || { fail "the whole record failed"; sed 's/^/    /' "$WORK/out" >&2; exit 1; }
 T=$(echo "$(now) $t0" | awk '{ printf "%.3f", $1 - $2 }')
+[ -n "$W" ] || W=0
 [ "$(count)" = "$SITES $SITES" ] || fail "the whole record holds $(count) inspections and maps, not $SITES $SITES"
-echo "# the whole record of $SITES sites takes $T s"
+echo "# the whole record of $SITES sites takes $T s, writing from $W s"
 
 # ---- the kills ---------------------------------------------------------------------
 
 SEED=${PL_KILL_SEED:-$(od -An -N4 -tu4 /dev/urandom | tr -d ' ')}
 echo "# moments drawn with PL_KILL_SEED=$SEED"
-MOMENTS=$(awk -v s="$SEED" -v t="$T" -v n=$((KILLS * 3)) \
-    'BEGIN { srand(s); for (i = 0; i < n; i++) printf "%.3f\n", rand() * t }')
+# every other moment from the whole run [0, T), the others from its writing
+# part [W, T): the writing part is short beside the reading and checking, and
+# the test needs kills in both
+MOMENTS=$(awk -v s="$SEED" -v t="$T" -v w="$W" -v n=$((KILLS * 3)) \
+    'BEGIN { srand(s); for (i = 0; i < n; i++)
+             printf "%.3f\n", i % 2 ? w + rand() * (t - w) : rand() * t }')
 kills=0 whole=0 none=0 rounds=0 writing=0
 for m in $MOMENTS; do
     [ "$kills" -ge "$KILLS" ] && break
