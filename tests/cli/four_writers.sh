@@ -3,12 +3,6 @@
 # once: every write must land (no process may fail for want of the store) and
 # no stderr may hold a raw SQLite message.
 #
-# NOTE: not registered in the test suite yet. It fails with today's code
-# (issue 8, fault 11: writers hold the write lock through their decoding,
-# compression and hashing, the others give up after SQLite's 5 s busy
-# timeout and print "cannot begin a transaction: database is locked").
-# Register it in tests/meson.build (suite 'cli') with the fix.
-#
 # Usage: four_writers.sh PLYLEDGER_BINARY TESTS_CLI_DIR [ROUNDS]
 # Environment: PL_PYTHON (Debian's python3 with numpy), TMPDIR.
 #
