@@ -19,6 +19,7 @@
 
 #include "image/map_int.h"
 #include "plyledger/hash.h"
+#include "plyledger/store.h"
 #include "testutil.h"
 
 /* ---- helpers ---------------------------------------------------------- */
@@ -136,6 +137,42 @@ static void test_map__clone_is_deep(void **state)
     assert_string_equal(c->channels[1].quantity, "depth");
     pl_map_free(m);
     pl_map_free(c);
+}
+
+/* Every quantity names at least one inspection method, each of them a word of
+ * the site method vocabulary; the thermography maps do not fit an ultrasonic
+ * site and the ultrasonic ones do not fit a thermography site (common
+ * practice: a flash thermography inspection yields no echo amplitude). */
+static void test_map__quantities_belong_to_methods(void **state)
+{
+    (void)state;
+    const pl_vocabulary *m = pl_vocabulary_get(PL_VOCAB_METHOD);
+    assert_non_null(m);
+    for (size_t i = 0; i < pl_quantity_count(); i++) {
+        const pl_quantity_info *q = pl_quantity_at(i);
+        assert_non_null(q->methods);
+        int fits = 0;
+        for (size_t k = 0; k < m->count; k++)
+            fits += pl_quantity_fits_method(q->name, m->words[k]);
+        if (fits < 1)
+            fail_msg("%s: no method of the vocabulary produces it ('%s')", q->name, q->methods);
+        /* every word it lists is a method of the vocabulary */
+        char words[128];
+        snprintf(words, sizeof words, "%s", q->methods);
+        int listed = 0;
+        for (char *w = strtok(words, " "); w; w = strtok(NULL, " "), listed++)
+            assert_int_equal(pl_vocabulary_check(PL_VOCAB_METHOD, w, NULL), PL_OK);
+        assert_int_equal(listed, fits);
+    }
+    assert_true(pl_quantity_fits_method("temperature-contrast", "flash-thermography"));
+    assert_false(pl_quantity_fits_method("temperature-contrast", "ultrasound-pulse-echo"));
+    assert_false(pl_quantity_fits_method("ultrasonic-amplitude", "flash-thermography"));
+    assert_true(pl_quantity_fits_method("ultrasonic-amplitude", "ultrasound-through-transmission"));
+    assert_true(pl_quantity_fits_method("depth", "ultrasound-pulse-echo"));
+    assert_false(pl_quantity_fits_method("eddy-current-phase", "eddy"));
+    assert_false(pl_quantity_fits_method("eddy-current-phase", "eddy-current-x"));
+    assert_false(pl_quantity_fits_method("porosity-index", "flash-thermography"));
+    assert_false(pl_quantity_fits_method("depth", ""));
 }
 
 static void test_map__channels_by_quantity(void **state)
@@ -1089,6 +1126,7 @@ int main(void)
         cmocka_unit_test(test_map__clone_is_deep),
         cmocka_unit_test(test_map__channels_by_quantity),
         cmocka_unit_test(test_map__vocabulary_has_the_documented_quantities),
+        cmocka_unit_test(test_map__quantities_belong_to_methods),
         cmocka_unit_test(test_map__quantity_check_rules),
         cmocka_unit_test(test_map__pitch_must_be_finite_and_positive),
         cmocka_unit_test(test_map__placement_checks),

@@ -27,50 +27,73 @@
  * infrared thermography", J. Appl. Phys. 79(5); ultrasonic and eddy-current
  * terms are the trade's own (common practice). Each entry repeats its
  * default unit (the first of `units`) so that pl_quantity_default_unit()
- * can hand out static storage.
+ * can hand out static storage. `methods` names the inspection methods (the
+ * site vocabulary, PL_VOCAB_METHOD) that produce the quantity: thermography's
+ * maps come from flash thermography only, depth from thermography or
+ * pulse-echo ultrasound, amplitude and time of flight from either ultrasonic
+ * technique, thickness from pulse-echo (common practice).
  */
 static const struct vocab_entry {
     pl_quantity_info info;
     const char *default_unit;
 } quantities[] = {
     {{"temperature-rise", "K mK",
-      "surface temperature rise over the pre-flash level after the flash"}, "K"},
+      "surface temperature rise over the pre-flash level after the flash",
+      "flash-thermography"}, "K"},
     {{"temperature-contrast", "K mK",
-      "surface temperature rise over the sound-area reference after the flash"}, "K"},
+      "surface temperature rise over the sound-area reference after the flash",
+      "flash-thermography"}, "K"},
     {{"normalised-contrast", "1 %",
-      "temperature contrast divided by the reference rise (dimensionless)"}, "1"},
+      "temperature contrast divided by the reference rise (dimensionless)",
+      "flash-thermography"}, "1"},
     {{"log-derivative-1", "1",
-      "first derivative of ln(temperature) against ln(time) from the fitted cooling curve"}, "1"},
+      "first derivative of ln(temperature) against ln(time) from the fitted cooling curve",
+      "flash-thermography"}, "1"},
     {{"log-derivative-2", "1",
-      "second derivative of ln(temperature) against ln(time) from the fitted cooling curve"}, "1"},
+      "second derivative of ln(temperature) against ln(time) from the fitted cooling curve",
+      "flash-thermography"}, "1"},
     {{"time-of-peak-d2", "s ms",
-      "time after the flash at which the second log-derivative peaks"}, "s"},
+      "time after the flash at which the second log-derivative peaks",
+      "flash-thermography"}, "s"},
     {{"time-of-peak-contrast", "s ms",
-      "time after the flash at which the temperature contrast peaks"}, "s"},
+      "time after the flash at which the temperature contrast peaks",
+      "flash-thermography"}, "s"},
     {{"depth", "mm",
-      "estimated depth of the feature below the inspected surface"}, "mm"},
+      "estimated depth of the feature below the inspected surface",
+      "flash-thermography ultrasound-pulse-echo"}, "mm"},
     {{"phase", "rad deg",
-      "pulse-phase thermography phase at one frequency"}, "rad"},
+      "pulse-phase thermography phase at one frequency",
+      "flash-thermography"}, "rad"},
     {{"phase-contrast", "rad deg",
-      "pulse-phase phase difference from the sound-area reference"}, "rad"},
+      "pulse-phase phase difference from the sound-area reference",
+      "flash-thermography"}, "rad"},
     {{"amplitude", "K 1",
-      "pulse-phase thermography amplitude at one frequency"}, "K"},
+      "pulse-phase thermography amplitude at one frequency",
+      "flash-thermography"}, "K"},
     {{"temperature", "K degC",
-      "surface temperature in one frame"}, "K"},
+      "surface temperature in one frame",
+      "flash-thermography"}, "K"},
     {{"ultrasonic-amplitude", "%FSH dB",
-      "ultrasonic C-scan gated echo amplitude"}, "%FSH"},
+      "ultrasonic C-scan gated echo amplitude",
+      "ultrasound-pulse-echo ultrasound-through-transmission"}, "%FSH"},
     {{"time-of-flight", "us ns",
-      "ultrasonic C-scan time of flight to the gated echo"}, "us"},
+      "ultrasonic C-scan time of flight to the gated echo",
+      "ultrasound-pulse-echo ultrasound-through-transmission"}, "us"},
     {{"ultrasonic-thickness", "mm",
-      "thickness or echo depth from ultrasonic time of flight"}, "mm"},
+      "thickness or echo depth from ultrasonic time of flight",
+      "ultrasound-pulse-echo"}, "mm"},
     {{"eddy-current-real", "V ohm 1",
-      "real (resistive) part of the eddy-current impedance signal"}, "V"},
+      "real (resistive) part of the eddy-current impedance signal",
+      "eddy-current"}, "V"},
     {{"eddy-current-imag", "V ohm 1",
-      "imaginary (reactive) part of the eddy-current impedance signal"}, "V"},
+      "imaginary (reactive) part of the eddy-current impedance signal",
+      "eddy-current"}, "V"},
     {{"eddy-current-magnitude", "V ohm 1",
-      "magnitude of the eddy-current impedance signal"}, "V"},
+      "magnitude of the eddy-current impedance signal",
+      "eddy-current"}, "V"},
     {{"eddy-current-phase", "deg rad",
-      "phase angle of the eddy-current impedance signal"}, "deg"},
+      "phase angle of the eddy-current impedance signal",
+      "eddy-current"}, "deg"},
 };
 
 #define NQUANTITIES (sizeof quantities / sizeof quantities[0])
@@ -99,6 +122,22 @@ PL_EXPORT const pl_quantity_info *pl_quantity_lookup(const char *name)
 {
     const struct vocab_entry *e = find_entry(name);
     return e ? &e->info : NULL;
+}
+
+PL_EXPORT int pl_quantity_fits_method(const char *quantity, const char *method)
+{
+    const struct vocab_entry *e = find_entry(quantity);
+    if (!e || !method || !*method)
+        return 0;
+    size_t n = strlen(method);
+    for (const char *w = e->info.methods; *w;) {
+        size_t k = strcspn(w, " ");
+        if (k == n && strncmp(w, method, n) == 0)
+            return 1;
+        w += k;
+        w += strspn(w, " ");
+    }
+    return 0;
 }
 
 PL_EXPORT const char *pl_quantity_default_unit(const char *quantity)

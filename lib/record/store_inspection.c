@@ -245,6 +245,16 @@ static int check_fits_site(const pl_site *site, const pl_map *map, const char *l
     if (fabs(map->pitch_v - site->pitch_v) > PITCH_TOLERANCE * site->pitch_v)
         return pl__err(err, PL_ENOMATCH, "%s: map pitch_v %g mm differs from the site's %g mm by "
                        "more than 0.1 %%", label, map->pitch_v, site->pitch_v);
+    /* a map's quantities come from the site's method (fault: an ultrasonic
+     * amplitude map was accepted on a thermography site) */
+    for (uint32_t c = 0; site->method[0] && c < map->nchannels; c++)
+        if (!pl_quantity_fits_method(map->channels[c].quantity, site->method)) {
+            const pl_quantity_info *q = pl_quantity_lookup(map->channels[c].quantity);
+            return pl__err(err, PL_ENOMATCH, "%s: channel %u's quantity '%s' comes from %s, "
+                           "not from the site's method %s", label, c,
+                           map->channels[c].quantity, q ? q->methods : "no known method",
+                           site->method);
+        }
     return PL_OK;
 }
 

@@ -101,7 +101,12 @@ typedef struct pl_quantity_info {
     const char *name;         /**< e.g. "depth" */
     const char *units;        /**< accepted units, space separated; first is default */
     const char *description;  /**< one line for help text */
+    const char *methods;      /**< inspection methods that produce it, space separated */
 } pl_quantity_info;
+
+/** 1 if `quantity` (of the vocabulary) comes from inspection `method` (a
+ * site's method, PL_VOCAB_METHOD, e.g. "flash-thermography"), else 0. */
+PL_EXPORT int pl_quantity_fits_method(const char *quantity, const char *method);
 
 /** Largest width or height accepted for a map (pixels). */
 #define PL_MAP_MAX_SIDE 65536u
