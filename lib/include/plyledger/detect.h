@@ -29,15 +29,18 @@
  *      IEEE Trans. ASSP 35(1)) of polarity x value: at each pixel, the
  *      largest of the medians over four line windows (along the row, the
  *      column and both diagonals) of `background_mm` each, windows shifted
- *      inward at the map's edges so that they keep their length, pixels
- *      without data left out. A compact indication covers less than half of
- *      every window through it and so stays out of the background, while
- *      substructure (a stringer flange, a frame tie: strips longer than
- *      half a window in one direction) is followed by the window lying
+ *      inward at the ends of their line so that they keep their length,
+ *      pixels without data left out, and a window counted only where three
+ *      quarters of its length hold data (elsewhere the map's median
+ *      stands in). An indication narrower than 3/8 of the window along each
+ *      line through it covers less than half of every window and stays out
+ *      of the background; substructure (a stringer flange, a frame tie:
+ *      strips longer than half a window) is followed by the window lying
  *      along it, edges and all, and slow shading (the flash's pattern) by
- *      all of them: neither is called. The price: an indication longer
- *      than background_mm / 2 in one of the four directions is taken for
- *      substructure there.
+ *      all of them, so neither is called. The price: an indication wider
+ *      than 3/8 of the window is partly taken into the background (sized
+ *      smaller, its contrast lower), and one longer than half the window
+ *      along a row, a column or a diagonal is taken for substructure there.
  *      PL_BACKGROUND_MEDIAN: the median of the channel over the pixels with
  *      data (for maps without shading or substructure).
  *      PL_BACKGROUND_ZERO: b = 0, for values that already are a contrast
@@ -171,15 +174,22 @@ typedef enum pl_sizing {
 
 /**
  * Default thresholds, in multiples of the noise, the smallest area and the
- * background window, chosen by measurement on simulated sites with and
- * without seeded defects (tests/bench/detect_study.c; the table is in
- * tests/bench/README.md).
+ * background window, chosen by measurement on 112 simulated sites of 2.0
+ * to 6.4 mm with substructure, flash non-uniformity and camera noise, half
+ * of them with seeded delaminations (tests/bench/detect_study.c; the
+ * tables are in tests/bench/README.md): a longer window or a lower seed
+ * threshold calls the flash's pattern in temperature contrast and the
+ * substructure in phase contrast, a shorter window takes large defects
+ * into the background; the smallest area hardly matters between 3 and 12
+ * mm^2.
  */
-#define PL_DETECT_DEFAULT_HIGH 6.0
+#define PL_DETECT_DEFAULT_HIGH 8.0
 #define PL_DETECT_DEFAULT_LOW 3.0
 #define PL_DETECT_DEFAULT_MIN_AREA_MM2 6.0
-#define PL_DETECT_DEFAULT_BACKGROUND_MM 64.0
-/** Default margin of a quantity compared with nominal: a fraction of it. */
+#define PL_DETECT_DEFAULT_BACKGROUND_MM 40.0
+/** Default margin of a quantity compared with nominal, a fraction of it
+ * (measured as above: at 0.15 the noise's scattered depths of thick sound
+ * skins, about 80 % of nominal, are called on one sound site in seven). */
 #define PL_DETECT_DEFAULT_NOMINAL_MARGIN 0.25
 
 /** Options of pl_detect() and pl_detect_measure(). Initialise with
