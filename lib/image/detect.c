@@ -284,65 +284,40 @@ int pl_detect__line_median(float *out, const float *v, uint32_t w, uint32_t h,
 /* ---- noise -------------------------------------------------------------------------- */
 
 /*
- * r = v - G(v) with G the Gaussian of one pixel (radius 3) over pixels
- * whose 7 x 7 window is all data, where G's weights are the plain ones. For
- * white noise of deviation sigma, var r = sigma^2 (1 - 2 w0 + sum w^2), w
- * the 2-D weights: the gain divides the residuals' robust deviation.
+ * Immerkaer (1996), "Fast noise variance estimation", Computer Vision and
+ * Image Understanding 64(2): the mask N = [1 -2 1]' [1 -2 1], the product
+ * of the second differences along rows and columns, has zero response to
+ * anything of the form f(col) + g(row) (a plane, shading along one axis, a
+ * flange's straight edge along a row or a column) and, for white noise of
+ * deviation sigma, a response of deviation 6 sigma (the root of the sum of
+ * its squared weights, 36). Robustly: sigma = 1.4826 MAD(r) / 6, over the
+ * pixels whose 3 x 3 window is all data.
  */
 int pl_detect__noise_highpass(double *sigma, uint64_t *count, const float *v, uint32_t w,
                               uint32_t h)
 {
     *sigma = NAN;
     *count = 0;
-    if (w < 7 || h < 7)
+    if (w < 3 || h < 3)
         return PL_OK;
-    float *g;
-    if (pl_filter__gauss(&g, v, w, h, 1.0))
+    float *res = malloc((size_t)(w - 2) * (h - 2) * sizeof *res);
+    if (!res)
         return PL_ENOMEM;
-    size_t np = (size_t)w * h;
-    /* columns of 7 finite values ending at each row, then runs along rows */
-    uint8_t *col7 = calloc(np, 1);
-    float *res = malloc(np * sizeof *res);
-    if (!col7 || !res) {
-        free(g);
-        free(col7);
-        free(res);
-        return PL_ENOMEM;
-    }
-    for (uint32_t x = 0; x < w; x++) {
-        unsigned run = 0;
-        for (uint32_t y = 0; y < h; y++) {
-            run = isfinite(v[(size_t)y * w + x]) ? run + 1 : 0;
-            if (run >= 7)
-                col7[(size_t)(y - 3) * w + x] = 1; /* rows y-6 .. y: centred on y-3 */
-        }
-    }
     size_t n = 0;
-    for (uint32_t y = 3; y + 3 < h; y++) {
-        unsigned run = 0;
-        for (uint32_t x = 0; x < w; x++) {
-            run = col7[(size_t)y * w + x] ? run + 1 : 0;
-            if (run >= 7) {
-                size_t i = (size_t)y * w + (x - 3);
-                res[n++] = v[i] - g[i];
-            }
+    for (uint32_t y = 1; y + 1 < h; y++) {
+        const float *a = v + (size_t)(y - 1) * w, *b = a + w, *c = b + w;
+        for (uint32_t x = 1; x + 1 < w; x++) {
+            float r = (a[x - 1] - 2 * a[x] + a[x + 1]) - 2 * (b[x - 1] - 2 * b[x] + b[x + 1]) +
+                      (c[x - 1] - 2 * c[x] + c[x + 1]);
+            if (isfinite(r))
+                res[n++] = r;
         }
     }
-    free(col7);
-    free(g);
     if (n >= PL_DETECT_MIN_NOISE_PIXELS) {
-        double k1 = 0, k2 = 0, k0;
-        for (int i = -3; i <= 3; i++) {
-            k1 += exp(-0.5 * i * i);
-            k2 += exp(-i * i);
-        }
-        k0 = 1.0 / k1;    /* the centre tap, normalised */
-        k2 /= k1 * k1;    /* the sum of the squared taps */
-        double gain = sqrt(1.0 - 2.0 * k0 * k0 + k2 * k2);
         float med = pl_filter__median_float(res, n);
         for (size_t i = 0; i < n; i++)
             res[i] = fabsf(res[i] - med);
-        *sigma = 1.482602218505602 * pl_filter__median_float(res, n) / gain;
+        *sigma = 1.482602218505602 * pl_filter__median_float(res, n) / 6.0;
     }
     *count = n;
     free(res);
@@ -403,6 +378,76 @@ static uint32_t window_px(double mm, double pitch)
     if (n > 65535)
         n = 65535;
     return (uint32_t)n;
+}
+
+/* 1.4826 times the median absolute deviation of the signal over the
+ * noise region's pixels with data, and their count ([out] k). */
+static int region_mad(double *out, size_t *k, const prep *p)
+{
+    const pl_detect_options *o = &p->o;
+    float *buf = malloc((size_t)o->noise_w * o->noise_h * sizeof *buf);
+    *out = NAN;
+    *k = 0;
+    if (!buf)
+        return PL_ENOMEM;
+    for (uint32_t y = o->noise_y; y < o->noise_y + o->noise_h; y++)
+        for (uint32_t x = o->noise_x; x < o->noise_x + o->noise_w; x++) {
+            float s = p->signal[(size_t)y * p->w + x];
+            if (s == s)
+                buf[(*k)++] = s;
+        }
+    if (*k >= PL_DETECT_MIN_NOISE_PIXELS) {
+        float med = pl_filter__median_float(buf, *k);
+        for (size_t i = 0; i < *k; i++)
+            buf[i] = fabsf(buf[i] - med);
+        *out = 1.482602218505602 * pl_filter__median_float(buf, *k);
+    }
+    free(buf);
+    return PL_OK;
+}
+
+/*
+ * The line-median background, on polarity x value so that the largest
+ * median is the one nearest the defects' side. On a slope (the flash's
+ * shading) a median moves by half a step of the slope for every raised
+ * value in its window, so a defect there would lift its own background.
+ * The medians are therefore taken of the residual from a smooth trend, the
+ * common layer's Gaussian of background_mm / 4, and the trend added back:
+ * the trend carries the slopes (what a defect adds to it is broad, so the
+ * medians of the residual take it back out), the residual's medians the
+ * substructure. p->signal serves as scratch.
+ */
+static int line_median_background(prep *p, const pl_map *map)
+{
+    const pl_detect_options *o = &p->o;
+    size_t np = (size_t)p->w * p->h;
+    const float *v = p->values;
+    float pol = (float)p->polarity, *trend;
+    for (size_t i = 0; i < np; i++)
+        p->signal[i] = pol * v[i];
+    if (pl_filter__gauss(&trend, p->signal, p->w, p->h,
+                         o->background_mm / 4.0 / sqrt(map->pitch_u * map->pitch_v)))
+        return PL_ENOMEM;
+    for (size_t i = 0; i < np; i++)
+        p->signal[i] -= trend[i];
+    double pd = sqrt(map->pitch_u * map->pitch_u + map->pitch_v * map->pitch_v);
+    uint32_t len[4] = {window_px(o->background_mm, map->pitch_u),
+                       window_px(o->background_mm, map->pitch_v),
+                       window_px(o->background_mm, pd), window_px(o->background_mm, pd)};
+    double med;
+    if (finite_median(&med, p->signal, np) ||
+        pl_detect__line_median(p->bmap, p->signal, p->w, p->h, len)) {
+        free(trend);
+        return PL_ENOMEM;
+    }
+    for (size_t i = 0; i < np; i++) {
+        if (v[i] != v[i])
+            p->bmap[i] = NAN;
+        else
+            p->bmap[i] = pol * (trend[i] + (p->bmap[i] == p->bmap[i] ? p->bmap[i] : (float)med));
+    }
+    free(trend);
+    return PL_OK;
 }
 
 /* Everything up to the thresholds, shared by pl_detect(), pl_detect_measure()
@@ -487,6 +532,11 @@ static int prepare(prep *p, const pl_map *map, uint32_t channel, const pl_detect
     p->bmap = malloc(np * sizeof *p->bmap);
     if (!p->signal || !p->bmap)
         goto nomem;
+    /* the high-pass noise first: the line-median background uses it */
+    double hp;
+    uint64_t hp_n;
+    if (pl_detect__noise_highpass(&hp, &hp_n, v, p->w, p->h))
+        goto nomem;
     /* the background, b */
     float pol = (float)p->polarity;
     switch (p->background) {
@@ -505,27 +555,10 @@ static int prepare(prep *p, const pl_map *map, uint32_t channel, const pl_detect
             p->bmap[i] = v[i] == v[i] ? (float)med : NAN;
         break;
     }
-    case PL_BACKGROUND_LINE_MEDIAN: {
-        /* on polarity x value, so that the largest median is the one
-         * nearest the defects' side */
-        for (size_t i = 0; i < np; i++)
-            p->signal[i] = pol * v[i];
-        double pd = sqrt(map->pitch_u * map->pitch_u + map->pitch_v * map->pitch_v);
-        uint32_t len[4] = {window_px(o->background_mm, map->pitch_u),
-                           window_px(o->background_mm, map->pitch_v),
-                           window_px(o->background_mm, pd), window_px(o->background_mm, pd)};
-        double med;
-        if (pl_detect__line_median(p->bmap, p->signal, p->w, p->h, len) ||
-            finite_median(&med, p->signal, np))
+    case PL_BACKGROUND_LINE_MEDIAN:
+        if (line_median_background(p, map))
             goto nomem;
-        for (size_t i = 0; i < np; i++) {
-            if (v[i] != v[i])
-                p->bmap[i] = NAN;
-            else
-                p->bmap[i] = pol * (p->bmap[i] == p->bmap[i] ? p->bmap[i] : (float)med);
-        }
         break;
-    }
     }
     for (size_t i = 0; i < np; i++)
         p->signal[i] = pol * (v[i] - p->bmap[i]);
@@ -536,18 +569,10 @@ static int prepare(prep *p, const pl_map *map, uint32_t channel, const pl_detect
         p->noise = o->noise;
         p->noise_method = PL_NOISE_GIVEN;
     } else if (o->noise_w && o->noise_h) {
-        size_t cap = (size_t)o->noise_w * o->noise_h, k = 0;
-        float *buf = malloc(cap * sizeof *buf);
-        if (!buf)
+        size_t k;
+        if (region_mad(&p->noise, &k, p))
             goto nomem;
-        for (uint32_t y = o->noise_y; y < o->noise_y + o->noise_h; y++)
-            for (uint32_t x = o->noise_x; x < o->noise_x + o->noise_w; x++) {
-                float s = p->signal[(size_t)y * p->w + x];
-                if (s == s)
-                    buf[k++] = s;
-            }
         if (k < PL_DETECT_MIN_NOISE_PIXELS) {
-            free(buf);
             prep_free(p);
             return pl__err(err, PL_EINVAL,
                            "channel %lu ('%s'): the noise region holds %lu pixels with data "
@@ -555,16 +580,11 @@ static int prepare(prep *p, const pl_map *map, uint32_t channel, const pl_detect
                            (unsigned long)channel, q, (unsigned long)k,
                            PL_DETECT_MIN_NOISE_PIXELS);
         }
-        float med = pl_filter__median_float(buf, k);
-        for (size_t i = 0; i < k; i++)
-            buf[i] = fabsf(buf[i] - med);
-        p->noise = 1.482602218505602 * pl_filter__median_float(buf, k);
         p->noise_pixels = k;
         p->noise_method = PL_NOISE_REGION;
-        free(buf);
     } else {
-        if (pl_detect__noise_highpass(&p->noise, &p->noise_pixels, v, p->w, p->h))
-            goto nomem;
+        p->noise = hp;
+        p->noise_pixels = hp_n;
         p->noise_method = PL_NOISE_HIGH_PASS;
     }
     if (!(p->noise > 0)) {
@@ -573,7 +593,7 @@ static int prepare(prep *p, const pl_map *map, uint32_t channel, const pl_detect
             prep_free(p);
             if (isnan(found))
                 return pl__err(err, PL_EINVAL,
-                               "channel %lu ('%s'): %lu pixels have a whole 7 x 7 window of "
+                               "channel %lu ('%s'): %lu pixels have a whole 3 x 3 window of "
                                "data, too few for a noise estimate (at least %u); give the "
                                "noise or a sound region",
                                (unsigned long)channel, q, (unsigned long)p->noise_pixels,

@@ -55,14 +55,15 @@
  *      |nominal| (the depth clearly shallower than nominal), whatever the
  *      noise.
  *  - Noise sigma, in the channel's units, estimated robustly:
- *      by default from a high-pass residual: r = v - G(v), G the common
- *      layer's Gaussian blur of one pixel, over the pixels whose whole
- *      7 x 7 window holds data; sigma = 1.4826 MAD(r) / k with k =
- *      sqrt(1 - 2 w0 + sum w^2) the residual's gain for white noise (w the
- *      blur's weights, w0 the centre's), so that sigma is the standard
- *      deviation of white Gaussian noise. Indications, edges and shading
- *      touch too few residuals to move the median. At least
- *      PL_DETECT_MIN_NOISE_PIXELS residuals are needed;
+ *      by default from a high-pass residual (Immerkaer 1996, "Fast noise
+ *      variance estimation", CVIU 64(2)): r = N * v with the 3 x 3 mask
+ *      N = [1 -2 1]' [1 -2 1], over the pixels whose whole 3 x 3 window
+ *      holds data; sigma = 1.4826 MAD(r) / 6, 6 being the mask's gain for
+ *      white noise, so that sigma is the standard deviation of white
+ *      Gaussian noise. The mask does not respond to a plane, to shading
+ *      along one axis or to straight edges along rows or columns (a
+ *      flange's), and indications touch too few residuals to move the
+ *      median. At least PL_DETECT_MIN_NOISE_PIXELS residuals are needed;
  *      or, with a sound reference region (noise_w, noise_h > 0), 1.4826
  *      times the median absolute deviation of the signal s over it;
  *      or given by the caller (`noise`).

@@ -195,7 +195,8 @@ typedef enum pl_polarity {
 /**
  * The polarity of a vocabulary quantity; PL_POLARITY_NONE for a free
  * quantity (or NULL) and for those without a direction of their own:
- *  - rises: temperature-contrast, normalised-contrast (a defect holds the
+ *  - rises: temperature-rise, temperature-contrast, normalised-contrast
+ *    (a defect holds the
  *    heat near the surface: Maldague 2001, "Theory and practice of infrared
  *    technology for nondestructive testing", ch. 9), log-derivative-1 and
  *    log-derivative-2 (the cooling curve's slope departs upward from the
@@ -212,7 +213,9 @@ typedef enum pl_polarity {
  *    the site's nominal value (pl_quantity_uses_nominal());
  *  - none: amplitude (pulse-phase amplitude follows the flash's pattern and
  *    changes direction with frequency), temperature (a raw frame carries
- *    the flash pattern and emissivity), and the eddy-current signals (their
+ *    the flash pattern and emissivity), time-of-peak-contrast (the
+ *    contrast is nil on sound laminate, so there is no sound value to
+ *    depart from), and the eddy-current signals (their
  *    direction depends on probe, frequency and balance).
  */
 PL_EXPORT pl_polarity pl_quantity_polarity(const char *quantity);
