@@ -27,74 +27,90 @@
  * infrared thermography", J. Appl. Phys. 79(5); ultrasonic and eddy-current
  * terms are the trade's own (common practice). Each entry repeats its
  * default unit (the first of `units`) so that pl_quantity_default_unit()
- * can hand out static storage. `methods` names the inspection methods (the
- * site vocabulary, PL_VOCAB_METHOD) that produce the quantity: thermography's
- * maps come from flash thermography only, depth from thermography or
- * pulse-echo ultrasound, amplitude and time of flight from either ultrasonic
- * technique, thickness from pulse-echo (common practice).
+ * can hand out static storage, then its polarity over a defect and whether
+ * it is compared with the site's nominal value (pl_quantity_polarity()).
+ * `methods` names the inspection methods (the site vocabulary,
+ * PL_VOCAB_METHOD) that produce the quantity: thermography's maps come from
+ * flash thermography only, depth from thermography or pulse-echo ultrasound,
+ * amplitude and time of flight from either ultrasonic technique, thickness
+ * from pulse-echo (common practice).
  */
+#define UP PL_POLARITY_RISES, 0
+#define DOWN PL_POLARITY_FALLS, 0
+#define DOWN_NOMINAL PL_POLARITY_FALLS, 1
+#define NONE PL_POLARITY_NONE, 0
 static const struct vocab_entry {
     pl_quantity_info info;
     const char *default_unit;
+    pl_polarity polarity;  /* see pl_quantity_polarity() in map.h */
+    int nominal;           /* 1: compared with the site's nominal value */
 } quantities[] = {
     {{"temperature-rise", "K mK",
       "surface temperature rise over the pre-flash level after the flash",
-      "flash-thermography"}, "K"},
+      "flash-thermography"}, "K", UP},
     {{"temperature-contrast", "K mK",
       "surface temperature rise over the sound-area reference after the flash",
-      "flash-thermography"}, "K"},
+      "flash-thermography"}, "K", UP},
     {{"normalised-contrast", "1 %",
       "temperature contrast divided by the reference rise (dimensionless)",
-      "flash-thermography"}, "1"},
+      "flash-thermography"}, "1", UP},
     {{"log-derivative-1", "1",
       "first derivative of ln(temperature) against ln(time) from the fitted cooling curve",
-      "flash-thermography"}, "1"},
+      "flash-thermography"},
+     "1", UP},
     {{"log-derivative-2", "1",
       "second derivative of ln(temperature) against ln(time) from the fitted cooling curve",
-      "flash-thermography"}, "1"},
+      "flash-thermography"},
+     "1", UP},
     {{"time-of-peak-d2", "s ms",
       "time after the flash at which the second log-derivative peaks",
-      "flash-thermography"}, "s"},
+      "flash-thermography"}, "s", DOWN_NOMINAL},
+    /* no sound-area value to compare with: contrast is nil away from a defect */
     {{"time-of-peak-contrast", "s ms",
       "time after the flash at which the temperature contrast peaks",
-      "flash-thermography"}, "s"},
+      "flash-thermography"}, "s", NONE},
     {{"depth", "mm",
       "estimated depth of the feature below the inspected surface",
-      "flash-thermography ultrasound-pulse-echo"}, "mm"},
+      "flash-thermography ultrasound-pulse-echo"}, "mm", DOWN_NOMINAL},
     {{"phase", "rad deg",
       "pulse-phase thermography phase at one frequency",
-      "flash-thermography"}, "rad"},
+      "flash-thermography"}, "rad", DOWN},
     {{"phase-contrast", "rad deg",
       "pulse-phase phase difference from the sound-area reference",
-      "flash-thermography"}, "rad"},
+      "flash-thermography"}, "rad", DOWN},
     {{"amplitude", "K 1",
       "pulse-phase thermography amplitude at one frequency",
-      "flash-thermography"}, "K"},
+      "flash-thermography"}, "K", NONE},
     {{"temperature", "K degC",
       "surface temperature in one frame",
-      "flash-thermography"}, "K"},
+      "flash-thermography"}, "K", NONE},
     {{"ultrasonic-amplitude", "%FSH dB",
       "ultrasonic C-scan gated echo amplitude",
-      "ultrasound-pulse-echo ultrasound-through-transmission"}, "%FSH"},
+      "ultrasound-pulse-echo ultrasound-through-transmission"}, "%FSH", DOWN},
     {{"time-of-flight", "us ns",
       "ultrasonic C-scan time of flight to the gated echo",
-      "ultrasound-pulse-echo ultrasound-through-transmission"}, "us"},
+      "ultrasound-pulse-echo ultrasound-through-transmission"}, "us", DOWN_NOMINAL},
     {{"ultrasonic-thickness", "mm",
       "thickness or echo depth from ultrasonic time of flight",
-      "ultrasound-pulse-echo"}, "mm"},
+      "ultrasound-pulse-echo"}, "mm", DOWN_NOMINAL},
     {{"eddy-current-real", "V ohm 1",
       "real (resistive) part of the eddy-current impedance signal",
-      "eddy-current"}, "V"},
+      "eddy-current"}, "V", NONE},
     {{"eddy-current-imag", "V ohm 1",
       "imaginary (reactive) part of the eddy-current impedance signal",
-      "eddy-current"}, "V"},
+      "eddy-current"}, "V", NONE},
     {{"eddy-current-magnitude", "V ohm 1",
       "magnitude of the eddy-current impedance signal",
-      "eddy-current"}, "V"},
+      "eddy-current"}, "V", NONE},
     {{"eddy-current-phase", "deg rad",
       "phase angle of the eddy-current impedance signal",
-      "eddy-current"}, "deg"},
+      "eddy-current"}, "deg", NONE},
 };
+
+#undef UP
+#undef DOWN
+#undef DOWN_NOMINAL
+#undef NONE
 
 #define NQUANTITIES (sizeof quantities / sizeof quantities[0])
 
@@ -144,6 +160,18 @@ PL_EXPORT const char *pl_quantity_default_unit(const char *quantity)
 {
     const struct vocab_entry *e = find_entry(quantity);
     return e ? e->default_unit : NULL;
+}
+
+PL_EXPORT pl_polarity pl_quantity_polarity(const char *quantity)
+{
+    const struct vocab_entry *e = find_entry(quantity);
+    return e ? e->polarity : PL_POLARITY_NONE;
+}
+
+PL_EXPORT int pl_quantity_uses_nominal(const char *quantity)
+{
+    const struct vocab_entry *e = find_entry(quantity);
+    return e ? e->nominal : 0;
 }
 
 /* Whether `unit` is one of the space separated words in `list`. */

@@ -25,5 +25,6 @@
 #include "plyledger/sim.h"
 #include "plyledger/reduce.h"
 #include "plyledger/register.h"
+#include "plyledger/detect.h"
 
 #endif

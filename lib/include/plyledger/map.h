@@ -185,6 +185,57 @@ PL_EXPORT int pl_quantity_check(const char *quantity, const char *unit, pl_err *
 /** Default unit of a vocabulary quantity, or NULL for a free one. */
 PL_EXPORT const char *pl_quantity_default_unit(const char *quantity);
 
+/**
+ * Which way a quantity moves over a defect (an indication), from the
+ * physics of the method; the vocabulary gives one per quantity
+ * (pl_quantity_polarity()). Detection (plyledger/detect.h) compares
+ * polarity x (value - background) with its thresholds.
+ */
+typedef enum pl_polarity {
+    PL_POLARITY_FALLS = -1, /**< the value falls over a defect */
+    PL_POLARITY_NONE = 0,   /**< no fixed direction: a caller must state one */
+    PL_POLARITY_RISES = 1,  /**< the value rises over a defect */
+} pl_polarity;
+
+/**
+ * The polarity of a vocabulary quantity; PL_POLARITY_NONE for a free
+ * quantity (or NULL) and for those without a direction of their own:
+ *  - rises: temperature-rise, temperature-contrast, normalised-contrast
+ *    (a defect holds the
+ *    heat near the surface: Maldague 2001, "Theory and practice of infrared
+ *    technology for nondestructive testing", ch. 9), log-derivative-1 and
+ *    log-derivative-2 (the cooling curve's slope departs upward from the
+ *    sound laminate's -1/2 when heat meets the defect: Shepard et al. 2003;
+ *    for a partial reflector the second log-derivative turns negative again
+ *    long after its peak, so choose the time for the depth of interest);
+ *  - falls: phase-contrast and phase (at the frequencies that reach the
+ *    defect, in the sign convention of numpy.fft.rfft that the reduction
+ *    uses; measured on the simulator, see tests/test_detect.c),
+ *    ultrasonic-amplitude (the back-wall echo loses
+ *    amplitude over a delamination, in %FSH or dB; common practice);
+ *    depth, time-of-peak-d2, time-of-flight and ultrasonic-thickness (the
+ *    reflector lies shallower than the back wall), which are compared with
+ *    the site's nominal value (pl_quantity_uses_nominal());
+ *  - none: amplitude (pulse-phase amplitude follows the flash's pattern and
+ *    changes direction with frequency), temperature (a raw frame carries
+ *    the flash pattern and emissivity), time-of-peak-contrast (the
+ *    contrast is nil on sound laminate, so there is no sound value to
+ *    depart from), and the eddy-current signals (their
+ *    direction depends on probe, frequency and balance).
+ */
+PL_EXPORT pl_polarity pl_quantity_polarity(const char *quantity);
+
+/**
+ * 1 when a vocabulary quantity is compared with the site's nominal value
+ * rather than with the map's own background: depth and
+ * ultrasonic-thickness (the nominal thickness, mm), time-of-peak-d2 (the
+ * back wall's peak time, L^2 / (pi alpha), s) and time-of-flight (the
+ * back-wall echo's, us). On sound laminate these maps hold the back wall or
+ * nothing at all, so their own median says nothing of a defect. 0
+ * otherwise, and for a free quantity.
+ */
+PL_EXPORT int pl_quantity_uses_nominal(const char *quantity);
+
 /* ---- values ------------------------------------------------------------ */
 
 /** What a map load does with an infinite value (NaN always means no data). */
