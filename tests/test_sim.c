@@ -516,6 +516,33 @@ static void test_sim__substructure_and_porosity_set_the_local_thickness(void **s
     pl_sim_scene_free(s);
 }
 
+static int no_frame(void *ud, uint32_t index, double time_s, const float *kelvin)
+{
+    (void)ud; (void)index; (void)time_s; (void)kelvin;
+    return PL_OK;
+}
+
+/* A grid too large to hold is refused with its cell count, before any frame
+ * (the refusal once read the freed model for its message: under the
+ * sanitizers that was a use after free). */
+static void test_sim__refuses_a_grid_too_large(void **state)
+{
+    (void)state;
+    pl_sim_scene *s = scene_of(
+        "{\"laminate\": {\"thickness_mm\": 3, \"density_kg_m3\": 1600, \"specific_heat_j_kgk\": 1200,"
+        "  \"conductivity_along_w_mk\": 0.3, \"conductivity_across_w_mk\": 0.3,"
+        "  \"conductivity_through_w_mk\": 0.6},"
+        " \"flash\": {\"energy_j_m2\": %g},"
+        " \"camera\": {\"width\": 2000, \"height\": 2000, \"pitch_mm\": 1, \"frame_rate_hz\": 1,"
+        "  \"frame_count\": 4},"
+        " \"grid\": {\"pitch_mm\": 0.1, \"layers\": 40, \"margin_mm\": 4}}", 8000.0);
+    pl_err err = { 0 };
+    assert_int_equal(pl_sim_run_frames(s, no_frame, NULL, NULL, NULL, &err), PL_EINVAL);
+    print_message("%s\n", err.msg);
+    assert_non_null(strstr(err.msg, "cells (at most"));
+    pl_sim_scene_free(s);
+}
+
 /* ---- placement error ----------------------------------------------------- */
 
 /* A camera shifted by (2.5, -1.5) mm and turned 0.8 degrees sees a defect
@@ -1078,6 +1105,7 @@ int main(void)
         cmocka_unit_test(test_sim__same_seed_same_output),
         cmocka_unit_test(test_sim__progress_and_cancel),
         cmocka_unit_test(test_sim__scene_file_loads_and_refuses_bad_input),
+        cmocka_unit_test(test_sim__refuses_a_grid_too_large),
         cmocka_unit_test(test_sim__truth_areas_are_exact),
         cmocka_unit_test(test_sim__writes_sequence_and_truth),
     };

@@ -1657,11 +1657,12 @@ int pl_sim__model_new(pl_sim__model **out, const pl_sim_scene *s, pl_err *err)
         my = fmin(50.0, fmax(2 * hmm, 1.5 * sqrt(diffusivity_mm2_s(&s->laminate, 1) * t_last)));
     }
     double nxd = floor((fx1 - fx0 + 2 * mx) / hmm) + 2, nyd = floor((fy1 - fy0 + 2 * my) / hmm) + 2;
-    if (nxd * nyd * (double)m->nz > (double)MAX_CELLS) {
-        pl_sim__model_free(m);
+    double ncells = nxd * nyd * (double)m->nz;
+    if (ncells > (double)MAX_CELLS) {
+        pl_sim__model_free(m); /* (m->nz read above: the message must not read m) */
         return pl__err(err, PL_EINVAL,
                        "%s: the grid would have %.0f cells (at most %zu): coarsen grid pitch_mm "
-                       "or layers", s->name, nxd * nyd * (double)m->nz, MAX_CELLS);
+                       "or layers", s->name, ncells, MAX_CELLS);
     }
     m->nx = (size_t)nxd;
     m->ny = (size_t)nyd;
