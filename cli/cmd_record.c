@@ -140,6 +140,9 @@ int cmd_record(int argc, char **argv)
     if (a.sidecar && (a.insp.site || a.nmaps))
         return cli_usage_error(usage, "--site and --map go without --sidecar; "
                                       "list sites and maps in the sidecar instead");
+    if (!a.sidecar && !a.nmaps)
+        return cli_usage_error(usage, "give at least one --map FILE: an inspection is recorded "
+                                      "with the maps it produced");
     if (!a.nmaps && (a.quantity || a.unit || !isnan(a.pitch_u)))
         return cli_usage_error(usage, "--quantity, --unit and --pitch describe --map files");
 

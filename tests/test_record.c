@@ -148,6 +148,159 @@ static void test_record__sidecar_refuses_unknown_keys_and_bad_types(void **state
     }
 }
 
+/* The head of a sidecar every case below shares: a valid top level. */
+#define SIDECAR_HEAD \
+    "{ \"airframe\": \"REC-0001\", \"kind\": \"baseline\", \"date\": \"2021-04-05\",\n" \
+    "  \"procedure\": \"P-1\", \"procedure_revision\": \"A\", \"equipment\": \"rig\",\n" \
+    "  \"calibration\": \"RS-1\", \"inspector\": \"someone\", \"inspector_level\": \"2\",\n"
+
+/* An inspection without maps, or one site twice in a batch, is refused at
+ * the sidecar, naming the file and the site. */
+static void test_record__sidecar_refuses_empty_and_repeated_sites(void **state)
+{
+    fixture *f = *state;
+    static const struct { const char *json, *needle; } cases[] = {
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [] } ] }", "site A1" },
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\" } ] }", "site A1" },
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\" } ] },\n"
+          "  { \"site\": \"A2\", \"maps\": [ { \"file\": \"a2.npy\" } ] },\n"
+          "  { \"site\": \"A1\", \"maps\": [ { \"file\": \"a2.npy\" } ] } ] }", "site A1" },
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_text(f->dir, "batch.json", cases[i].json);
+        char *path = tu_path(f->dir, "batch.json");
+        pl_record *rec = NULL;
+        pl_err err = { 0 };
+        int rc = pl_record_load_sidecar(&rec, path, &err);
+        if (rc == 0 || !strstr(err.msg, "batch.json") || !strstr(err.msg, cases[i].needle))
+            fail_msg("case %zu: rc %d, message '%s'", i, rc, err.msg);
+        tu_assert_msg_has(err.msg, i < 2 ? "map" : "twice");
+        assert_null(rec);
+        free(path);
+    }
+}
+
+static int count_all(void *ud, const pl_inspection *in)
+{
+    (void)in;
+    (*(int *)ud)++;
+    return 0;
+}
+
+/* A batch made call by call is held to the same rules when applied. */
+static void test_record__apply_refuses_empty_and_repeated_sites(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_inspection in;
+    memset(&in, 0, sizeof in);
+    in.aircraft_hours = NAN;
+    in.aircraft_cycles = -1;
+    strcpy(in.airframe_serial, "REC-0001");
+    strcpy(in.kind, "baseline");
+    strcpy(in.performed_on, "2021-04-05");
+    strcpy(in.procedure, "P");
+    strcpy(in.procedure_rev, "A");
+    strcpy(in.equipment, "E");
+    strcpy(in.calibration_ref, "C");
+    strcpy(in.inspector, "I");
+    strcpy(in.inspector_level, "2");
+    char *a1 = tu_path(f->dir, "a1.npy"), *a2 = tu_path(f->dir, "a2.npy");
+
+    pl_record *rec;
+    TU_OK(pl_record_new(&rec, &err));
+    strcpy(in.site_code, "A1");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 0, a1, "depth", NULL, NAN, NAN, &err));
+    strcpy(in.site_code, "A2");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "REC-0001 site A2");
+    tu_assert_msg_has(err.msg, "no map");
+    pl_record_free(rec);
+
+    TU_OK(pl_record_new(&rec, &err));
+    strcpy(in.site_code, "A1");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 0, a1, "depth", NULL, NAN, NAN, &err));
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 1, a2, "depth", NULL, NAN, NAN, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "REC-0001 site A1");
+    tu_assert_msg_has(err.msg, "twice");
+    pl_record_free(rec);
+
+    int n = 0;
+    TU_OK(pl_store_list_inspections(f->store, NULL, count_all, &n, &err));
+    assert_int_equal(n, 0);
+    free(a1);
+    free(a2);
+}
+
+/* Every refusal of a sidecar names the file and, below the top level, the
+ * site: a placement axis of no length among them. */
+static void test_record__sidecar_messages_name_file_and_site(void **state)
+{
+    fixture *f = *state;
+    static const char *const cases[] = {
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [0,0,0], \"v\": [0,1,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0], \"v\": [0,1,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0], \"v\": [0,1,0], \"w\": 1 } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0], \"v\": [0,1,0],\n"
+        "                 \"system\": \"0123456789012345678901234567890123456789012345678901234567890123456789\" } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"pitch_mm\": -1 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"pitch_mm\": \"x\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"channels\": [ { \"quantity\": \"depth\", \"unit\": \"K\" } ] } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"channels\": [ { \"quantity\": 3 } ] } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"channels\": 3 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ 7 ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"x\": 1 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": 1 } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"hours\": -3, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"notes\": 4, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"parameters\": 4, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_text(f->dir, "where.json", cases[i]);
+        char *path = tu_path(f->dir, "where.json");
+        pl_record *rec = NULL;
+        pl_err err = { 0 };
+        int rc = pl_record_load_sidecar(&rec, path, &err);
+        if (rc == 0 || !strstr(err.msg, path) || !strstr(err.msg, "site A1"))
+            fail_msg("case %zu: rc %d, message '%s'", i, rc, err.msg);
+        assert_null(rec);
+        free(path);
+    }
+}
+
+/* A sidecar batch that the store refuses names the sidecar too. */
+static void test_record__apply_of_a_sidecar_names_it(void **state)
+{
+    fixture *f = *state;
+    write_text(f->dir, "wrong.json", SIDECAR_HEAD
+               "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"wrong.npy\" ,\n"
+               "  \"channels\": [ { \"quantity\": \"depth\" } ] } ] } ] }");
+    char *path = tu_path(f->dir, "wrong.json");
+    pl_record *rec = NULL;
+    pl_err err = { 0 };
+    TU_OK(pl_record_load_sidecar(&rec, path, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_ENOMATCH);
+    tu_assert_msg_has(err.msg, path);
+    tu_assert_msg_has(err.msg, "site A1");
+    tu_assert_msg_has(err.msg, "wrong.npy");
+    pl_record_free(rec);
+    free(path);
+}
+
 static void test_record__apply_records_and_completes_from_the_site(void **state)
 {
     fixture *f = *state;
@@ -418,6 +571,10 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_record__sidecar_gives_sites_overrides_and_paths, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__sidecar_refuses_unknown_keys_and_bad_types, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__sidecar_refuses_empty_and_repeated_sites, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__apply_refuses_empty_and_repeated_sites, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__sidecar_messages_name_file_and_site, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__apply_of_a_sidecar_names_it, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_records_and_completes_from_the_site, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_is_all_or_nothing, setup, teardown),
         cmocka_unit_test(test_record__add_map_checks_lists),

@@ -39,6 +39,7 @@ PL_EXPORT void pl_record_free(pl_record *rec)
         free(s->insp.parameters_json);
     }
     free(rec->sites);
+    free(rec->source);
     free(rec);
 }
 
@@ -248,54 +249,70 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
     return PL_OK;
 }
 
-static int take_vec3(double out[3], const cJSON *arr, const char *file, const char *what, pl_err *err)
+/* Make a failure's message start with `at` (the sidecar, and where in it),
+ * unless it already does. */
+static int located(int rc, const char *at, pl_err *err)
+{
+    if (rc && err && strncmp(err->msg, at, strlen(at)) != 0) {
+        char msg[PL_ERR_MSG_SIZE];
+        snprintf(msg, sizeof msg, "%s", err->msg);
+        pl__err(err, rc, "%s: %.400s", at, msg);
+    }
+    return rc;
+}
+
+static int take_vec3(double out[3], const cJSON *arr, const char *at, const char *what,
+                     pl_err *err)
 {
     if (!cJSON_IsArray(arr) || cJSON_GetArraySize(arr) != 3)
-        return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+        return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", at, what);
     for (int i = 0; i < 3; i++) {
         const cJSON *v = cJSON_GetArrayItem(arr, i);
         if (!cJSON_IsNumber(v))
-            return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+            return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", at, what);
         out[i] = v->valuedouble;
     }
     return PL_OK;
 }
 
-static int take_placement(pl_placement *p, const cJSON *obj, const char *file, pl_err *err)
+/* A map's "placement" object; `at` names the map in the sidecar. */
+static int take_placement(pl_placement *p, const cJSON *obj, const char *at, pl_err *err)
 {
     if (!cJSON_IsObject(obj))
-        return pl__err(err, PL_EFORMAT, "%s: \"placement\" must be an object", file);
+        return pl__err(err, PL_EFORMAT, "%s: \"placement\" must be an object", at);
     snprintf(p->system, sizeof p->system, "STA/BL/WL");
     snprintf(p->unit, sizeof p->unit, "mm");
     int have = 0;
     for (const cJSON *it = obj->child; it; it = it->next) {
         int rc = PL_OK;
         if (strcmp(it->string, "origin") == 0)
-            rc = take_vec3(p->origin, it, file, "placement origin", err), have |= 1;
+            rc = take_vec3(p->origin, it, at, "placement origin", err), have |= 1;
         else if (strcmp(it->string, "u") == 0)
-            rc = take_vec3(p->u, it, file, "placement u", err), have |= 2;
+            rc = take_vec3(p->u, it, at, "placement u", err), have |= 2;
         else if (strcmp(it->string, "v") == 0)
-            rc = take_vec3(p->v, it, file, "placement v", err), have |= 4;
+            rc = take_vec3(p->v, it, at, "placement v", err), have |= 4;
         else if (strcmp(it->string, "system") == 0 && cJSON_IsString(it))
-            rc = pl__copy_text(p->system, sizeof p->system, it->valuestring, "placement system", err);
+            rc = pl__copy_text(p->system, sizeof p->system, it->valuestring, "placement system",
+                               err);
         else if (strcmp(it->string, "unit") == 0 && cJSON_IsString(it))
             rc = pl__copy_text(p->unit, sizeof p->unit, it->valuestring, "placement unit", err);
         else
-            return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", file,
+            return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", at,
                            it->string);
         if (rc)
-            return rc;
+            return located(rc, at, err);
     }
     if (have != 7)
-        return pl__err(err, PL_EFORMAT, "%s: placement needs \"origin\", \"u\" and \"v\"", file);
-    return pl_placement_check(p, err);
+        return pl__err(err, PL_EFORMAT, "%s: placement needs \"origin\", \"u\" and \"v\"", at);
+    return located(pl_placement_check(p, err), at, err);
 }
 
-static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *file,
+/* One entry of a site's "maps"; `at` names it ("FILE: site CODE: map N"). */
+static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *at,
                     const char *dir, pl_err *err)
 {
     if (!cJSON_IsObject(obj))
-        return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", file);
+        return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", at);
     const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL;
     for (const cJSON *it = obj->child; it; it = it->next) {
         if (strcmp(it->string, "file") == 0) jfile = it;
@@ -303,10 +320,10 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         else if (strcmp(it->string, "pitch_mm") == 0) jpitch = it;
         else if (strcmp(it->string, "placement") == 0) jplace = it;
         else
-            return pl__err(err, PL_EFORMAT, "%s: map entry: unknown key \"%s\"", file, it->string);
+            return pl__err(err, PL_EFORMAT, "%s: unknown key \"%s\"", at, it->string);
     }
     if (!cJSON_IsString(jfile) || !*jfile->valuestring)
-        return pl__err(err, PL_EFORMAT, "%s: map entry needs \"file\" (a string)", file);
+        return pl__err(err, PL_EFORMAT, "%s: a map needs \"file\" (a file name)", at);
     double pu = NAN, pv = NAN;
     if (jpitch) {
         if (cJSON_IsNumber(jpitch)) {
@@ -317,25 +334,25 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
             pu = cJSON_GetArrayItem(jpitch, 0)->valuedouble;
             pv = cJSON_GetArrayItem(jpitch, 1)->valuedouble;
         } else {
-            return pl__err(err, PL_EFORMAT, "%s: \"pitch_mm\" must be a number or [u, v]", file);
+            return pl__err(err, PL_EFORMAT, "%s: \"pitch_mm\" must be a number or [u, v]", at);
         }
         if (!(pu > 0) || !(pv > 0))
-            return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
+            return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", at);
     }
     pl_channel ch[MAX_LISTED_CHANNELS];
     memset(ch, 0, sizeof ch);
     uint32_t n = 0;
     if (jch) {
         if (!cJSON_IsArray(jch))
-            return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", file);
+            return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", at);
         for (const cJSON *c = jch->child; c; c = c->next) {
             const cJSON *q = cJSON_GetObjectItemCaseSensitive(c, "quantity");
             const cJSON *u = cJSON_GetObjectItemCaseSensitive(c, "unit");
             if (!cJSON_IsString(q) || (u && !cJSON_IsString(u)) || cJSON_GetArraySize(c) != (u ? 2 : 1))
                 return pl__err(err, PL_EFORMAT,
-                               "%s: each channel is {\"quantity\": text, \"unit\": text}", file);
+                               "%s: each channel is {\"quantity\": text, \"unit\": text}", at);
             if (n == MAX_LISTED_CHANNELS)
-                return pl__err(err, PL_EINVAL, "%s: too many channels (at most %d)", file,
+                return pl__err(err, PL_EINVAL, "%s: too many channels (at most %d)", at,
                                MAX_LISTED_CHANNELS);
             int rc = pl__copy_text(ch[n].quantity, sizeof ch[n].quantity, q->valuestring,
                                    "channel quantity", err);
@@ -343,7 +360,7 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
                 rc = pl__copy_text(ch[n].unit, sizeof ch[n].unit, u->valuestring, "channel unit",
                                    err);
             if (rc)
-                return rc;
+                return located(rc, at, err);
             n++;
         }
     }
@@ -353,13 +370,13 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         snprintf(path, sizeof path, "%s", name);
     else
         snprintf(path, sizeof path, "%s/%s", dir, name);
-    int rc = add_map(rec, site, path, ch, n, pu, pv, err);
+    int rc = located(add_map(rec, site, path, ch, n, pu, pv, err), at, err);
     if (rc)
         return rc;
     if (jplace) {
         pl_record_site *s = &rec->sites[site];
         pl_record_map *m = &s->maps[s->nmaps - 1];
-        if ((rc = take_placement(&m->placement, jplace, file, err)))
+        if ((rc = take_placement(&m->placement, jplace, at, err)))
             return rc;
         m->has_placement = 1;
     }
@@ -371,6 +388,64 @@ static void blank_inspection(pl_inspection *insp)
     memset(insp, 0, sizeof *insp);
     insp->aircraft_hours = NAN;
     insp->aircraft_cycles = -1;
+}
+
+/* The entry of the batch before `n` that names the same airframe and site
+ * (keys compare without regard to case), or n. */
+static size_t earlier_entry(const pl_record *rec, size_t n)
+{
+    const pl_inspection *in = &rec->sites[n].insp;
+    for (size_t i = 0; i < n; i++)
+        if (strcasecmp(rec->sites[i].insp.airframe_serial, in->airframe_serial) == 0
+            && strcasecmp(rec->sites[i].insp.site_code, in->site_code) == 0)
+            return i;
+    return n;
+}
+
+/* One entry of "sites": its inspection fields over the top level's, then
+ * its maps; `file` names the sidecar in messages. */
+static int take_site(pl_record *rec, const cJSON *s, const pl_inspection *top, const char *file,
+                     const char *dir, pl_err *err)
+{
+    if (!cJSON_IsObject(s))
+        return pl__err(err, PL_EFORMAT, "%s: each entry of \"sites\" must be an object", file);
+    const cJSON *code = cJSON_GetObjectItemCaseSensitive(s, "site");
+    char where[96], at[PL_ERR_MSG_SIZE];
+    snprintf(where, sizeof where, "site %.80s", cJSON_IsString(code) ? code->valuestring : "?");
+    snprintf(at, sizeof at, "%.400s: %s", file, where);
+    pl_inspection insp = *top;
+    insp.parameters_json = top->parameters_json ? pl__strdup(top->parameters_json) : NULL;
+    if (top->parameters_json && !insp.parameters_json)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    static const char *const site_extra[] = { "maps", NULL };
+    int rc = take_inspection_fields(&insp, s, file, where, site_extra, err);
+    if (!rc && !insp.site_code[0])
+        rc = pl__err(err, PL_EFORMAT, "%s: a site entry has no \"site\" code", file);
+    size_t idx = 0;
+    if (!rc)
+        rc = pl_record_add_site(rec, &insp, &idx, err);
+    free(insp.parameters_json);
+    if (rc)
+        return rc;
+    size_t first = earlier_entry(rec, idx);
+    if (first != idx)
+        return pl__err(err, PL_EINVAL, "%s: site %s of %s appears twice in the batch (entries %zu "
+                       "and %zu of \"sites\"); record each site once", at, insp.site_code,
+                       insp.airframe_serial, first + 1, idx + 1);
+    const cJSON *maps = cJSON_GetObjectItemCaseSensitive(s, "maps");
+    if (maps && !cJSON_IsArray(maps))
+        return pl__err(err, PL_EFORMAT, "%s: \"maps\" must be an array", at);
+    size_t k = 0;
+    for (const cJSON *m = maps ? maps->child : NULL; m; m = m->next) {
+        char map_at[PL_ERR_MSG_SIZE];
+        snprintf(map_at, sizeof map_at, "%.440s: map %zu", at, ++k);
+        if ((rc = take_map(rec, idx, m, map_at, dir, err)))
+            return rc;
+    }
+    if (!k)
+        return pl__err(err, PL_EINVAL, "%s: no map given: \"maps\" must list the map files of "
+                       "the inspection", at);
+    return PL_OK;
 }
 
 static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, const char *dir,
@@ -385,34 +460,8 @@ static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, co
     const cJSON *sites = cJSON_GetObjectItemCaseSensitive(root, "sites");
     if (!rc && (!cJSON_IsArray(sites) || cJSON_GetArraySize(sites) == 0))
         rc = pl__err(err, PL_EFORMAT, "%s: \"sites\" must be a non-empty array", file);
-    for (const cJSON *s = sites ? sites->child : NULL; !rc && s; s = s->next) {
-        if (!cJSON_IsObject(s)) {
-            rc = pl__err(err, PL_EFORMAT, "%s: each entry of \"sites\" must be an object", file);
-            break;
-        }
-        pl_inspection insp = top;
-        insp.parameters_json = top.parameters_json ? pl__strdup(top.parameters_json) : NULL;
-        if (top.parameters_json && !insp.parameters_json) {
-            rc = pl__err(err, PL_ENOMEM, "out of memory");
-            break;
-        }
-        const cJSON *code = cJSON_GetObjectItemCaseSensitive(s, "site");
-        char where[96];
-        snprintf(where, sizeof where, "site %s", cJSON_IsString(code) ? code->valuestring : "?");
-        static const char *const site_extra[] = { "maps", NULL };
-        rc = take_inspection_fields(&insp, s, file, where, site_extra, err);
-        if (!rc && !insp.site_code[0])
-            rc = pl__err(err, PL_EFORMAT, "%s: a site entry has no \"site\" code", file);
-        size_t idx = 0;
-        if (!rc)
-            rc = pl_record_add_site(rec, &insp, &idx, err);
-        free(insp.parameters_json);
-        const cJSON *maps = cJSON_GetObjectItemCaseSensitive(s, "maps");
-        if (!rc && maps && !cJSON_IsArray(maps))
-            rc = pl__err(err, PL_EFORMAT, "%s: %s: \"maps\" must be an array", file, where);
-        for (const cJSON *m = maps ? maps->child : NULL; !rc && m; m = m->next)
-            rc = take_map(rec, idx, m, file, dir, err);
-    }
+    for (const cJSON *s = sites ? sites->child : NULL; !rc && s; s = s->next)
+        rc = take_site(rec, s, &top, file, dir, err);
     free(top.parameters_json);
     return rc;
 }
@@ -445,6 +494,8 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
         dir[0] = '\0';
     pl_record *rec;
     int rc = pl_record_new(&rec, err);
+    if (!rc && !(rec->source = pl__strdup(path)))
+        rc = pl__err(err, PL_ENOMEM, "out of memory");
     if (!rc)
         rc = parse_sidecar(rec, root, path, dir, err);
     cJSON_Delete(root);
@@ -530,19 +581,46 @@ static int complete_map(pl_map *map, const pl_record_map *req, const pl_site *si
     return PL_OK;
 }
 
+/* A batch records each site once, each with at least one map. */
+static int check_batch(const pl_record *rec, pl_err *err)
+{
+    for (size_t i = 0; i < rec->nsites; i++) {
+        const pl_inspection *in = &rec->sites[i].insp;
+        if (!rec->sites[i].nmaps)
+            return pl__err(err, PL_EINVAL, "%.64s site %.64s: no map given: an inspection is "
+                           "recorded with the maps it produced", in->airframe_serial,
+                           in->site_code);
+        size_t first = earlier_entry(rec, i);
+        if (first != i)
+            return pl__err(err, PL_EINVAL, "%.64s site %.64s: the site appears twice in the batch "
+                           "(entries %zu and %zu); record each site once", in->airframe_serial,
+                           in->site_code, first + 1, i + 1);
+    }
+    return PL_OK;
+}
+
+/* A failure of a batch read from a sidecar names the sidecar first. */
+static int name_source(int rc, const pl_record *rec, pl_err *err)
+{
+    return rec->source ? located(rc, rec->source, err) : rc;
+}
+
 PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
                               void *userdata, pl_err *err)
 {
     size_t total = 0, done = 0;
     for (size_t i = 0; i < rec->nsites; i++)
         total += rec->sites[i].nmaps;
-    int rc = pl_store_begin(store, err);
+    int rc = check_batch(rec, err);
+    if (!rc)
+        rc = pl_store_begin(store, err);
     if (rc)
-        return rc;
+        return name_source(rc, rec, err);
     for (size_t i = 0; i < rec->nsites && !rc; i++) {
         pl_record_site *s = &rec->sites[i];
         pl_site site;
-        rc = pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code, &site, err);
+        rc = name_site(pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code, &site,
+                                         err), &s->insp, err);
         if (rc)
             break;
         pl_id id;
@@ -580,9 +658,9 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
             for (size_t j = 0; j < rec->sites[i].nmaps; j++)
                 rec->sites[i].maps[j].map_id = 0;
         }
-        return rc;
+        return name_source(rc, rec, err);
     }
-    return pl_store_commit(store, err);
+    return name_source(pl_store_commit(store, err), rec, err);
 }
 
 PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,

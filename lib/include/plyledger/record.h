@@ -34,6 +34,10 @@
  *   }
  *
  * Unknown keys are refused, so a misspelt field is never silently lost.
+ * Every site entry lists at least one map, and a batch names each site of
+ * an airframe once (site codes and serials compared without regard to
+ * case). Every refusal names the sidecar file and, below the top level,
+ * the site and the map entry ("check.json: site F03: map 2: ...").
  * pl_record_new() / pl_record_load_sidecar() allocate; pl_record_free()
  * releases everything, including the strings the record owns.
  */
@@ -71,6 +75,9 @@ typedef struct pl_record_site {
 typedef struct pl_record {
     size_t nsites;
     pl_record_site *sites;    /**< owned */
+    char *source;             /**< the sidecar it was read from, named first in the
+                                   messages of pl_record_apply(); NULL for a batch
+                                   made by calls; owned */
 } pl_record;
 
 /** An empty batch. @param[out] out  free with pl_record_free(). */
@@ -109,11 +116,13 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
 
 /**
  * Write the batch into the store: every inspection and map, or nothing.
- * Each map file is loaded and checked against its site (size, pitch).
+ * Each site must have at least one map and appear once in the batch. Each
+ * map file is loaded and checked against its site (size, pitch).
  * `progress` (may be NULL) is told after each map.
  * @return PL_OK, or the first failure (PL_EIO, PL_EFORMAT, PL_ENOTFOUND,
- *         PL_ENOMATCH, PL_EEXISTS, PL_EINVAL, PL_EDB, PL_ECANCELED), with a
- *         message naming the site and file.
+ *         PL_ENOMATCH, PL_EEXISTS, PL_EINVAL (also a site without maps or
+ *         twice in the batch), PL_EDB, PL_ECANCELED), with a message naming
+ *         the sidecar (rec->source), the site and the map file.
  */
 PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
                               void *userdata, pl_err *err);
