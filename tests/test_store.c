@@ -1920,8 +1920,11 @@ static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state
 
     db = raw_open(old);
     assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
-    char *history = raw_text(db, "SELECT value FROM store_info WHERE name = 'schema.0002'");
-    assert_non_null(strstr(history, pl__migrations[1].name));
+    char name[64];
+    snprintf(name, sizeof name, "SELECT value FROM store_info WHERE name = 'schema.%04d'",
+             PL_STORE_SCHEMA_VERSION);
+    char *history = raw_text(db, name);
+    assert_non_null(strstr(history, pl__migrations[PL_STORE_SCHEMA_VERSION - 1].name));
     assert_non_null(strstr(history, pl_version()));
     free(history);
     char *after = raw_text(db, rows);
@@ -1934,10 +1937,34 @@ static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state
                                       "'x-ray', 'STA', 'mm', 0, 0, 0, 1, 0, 0, 0, 1, 0, 0, 0, "
                                       "1, 1, 'now')", NULL, NULL, NULL), SQLITE_OK);
     assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+    /* from schema 3 on a new inspection says whether it is simulated */
+    assert_int_not_equal(sqlite3_exec(db, "INSERT INTO inspection (site_key, kind, "
+                                      "performed_on, procedure, procedure_rev, equipment, "
+                                      "calibration_ref, inspector, inspector_level, "
+                                      "software_version, recorded_at) VALUES (1, 'unscheduled', "
+                                      "'2035-02-01', 'P', 'A', 'E', 'C', 'I', '2', '0.1.0', "
+                                      "'now')", NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
     sqlite3_close(db);
     TU_OK(pl_store_open(&st2, old, 0, &err));
     pl_site s = site("OLD-0001", "F02");
     TU_OK(pl_store_add_site(st2, &s, NULL, &err));
+    /* rows recorded before schema 3 do not say whether they were simulated,
+     * and a correction of one may leave it unsaid; a new record must say */
+    pl_inspection got;
+    memset(&got, 0, sizeof got);
+    TU_OK(pl_store_get_inspection(st2, 1, &got, &err));
+    assert_int_equal(got.simulated, -1);
+    snprintf(got.notes, sizeof got.notes, "baseline of the old store");
+    TU_OK(pl_store_correct_inspection(st2, 1, &got, "notes added", NULL, &err));
+    pl_inspection_clear(&got);
+    TU_OK(pl_store_get_inspection(st2, 1, &got, &err));
+    assert_int_equal(got.simulated, -1);
+    assert_string_equal(got.notes, "baseline of the old store");
+    snprintf(got.performed_on, sizeof got.performed_on, "2035-03-01");
+    snprintf(got.kind, sizeof got.kind, "unscheduled");
+    expect_fail(pl_store_add_inspection(st2, &got, NULL, &err), PL_EINVAL, &err, "simulated");
+    pl_inspection_clear(&got);
     pl_store_close(st2);
     free(before);
     free(after);

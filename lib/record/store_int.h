@@ -167,6 +167,7 @@ typedef enum pl_ctype {
     PL_C_TEXT,      /* char[size]; "" absent */
     PL_C_STR,       /* char *, malloc'd on read; NULL (or "") absent */
     PL_C_SIZE,      /* size_t */
+    PL_C_FLAG,      /* int: 0 or 1; -1 absent (JSON true, false or null) */
     PL_C_ROWS,      /* pointer to `count` child structs */
 } pl_ctype;
 

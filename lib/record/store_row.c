@@ -108,6 +108,7 @@ PL_EXPORT int pl_method_check(const char *method, pl_err *err)
 #define TEXT(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_TEXT, PL_C_TEXT, fl, form)
 #define REAL(T, f, col, js, fl, form) COLUMN(T, f, #f, col, js, PL_S_REAL, PL_C_F64, fl, form)
 #define INT(T, f, col, js, ct, fl, form) COLUMN(T, f, #f, col, js, PL_S_INTEGER, ct, fl, form)
+#define FLAG(T, f, col, js, fl) COLUMN(T, f, #f, col, js, PL_S_INTEGER, PL_C_FLAG, fl, PL_F_ANY)
 #define WORD(T, f, col, js, vocab_) \
     { .column = col, .field = #f, .json = js, .stype = PL_S_TEXT, .ctype = PL_C_TEXT, \
       .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = IN | REQ, .form = PL_F_NAME, \
@@ -205,11 +206,13 @@ static const pl_column inspection_cols[] = {
            PL_F_NAME),
     JOINED(pl_inspection, site_code, "s.code", "site", PL_C_TEXT, IN | REQ, PL_F_NAME),
     WORD(pl_inspection, kind, "kind", "kind", PL_VOCAB_INSPECTION_KIND),
+    FLAG(pl_inspection, simulated, "simulated", "simulated", IN | NUL),
     TEXT(pl_inspection, performed_on, "performed_on", "date", IN | REQ, PL_F_DATE),
     TEXT(pl_inspection, task_ref, "task_ref", "task", IN | NUL, PL_F_NAME),
     REAL(pl_inspection, aircraft_hours, "aircraft_hours", "hours", IN | NUL, PL_F_NONNEGATIVE),
     INT(pl_inspection, aircraft_cycles, "aircraft_cycles", "cycles", PL_C_I64, IN | NUL,
         PL_F_NONNEGATIVE),
+    TEXT(pl_inspection, hours_reason, "hours_reason", "hours_reason", IN | NUL, PL_F_TEXT),
     TEXT(pl_inspection, procedure, "procedure", "procedure", IN | REQ, PL_F_NAME),
     TEXT(pl_inspection, procedure_rev, "procedure_rev", "procedure_revision", IN | REQ,
          PL_F_NAME),
@@ -507,6 +510,14 @@ static int check_field(const pl_column *c, const void *rec, const char *label, p
         memcpy(&v, cfield(c, rec), sizeof v);
         return check_number(c, v, label, err);
     }
+    case PL_C_FLAG: {
+        int v;
+        memcpy(&v, cfield(c, rec), sizeof v);
+        if (v != 0 && v != 1 && !((c->flags & PL_COL_NULLABLE) && v == -1))
+            return pl__err(err, PL_EINVAL, "%s: %s must be 0 or 1%s (got %d)", label, c->field,
+                           (c->flags & PL_COL_NULLABLE) ? ", or -1 for unknown" : "", v);
+        return PL_OK;
+    }
     case PL_C_I64: {
         int64_t v;
         memcpy(&v, cfield(c, rec), sizeof v);
@@ -570,6 +581,12 @@ static pl_value field_value(const pl_column *c, const void *rec, int *absent)
         uint32_t v;
         memcpy(&v, f, sizeof v);
         *absent = v == 0;
+        return int_value(v);
+    }
+    case PL_C_FLAG: {
+        int v;
+        memcpy(&v, f, sizeof v);
+        *absent = v < 0;
         return int_value(v);
     }
     case PL_C_SIZE: {
@@ -1093,6 +1110,11 @@ int pl_row__read(const pl_table_desc *t, sqlite3_stmt *st, void *rec)
             memcpy(f, &v, sizeof v);
             break;
         }
+        case PL_C_FLAG: {
+            int v = null ? -1 : sqlite3_column_int64(st, col) != 0;
+            memcpy(f, &v, sizeof v);
+            break;
+        }
         case PL_C_SIZE: {
             size_t v = (size_t)sqlite3_column_int64(st, col);
             memcpy(f, &v, sizeof v);
@@ -1316,6 +1338,8 @@ static cJSON *json_value(const pl_column *c, const void *rec)
     pl_value v = field_value(c, rec, &absent);
     if (absent)
         return cJSON_CreateNull();
+    if (c->ctype == PL_C_FLAG)
+        return cJSON_CreateBool(v.i != 0);
     switch (v.type) {
     case PL_S_INTEGER: return cJSON_CreateNumber((double)v.i);
     case PL_S_REAL: return json_number(v.r);

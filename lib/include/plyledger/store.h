@@ -300,6 +300,12 @@ typedef struct pl_inspection {
                                                on read owned by the record: see
                                                pl_inspection_clear() */
     char recorded_at[PL_DATE_SIZE];       /**< (read) */
+    int simulated;                        /**< 1: the data come from a simulation, 0: from
+                                               the part; (read) -1: recorded before the
+                                               store kept it (schema 2 and older) */
+    char hours_reason[PL_TEXT_SIZE];      /**< why hours or cycles go against the airframe's
+                                               other inspections (a documented records
+                                               correction); empty when they are in order */
 } pl_inspection;
 
 /** Free what a read put in `insp` (parameters_json) and zero it. */
