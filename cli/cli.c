@@ -9,6 +9,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 
 const char *cli_current = "plyledger";
@@ -151,6 +152,16 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     int rc = pl_store_open(out, common->store, flags, &err);
     if (rc)
         return cli_fail_err(rc, &err);
+    /* the library reads no clock: today is the local calendar date here */
+    char today[16];
+    time_t now = time(NULL);
+    struct tm tm;
+    if (!localtime_r(&now, &tm) || !strftime(today, sizeof today, "%Y-%m-%d", &tm) ||
+        (rc = pl_store_set_today(*out, today, &err))) {
+        pl_store_close(*out);
+        *out = NULL;
+        return rc ? cli_fail_err(rc, &err) : cli_fail("cannot read today's date from the clock");
+    }
     return CLI_OK;
 }
 

@@ -143,7 +143,8 @@ static void test_history__gathers_a_site_oldest_first(void **state)
     fixture *f = *state;
     pl_err err = { 0 };
     pl_id m2 = 0, m1 = 0;
-    pl_id k2 = inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m2);
+    /* recorded out of order: an unscheduled inspection needs no baseline yet */
+    pl_id k2 = inspect(f->store, "unscheduled", "2036-03-01", 5.0f, &m2);
     pl_id k1 = inspect(f->store, "baseline", "2030-02-01", 1.0f, &m1);
     pl_record_pair pair = { 0 };
     TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
@@ -377,8 +378,8 @@ static void test_history__summary_json(void **state)
     python_agrees(f, text, "inspections_by_kind/post-repair", "0");
     free(text);
     pl_id m = 0;
-    inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m);
     inspect(f->store, "baseline", "2030-02-01", 1.0f, &m);
+    inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m);
     TU_OK(pl_store_summarize(f->store, &sum, &err));
     TU_OK(pl_summary_json(&text, &sum, "h.plyledger", &err));
     python_agrees(f, text, "store", "\"h.plyledger\"");

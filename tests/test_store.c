@@ -671,8 +671,8 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
                 "F99");
 
     /* an inspection */
-    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
-    pl_inspection in = inspection("PLX-0001", "F01", "scheduled", "2022-03-02");
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2022-03-01");
+    pl_inspection in = inspection("PLX-0001", "F01", "unscheduled", "2022-03-02");
     in.aircraft_cycles = 4100;
     in.aircraft_hours = 20512.5;
     char params[] = "{\"frames\": 400}";
@@ -695,7 +695,7 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
     pl_inspection_clear(&got);
     assert_null(got.parameters_json);
     /* it may not move to another site */
-    pl_inspection moved = inspection("PLX-0001", "F02", "scheduled", "2022-03-02");
+    pl_inspection moved = inspection("PLX-0001", "F02", "unscheduled", "2022-03-02");
     expect_fail(pl_store_correct_inspection(f->st, key, &moved, "wrong site", NULL, &err),
                 PL_EINVAL, &err, "another site");
     expect_fail(pl_store_correct_inspection(f->st, 9999, &in, "x", NULL, &err), PL_ENOTFOUND,
@@ -897,6 +897,209 @@ static void test_store__validates_records_with_clear_messages(void **state)
  * where date(d, '+0 days') gives d back only for a real date
  * (https://www.sqlite.org/lang_datefunc.html), across leap-year rules.
  */
+/* ---- chronology -------------------------------------------------------------- */
+
+static pl_inspection flown(const char *code, const char *kind, const char *date, double hours,
+                           int64_t cycles)
+{
+    pl_inspection in = inspection("CHR-0001", code, kind, date);
+    in.aircraft_hours = hours;
+    in.aircraft_cycles = cycles;
+    return in;
+}
+
+/*
+ * Nothing a real inspection could not be: no inspection before the airframe
+ * was built or after today (which the caller gives: the library reads no
+ * clock for it), no scheduled inspection without the site's baseline or
+ * before it, no flight hours or cycles that go back against the airframe's
+ * other inspections unless the reason is recorded, no operator change after
+ * today. Each refusal leaves the store as it was.
+ */
+static void test_store__refuses_inspections_out_of_chronology(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    expect_fail(pl_store_set_today(f->st, "2026-02-30", &err), PL_EINVAL, &err, "2026-02-30");
+    TU_OK(pl_store_set_today(f->st, "2026-12-03", &err));
+    add_airframe(f->st, "CHR-0001", "TX-1"); /* manufactured 2015-06-30 */
+    add_site(f->st, "CHR-0001", "F01");
+    add_site(f->st, "CHR-0001", "F02");
+    add_site(f->st, "CHR-0001", "F03");
+    char *before = dump(f->path);
+    pl_inspection in = flown("F01", "baseline", "2015-06-01", 3, 2);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "before the airframe's date of manufacture 2015-06-30");
+    in = flown("F01", "scheduled", "2016-01-10", 300, 200);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "record the baseline first");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    in = flown("F01", "baseline", "2015-07-10", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F01", "scheduled", "2015-07-01", 10, 7);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "before the site's baseline");
+    tu_assert_msg_has(err.msg, "2015-07-10");
+    in = flown("F01", "scheduled", "2027-01-01", 20000, 14000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    in = flown("F01", "scheduled", "2021-03-01", 9000.5, 6100);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F02", "baseline", "2015-07-11", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+
+    /* hours and cycles of the airframe: across its sites, by date */
+    before = dump(f->path);
+    in = flown("F02", "unscheduled", "2022-05-01", 8000, 7000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight hours 8000 are fewer than the 9000.5");
+    tu_assert_msg_has(err.msg, "site F01");
+    in = flown("F02", "unscheduled", "2020-05-01", 9500, 5000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight hours 9500 are more than the 9000.5");
+    in = flown("F02", "unscheduled", "2022-05-01", 9800, 6000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight cycles 6000 are fewer than the 6100");
+    /* nor a scheduled inspection on a site without a baseline of its own */
+    in = flown("F03", "scheduled", "2022-05-01", 9800, 6600);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "site has no baseline inspection: record the baseline first");
+    after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    /* a documented correction of the aircraft's records lets hours go down,
+     * and the reason stays with the inspection */
+    in = flown("F02", "unscheduled", "2022-05-01", 8000, 6000);
+    snprintf(in.hours_reason, sizeof in.hours_reason,
+             "aircraft log corrected after the 2021 records audit (memo TL-114)");
+    pl_id key = 0;
+    TU_OK(pl_store_add_inspection(f->st, &in, &key, &err));
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, key, &got, &err));
+    assert_string_equal(got.hours_reason, in.hours_reason);
+    assert_true(got.aircraft_hours == 8000);
+    pl_inspection_clear(&got);
+
+    /* an unscheduled inspection needs no baseline, but none comes before one */
+    in = flown("F03", "unscheduled", "2023-02-01", 11000, 7400);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F03", "baseline", "2023-03-01", 11100, 7450);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "would come before the site's baseline");
+    tu_assert_msg_has(err.msg, "2023-02-01");
+
+    /* operators and airframes: nothing after today */
+    expect_fail(pl_store_add_operator(f->st, "CHR-0001", "Operator Z", "2099-01-01", &err),
+                PL_EINVAL, &err, "after today (2026-12-03)");
+    pl_airframe af = airframe("CHR-0002", "TX-1");
+    snprintf(af.manufactured, sizeof af.manufactured, "2027-05-01");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    af = airframe("CHR-0002", "TX-1");
+    snprintf(af.operator_name, sizeof af.operator_name, "Operator Y");
+    snprintf(af.operator_since, sizeof af.operator_since, "2030-01-01");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    TU_OK(pl_store_add_operator(f->st, "CHR-0001", "Operator Z", "2026-12-03", &err));
+    check_integrity(f->path);
+}
+
+/*
+ * A correction is held to the same chronology as a new record, as the site
+ * and the airframe stand after it: the only baseline cannot become a
+ * scheduled inspection, a baseline cannot move after the inspections
+ * compared with it, and a correction that changes nothing is no correction.
+ */
+static void test_store__corrections_keep_the_record_sound(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    TU_OK(pl_store_set_today(f->st, "2026-12-03", &err));
+    add_airframe(f->st, "CHR-0001", "TX-1");
+    add_site(f->st, "CHR-0001", "F01");
+    add_site(f->st, "CHR-0001", "F02");
+    pl_id only = 0, base = 0, next = 0;
+    pl_inspection in = flown("F02", "baseline", "2015-08-01", 20, 11);
+    TU_OK(pl_store_add_inspection(f->st, &in, &only, &err));
+    in = flown("F01", "baseline", "2015-07-10", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, &base, &err));
+    in = flown("F01", "scheduled", "2021-03-01", 9000, 6100);
+    TU_OK(pl_store_add_inspection(f->st, &in, &next, &err));
+    char *before = dump(f->path);
+
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, only, &got, &err));
+    expect_fail(pl_store_correct_inspection(f->st, only, &got, "same again", NULL, &err),
+                PL_EINVAL, &err, "nothing to correct");
+    snprintf(got.kind, sizeof got.kind, "scheduled");
+    expect_fail(pl_store_correct_inspection(f->st, only, &got, "kind mistyped", NULL, &err),
+                PL_EINVAL, &err, "without a baseline");
+    tu_assert_msg_has(err.msg, "baseline");
+    pl_inspection_clear(&got);
+
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2021-04-01");
+    expect_fail(pl_store_correct_inspection(f->st, base, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "would come before the site's baseline");
+    tu_assert_msg_has(err.msg, "2021-03-01");
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-10");
+    snprintf(got.kind, sizeof got.kind, "unscheduled");
+    expect_fail(pl_store_correct_inspection(f->st, base, &got, "not a baseline", NULL, &err),
+                PL_EINVAL, &err, "without a baseline");
+    pl_inspection_clear(&got);
+
+    TU_OK(pl_store_get_inspection(f->st, next, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-01");
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "before the site's baseline");
+    snprintf(got.performed_on, sizeof got.performed_on, "2027-03-01");
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "after today");
+    snprintf(got.performed_on, sizeof got.performed_on, "2021-03-01");
+    got.aircraft_hours = 10;
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "hours misread", NULL, &err),
+                PL_EINVAL, &err, "flight hours 10 are fewer than the 20");
+    pl_inspection_clear(&got);
+
+    pl_airframe af;
+    TU_OK(pl_store_get_airframe(f->st, "CHR-0001", &af, &err));
+    expect_fail(pl_store_correct_airframe(f->st, &af, "same again", NULL, &err), PL_EINVAL,
+                &err, "nothing to correct");
+    snprintf(af.manufactured, sizeof af.manufactured, "2015-07-20");
+    expect_fail(pl_store_correct_airframe(f->st, &af, "date misread", NULL, &err), PL_EINVAL,
+                &err, "2015-07-10");
+    snprintf(af.manufactured, sizeof af.manufactured, "2027-01-01");
+    expect_fail(pl_store_correct_airframe(f->st, &af, "date misread", NULL, &err), PL_EINVAL,
+                &err, "after today");
+    pl_site s;
+    TU_OK(pl_store_get_site(f->st, "CHR-0001", "F01", &s, &err));
+    expect_fail(pl_store_correct_site(f->st, &s, "same again", NULL, &err), PL_EINVAL, &err,
+                "nothing to correct");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    /* what a correction may do: hours with their reason, a date in order */
+    TU_OK(pl_store_get_inspection(f->st, next, &got, &err));
+    got.aircraft_hours = 10;
+    snprintf(got.hours_reason, sizeof got.hours_reason, "log page transcribed wrongly");
+    TU_OK(pl_store_correct_inspection(f->st, next, &got, "hours from the corrected log", NULL,
+                                      &err));
+    pl_inspection_clear(&got);
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-12");
+    TU_OK(pl_store_correct_inspection(f->st, base, &got, "date misread", NULL, &err));
+    pl_inspection_clear(&got);
+    check_integrity(f->path);
+}
+
 static void test_store__dates_agree_with_sqlite_calendar(void **state)
 {
     (void)state;
@@ -1251,6 +1454,7 @@ static void test_store__rollback_leaves_the_store_as_it_was(void **state)
     TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
     TU_OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2020-01-01", &err));
     pl_site s = site("PLX-0001", "F01");
+    snprintf(s.zone, sizeof s.zone, "232");
     TU_OK(pl_store_correct_site(f->st, &s, "checking rollback", NULL, &err));
     pl_store_rollback(f->st);
     pl_store_rollback(f->st); /* harmless when none is open */
@@ -1394,7 +1598,7 @@ static void test_store__listings_filter_and_order(void **state)
     TU_OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
     assert_string_equal(c.out, "PLX-0001:W01");
 
-    add_inspection(f->st, "PLX-0001", "F02", "scheduled", "2022-03-01");
+    add_inspection(f->st, "PLX-0001", "F02", "unscheduled", "2022-03-01");
     add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
     add_inspection(f->st, "PLX-0002", "F02", "baseline", "2016-01-10");
     add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2019-07-15");
@@ -2027,6 +2231,8 @@ int main(void)
         T(test_store__summary_counts_the_record),
         T(test_store__registrations_and_comparisons),
         T(test_store__schema_checks_equal_the_vocabularies),
+        T(test_store__refuses_inspections_out_of_chronology),
+        T(test_store__corrections_keep_the_record_sound),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
         T(test_store__schema_version_is_the_number_of_schema_files),
 #undef T

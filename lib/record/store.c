@@ -118,6 +118,24 @@ int pl_store__valid_date(const char *s)
     return d <= mdays[m - 1] + (m == 2 && leap);
 }
 
+int pl_store__not_after_today(pl_store *s, const char *date, const char *what, pl_err *err,
+                              const char *label)
+{
+    if (s->today[0] && date && *date && strcmp(date, s->today) > 0)
+        return pl__err(err, PL_EINVAL, "%s: %s %s is after today (%s)", label, what, date,
+                       s->today);
+    return PL_OK;
+}
+
+int pl_store__check_changes(const pl_table_desc *t, const void *current, const void *corrected,
+                            pl_err *err, const char *label)
+{
+    if (pl_row__same_input(t, current, corrected))
+        return pl__err(err, PL_EINVAL, "%s: nothing to correct: the correction gives every field "
+                       "the value it has", label);
+    return PL_OK;
+}
+
 int pl_store__bind_opt_text(sqlite3_stmt *st, int i, const char *v)
 {
     if (v && *v)
@@ -298,6 +316,15 @@ PL_EXPORT void pl_store_close(pl_store *s)
     }
     free(s->path);
     free(s);
+}
+
+PL_EXPORT int pl_store_set_today(pl_store *s, const char *today, pl_err *err)
+{
+    assert(s);
+    if (today && *today && !pl_store__valid_date(today))
+        return pl__err(err, PL_EINVAL, "today '%.32s' is not a calendar date YYYY-MM-DD", today);
+    snprintf(s->today, sizeof s->today, "%s", today ? today : "");
+    return PL_OK;
 }
 
 PL_EXPORT int pl_store_schema_version(const pl_store *s)

@@ -32,6 +32,7 @@ struct pl_store {
     unsigned flags;
     sqlite3_stmt *insert[PL_TABLE_COUNT];  /* each table's INSERT, prepared once */
     unsigned char last_row[32];            /* SHA-256 of the last row's canonical encoding */
+    char today[PL_DATE_SIZE];              /* pl_store_set_today(), or "" */
 };
 
 /* A fixed text field as printf arguments: "%.*s" never reads past it. */
@@ -118,6 +119,12 @@ int pl_store__write_end_id(pl_store *store, int owned, int rc, pl_id newid, pl_i
  * Gregorian, years 0001-9999), else 0.
  */
 int pl_store__valid_date(const char *s);
+
+/* Refuse `date` (field `what` of `label`) when it lies after the store's
+ * today (pl_store_set_today()); PL_OK when it does not or no today is set. */
+int pl_store__not_after_today(pl_store *s, const char *date, const char *what, pl_err *err,
+                              const char *label);
+
 
 /* Lookups by name (store_airframe.c): the key and current row of the airframe
  * with `serial`, of the site `code` of airframe `af_key`; PL_ENOTFOUND
@@ -264,6 +271,15 @@ int pl_row__check_text(pl_err *err, const char *label, const char *field, const 
                        size_t cap, int required);
 int pl_row__check_date(pl_err *err, const char *label, const char *field, const char *v,
                        size_t cap, int required);
+
+/* 1 when records a and b of `t` give every PL_COL_INPUT field the same
+ * stored value (a correction of a into b would change nothing), else 0. */
+int pl_row__same_input(const pl_table_desc *t, const void *a, const void *b);
+
+/* Refuse a correction that gives `t`'s record the values it has: PL_EINVAL
+ * "nothing to correct". */
+int pl_store__check_changes(const pl_table_desc *t, const void *current, const void *corrected,
+                            pl_err *err, const char *label);
 
 /* The values of `rec`'s fields into a new row of `t` (others NULL). */
 void pl_row__from_record(pl_row *row, const pl_table_desc *t, const void *rec);

@@ -629,6 +629,31 @@ static pl_value value_of(const pl_column *c, const void *rec)
     return v;
 }
 
+static int same_value(const pl_value *a, const pl_value *b)
+{
+    if (a->type != b->type)
+        return 0;
+    switch (a->type) {
+    case PL_S_NONE: return 1;
+    case PL_S_INTEGER: return a->i == b->i;
+    case PL_S_REAL: return a->r == b->r;
+    default: return a->n == b->n && (a->n == 0 || memcmp(a->p, b->p, a->n) == 0);
+    }
+}
+
+int pl_row__same_input(const pl_table_desc *t, const void *a, const void *b)
+{
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        if (!(c->flags & PL_COL_INPUT))
+            continue;
+        pl_value va = value_of(c, a), vb = value_of(c, b);
+        if (!same_value(&va, &vb))
+            return 0;
+    }
+    return 1;
+}
+
 void pl_row__from_record(pl_row *row, const pl_table_desc *t, const void *rec)
 {
     memset(row, 0, sizeof *row);

@@ -140,27 +140,27 @@ grep -qF -- "--store" "$WORK/err" || fail "no store: message"
 run "create" 0 ply create "$STORE" && expect_out "create" "created store"
 run "create again" 1 ply create "$STORE"
 run "add airframe" 0 ply add-airframe --store "$STORE" --serial TST-0001 --type TX-1 \
-    --manufactured 2030-01-15 --operator "Test Operator One" && expect_out "add airframe" "TST-0001"
+    --manufactured 2015-01-15 --operator "Test Operator One" && expect_out "add airframe" "TST-0001"
 run "add airframe 2" 0 ply add-airframe --store "$STORE" --serial TST-0002 --type TX-1
 run "import plan" 0 ply import-plan --store "$STORE" --airframe TST-0001 "$WORK/plan.csv" \
     && expect_out "import plan" "added 3 sites"
 run "import plan 2" 0 ply import-plan --store "$STORE" --airframe TST-0002 "$WORK/plan.csv"
-run "set operator" 0 ply set-operator --store "$STORE" --serial TST-0001 --operator "Test Operator Two" --since 2034-06-01 \
+run "set operator" 0 ply set-operator --store "$STORE" --serial TST-0001 --operator "Test Operator Two" --since 2019-06-01 \
     && expect_out "set operator" "Test Operator Two"
 
 export PLYLEDGER_STORE="$STORE"
-run "record baseline" 0 ply record --airframe TST-0001 --site T01 --kind baseline --date 2030-02-01 \
+run "record baseline" 0 ply record --airframe TST-0001 --site T01 --kind baseline --date 2015-02-01 \
     --hours 0 --cycles 0 $TRACE --map "$WORK/t01_base.npy" --quantity temperature-contrast \
     && expect_out "record baseline" "recorded 1 inspection(s) with 1 map(s)"
-run "record png" 0 ply record --airframe TST-0001 --site T01 --kind scheduled --date 2035-03-01 \
+run "record png" 0 ply record --airframe TST-0001 --site T01 --kind scheduled --date 2020-03-01 \
     --task "HC-1" --hours 9000 --cycles 6100 $TRACE --map "$WORK/grey16.png" --quantity phase --unit rad
-run "record two channels" 0 ply record --airframe TST-0001 --site T02 --kind baseline --date 2030-02-01 \
+run "record two channels" 0 ply record --airframe TST-0001 --site T02 --kind baseline --date 2015-02-01 \
     $TRACE --map "$WORK/t02_two.npy" --quantity temperature-contrast,amplitude --unit K,K --json
 grep -q '"inspection"' "$WORK/out" || fail "record --json: no inspection id"
 
 # A sidecar records two sites at once.
 cat >"$WORK/check.json" <<JSON
-{ "airframe": "TST-0002", "kind": "baseline", "date": "2030-03-10",
+{ "airframe": "TST-0002", "kind": "baseline", "date": "2015-03-10",
   "procedure": "NDT-TEST-01", "procedure_revision": "A", "equipment": "test-rig",
   "calibration": "RS-T1", "inspector": "tester", "inspector_level": "2",
   "parameters": { "note": "sidecar" },
@@ -182,24 +182,24 @@ run "airframes --json" 0 ply airframes --json --type TX-1
 run "sites filter" 0 ply sites --airframe TST-0001 --zone 254 && expect_out "sites filter" "T03"
 grep -q "T01" "$WORK/out" && fail "sites filter: T01 should not match zone 254"
 run "sites unknown airframe" 1 ply sites --airframe NOPE-9 && expect_one_line_err "sites unknown airframe" "NOPE-9"
-run "inspections" 0 ply inspections --airframe TST-0001 --site T01 && expect_out "inspections" "2035-03-01"
+run "inspections" 0 ply inspections --airframe TST-0001 --site T01 && expect_out "inspections" "2020-03-01"
 run "inspections kind" 0 ply inspections --kind scheduled --json
 "$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert len(a)==1 and a[0]["kind"]=="scheduled" and a[0]["cycles"]==6100, a' "$WORK/out" \
     || fail "inspections --kind --json content"
-run "inspections dates" 0 ply inspections --from 2030-02-02 --to 2030-12-31 --json
+run "inspections dates" 0 ply inspections --from 2015-02-02 --to 2015-12-31 --json
 "$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert {x["site"] for x in a}=={"T01","T03"} and all(x["airframe"]=="TST-0002" for x in a), a' "$WORK/out" \
     || fail "inspections --from/--to content"
 run "history" 0 ply history --airframe TST-0001 --site T01 && expect_out "history" "baseline"
 expect_out "history" "phase [rad]"
 head -1 "$WORK/out" | grep -qF "site T01 on airframe TST-0001" || fail "history: header"
 # oldest first
-awk '/2030-02-01/{a=NR} /2035-03-01/{b=NR} END{exit !(a && b && a<b)}' "$WORK/out" || fail "history: order"
+awk '/2015-02-01/{a=NR} /2020-03-01/{b=NR} END{exit !(a && b && a<b)}' "$WORK/out" || fail "history: order"
 run "history --json" 0 ply history --airframe TST-0001 --site T01 --json
 "$PY" -c '
 import json,sys
 h=json.load(open(sys.argv[1]))
 ins=h["inspections"]
-assert [i["date"] for i in ins]==["2030-02-01","2035-03-01"], ins
+assert [i["date"] for i in ins]==["2015-02-01","2020-03-01"], ins
 assert [(c["quantity"],c["unit"]) for c in ins[0]["maps"][0]["channels"]]==[("temperature-contrast","K")]
 assert ins[0]["maps"][0]["width"]==40 and ins[0]["maps"][0]["height"]==30
 assert ins[0]["maps"][0]["pitch_u_mm"]==0.5
@@ -263,7 +263,7 @@ run "summary corrections" 0 ply summary --json
 
 # ---- bad inputs: one line, names the file, store unchanged ---------------------------
 
-rec() { ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-01-01 $TRACE "$@"; }
+rec() { ply record --airframe TST-0001 --site T01 --kind scheduled --date 2021-01-01 $TRACE "$@"; }
 bad "truncated png" 1 "truncated.png" rec --map "$WORK/truncated.png" --quantity phase --unit rad
 bad "rgb png" 1 "rgb.png" rec --map "$WORK/rgb.png" --quantity phase --unit rad
 bad "npy int64" 1 "bad_int64.npy" rec --map "$WORK/bad_int64.npy" --quantity depth
@@ -271,12 +271,12 @@ bad "npy rank" 1 "bad_rank.npy" rec --map "$WORK/bad_rank.npy" --quantity depth
 bad "map size differs" 1 "bad_size.npy" rec --map "$WORK/bad_size.npy" --quantity depth
 bad "missing map file" 1 "no-such.npy" rec --map "$WORK/no-such.npy" --quantity depth
 bad "good then bad map" 1 "bad_int64.npy" rec --map "$WORK/t01_base.npy" --quantity depth --map "$WORK/bad_int64.npy"
-bad "unknown airframe" 1 "NOPE-1" ply record --airframe NOPE-1 --site T01 --kind scheduled --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
-bad "unknown site" 1 "T99" ply record --airframe TST-0001 --site T99 --kind scheduled --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
-bad "second baseline" 1 "baseline" ply record --airframe TST-0001 --site T01 --kind baseline --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
-bad "bad date" 1 "2036-02-30" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-02-30 $TRACE --map "$WORK/t01_base.npy" --quantity depth
-bad "bad kind" 1 "routine" ply record --airframe TST-0001 --site T01 --kind routine --date 2036-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
-bad "missing traceability" 1 "inspector" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2036-01-01 --procedure P --procedure-rev A --equipment E --calibration C --level 2 --map "$WORK/t01_base.npy" --quantity depth
+bad "unknown airframe" 1 "NOPE-1" ply record --airframe NOPE-1 --site T01 --kind scheduled --date 2021-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "unknown site" 1 "T99" ply record --airframe TST-0001 --site T99 --kind scheduled --date 2021-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "second baseline" 1 "baseline" ply record --airframe TST-0001 --site T01 --kind baseline --date 2021-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "bad date" 1 "2021-02-30" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2021-02-30 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "bad kind" 1 "routine" ply record --airframe TST-0001 --site T01 --kind routine --date 2021-01-01 $TRACE --map "$WORK/t01_base.npy" --quantity depth
+bad "missing traceability" 1 "inspector" ply record --airframe TST-0001 --site T01 --kind scheduled --date 2021-01-01 --procedure P --procedure-rev A --equipment E --calibration C --level 2 --map "$WORK/t01_base.npy" --quantity depth
 bad "bad quantity unit" 1 "depth" rec --map "$WORK/t01_base.npy" --quantity depth --unit K
 bad "npy without quantity" 1 "t01_base.npy" rec --map "$WORK/t01_base.npy"
 bad "negative pitch option" 2 "--pitch" rec --map "$WORK/t01_base.npy" --quantity depth --pitch -1
@@ -298,7 +298,7 @@ bad "plan negative pitch" 1 "plan_neg.csv" ply import-plan --airframe TST-0002 "
 bad "plan site already on airframe" 1 "T01" ply import-plan --airframe TST-0002 "$WORK/plan_exists.csv"
 
 cat >"$WORK/bad_sidecar.json" <<'JSON'
-{ "airframe": "TST-0002", "kind": "scheduled", "date": "2036-01-01", "inspecter": "typo",
+{ "airframe": "TST-0002", "kind": "scheduled", "date": "2021-01-01", "inspecter": "typo",
   "sites": [ { "site": "T01" } ] }
 JSON
 bad "sidecar unknown key" 1 "inspecter" ply record --sidecar "$WORK/bad_sidecar.json"
@@ -335,7 +335,7 @@ depth = m[names.index(("depth", "peak d2"))]
 assert abs(float(np.nanmedian(depth[13:18, 18:23])) - 0.8) < 0.12, depth[13:18, 18:23]
 PY
 run "reduce and record" 0 ply reduce "$WORK/seq.json" --at 0.3 --airframe TST-0001 --site T03 \
-    --kind baseline --date 2030-05-05 $TRACE && expect_out "reduce and record" "recorded inspection"
+    --kind baseline --date 2015-05-05 $TRACE && expect_out "reduce and record" "recorded inspection"
 run "reduce history" 0 ply history --airframe TST-0001 --site T03 --json
 "$PY" -c '
 import json,sys
@@ -356,18 +356,18 @@ m["frame_times_s"] = [0.02 * i for i in range(200)]
 m["frame_times_s"][50] = m["frame_times_s"][49]
 json.dump(m, open(p, "w"))
 PY
-bad "sequence times not increasing" 1 "seq_times.json" ply reduce "$WORK/seq_times.json" --airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE
+bad "sequence times not increasing" 1 "seq_times.json" ply reduce "$WORK/seq_times.json" --airframe TST-0001 --site T03 --kind scheduled --date 2016-01-01 $TRACE
 cp "$WORK/seq.npy" "$WORK/short.npy"
 "$PY" -c 'import os,sys; os.truncate(sys.argv[1], os.path.getsize(sys.argv[1]) - 1000)' "$WORK/short.npy"
 sed 's/"seq.npy"/"short.npy"/' "$WORK/seq.json" >"$WORK/seq_short.json"
-bad "truncated sequence" 1 "short.npy" ply reduce "$WORK/seq_short.json" --airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE
-bad "reduce unknown site" 1 "T77" ply reduce "$WORK/seq.json" --airframe TST-0001 --site T77 --kind scheduled --date 2031-01-01 $TRACE
+bad "truncated sequence" 1 "short.npy" ply reduce "$WORK/seq_short.json" --airframe TST-0001 --site T03 --kind scheduled --date 2016-01-01 $TRACE
+bad "reduce unknown site" 1 "T77" ply reduce "$WORK/seq.json" --airframe TST-0001 --site T77 --kind scheduled --date 2016-01-01 $TRACE
 "$PY" - "$WORK/seq.json" "$WORK/seq_pitch.json" <<'PY'
 import json, sys
 m = json.load(open(sys.argv[1])); m["pitch_mm"] = [1.0, 1.0]
 json.dump(m, open(sys.argv[2], "w"))
 PY
-bad "reduce pitch differs from site" 1 "pitch" ply reduce "$WORK/seq_pitch.json" --airframe TST-0001 --site T02 --kind scheduled --date 2031-01-01 $TRACE
+bad "reduce pitch differs from site" 1 "pitch" ply reduce "$WORK/seq_pitch.json" --airframe TST-0001 --site T02 --kind scheduled --date 2016-01-01 $TRACE
 sed 's/"seed": 5,/"seed": 5, "colour": 1,/' "$WORK/scene.json" >"$WORK/scene_bad.json"
 bad "scene unknown key" 1 "scene_bad.json" ply simulate "$WORK/scene_bad.json" --output "$WORK/x.json"
 
@@ -399,8 +399,8 @@ for which in base cur; do
 JSON
     run "simulate $which" 0 ply simulate "$WORK/scene_$which.json" --output "$WORK/seq_$which.json" --no-truth -q
 done
-run "reduce base" 0 ply reduce "$WORK/seq_base.json" --airframe TST-0002 --site T04 --kind baseline --date 2030-06-01 $TRACE -q
-run "reduce cur" 0 ply reduce "$WORK/seq_cur.json" --airframe TST-0002 --site T04 --kind scheduled --date 2036-06-01 $TRACE -q
+run "reduce base" 0 ply reduce "$WORK/seq_base.json" --airframe TST-0002 --site T04 --kind baseline --date 2015-06-01 $TRACE -q
+run "reduce cur" 0 ply reduce "$WORK/seq_cur.json" --airframe TST-0002 --site T04 --kind scheduled --date 2021-06-01 $TRACE -q
 run "register" 0 ply register --airframe TST-0002 --site T04 --aligned "$WORK/aligned.npy" \
     --view "$WORK/view.png" --json
 "$PY" - "$WORK" <<'PY' || fail "register: transform or outputs wrong"
@@ -477,7 +477,7 @@ not_store() {
 ln "$STORE" "$WORK/store-hardlink.npy"
 ln -s "$STORE" "$WORK/store-symlink.npy"
 REG="ply register --airframe TST-0002 --site T04"
-REC="--airframe TST-0001 --site T03 --kind scheduled --date 2031-01-01 $TRACE"
+REC="--airframe TST-0001 --site T03 --kind scheduled --date 2016-01-01 $TRACE"
 for target in "$STORE" "$STORE-wal" "$STORE-shm" "$STORE-journal" "$WORK/store-hardlink.npy" \
               "$WORK/store-symlink.npy"; do
     case $target in
