@@ -1100,6 +1100,94 @@ static void test_store__corrections_keep_the_record_sound(void **state)
     check_integrity(f->path);
 }
 
+/*
+ * Simulated data are marked as such and never stand as the baseline of
+ * real data: not for a real scheduled inspection, not for a registration of
+ * a real map; simulated inspections are counted apart.
+ */
+static void test_store__simulated_never_serves_as_a_real_baseline(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "SIM-0001", "TX-1");
+    add_site(f->st, "SIM-0001", "F01");
+    pl_inspection in = inspection("SIM-0001", "F01", "baseline", "2016-01-10");
+    in.simulated = 1;
+    pl_id base = 0, sim = 0, real = 0;
+    TU_OK(pl_store_add_inspection(f->st, &in, &base, &err));
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    assert_int_equal(got.simulated, 1);
+    pl_inspection_clear(&got);
+    in = inspection("SIM-0001", "F01", "scheduled", "2021-01-10");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "is simulated and cannot be the baseline of a real inspection");
+    in.simulated = 1;
+    TU_OK(pl_store_add_inspection(f->st, &in, &sim, &err));
+    in = inspection("SIM-0001", "F01", "unscheduled", "2022-01-10");
+    TU_OK(pl_store_add_inspection(f->st, &in, &real, &err)); /* rests on no baseline */
+    in.simulated = 7;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err, "simulated");
+
+    pl_map *m = test_map(8, 6, 1, 1.0f);
+    pl_map_record r = map_record(base);
+    pl_id mb = 0, ms = 0, mr = 0;
+    TU_OK(pl_store_add_map(f->st, &r, m, &mb, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = sim;
+    TU_OK(pl_store_add_map(f->st, &r, m, &ms, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = real;
+    TU_OK(pl_store_add_map(f->st, &r, m, &mr, &err));
+    pl_map_free(m);
+    pl_registration_record g;
+    memset(&g, 0, sizeof g);
+    g.baseline_map_id = mb;
+    g.current_map_id = mr;
+    snprintf(g.method, sizeof g.method, "phase-correlation");
+    snprintf(g.status, sizeof g.status, "aligned");
+    g.scale = 1.0;
+    g.ncc = 0.93;
+    g.peak_sidelobe = 41.0;
+    g.overlap_fraction = 0.9;
+    g.overlap_mm2 = 10.8;
+    char *before = dump(f->path);
+    expect_fail(pl_store_add_registration(f->st, &g, NULL, &err), PL_EINVAL, &err,
+                "simulated");
+    tu_assert_msg_has(err.msg, "real");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+    g.current_map_id = ms; /* simulated onto simulated */
+    TU_OK(pl_store_add_registration(f->st, &g, NULL, &err));
+    pl_comparison_record c;
+    memset(&c, 0, sizeof c);
+    c.baseline_inspection = base;
+    c.current_inspection = real;
+    snprintf(c.status, sizeof c.status, "not-done");
+    snprintf(c.not_done_reason, sizeof c.not_done_reason, "not registered");
+    c.uncompared_mm2 = c.uncompared_fraction = NAN;
+    expect_fail(pl_store_add_comparison(f->st, &c, NULL, &err), PL_EINVAL, &err,
+                "is simulated and cannot be the baseline");
+    c.current_inspection = sim;
+    TU_OK(pl_store_add_comparison(f->st, &c, NULL, &err));
+
+    /* nor may a correction make a real scheduled inspection rest on a
+     * simulated baseline */
+    TU_OK(pl_store_get_inspection(f->st, sim, &got, &err));
+    got.simulated = 0;
+    expect_fail(pl_store_correct_inspection(f->st, sim, &got, "was real", NULL, &err),
+                PL_EINVAL, &err, "simulated");
+    pl_inspection_clear(&got);
+
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.inspections, 3);
+    assert_int_equal(sum.simulated_inspections, 2);
+    check_integrity(f->path);
+}
+
 static void test_store__dates_agree_with_sqlite_calendar(void **state)
 {
     (void)state;
@@ -2233,6 +2321,7 @@ int main(void)
         T(test_store__schema_checks_equal_the_vocabularies),
         T(test_store__refuses_inspections_out_of_chronology),
         T(test_store__corrections_keep_the_record_sound),
+        T(test_store__simulated_never_serves_as_a_real_baseline),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
         T(test_store__schema_version_is_the_number_of_schema_files),
 #undef T

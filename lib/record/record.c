@@ -193,6 +193,7 @@ static const text_field text_fields[] = {
     TEXT_FIELD("inspector_level", inspector_level),
     TEXT_FIELD("software_version", software_version),
     TEXT_FIELD("notes", notes),
+    TEXT_FIELD("hours_reason", hours_reason),
 };
 
 /* Apply the inspection keys of JSON object `obj` onto `insp`; `where`
@@ -226,6 +227,11 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
             if (!cJSON_IsNumber(it) || !(it->valuedouble >= 0) || it->valuedouble != floor(it->valuedouble))
                 return pl__err(err, PL_EFORMAT, "%s: %s: \"cycles\" must be a whole number >= 0", file, where);
             insp->aircraft_cycles = (int64_t)it->valuedouble;
+        } else if (strcmp(k, "simulated") == 0) {
+            if (!cJSON_IsBool(it))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"simulated\" must be true (the data "
+                               "come from a simulation) or false", file, where);
+            insp->simulated = cJSON_IsTrue(it);
         } else if (strcmp(k, "parameters") == 0) {
             if (!cJSON_IsObject(it))
                 return pl__err(err, PL_EFORMAT, "%s: %s: \"parameters\" must be an object", file, where);
@@ -313,15 +319,19 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *a
 {
     if (!cJSON_IsObject(obj))
         return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", at);
-    const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL;
+    const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL, *jinf = NULL;
     for (const cJSON *it = obj->child; it; it = it->next) {
         if (strcmp(it->string, "file") == 0) jfile = it;
         else if (strcmp(it->string, "channels") == 0) jch = it;
         else if (strcmp(it->string, "pitch_mm") == 0) jpitch = it;
         else if (strcmp(it->string, "placement") == 0) jplace = it;
+        else if (strcmp(it->string, "infinite_as_no_data") == 0) jinf = it;
         else
             return pl__err(err, PL_EFORMAT, "%s: unknown key \"%s\"", at, it->string);
     }
+    if (jinf && !cJSON_IsBool(jinf))
+        return pl__err(err, PL_EFORMAT, "%s: \"infinite_as_no_data\" must be true or false",
+                       at);
     if (!cJSON_IsString(jfile) || !*jfile->valuestring)
         return pl__err(err, PL_EFORMAT, "%s: a map needs \"file\" (a file name)", at);
     double pu = NAN, pv = NAN;
@@ -373,6 +383,7 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *a
     int rc = located(add_map(rec, site, path, ch, n, pu, pv, err), at, err);
     if (rc)
         return rc;
+    rec->sites[site].maps[rec->sites[site].nmaps - 1].infinite_as_nodata = cJSON_IsTrue(jinf);
     if (jplace) {
         pl_record_site *s = &rec->sites[site];
         pl_record_map *m = &s->maps[s->nmaps - 1];
@@ -632,16 +643,25 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
         for (size_t j = 0; j < s->nmaps && !rc; j++) {
             pl_record_map *req = &s->maps[j];
             pl_map *map = NULL;
-            rc = pl_map_load(&map, req->path, err);
+            /* what the load did to the values is recorded with the map */
+            pl_map_load_options lo = PL_MAP_LOAD_OPTIONS_INIT;
+            lo.infinite = req->infinite_as_nodata ? PL_MAP_INFINITE_TO_NAN
+                                                  : PL_MAP_INFINITE_REFUSE;
+            pl_map_load_info info;
+            memset(&info, 0, sizeof info);
+            char params[160];
+            rc = pl_map_load_v2(&map, &info, req->path, &lo, err);
             if (!rc)
                 rc = complete_map(map, req, &site, err);
+            if (!rc && pl_map_load_info_json(params, sizeof params, &info) >= (int)sizeof params)
+                rc = pl__err(err, PL_ENOMEM, "%s: the load's record does not fit", req->path);
             if (!rc) {
                 pl_map_record mr;
                 memset(&mr, 0, sizeof mr);
                 mr.inspection_key = s->inspection_key;
                 snprintf(mr.source, sizeof mr.source, "%s", pl__basename(req->path));
                 snprintf(mr.origin, sizeof mr.origin, "%s", made_by_for(req->path));
-                mr.parameters_json = NULL;
+                mr.parameters_json = params;
                 rc = pl_store_add_map(store, &mr, map, &req->map_id, err);
             }
             pl_map_free(map);
@@ -663,11 +683,27 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
     return name_source(pl_store_commit(store, err), rec, err);
 }
 
-PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,
+/* Whether a making's parameters say the data were simulated: the
+ * simulator writes a "simulation" object into the sequence manifest's
+ * acquisition, which a reduction records as its "acquisition". */
+static int parameters_simulated(const char *parameters_json)
+{
+    cJSON *j = parameters_json ? cJSON_Parse(parameters_json) : NULL;
+    const cJSON *acq = cJSON_GetObjectItemCaseSensitive(j, "acquisition");
+    int sim = cJSON_IsObject(cJSON_GetObjectItemCaseSensitive(acq, "simulation"));
+    cJSON_Delete(j);
+    return sim;
+}
+
+PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *given, pl_map *map,
                                        const char *made_by, const char *source,
                                        const char *parameters_json, pl_id *inspection_key,
                                        pl_id *map_id, pl_err *err)
 {
+    pl_inspection marked = *given;
+    if (parameters_simulated(parameters_json))
+        marked.simulated = 1;
+    const pl_inspection *insp = &marked;
     pl_site site;
     int rc = pl_store_get_site(store, insp->airframe_serial, insp->site_code, &site, err);
     if (rc)
@@ -712,6 +748,7 @@ PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *ins
 
 typedef struct pair_scan {
     pl_id baseline, latest;
+    int baseline_simulated, latest_simulated;
     char latest_date[PL_DATE_SIZE];
 } pair_scan;
 
@@ -720,8 +757,10 @@ static int scan_inspection(void *ud, const pl_inspection *in)
     pair_scan *p = ud;
     if (strcmp(in->kind, "baseline") == 0) {
         p->baseline = in->key;
+        p->baseline_simulated = in->simulated;
     } else if (strcmp(in->performed_on, p->latest_date) >= 0) {
         p->latest = in->key;
+        p->latest_simulated = in->simulated;
         snprintf(p->latest_date, sizeof p->latest_date, "%s", in->performed_on);
     }
     return 0;
@@ -779,6 +818,7 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
     if (!p.baseline)
         return pl__err(err, PL_ENOTFOUND, "%s site %s has no baseline inspection", serial, code);
     pair->baseline_inspection = p.baseline;
+    int current_simulated = p.latest_simulated;
     if (pair->current_inspection) {
         pl_inspection in;
         memset(&in, 0, sizeof in);
@@ -786,6 +826,7 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
             return rc;
         int same = strcmp(in.airframe_serial, serial) == 0 && strcmp(in.site_code, code) == 0;
         int base = strcmp(in.kind, "baseline") == 0;
+        current_simulated = in.simulated;
         pl_inspection_clear(&in);
         if (!same)
             return pl__err(err, PL_ENOMATCH, "inspection %lld is not of %s site %s",
@@ -799,6 +840,10 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
         return pl__err(err, PL_ENOTFOUND, "%s site %s has no inspection after its baseline",
                        serial, code);
     }
+    if (p.baseline_simulated == 1 && current_simulated == 0)
+        return pl__err(err, PL_EINVAL, "%s site %s: the baseline (inspection %lld) is simulated "
+                       "and cannot be the baseline of inspection %lld, which is real", serial,
+                       code, (long long)p.baseline, (long long)pair->current_inspection);
     if ((rc = inspection_map(store, pair->baseline_inspection, &pair->baseline_map, "baseline",
                              err)))
         return rc;

@@ -648,6 +648,10 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT count(*) FROM ledger", &sum->ledger_links },
         { "SELECT count(*) FROM registration", &sum->registrations },
         { "SELECT coalesce(sum(length(data)), 0) FROM map", &sum->map_bytes },
+        { "SELECT count(*) FROM inspection_current WHERE simulated = 1",
+          &sum->simulated_inspections },
+        { "SELECT count(*) FROM inspection_current WHERE simulated IS NULL",
+          &sum->unknown_inspections },
     };
     for (size_t i = 0; !rc && i < sizeof counts / sizeof counts[0]; i++)
         rc = pl_store__query_int(s, counts[i].sql, counts[i].out, err);

@@ -546,6 +546,20 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }
 
+int pl_store__map_inspection(pl_store *s, pl_id map_id, pl_id *inspection_key, pl_err *err)
+{
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "%s: map %lld", s->path, (long long)map_id);
+    sqlite3_stmt *st;
+    int rc = pl_store__row_by_id(s, &st, "SELECT inspection_key FROM map WHERE id = ?1", map_id,
+                                 err, label, "no such map");
+    if (rc)
+        return rc;
+    *inspection_key = sqlite3_column_int64(st, 0);
+    sqlite3_finalize(st);
+    return PL_OK;
+}
+
 /* Channels of map `id` into `ch` (room for n), checking they are 0..n-1. */
 static int read_channels(pl_store *s, pl_id id, pl_channel *ch, uint32_t n, pl_err *err,
                          const char *label)

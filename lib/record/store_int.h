@@ -134,6 +134,10 @@ int pl_store__airframe_key(pl_store *s, const char *serial, pl_id *key, pl_id *c
 int pl_store__site_key(pl_store *s, pl_id af_key, const char *code, pl_id *key, pl_id *current,
                        pl_err *err, const char *label);
 
+/* The key of the inspection map `map_id` belongs to (store_inspection.c);
+ * PL_ENOTFOUND when there is no such map. */
+int pl_store__map_inspection(pl_store *s, pl_id map_id, pl_id *inspection_key, pl_err *err);
+
 /* The latest operator's `col` of the airframe `t` (a current row) in SQL. */
 #define PL_STORE_LATEST_OPERATOR(col) \
     "(SELECT o." col " FROM airframe_operator o WHERE o.airframe_key = t.stable_key " \

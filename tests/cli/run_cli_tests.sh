@@ -430,7 +430,7 @@ import json, sys
 r = json.load(open(sys.argv[1]))
 h = json.load(open(sys.argv[2]))
 g = [x for x in h["inspections"][-1]["maps"][0]["registrations"] if x["registration"] == r["registration"]][0]
-for k in ("airframe", "site", "baseline_inspection", "current_inspection", "comparison_not_done", "aligned", "view"):
+for k in ("caution", "airframe", "site", "baseline_inspection", "current_inspection", "simulated", "comparison_not_done", "aligned", "view"):
     del r[k]
 assert r == g, (r, g)
 PY

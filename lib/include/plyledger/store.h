@@ -473,7 +473,8 @@ typedef struct pl_registration_record {
  * earlier than the current map's (by date, then as recorded);
  * "aligned" and "manual" need the transform (finite shift, rotation, scale
  * > 0) and the overlap; "refused" needs the refusal; "manual" needs who and
- * why.
+ * why. A map of a simulated inspection is never the baseline of a map of a
+ * real one.
  * @return PL_OK, PL_EINVAL (including a baseline map that is not earlier),
  *         PL_ENOTFOUND (a map), PL_ENOMATCH (maps of different sites), PL_EDB.
  */
@@ -503,7 +504,8 @@ typedef struct pl_comparison_record {
 } pl_comparison_record;
 
 /**
- * Record a comparison (its classified changes come with later work).
+ * Record a comparison (its classified changes come with later work). A
+ * simulated inspection is never the baseline of a real one.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_ENOMATCH (inspections of
  *         different sites), PL_EDB.
  */
@@ -530,6 +532,9 @@ typedef struct pl_store_summary {
     int64_t map_bytes;                 /**< compressed map data */
     char first_inspection[PL_DATE_SIZE];
     char last_inspection[PL_DATE_SIZE];
+    int64_t simulated_inspections;     /**< current inspections of simulated data */
+    int64_t unknown_inspections;       /**< current inspections recorded before the store
+                                            said whether they were simulated (schema 2) */
 } pl_store_summary;
 
 /** Counts and dates of the whole store into [out] sum. @return PL_OK, PL_EDB. */
