@@ -351,3 +351,8 @@ const char *cli_fmt_num(char *buf, size_t size, double v)
         snprintf(buf, size, "%g", v);
     return buf;
 }
+
+void cli_print_caution(void)
+{
+    printf("\nCaution: %s\n", pl_caution());
+}
