@@ -9,6 +9,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 
 const char *cli_current = "plyledger";
@@ -125,8 +126,18 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
         common->store = NULL;
     optind = 1;
     opterr = 0;
-    int rc = -1, opt;
-    while (rc < 0 && (opt = getopt_long(argc, argv, shorts, all, NULL)) != -1) {
+    int rc = -1, opt, li = -1;
+    while (rc < 0 && (li = -1, opt = getopt_long(argc, argv, shorts, all, &li)) != -1) {
+        /* No option takes an empty value: '' is a slip (an unset shell
+         * variable), never a date, a path or a name. */
+        if (optarg && !*optarg && opt != ':' && opt != '?') {
+            if (li >= 0)
+                rc = cli_usage_error(usage, "option '--%s' needs a value, not an empty one",
+                                     all[li].name);
+            else
+                rc = cli_usage_error(usage, "option '-%c' needs a value, not an empty one", opt);
+            break;
+        }
         switch (opt) {
         case 's': common->store = optarg; break;
         case 'q': common->quiet = 1; break;
@@ -176,6 +187,16 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     }
     if (rc)
         return cli_fail_err(rc, &err);
+    /* the library reads no clock: today is the local calendar date here */
+    char today[16];
+    time_t now = time(NULL);
+    struct tm tm;
+    if (!localtime_r(&now, &tm) || !strftime(today, sizeof today, "%Y-%m-%d", &tm) ||
+        (rc = pl_store_set_today(*out, today, &err))) {
+        pl_store_close(*out);
+        *out = NULL;
+        return rc ? cli_fail_err(rc, &err) : cli_fail("cannot read today's date from the clock");
+    }
     return CLI_OK;
 }
 
@@ -403,4 +424,9 @@ const char *cli_fmt_num(char *buf, size_t size, double v)
     else
         snprintf(buf, size, "%g", v);
     return buf;
+}
+
+void cli_print_caution(void)
+{
+    printf("\nCaution: %s\n", pl_caution());
 }

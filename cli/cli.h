@@ -158,7 +158,8 @@ int cli_read_json_object(const char *path, char **out);
 enum {
     CLI_O_AIRFRAME = 0x300, CLI_O_SITE, CLI_O_KIND, CLI_O_DATE, CLI_O_TASK, CLI_O_HOURS,
     CLI_O_CYCLES, CLI_O_PROCEDURE, CLI_O_PROCEDURE_REV, CLI_O_EQUIPMENT, CLI_O_CALIBRATION,
-    CLI_O_INSPECTOR, CLI_O_LEVEL, CLI_O_NOTES, CLI_O_PARAMETERS, CLI_O_INSPECTION_END,
+    CLI_O_INSPECTOR, CLI_O_LEVEL, CLI_O_NOTES, CLI_O_PARAMETERS, CLI_O_SIMULATED,
+    CLI_O_HOURS_REASON, CLI_O_INSPECTION_END,
 };
 
 /* The entries to put in a command's struct option table. */
@@ -177,14 +178,17 @@ enum {
     { "inspector", required_argument, NULL, CLI_O_INSPECTOR }, \
     { "level", required_argument, NULL, CLI_O_LEVEL }, \
     { "notes", required_argument, NULL, CLI_O_NOTES }, \
-    { "parameters", required_argument, NULL, CLI_O_PARAMETERS }
+    { "parameters", required_argument, NULL, CLI_O_PARAMETERS }, \
+    { "simulated", no_argument, NULL, CLI_O_SIMULATED }, \
+    { "hours-reason", required_argument, NULL, CLI_O_HOURS_REASON }
 
 typedef struct cli_inspection_args {
     const char *airframe, *site, *kind, *date, *task, *procedure, *procedure_rev, *equipment,
-        *calibration, *inspector, *level, *notes, *parameters;
+        *calibration, *inspector, *level, *notes, *parameters, *hours_reason;
     double hours;
     long long cycles;
     int has_hours, has_cycles;
+    int simulated;  /* -1 not given, else the value to record */
 } cli_inspection_args;
 
 /* Help text for those options. */
@@ -198,6 +202,10 @@ int cli_inspection_given(const cli_inspection_args *a);
 /* Write the given options over `in`; params (may be NULL) replaces the
  * parameters. 0, or CLI_USAGE / CLI_ERROR (printed). */
 int cli_inspection_apply(const cli_inspection_args *a, pl_inspection *in, const char *params);
+
+/* Print the caution (pl_caution()) as the last line of a text output that
+ * shows a record supporting a decision. */
+void cli_print_caution(void);
 
 /* Subcommands. */
 int cmd_create(int argc, char **argv);

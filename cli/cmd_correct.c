@@ -22,6 +22,7 @@ static const char help[] =
     "  --kind KIND  --date DATE  --task REF  --hours N  --cycles N\n"
     "  --procedure REF  --procedure-rev REV  --equipment TEXT  --calibration REF\n"
     "  --inspector NAME  --level LEVEL  --notes TEXT  --parameters FILE\n"
+    "  --hours-reason TEXT (\"\" clears it)  --simulated  --not-simulated\n"
     "Site fields:\n"
     "  --zone Z  --description TEXT  --frame F  --stringer S  --material M\n"
     "  --thickness MM  --diffusivity MM2_S  --method METHOD\n"
@@ -40,12 +41,13 @@ static const char help[] =
     "  -h, --help             show this help\n";
 
 enum {
-    O_INSPECTION = 0x100, O_REASON, O_ZONE, O_DESCRIPTION, O_FRAME, O_STRINGER, O_MATERIAL,
+    O_INSPECTION = 0x100, O_REASON, O_NOT_SIMULATED, O_ZONE, O_DESCRIPTION, O_FRAME, O_STRINGER, O_MATERIAL,
     O_THICKNESS, O_DIFFUSIVITY, O_METHOD, O_ORIGIN, O_U, O_V, O_WIDTH, O_HEIGHT, O_PITCH,
 };
 static const struct option opts[] = {
     { "inspection", required_argument, NULL, O_INSPECTION },
     { "reason", required_argument, NULL, O_REASON },
+    { "not-simulated", no_argument, NULL, O_NOT_SIMULATED },
     CLI_INSPECTION_OPTIONS,
     { "zone", required_argument, NULL, O_ZONE },
     { "description", required_argument, NULL, O_DESCRIPTION },
@@ -81,6 +83,8 @@ static int take_opt(void *ctx, int opt, const char *arg)
         a->inspection = arg;
     else if (opt == O_REASON)
         a->reason = arg;
+    else if (opt == O_NOT_SIMULATED)
+        a->insp.simulated = 0;
     else if (opt >= O_ZONE && opt <= O_PITCH) {
         a->site[opt - O_ZONE] = arg;
         a->site_fields++;

@@ -20,7 +20,9 @@ static const char help[] =
     "          (scale, offset, nodata, quantity, unit, pitch); re-imports exactly\n"
     "          to the quantisation step\n"
     "  npy     float32 NumPy array of all channels (2-D, or channels x rows x cols)\n"
-    "  render  8-bit colour picture of one channel with a colour bar and a scale bar\n"
+    "  render  8-bit colour picture of one channel with a colour bar and a scale bar,\n"
+    "          named by airframe, site, date, map and quantity (SIMULATED first for\n"
+    "          simulated data)\n"
     "The default format follows the file name: .npy gives npy, .png gives png.\n"
     "\n"
     "Options:\n"
@@ -142,17 +144,13 @@ int cmd_export_map(int argc, char **argv)
     pl_map_record rec;
     memset(&rec, 0, sizeof rec);
     int st = pl_store_load_map(store, (pl_id)a.map_id, &map, &rec, &err);
-    /* what a rendering names: airframe, site, date, map (the quantity follows) */
+    /* what a rendering names: airframe, site, date, map (the quantity
+     * follows), and whether the data are simulated */
     char ident[PL_RENDER_IDENTIFICATION_SIZE] = "";
-    if (!st) {
-        pl_inspection insp;
-        memset(&insp, 0, sizeof insp);
-        st = pl_store_get_inspection(store, rec.inspection_key, &insp, &err);
-        if (!st)
-            pl_render_identification(ident, sizeof ident, insp.airframe_serial, insp.site_code,
-                                     insp.performed_on, a.map_id, NULL);
-        pl_inspection_clear(&insp);
-    }
+    int simulated = 0;
+    if (!st)
+        st = pl_history_identification(ident, sizeof ident, &simulated, store, (pl_id)a.map_id,
+                                       0, NULL, &err);
     pl_store_close(store);
     if (st) {
         free(rec.parameters_json);
@@ -185,6 +183,7 @@ int cmd_export_map(int argc, char **argv)
         size_t n = strlen(ident);
         snprintf(ident + n, sizeof ident - n, " %s", map->channels[channel].quantity);
         a.ropts.identification = ident;
+        a.ropts.simulated = simulated;
         st = pl_render_map(&img, map, (uint32_t)channel, &a.ropts, &err);
         if (!st)
             st = pl_image_save_png(img, a.output, &err);

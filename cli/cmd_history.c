@@ -14,8 +14,9 @@ static const char help[] =
     "Show a site's whole record: where it is on the airframe, then every\n"
     "inspection of it, oldest first, with who did it, how, the maps it produced\n"
     "(size, pitch, quantities and content digest), each map's registrations onto\n"
-    "the baseline and the inspection's comparisons. --json gives the same record,\n"
-    "each registration in the shape 'plyledger register --json' prints.\n"
+    "the baseline and the inspection's comparisons. An inspection of simulated data\n"
+    "says SIMULATED DATA. --json gives the same record, each registration in the\n"
+    "shape 'plyledger register --json' prints.\n"
     "\n"
     "Options:\n"
     "      --airframe SERIAL  the airframe (required)\n"
@@ -117,8 +118,12 @@ static void print_inspection(const pl_inspection *in)
         snprintf(cycles, sizeof cycles, "%lld", (long long)in->aircraft_cycles);
     else
         snprintf(cycles, sizeof cycles, "-");
-    printf("\n  %s  %-11s inspection %lld  task %s  FH %s  FC %s\n", in->performed_on, in->kind,
-           (long long)in->key, in->task_ref[0] ? in->task_ref : "-", hours, cycles);
+    printf("\n  %s  %-11s inspection %lld  task %s  FH %s  FC %s%s\n", in->performed_on,
+           in->kind, (long long)in->key, in->task_ref[0] ? in->task_ref : "-", hours, cycles,
+           in->simulated == 1 ? "  SIMULATED DATA"
+           : in->simulated < 0 ? "  (simulated or real: not recorded)" : "");
+    if (in->hours_reason[0])
+        printf("      hours and cycles out of order: %s\n", in->hours_reason);
     printf("      procedure %s rev %s; inspector %s (level %s)\n", in->procedure,
            in->procedure_rev, in->inspector, in->inspector_level);
     printf("      equipment: %s\n", in->equipment);
@@ -167,5 +172,6 @@ int cmd_history(int argc, char **argv)
             print_comparison(&hi->comparisons[j]);
     }
     pl_history_free(h);
+    cli_print_caution();
     return CLI_OK;
 }

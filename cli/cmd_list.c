@@ -224,7 +224,8 @@ static const char insp_help[] =
     "usage: plyledger inspections [--airframe SERIAL] [--site CODE] [--kind KIND]\n"
     "                             [--from DATE] [--to DATE] [--json]\n"
     "\n"
-    "List recorded inspections, oldest first.\n"
+    "List recorded inspections, oldest first. DATA says whether an inspection's data\n"
+    "come from a simulation (simulated) or from the part (real).\n"
     "\n"
     "Options:\n"
     "      --airframe SERIAL  only this airframe\n"
@@ -259,6 +260,7 @@ static int on_inspection(void *ud, const pl_inspection *in)
     else
         snprintf(cycles, sizeof cycles, "-");
     const char *row[] = { id, in->performed_on, in->airframe_serial, in->site_code, in->kind,
+                          pl_history_data_word(in->simulated),
                           in->task_ref[0] ? in->task_ref : "-", hours, cycles, in->inspector };
     cli_table_row(s->table, row);
     return 0;
@@ -280,10 +282,10 @@ int cmd_inspections(int argc, char **argv)
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
-    const char *hdr[] = { "INSPECTION", "DATE", "AIRFRAME", "SITE", "KIND", "TASK", "HOURS",
-                          "CYCLES", "INSPECTOR" };
+    const char *hdr[] = { "INSPECTION", "DATE", "AIRFRAME", "SITE", "KIND", "DATA", "TASK",
+                          "HOURS", "CYCLES", "INSPECTOR" };
     sink s;
-    sink_init(&s, &common, 9, hdr);
+    sink_init(&s, &common, 10, hdr);
     pl_inspection_filter f = { a.airframe, a.site, a.kind, a.from, a.to };
     int st = PL_OK;
     if (a.airframe && a.site) {

@@ -27,6 +27,9 @@ static const char help_tail[] =
     "                            (see 'plyledger quantities'); needed for .npy/.csv\n"
     "      --unit LIST           their units (default: each quantity's usual unit)\n"
     "      --pitch MM[,MM]       mm per pixel along u[,v] (default: file, else site)\n"
+    "      --infinite-as-no-data an infinite value in a map becomes no data instead of\n"
+    "                            refusing the file; the option and the count are\n"
+    "                            recorded with the map\n"
     "Common:\n"
     "  -s, --store PATH          the store (default $PLYLEDGER_STORE)\n"
     "      --wait SECONDS        @WAIT@\n"
@@ -34,7 +37,7 @@ static const char help_tail[] =
     "  -q, --quiet               no progress, nothing printed on success\n"
     "  -h, --help                show this help\n";
 
-enum { O_SIDECAR = 0x100, O_MAP, O_QUANTITY, O_UNIT, O_PITCH };
+enum { O_SIDECAR = 0x100, O_MAP, O_QUANTITY, O_UNIT, O_PITCH, O_INFINITE };
 
 static const struct option opts[] = {
     { "sidecar", required_argument, NULL, O_SIDECAR },
@@ -43,6 +46,7 @@ static const struct option opts[] = {
     { "quantity", required_argument, NULL, O_QUANTITY },
     { "unit", required_argument, NULL, O_UNIT },
     { "pitch", required_argument, NULL, O_PITCH },
+    { "infinite-as-no-data", no_argument, NULL, O_INFINITE },
     { NULL, 0, NULL, 0 },
 };
 
@@ -54,6 +58,7 @@ typedef struct record_args {
     double pitch_u, pitch_v;
     const char *maps[MAX_MAPS];
     int nmaps;
+    int infinite_as_nodata;
 } record_args;
 
 static int take_opt(void *ctx, int opt, const char *arg)
@@ -64,6 +69,7 @@ static int take_opt(void *ctx, int opt, const char *arg)
     case O_QUANTITY: a->quantity = arg; break;
     case O_UNIT: a->unit = arg; break;
     case O_PITCH: return cli_pitch("--pitch", arg, &a->pitch_u, &a->pitch_v, usage);
+    case O_INFINITE: a->infinite_as_nodata = 1; break;
     case O_MAP:
         if (a->nmaps == MAX_MAPS)
             return cli_usage_error(usage, "at most %d --map files", MAX_MAPS);
@@ -89,6 +95,7 @@ static int report(const pl_record *rec, const cli_common *common)
             cJSON_AddStringToObject(o, "site", s->insp.site_code);
             cJSON_AddStringToObject(o, "kind", s->insp.kind);
             cJSON_AddStringToObject(o, "date", s->insp.performed_on);
+            cJSON_AddBoolToObject(o, "simulated", s->insp.simulated == 1);
             cJSON_AddNumberToObject(o, "inspection", (double)s->inspection_key);
             cJSON *maps = cJSON_AddArrayToObject(o, "maps");
             for (size_t j = 0; j < s->nmaps; j++)
@@ -99,8 +106,8 @@ static int report(const pl_record *rec, const cli_common *common)
     }
     if (common->quiet)
         return CLI_OK;
-    const char *hdr[] = { "AIRFRAME", "SITE", "KIND", "DATE", "INSPECTION", "MAPS" };
-    cli_table *t = cli_table_new(6, hdr);
+    const char *hdr[] = { "AIRFRAME", "SITE", "KIND", "DATE", "DATA", "INSPECTION", "MAPS" };
+    cli_table *t = cli_table_new(7, hdr);
     for (size_t i = 0; i < rec->nsites; i++) {
         const pl_record_site *s = &rec->sites[i];
         char id[32], maps[256] = "";
@@ -111,7 +118,8 @@ static int report(const pl_record *rec, const cli_common *common)
                      (long long)s->maps[j].map_id);
         }
         const char *row[] = { s->insp.airframe_serial, s->insp.site_code, s->insp.kind,
-                              s->insp.performed_on, id, s->nmaps ? maps : "-" };
+                              s->insp.performed_on, pl_history_data_word(s->insp.simulated), id,
+                              s->nmaps ? maps : "-" };
         cli_table_row(t, row);
     }
     cli_table_print(t, stdout);
@@ -141,8 +149,12 @@ int cmd_record(int argc, char **argv)
     if (a.sidecar && (a.insp.site || a.nmaps))
         return cli_usage_error(usage, "--site and --map go without --sidecar; "
                                       "list sites and maps in the sidecar instead");
-    if (!a.nmaps && (a.quantity || a.unit || !isnan(a.pitch_u)))
-        return cli_usage_error(usage, "--quantity, --unit and --pitch describe --map files");
+    if (!a.sidecar && !a.nmaps)
+        return cli_usage_error(usage, "give at least one --map FILE: an inspection is recorded "
+                                      "with the maps it produced");
+    if (!a.nmaps && (a.quantity || a.unit || !isnan(a.pitch_u) || a.infinite_as_nodata))
+        return cli_usage_error(usage, "--quantity, --unit, --pitch and --infinite-as-no-data "
+                                      "describe --map files (a sidecar says them per map)");
 
     pl_err err = { 0 };
     pl_record *rec = NULL;
@@ -169,9 +181,12 @@ int cmd_record(int argc, char **argv)
         st = pl_record_new(&rec, &err);
         if (!st)
             st = pl_record_add_site(rec, &in, &idx, &err);
-        for (int i = 0; !st && i < a.nmaps; i++)
+        for (int i = 0; !st && i < a.nmaps; i++) {
             st = pl_record_add_map(rec, idx, a.maps[i], a.quantity, a.unit, a.pitch_u,
                                    a.pitch_v, &err);
+            if (!st)
+                rec->sites[idx].maps[i].infinite_as_nodata = a.infinite_as_nodata;
+        }
         if (st) {
             free(params);
             pl_record_free(rec);

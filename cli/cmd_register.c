@@ -45,7 +45,8 @@ static const char help[] =
     "      --why TEXT           why\n"
     "Output:\n"
     "      --aligned FILE.npy   the current map resampled onto the baseline grid\n"
-    "      --view FILE.png      a picture of the alignment\n"
+    "      --view FILE.png      a picture of the alignment, named by airframe, site,\n"
+    "                           dates, maps and quantity\n"
     "      --view-mode M        checkerboard (default) or blend\n"
     "  -s, --store PATH         the store (default $PLYLEDGER_STORE)\n"
     "      --wait SECONDS       @WAIT@\n"
@@ -184,9 +185,12 @@ static int print_result(const pl_registration_summary *sum, const cli_common *co
     printf("  current map %lld (inspection %lld) onto baseline map %lld (inspection %lld)\n",
            (long long)pair->current_map, (long long)pair->current_inspection,
            (long long)pair->baseline_map, (long long)pair->baseline_inspection);
+    if (sum->simulated)
+        printf("  data       SIMULATED\n");
     if (strcmp(g->status, "refused") == 0) {
         printf("  refused: %s\n", g->refusal);
         printf("  comparison %lld recorded as not done\n", (long long)sum->comparison_not_done);
+        cli_print_caution();
         return CLI_OK;
     }
     printf("  shift      %+.3f, %+.3f px  (%+.3f mm along u, %+.3f mm along v)\n",
@@ -200,6 +204,7 @@ static int print_result(const pl_registration_summary *sum, const cli_common *co
         printf("  wrote %s\n", sum->aligned);
     if (sum->view)
         printf("  wrote %s\n", sum->view);
+    cli_print_caution();
     return CLI_OK;
 }
 
@@ -270,6 +275,16 @@ int cmd_register(int argc, char **argv)
         pl_render_options ropts = PL_RENDER_OPTIONS_INIT;
         int cb = 0, cc = 0; /* the channels registered on */
         st = pl_register_channels(&cb, &cc, base, aligned, a.quantity, a.label, &err);
+        /* named like a rendering of the current map, with the baseline map it
+         * was laid onto */
+        char ident[PL_RENDER_IDENTIFICATION_SIZE];
+        int simulated = 0;
+        if (!st)
+            st = pl_history_identification(ident, sizeof ident, &simulated, store,
+                                           pair.current_map, pair.baseline_map,
+                                           aligned->channels[cc].quantity, &err);
+        ropts.identification = ident;
+        ropts.simulated = simulated;
         if (!st)
             st = pl_render_pair(&img, base, (uint32_t)cb, aligned, (uint32_t)cc, a.view_mode, 0,
                                 &ropts, &err);

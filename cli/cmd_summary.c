@@ -10,8 +10,8 @@ static const char help[] =
     "usage: plyledger summary [--json]\n"
     "\n"
     "Show what the store holds: its identity and schema, how many airframes,\n"
-    "sites, inspections (by kind) and maps, the span of inspection dates, and how\n"
-    "many records were corrected.\n"
+    "sites, inspections (by kind, and how many are of simulated data) and maps, the\n"
+    "span of inspection dates, and how many records were corrected.\n"
     "\n"
     "Options:\n"
     "  -s, --store PATH   the store (default $PLYLEDGER_STORE)\n"
@@ -47,6 +47,11 @@ int cmd_summary(int argc, char **argv)
     for (size_t i = 0; i < kinds->count; i++)
         printf("%s%s %lld", i ? ", " : "", kinds->words[i], (long long)s.inspections_by_kind[i]);
     printf(")\n");
+    if (s.simulated_inspections || s.unknown_inspections)
+        printf("             %lld of simulated data%s", (long long)s.simulated_inspections,
+               s.unknown_inspections ? "" : "\n");
+    if (s.unknown_inspections)
+        printf(", %lld recorded before the store said\n", (long long)s.unknown_inspections);
     if (s.first_inspection[0])
         printf("performed    %s to %s\n", s.first_inspection, s.last_inspection);
     printf("maps         %lld (%.1f MiB stored)\n", (long long)s.maps,
@@ -55,6 +60,7 @@ int cmd_summary(int argc, char **argv)
     printf("registrations %lld\n", (long long)s.registrations);
     printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
            (long long)s.comparisons, (long long)s.dispositions);
+    cli_print_caution();
     return CLI_OK;
 }
 

@@ -25,12 +25,17 @@ const char cli_inspection_help[] =
     "      --inspector NAME      who performed it\n"
     "      --level LEVEL         the inspector's level: 1-limited, 1, 2 or 3\n"
     "      --notes TEXT          free notes\n"
-    "      --parameters FILE     processing parameters, a JSON object\n";
+    "      --parameters FILE     processing parameters, a JSON object\n"
+    "      --simulated           the data come from a simulation, not from the part\n"
+    "                            (a simulated inspection is never a real one's baseline)\n"
+    "      --hours-reason TEXT   why the hours or cycles are fewer than an earlier\n"
+    "                            inspection's (a documented records correction)\n";
 
 void cli_inspection_init(cli_inspection_args *a)
 {
     memset(a, 0, sizeof *a);
     a->hours = NAN;
+    a->simulated = -1;
 }
 
 int cli_inspection_take(cli_inspection_args *a, int opt, const char *arg, const char *usage)
@@ -49,6 +54,8 @@ int cli_inspection_take(cli_inspection_args *a, int opt, const char *arg, const 
     case CLI_O_LEVEL: a->level = arg; break;
     case CLI_O_NOTES: a->notes = arg; break;
     case CLI_O_PARAMETERS: a->parameters = arg; break;
+    case CLI_O_HOURS_REASON: a->hours_reason = arg; break;
+    case CLI_O_SIMULATED: a->simulated = 1; break;
     case CLI_O_HOURS:
         a->has_hours = 1;
         if (cli_number("--hours", arg, &a->hours, usage))
@@ -69,7 +76,8 @@ int cli_inspection_given(const cli_inspection_args *a)
 {
     return a->airframe || a->site || a->kind || a->date || a->task || a->procedure
            || a->procedure_rev || a->equipment || a->calibration || a->inspector || a->level
-           || a->notes || a->parameters || a->has_hours || a->has_cycles;
+           || a->notes || a->parameters || a->has_hours || a->has_cycles || a->hours_reason
+           || a->simulated >= 0;
 }
 
 int cli_read_json_object(const char *path, char **out)
@@ -124,8 +132,12 @@ int cli_inspection_apply(const cli_inspection_args *a, pl_inspection *in, const 
                           "--calibration"))
         || (rc = cli_text(in->inspector, sizeof in->inspector, a->inspector, "--inspector"))
         || (rc = cli_text(in->inspector_level, sizeof in->inspector_level, a->level, "--level"))
-        || (rc = cli_free(in->notes, sizeof in->notes, a->notes, "--notes")))
+        || (rc = cli_free(in->notes, sizeof in->notes, a->notes, "--notes"))
+        || (rc = cli_free(in->hours_reason, sizeof in->hours_reason, a->hours_reason,
+                          "--hours-reason")))
         return rc;
+    if (a->simulated >= 0)
+        in->simulated = a->simulated;
     if (a->has_hours)
         in->aircraft_hours = a->hours;
     if (a->has_cycles)

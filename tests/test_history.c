@@ -72,11 +72,14 @@ static int teardown(void **state)
     return 0;
 }
 
-/* An inspection of H01 with one 6x4 two-channel map made in memory. */
-static pl_id inspect(pl_store *st, const char *kind, const char *date, float base, pl_id *map)
+/* An inspection of H01 with one 6x4 two-channel map made in memory,
+ * simulated or not. */
+static pl_id inspect_sim(pl_store *st, const char *kind, const char *date, float base,
+                         int simulated, pl_id *map)
 {
     pl_inspection in;
     memset(&in, 0, sizeof in);
+    in.simulated = simulated;
     in.aircraft_hours = NAN;
     in.aircraft_cycles = -1;
     strcpy(in.airframe_serial, "HIS-0001");
@@ -103,6 +106,11 @@ static pl_id inspect(pl_store *st, const char *kind, const char *date, float bas
                                    &err));
     pl_map_free(m);
     return key;
+}
+
+static pl_id inspect(pl_store *st, const char *kind, const char *date, float base, pl_id *map)
+{
+    return inspect_sim(st, kind, date, base, 0, map);
 }
 
 /* Parse JSON text, failing the test when it is not JSON. */
@@ -143,7 +151,8 @@ static void test_history__gathers_a_site_oldest_first(void **state)
     fixture *f = *state;
     pl_err err = { 0 };
     pl_id m2 = 0, m1 = 0;
-    pl_id k2 = inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m2);
+    /* recorded out of order: an unscheduled inspection needs no baseline yet */
+    pl_id k2 = inspect(f->store, "unscheduled", "2036-03-01", 5.0f, &m2);
     pl_id k1 = inspect(f->store, "baseline", "2030-02-01", 1.0f, &m1);
     pl_record_pair pair = { 0 };
     TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
@@ -210,6 +219,103 @@ static void test_history__gathers_a_site_oldest_first(void **state)
     python_agrees(f, text, "inspections/1/maps/0/registrations/0/status", "\"refused\"");
     python_agrees(f, text, "inspections/0/maps/0/channels/1/label", "\"t=0.5 s\"");
     free(text);
+}
+
+/*
+ * Where a record is shown to support a decision, it carries the caution
+ * (one text, from the library), and simulated data say so: in the history,
+ * the summary, a registration's summary and a rendering's identification.
+ */
+static void test_history__caution_and_simulated_data_are_shown(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    const char *caution = pl_caution();
+    tu_assert_msg_has(caution, "does not replace");
+    tu_assert_msg_has(caution, "design holder");
+    assert_string_equal(pl_history_data_word(1), "simulated");
+    assert_string_equal(pl_history_data_word(0), "real");
+    assert_string_equal(pl_history_data_word(-1), "not recorded");
+
+    pl_id m1 = 0, m2 = 0;
+    pl_id k1 = inspect_sim(f->store, "baseline", "2030-02-01", 1.0f, 1, &m1);
+    pl_id k2 = inspect_sim(f->store, "scheduled", "2036-03-01", 5.0f, 1, &m2);
+    pl_history *h = NULL;
+    TU_OK(pl_history_load(&h, f->store, "HIS-0001", "H01", &err));
+    char *text = NULL;
+    TU_OK(pl_history_json(&text, h, &err));
+    pl_history_free(h);
+    python_agrees(f, text, "inspections/0/simulated", "true");
+    python_agrees(f, text, "inspections/1/simulated", "true");
+    cJSON *j = parse(text);
+    assert_string_equal(at(j, "caution")->valuestring, caution);
+    cJSON_Delete(j);
+    free(text);
+
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->store, &sum, &err));
+    TU_OK(pl_summary_json(&text, &sum, "h.plyledger", &err));
+    python_agrees(f, text, "simulated_inspections", "2");
+    python_agrees(f, text, "simulated_unknown", "0");
+    j = parse(text);
+    assert_string_equal(at(j, "caution")->valuestring, caution);
+    cJSON_Delete(j);
+    free(text);
+
+    pl_record_pair pair = { 0 };
+    TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
+    pl_register_result res;
+    memset(&res, 0, sizeof res);
+    res.refused = 1;
+    snprintf(res.reason, sizeof res.reason, "correlation 0.2 below the limit 0.6");
+    res.ncc = 0.2;
+    res.psr = NAN;
+    pl_id rid = 0, cid = 0;
+    TU_OK(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL, NULL,
+                                 NULL, &rid, &cid, &err));
+    pl_registration_summary rs;
+    TU_OK(pl_registration_summary_load(&rs, f->store, "HIS-0001", "H01", &pair, rid, cid, &err));
+    TU_OK(pl_registration_summary_json(&text, &rs, &err));
+    pl_registration_summary_clear(&rs);
+    j = parse(text);
+    assert_string_equal(at(j, "caution")->valuestring, caution);
+    assert_true(cJSON_IsTrue(at(j, "simulated")));
+    cJSON_Delete(j);
+    free(text);
+
+    /* a rendering names airframe, site, date, map and quantity, and the
+     * map it was aligned onto */
+    char line[PL_RENDER_IDENTIFICATION_SIZE];
+    int simulated = 0;
+    TU_OK(pl_history_identification(line, sizeof line, &simulated, f->store, m2, 0, "phase",
+                                    &err));
+    char want[PL_RENDER_IDENTIFICATION_SIZE];
+    snprintf(want, sizeof want, "HIS-0001 site H01 2036-03-01 map %lld phase", (long long)m2);
+    assert_string_equal(line, want);
+    assert_int_equal(simulated, 1);
+    TU_OK(pl_history_identification(line, sizeof line, &simulated, f->store, m2, m1, "phase",
+                                    &err));
+    snprintf(want, sizeof want, "HIS-0001 site H01 2036-03-01 map %lld phase onto 2030-02-01 "
+             "map %lld", (long long)m2, (long long)m1);
+    assert_string_equal(line, want);
+    assert_int_equal(pl_history_identification(line, sizeof line, &simulated, f->store, 999, 0,
+                                               NULL, &err), PL_ENOTFOUND);
+    (void)k1;
+    (void)k2;
+}
+
+/* A real inspection's rendering is not marked. */
+static void test_history__real_data_are_not_marked(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_id m1 = 0;
+    inspect_sim(f->store, "baseline", "2030-02-01", 1.0f, 0, &m1);
+    char line[PL_RENDER_IDENTIFICATION_SIZE];
+    int simulated = 1;
+    TU_OK(pl_history_identification(line, sizeof line, &simulated, f->store, m1, 0, NULL, &err));
+    assert_int_equal(simulated, 0);
+    tu_assert_msg_has(line, "HIS-0001 site H01 2030-02-01 map");
 }
 
 /* A site without inspections has an empty history; an unknown one none. */
@@ -307,7 +413,7 @@ static void test_history__registration_summary_has_the_history_shape(void **stat
     free(text);
     static const char *const context[] = { "airframe", "site", "baseline_inspection",
                                            "current_inspection", "comparison_not_done",
-                                           "aligned", "view" };
+                                           "aligned", "view", "simulated", "caution" };
     for (size_t i = 0; i < sizeof context / sizeof context[0]; i++)
         cJSON_DeleteItemFromObjectCaseSensitive(summary, context[i]);
     pl_history *h = NULL;
@@ -377,8 +483,8 @@ static void test_history__summary_json(void **state)
     python_agrees(f, text, "inspections_by_kind/post-repair", "0");
     free(text);
     pl_id m = 0;
-    inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m);
     inspect(f->store, "baseline", "2030-02-01", 1.0f, &m);
+    inspect(f->store, "scheduled", "2036-03-01", 5.0f, &m);
     TU_OK(pl_store_summarize(f->store, &sum, &err));
     TU_OK(pl_summary_json(&text, &sum, "h.plyledger", &err));
     python_agrees(f, text, "store", "\"h.plyledger\"");
@@ -394,6 +500,8 @@ int main(void)
     const struct CMUnitTest tests[] = {
 #define T(name) cmocka_unit_test_setup_teardown(name, setup, teardown)
         T(test_history__gathers_a_site_oldest_first),
+        T(test_history__caution_and_simulated_data_are_shown),
+        T(test_history__real_data_are_not_marked),
         T(test_history__empty_and_unknown_sites),
         T(test_history__operators),
         T(test_history__registration_summary_has_the_history_shape),

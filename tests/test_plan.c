@@ -434,7 +434,11 @@ static void test_plan__apply_is_all_or_none(void **state)
     size_t added = 99;
     int rc = pl_plan_apply(st, plan, "PLX-0001", &added, &err);
     assert_int_equal(rc, PL_EEXISTS);
-    assert_string_equal(err.msg, "site F03 on PLX-0001: code already exists on this airframe");
+    /* the refusal names the plan file and the line of the site */
+    char want[1024];
+    snprintf(want, sizeof want, "%s line 4: site F03 on PLX-0001: code already exists on this "
+             "airframe", path);
+    assert_string_equal(err.msg, want);
     assert_int_equal(added, 0);
     char *after = dump(db);
     assert_string_equal(before, after);

@@ -8,6 +8,7 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include <cjson/cJSON.h>
 #include <math.h>
 #include <sqlite3.h>
 #include <stdio.h>
@@ -141,10 +142,10 @@ static void test_record__sidecar_refuses_unknown_keys_and_bad_types(void **state
         { "{ \"cycles\": 1000001, \"sites\": [ { \"site\": \"A1\" } ] }", "\"cycles\": 1000001 is outside the plausible flight cycles" },
         { "{ \"hours\": 1e30, \"sites\": [ { \"site\": \"A1\" } ] }", "\"hours\": 1e+30 h is outside the plausible flight hours" },
         { "{ \"hours\": \"12\", \"sites\": [ { \"site\": \"A1\" } ] }", "\"hours\" must be a number" },
-        { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\", \"pitch_mm\": 1e308 } ] } ] }", "bad.json: site A1: \"pitch_mm\": 1e+308 mm is outside the plausible pitch" },
+        { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\", \"pitch_mm\": 1e308 } ] } ] }", "bad.json: site A1: map 1: \"pitch_mm\": 1e+308 mm is outside the plausible pitch" },
         { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\", \"pitch_mm\": [0.5, 1e-9] } ] } ] }", "pitch" },
         { "{ \"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a.npy\",\n"
-          "   \"placement\": { \"origin\": [0,1e300,0], \"u\": [1,0,0], \"v\": [0,1,0] } } ] } ] }", "site A1: placement origin y: 1e+300 is outside the plausible part coordinate" },
+          "   \"placement\": { \"origin\": [0,1e300,0], \"u\": [1,0,0], \"v\": [0,1,0] } } ] } ] }", "site A1: map 1: placement origin y: 1e+300 is outside the plausible part coordinate" },
         { "{ \"sites\": [ { \"site\": \"A1\" } ] ", "line 1" },
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
@@ -158,6 +159,159 @@ static void test_record__sidecar_refuses_unknown_keys_and_bad_types(void **state
         assert_null(rec);
         free(path);
     }
+}
+
+/* The head of a sidecar every case below shares: a valid top level. */
+#define SIDECAR_HEAD \
+    "{ \"airframe\": \"REC-0001\", \"kind\": \"baseline\", \"date\": \"2021-04-05\",\n" \
+    "  \"procedure\": \"P-1\", \"procedure_revision\": \"A\", \"equipment\": \"rig\",\n" \
+    "  \"calibration\": \"RS-1\", \"inspector\": \"someone\", \"inspector_level\": \"2\",\n"
+
+/* An inspection without maps, or one site twice in a batch, is refused at
+ * the sidecar, naming the file and the site. */
+static void test_record__sidecar_refuses_empty_and_repeated_sites(void **state)
+{
+    fixture *f = *state;
+    static const struct { const char *json, *needle; } cases[] = {
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [] } ] }", "site A1" },
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\" } ] }", "site A1" },
+        { SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\" } ] },\n"
+          "  { \"site\": \"A2\", \"maps\": [ { \"file\": \"a2.npy\" } ] },\n"
+          "  { \"site\": \"A1\", \"maps\": [ { \"file\": \"a2.npy\" } ] } ] }", "site A1" },
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_text(f->dir, "batch.json", cases[i].json);
+        char *path = tu_path(f->dir, "batch.json");
+        pl_record *rec = NULL;
+        pl_err err = { 0 };
+        int rc = pl_record_load_sidecar(&rec, path, &err);
+        if (rc == 0 || !strstr(err.msg, "batch.json") || !strstr(err.msg, cases[i].needle))
+            fail_msg("case %zu: rc %d, message '%s'", i, rc, err.msg);
+        tu_assert_msg_has(err.msg, i < 2 ? "map" : "twice");
+        assert_null(rec);
+        free(path);
+    }
+}
+
+static int count_all(void *ud, const pl_inspection *in)
+{
+    (void)in;
+    (*(int *)ud)++;
+    return 0;
+}
+
+/* A batch made call by call is held to the same rules when applied. */
+static void test_record__apply_refuses_empty_and_repeated_sites(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_inspection in;
+    memset(&in, 0, sizeof in);
+    in.aircraft_hours = NAN;
+    in.aircraft_cycles = -1;
+    strcpy(in.airframe_serial, "REC-0001");
+    strcpy(in.kind, "baseline");
+    strcpy(in.performed_on, "2021-04-05");
+    strcpy(in.procedure, "P");
+    strcpy(in.procedure_rev, "A");
+    strcpy(in.equipment, "E");
+    strcpy(in.calibration_ref, "C");
+    strcpy(in.inspector, "I");
+    strcpy(in.inspector_level, "2");
+    char *a1 = tu_path(f->dir, "a1.npy"), *a2 = tu_path(f->dir, "a2.npy");
+
+    pl_record *rec;
+    TU_OK(pl_record_new(&rec, &err));
+    strcpy(in.site_code, "A1");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 0, a1, "depth", NULL, NAN, NAN, &err));
+    strcpy(in.site_code, "A2");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "REC-0001 site A2");
+    tu_assert_msg_has(err.msg, "no map");
+    pl_record_free(rec);
+
+    TU_OK(pl_record_new(&rec, &err));
+    strcpy(in.site_code, "A1");
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 0, a1, "depth", NULL, NAN, NAN, &err));
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 1, a2, "depth", NULL, NAN, NAN, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "REC-0001 site A1");
+    tu_assert_msg_has(err.msg, "twice");
+    pl_record_free(rec);
+
+    int n = 0;
+    TU_OK(pl_store_list_inspections(f->store, NULL, count_all, &n, &err));
+    assert_int_equal(n, 0);
+    free(a1);
+    free(a2);
+}
+
+/* Every refusal of a sidecar names the file and, below the top level, the
+ * site: a placement axis of no length among them. */
+static void test_record__sidecar_messages_name_file_and_site(void **state)
+{
+    fixture *f = *state;
+    static const char *const cases[] = {
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [0,0,0], \"v\": [0,1,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0], \"v\": [0,1,0] } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0], \"v\": [0,1,0], \"w\": 1 } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"placement\": { \"origin\": [0,0,0], \"u\": [1,0,0], \"v\": [0,1,0],\n"
+        "                 \"system\": \"0123456789012345678901234567890123456789012345678901234567890123456789\" } } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"pitch_mm\": -1 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"pitch_mm\": \"x\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"channels\": [ { \"quantity\": \"depth\", \"unit\": \"K\" } ] } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\",\n"
+        "  \"channels\": [ { \"quantity\": 3 } ] } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"channels\": 3 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ 7 ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\", \"x\": 1 } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"maps\": 1 } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"hours\": -3, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"notes\": 4, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+        SIDECAR_HEAD "\"sites\": [ { \"site\": \"A1\", \"parameters\": 4, \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }",
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_text(f->dir, "where.json", cases[i]);
+        char *path = tu_path(f->dir, "where.json");
+        pl_record *rec = NULL;
+        pl_err err = { 0 };
+        int rc = pl_record_load_sidecar(&rec, path, &err);
+        if (rc == 0 || !strstr(err.msg, path) || !strstr(err.msg, "site A1"))
+            fail_msg("case %zu: rc %d, message '%s'", i, rc, err.msg);
+        assert_null(rec);
+        free(path);
+    }
+}
+
+/* A sidecar batch that the store refuses names the sidecar too. */
+static void test_record__apply_of_a_sidecar_names_it(void **state)
+{
+    fixture *f = *state;
+    write_text(f->dir, "wrong.json", SIDECAR_HEAD
+               "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"wrong.npy\" ,\n"
+               "  \"channels\": [ { \"quantity\": \"depth\" } ] } ] } ] }");
+    char *path = tu_path(f->dir, "wrong.json");
+    pl_record *rec = NULL;
+    pl_err err = { 0 };
+    TU_OK(pl_record_load_sidecar(&rec, path, &err));
+    assert_int_equal(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_ENOMATCH);
+    tu_assert_msg_has(err.msg, path);
+    tu_assert_msg_has(err.msg, "site A1");
+    tu_assert_msg_has(err.msg, "wrong.npy");
+    pl_record_free(rec);
+    free(path);
 }
 
 static void test_record__apply_records_and_completes_from_the_site(void **state)
@@ -420,6 +574,183 @@ static void test_record__registration_pair_and_outcome(void **state)
     pl_map_free(back);
 }
 
+static pl_id record_params(pl_store *st, const char *site, const char *kind, const char *date,
+                           float base, int simulated, const char *params, pl_id *map_id)
+{
+    pl_inspection in = traced(site, kind, date);
+    in.simulated = simulated;
+    pl_map *m;
+    assert_int_equal(pl_map_new(&m, 6, 4, 1, NULL), 0);
+    for (uint32_t i = 0; i < 24; i++)
+        m->data[i] = base + (float)i;
+    assert_int_equal(pl_map_set_channel(m, 0, "phase", "rad", NULL), 0);
+    m->pitch_u = m->pitch_v = NAN;
+    pl_id key = 0;
+    pl_err err = { 0 };
+    TU_OK(pl_record_map_inspection(st, &in, m, "reduce", "seq.json", params, &key, map_id, &err));
+    pl_map_free(m);
+    return key;
+}
+
+static int simulated_of(pl_store *st, pl_id key)
+{
+    pl_inspection in;
+    pl_err err = { 0 };
+    TU_OK(pl_store_get_inspection(st, key, &in, &err));
+    int v = in.simulated;
+    pl_inspection_clear(&in);
+    return v;
+}
+
+/*
+ * A map reduced from a simulated sequence (the simulator writes its
+ * "simulation" object into the manifest's acquisition, which the reduction
+ * records) makes a simulated inspection, whatever the caller said; and a
+ * simulated baseline is refused for a real reinspection before any
+ * registration is computed.
+ */
+static void test_record__simulated_sequences_make_simulated_inspections(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_id mb = 0, mr = 0;
+    const char *sim = "{\"acquisition\":{\"camera\":\"x\",\"simulation\":{\"software\":"
+                      "\"plyledger simulator\",\"seed\":7}},\"degree\":10}";
+    pl_id kb = record_params(f->store, "A1", "baseline", "2020-01-01", 0.0f, 0, sim, &mb);
+    assert_int_equal(simulated_of(f->store, kb), 1);
+    pl_id kr = record_params(f->store, "A1", "unscheduled", "2021-01-01", 1.0f, 0,
+                             "{\"acquisition\":{\"camera\":\"x\"},\"degree\":10}", &mr);
+    assert_int_equal(simulated_of(f->store, kr), 0);
+    pl_id kt = record_params(f->store, "A2", "baseline", "2020-01-01", 2.0f, 1, NULL, NULL);
+    assert_int_equal(simulated_of(f->store, kt), 1);
+    pl_record_pair pair;
+    memset(&pair, 0, sizeof pair);
+    assert_int_equal(pl_record_find_pair(f->store, "REC-0001", "A1", &pair, &err), PL_EINVAL);
+    tu_assert_msg_has(err.msg, "simulated");
+    tu_assert_msg_has(err.msg, "real");
+}
+
+/* A sidecar says whether its data are simulated, and why hours go back. */
+static void test_record__sidecar_says_simulated_and_hours_reason(void **state)
+{
+    fixture *f = *state;
+    write_text(f->dir, "sim.json", SIDECAR_HEAD
+               "\"simulated\": true, \"hours_reason\": \"log corrected (memo 4)\",\n"
+               "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"a1.npy\" } ] },\n"
+               "  { \"site\": \"A2\", \"simulated\": false, \"maps\": [ { \"file\": \"a2.npy\" } ] } ] }");
+    char *path = tu_path(f->dir, "sim.json");
+    pl_record *rec = NULL;
+    pl_err err = { 0 };
+    TU_OK(pl_record_load_sidecar(&rec, path, &err));
+    assert_int_equal(rec->sites[0].insp.simulated, 1);
+    assert_int_equal(rec->sites[1].insp.simulated, 0);
+    assert_string_equal(rec->sites[1].insp.hours_reason, "log corrected (memo 4)");
+    pl_record_free(rec);
+    write_text(f->dir, "sim.json", SIDECAR_HEAD
+               "\"sites\": [ { \"site\": \"A1\", \"simulated\": \"yes\", \"maps\": [ { \"file\": \"a1.npy\" } ] } ] }");
+    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), PL_EFORMAT);
+    tu_assert_msg_has(err.msg, path);
+    tu_assert_msg_has(err.msg, "simulated");
+    assert_null(rec);
+    free(path);
+}
+
+static void expect_status(int rc, int want, const pl_err *err)
+{
+    if (rc != want)
+        fail_msg("expected %d, got %d (%s)", want, rc, err->msg);
+}
+
+/* A 6x4 float32 .npy written byte by byte (the NumPy format 1.0 header:
+ * magic, version, header length, a dict padded to 128 bytes in all), with
+ * +inf at row 1, column 2: pl_map_save_npy() writes no infinities. */
+static void write_npy_with_inf(const char *dir, const char *name)
+{
+    char head[128];
+    const char *dict = "{'descr': '<f4', 'fortran_order': False, 'shape': (4, 6), }";
+    size_t n = strlen(dict);
+    memcpy(head, "\x93NUMPY\x01\x00", 8);
+    head[8] = (char)(128 - 10);
+    head[9] = 0;
+    memset(head + 10, ' ', 118);
+    memcpy(head + 10, dict, n);
+    head[127] = '\n';
+    float v[24];
+    for (int i = 0; i < 24; i++)
+        v[i] = 1.0f + 0.25f * (float)i;
+    v[1 * 6 + 2] = INFINITY;
+    unsigned char buf[128 + sizeof v];
+    memcpy(buf, head, 128);
+    for (int i = 0; i < 24; i++) { /* little-endian on any host */
+        uint32_t b;
+        memcpy(&b, &v[i], 4);
+        for (int k = 0; k < 4; k++)
+            buf[128 + 4 * i + k] = (unsigned char)(b >> (8 * k));
+    }
+    char *p = tu_path(dir, name);
+    assert_int_equal(tu_write_file(p, buf, sizeof buf), 0);
+    free(p);
+}
+
+/*
+ * A map holding an infinity is refused unless the caller asks, on an
+ * explicit option, for infinities to be no data; the option in force and
+ * how many values it changed are then recorded with the map.
+ */
+static void test_record__infinities_become_no_data_only_when_asked(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    write_npy_with_inf(f->dir, "inf.npy");
+    char *inf = tu_path(f->dir, "inf.npy");
+    pl_inspection in = traced("A1", "baseline", "2021-04-05");
+    pl_record *rec;
+    TU_OK(pl_record_new(&rec, &err));
+    TU_OK(pl_record_add_site(rec, &in, NULL, &err));
+    TU_OK(pl_record_add_map(rec, 0, inf, "temperature-contrast", NULL, NAN, NAN, &err));
+    expect_status(pl_record_apply(f->store, rec, NULL, NULL, &err), PL_EFORMAT, &err);
+    tu_assert_msg_has(err.msg, "infinite value");
+    rec->sites[0].maps[0].infinite_as_nodata = 1;
+    TU_OK(pl_record_apply(f->store, rec, NULL, NULL, &err));
+    pl_map *m = NULL;
+    pl_map_record mr;
+    TU_OK(pl_store_load_map(f->store, rec->sites[0].maps[0].map_id, &m, &mr, &err));
+    assert_true(isnan(m->data[1 * 6 + 2]));
+    assert_true(m->data[0] == 1.0f);
+    cJSON *j = cJSON_Parse(mr.parameters_json);
+    assert_non_null(j);
+    assert_string_equal(cJSON_GetObjectItem(j, "infinite_values")->valuestring, "to-nan");
+    assert_int_equal(cJSON_GetObjectItem(j, "infinite_values_made_nodata")->valueint, 1);
+    cJSON_Delete(j);
+    free(mr.parameters_json);
+    pl_map_free(m);
+    pl_record_free(rec);
+
+    /* a sidecar asks per map; a map without the option records that too */
+    write_text(f->dir, "inf.json", SIDECAR_HEAD
+               "\"sites\": [ { \"site\": \"A1\", \"kind\": \"unscheduled\", \"date\": \"2022-01-01\",\n"
+               "  \"maps\": [ { \"file\": \"inf.npy\", \"infinite_as_no_data\": true,\n"
+               "    \"channels\": [ { \"quantity\": \"depth\" } ] },\n"
+               "  { \"file\": \"a1.npy\", \"channels\": [ { \"quantity\": \"depth\" } ] } ] } ] }");
+    char *path = tu_path(f->dir, "inf.json");
+    TU_OK(pl_record_load_sidecar(&rec, path, &err));
+    assert_int_equal(rec->sites[0].maps[0].infinite_as_nodata, 1);
+    assert_int_equal(rec->sites[0].maps[1].infinite_as_nodata, 0);
+    TU_OK(pl_record_apply(f->store, rec, NULL, NULL, &err));
+    TU_OK(pl_store_load_map(f->store, rec->sites[0].maps[1].map_id, &m, &mr, &err));
+    tu_assert_msg_has(mr.parameters_json, "\"refuse\"");
+    free(mr.parameters_json);
+    pl_map_free(m);
+    pl_record_free(rec);
+    write_text(f->dir, "inf.json", SIDECAR_HEAD
+               "\"sites\": [ { \"site\": \"A1\", \"maps\": [ { \"file\": \"inf.npy\", "
+               "\"infinite_as_no_data\": 1 } ] } ] }");
+    assert_int_equal(pl_record_load_sidecar(&rec, path, &err), PL_EFORMAT);
+    tu_assert_msg_has(err.msg, "infinite_as_no_data");
+    free(path);
+    free(inf);
+}
+
 /*
  * Every quantity a reduction records is one `plyledger quantities` lists,
  * with a unit it accepts: the reducer and the vocabulary agree. The frames
@@ -478,11 +809,18 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_record__sidecar_gives_sites_overrides_and_paths, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__sidecar_refuses_unknown_keys_and_bad_types, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__sidecar_refuses_empty_and_repeated_sites, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__apply_refuses_empty_and_repeated_sites, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__sidecar_messages_name_file_and_site, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__apply_of_a_sidecar_names_it, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_records_and_completes_from_the_site, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_is_all_or_nothing, setup, teardown),
         cmocka_unit_test_setup_teardown(test_record__apply_prepares_maps_before_taking_the_write_lock, setup, teardown),
         cmocka_unit_test(test_record__add_map_checks_lists),
         cmocka_unit_test_setup_teardown(test_record__registration_pair_and_outcome, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__simulated_sequences_make_simulated_inspections, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__sidecar_says_simulated_and_hours_reason, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_record__infinities_become_no_data_only_when_asked, setup, teardown),
         cmocka_unit_test(test_record__reduced_quantities_are_in_the_vocabulary),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -673,8 +673,8 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
                 "F99");
 
     /* an inspection */
-    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
-    pl_inspection in = inspection("PLX-0001", "F01", "scheduled", "2022-03-02");
+    pl_id key = add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2022-03-01");
+    pl_inspection in = inspection("PLX-0001", "F01", "unscheduled", "2022-03-02");
     in.aircraft_cycles = 4100;
     in.aircraft_hours = 20512.5;
     char params[] = "{\"frames\": 400}";
@@ -697,7 +697,7 @@ static void test_store__corrections_supersede_and_keep_history(void **state)
     pl_inspection_clear(&got);
     assert_null(got.parameters_json);
     /* it may not move to another site */
-    pl_inspection moved = inspection("PLX-0001", "F02", "scheduled", "2022-03-02");
+    pl_inspection moved = inspection("PLX-0001", "F02", "unscheduled", "2022-03-02");
     expect_fail(pl_store_correct_inspection(f->st, key, &moved, "wrong site", NULL, &err),
                 PL_EINVAL, &err, "another site");
     expect_fail(pl_store_correct_inspection(f->st, 9999, &in, "x", NULL, &err), PL_ENOTFOUND,
@@ -1038,6 +1038,297 @@ static void test_store__numbers_keep_to_their_bounds(void **state)
  * where date(d, '+0 days') gives d back only for a real date
  * (https://www.sqlite.org/lang_datefunc.html), across leap-year rules.
  */
+/* ---- chronology -------------------------------------------------------------- */
+
+static pl_inspection flown(const char *code, const char *kind, const char *date, double hours,
+                           int64_t cycles)
+{
+    pl_inspection in = inspection("CHR-0001", code, kind, date);
+    in.aircraft_hours = hours;
+    in.aircraft_cycles = cycles;
+    return in;
+}
+
+/*
+ * Nothing a real inspection could not be: no inspection before the airframe
+ * was built or after today (which the caller gives: the library reads no
+ * clock for it), no scheduled inspection without the site's baseline or
+ * before it, no flight hours or cycles that go back against the airframe's
+ * other inspections unless the reason is recorded, no operator change after
+ * today. Each refusal leaves the store as it was.
+ */
+static void test_store__refuses_inspections_out_of_chronology(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    expect_fail(pl_store_set_today(f->st, "2026-02-30", &err), PL_EINVAL, &err, "2026-02-30");
+    TU_OK(pl_store_set_today(f->st, "2026-12-03", &err));
+    add_airframe(f->st, "CHR-0001", "TX-1"); /* manufactured 2015-06-30 */
+    add_site(f->st, "CHR-0001", "F01");
+    add_site(f->st, "CHR-0001", "F02");
+    add_site(f->st, "CHR-0001", "F03");
+    char *before = dump(f->path);
+    pl_inspection in = flown("F01", "baseline", "2015-06-01", 3, 2);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "before the airframe's date of manufacture 2015-06-30");
+    in = flown("F01", "scheduled", "2016-01-10", 300, 200);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "record the baseline first");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    in = flown("F01", "baseline", "2015-07-10", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F01", "scheduled", "2015-07-01", 10, 7);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "before the site's baseline");
+    tu_assert_msg_has(err.msg, "2015-07-10");
+    in = flown("F01", "scheduled", "2027-01-01", 20000, 14000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    in = flown("F01", "scheduled", "2021-03-01", 9000.5, 6100);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F02", "baseline", "2015-07-11", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+
+    /* hours and cycles of the airframe: across its sites, by date */
+    before = dump(f->path);
+    in = flown("F02", "unscheduled", "2022-05-01", 8000, 7000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight hours 8000 are fewer than the 9000.5");
+    tu_assert_msg_has(err.msg, "site F01");
+    in = flown("F02", "unscheduled", "2020-05-01", 9500, 5000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight hours 9500 are more than the 9000.5");
+    in = flown("F02", "unscheduled", "2022-05-01", 9800, 6000);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "flight cycles 6000 are fewer than the 6100");
+    /* nor a scheduled inspection on a site without a baseline of its own */
+    in = flown("F03", "scheduled", "2022-05-01", 9800, 6600);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "site has no baseline inspection: record the baseline first");
+    after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    /* a documented correction of the aircraft's records lets hours go down,
+     * and the reason stays with the inspection */
+    in = flown("F02", "unscheduled", "2022-05-01", 8000, 6000);
+    snprintf(in.hours_reason, sizeof in.hours_reason,
+             "aircraft log corrected after the 2021 records audit (memo TL-114)");
+    pl_id key = 0;
+    TU_OK(pl_store_add_inspection(f->st, &in, &key, &err));
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, key, &got, &err));
+    assert_string_equal(got.hours_reason, in.hours_reason);
+    assert_true(got.aircraft_hours == 8000);
+    pl_inspection_clear(&got);
+
+    /* an unscheduled inspection needs no baseline, but none comes before one */
+    in = flown("F03", "unscheduled", "2023-02-01", 11000, 7400);
+    TU_OK(pl_store_add_inspection(f->st, &in, NULL, &err));
+    in = flown("F03", "baseline", "2023-03-01", 11100, 7450);
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "would come before the site's baseline");
+    tu_assert_msg_has(err.msg, "2023-02-01");
+
+    /* operators and airframes: nothing after today */
+    expect_fail(pl_store_add_operator(f->st, "CHR-0001", "Operator Z", "2099-01-01", &err),
+                PL_EINVAL, &err, "after today (2026-12-03)");
+    pl_airframe af = airframe("CHR-0002", "TX-1");
+    snprintf(af.manufactured, sizeof af.manufactured, "2027-05-01");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    af = airframe("CHR-0002", "TX-1");
+    snprintf(af.operator_name, sizeof af.operator_name, "Operator Y");
+    snprintf(af.operator_since, sizeof af.operator_since, "2030-01-01");
+    expect_fail(pl_store_add_airframe(f->st, &af, NULL, &err), PL_EINVAL, &err,
+                "after today (2026-12-03)");
+    TU_OK(pl_store_add_operator(f->st, "CHR-0001", "Operator Z", "2026-12-03", &err));
+    check_integrity(f->path);
+}
+
+/*
+ * A correction is held to the same chronology as a new record, as the site
+ * and the airframe stand after it: the only baseline cannot become a
+ * scheduled inspection, a baseline cannot move after the inspections
+ * compared with it, and a correction that changes nothing is no correction.
+ */
+static void test_store__corrections_keep_the_record_sound(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    TU_OK(pl_store_set_today(f->st, "2026-12-03", &err));
+    add_airframe(f->st, "CHR-0001", "TX-1");
+    add_site(f->st, "CHR-0001", "F01");
+    add_site(f->st, "CHR-0001", "F02");
+    pl_id only = 0, base = 0, next = 0;
+    pl_inspection in = flown("F02", "baseline", "2015-08-01", 20, 11);
+    TU_OK(pl_store_add_inspection(f->st, &in, &only, &err));
+    in = flown("F01", "baseline", "2015-07-10", 12.5, 8);
+    TU_OK(pl_store_add_inspection(f->st, &in, &base, &err));
+    in = flown("F01", "scheduled", "2021-03-01", 9000, 6100);
+    TU_OK(pl_store_add_inspection(f->st, &in, &next, &err));
+    char *before = dump(f->path);
+
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, only, &got, &err));
+    expect_fail(pl_store_correct_inspection(f->st, only, &got, "same again", NULL, &err),
+                PL_EINVAL, &err, "nothing to correct");
+    snprintf(got.kind, sizeof got.kind, "scheduled");
+    expect_fail(pl_store_correct_inspection(f->st, only, &got, "kind mistyped", NULL, &err),
+                PL_EINVAL, &err, "without a baseline");
+    tu_assert_msg_has(err.msg, "baseline");
+    pl_inspection_clear(&got);
+
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2021-04-01");
+    expect_fail(pl_store_correct_inspection(f->st, base, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "would come before the site's baseline");
+    tu_assert_msg_has(err.msg, "2021-03-01");
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-10");
+    snprintf(got.kind, sizeof got.kind, "unscheduled");
+    expect_fail(pl_store_correct_inspection(f->st, base, &got, "not a baseline", NULL, &err),
+                PL_EINVAL, &err, "without a baseline");
+    pl_inspection_clear(&got);
+
+    TU_OK(pl_store_get_inspection(f->st, next, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-01");
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "before the site's baseline");
+    snprintf(got.performed_on, sizeof got.performed_on, "2027-03-01");
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "date misread", NULL, &err),
+                PL_EINVAL, &err, "after today");
+    snprintf(got.performed_on, sizeof got.performed_on, "2021-03-01");
+    got.aircraft_hours = 10;
+    expect_fail(pl_store_correct_inspection(f->st, next, &got, "hours misread", NULL, &err),
+                PL_EINVAL, &err, "flight hours 10 are fewer than the 20");
+    pl_inspection_clear(&got);
+
+    pl_airframe af;
+    TU_OK(pl_store_get_airframe(f->st, "CHR-0001", &af, &err));
+    expect_fail(pl_store_correct_airframe(f->st, &af, "same again", NULL, &err), PL_EINVAL,
+                &err, "nothing to correct");
+    snprintf(af.manufactured, sizeof af.manufactured, "2015-07-20");
+    expect_fail(pl_store_correct_airframe(f->st, &af, "date misread", NULL, &err), PL_EINVAL,
+                &err, "2015-07-10");
+    snprintf(af.manufactured, sizeof af.manufactured, "2027-01-01");
+    expect_fail(pl_store_correct_airframe(f->st, &af, "date misread", NULL, &err), PL_EINVAL,
+                &err, "after today");
+    pl_site s;
+    TU_OK(pl_store_get_site(f->st, "CHR-0001", "F01", &s, &err));
+    expect_fail(pl_store_correct_site(f->st, &s, "same again", NULL, &err), PL_EINVAL, &err,
+                "nothing to correct");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+
+    /* what a correction may do: hours with their reason, a date in order */
+    TU_OK(pl_store_get_inspection(f->st, next, &got, &err));
+    got.aircraft_hours = 10;
+    snprintf(got.hours_reason, sizeof got.hours_reason, "log page transcribed wrongly");
+    TU_OK(pl_store_correct_inspection(f->st, next, &got, "hours from the corrected log", NULL,
+                                      &err));
+    pl_inspection_clear(&got);
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    snprintf(got.performed_on, sizeof got.performed_on, "2015-07-12");
+    TU_OK(pl_store_correct_inspection(f->st, base, &got, "date misread", NULL, &err));
+    pl_inspection_clear(&got);
+    check_integrity(f->path);
+}
+
+/*
+ * Simulated data are marked as such and never stand as the baseline of
+ * real data: not for a real scheduled inspection, not for a registration of
+ * a real map; simulated inspections are counted apart.
+ */
+static void test_store__simulated_never_serves_as_a_real_baseline(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "SIM-0001", "TX-1");
+    add_site(f->st, "SIM-0001", "F01");
+    pl_inspection in = inspection("SIM-0001", "F01", "baseline", "2016-01-10");
+    in.simulated = 1;
+    pl_id base = 0, sim = 0, real = 0;
+    TU_OK(pl_store_add_inspection(f->st, &in, &base, &err));
+    pl_inspection got;
+    TU_OK(pl_store_get_inspection(f->st, base, &got, &err));
+    assert_int_equal(got.simulated, 1);
+    pl_inspection_clear(&got);
+    in = inspection("SIM-0001", "F01", "scheduled", "2021-01-10");
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err,
+                "is simulated and cannot be the baseline of a real inspection");
+    in.simulated = 1;
+    TU_OK(pl_store_add_inspection(f->st, &in, &sim, &err));
+    in = inspection("SIM-0001", "F01", "unscheduled", "2022-01-10");
+    TU_OK(pl_store_add_inspection(f->st, &in, &real, &err)); /* rests on no baseline */
+    in.simulated = 7;
+    expect_fail(pl_store_add_inspection(f->st, &in, NULL, &err), PL_EINVAL, &err, "simulated");
+
+    pl_map *m = test_map(8, 6, 1, 1.0f);
+    pl_map_record r = map_record(base);
+    pl_id mb = 0, ms = 0, mr = 0;
+    TU_OK(pl_store_add_map(f->st, &r, m, &mb, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = sim;
+    TU_OK(pl_store_add_map(f->st, &r, m, &ms, &err));
+    m->data[0] += 1.0f;
+    r.inspection_key = real;
+    TU_OK(pl_store_add_map(f->st, &r, m, &mr, &err));
+    pl_map_free(m);
+    pl_registration_record g;
+    memset(&g, 0, sizeof g);
+    g.baseline_map_id = mb;
+    g.current_map_id = mr;
+    snprintf(g.method, sizeof g.method, "phase-correlation");
+    snprintf(g.status, sizeof g.status, "aligned");
+    g.scale = 1.0;
+    g.ncc = 0.93;
+    g.peak_sidelobe = 41.0;
+    g.overlap_fraction = 0.9;
+    g.overlap_mm2 = 10.8;
+    char *before = dump(f->path);
+    expect_fail(pl_store_add_registration(f->st, &g, NULL, &err), PL_EINVAL, &err,
+                "simulated");
+    tu_assert_msg_has(err.msg, "real");
+    char *after = dump(f->path);
+    assert_string_equal(before, after);
+    free(after);
+    free(before);
+    g.current_map_id = ms; /* simulated onto simulated */
+    TU_OK(pl_store_add_registration(f->st, &g, NULL, &err));
+    pl_comparison_record c;
+    memset(&c, 0, sizeof c);
+    c.baseline_inspection = base;
+    c.current_inspection = real;
+    snprintf(c.status, sizeof c.status, "not-done");
+    snprintf(c.not_done_reason, sizeof c.not_done_reason, "not registered");
+    c.uncompared_mm2 = c.uncompared_fraction = NAN;
+    expect_fail(pl_store_add_comparison(f->st, &c, NULL, &err), PL_EINVAL, &err,
+                "is simulated and cannot be the baseline");
+    c.current_inspection = sim;
+    TU_OK(pl_store_add_comparison(f->st, &c, NULL, &err));
+
+    /* nor may a correction make a real scheduled inspection rest on a
+     * simulated baseline */
+    TU_OK(pl_store_get_inspection(f->st, sim, &got, &err));
+    got.simulated = 0;
+    expect_fail(pl_store_correct_inspection(f->st, sim, &got, "was real", NULL, &err),
+                PL_EINVAL, &err, "simulated");
+    pl_inspection_clear(&got);
+
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.inspections, 3);
+    assert_int_equal(sum.simulated_inspections, 2);
+    check_integrity(f->path);
+}
+
 static void test_store__dates_agree_with_sqlite_calendar(void **state)
 {
     (void)state;
@@ -1396,6 +1687,7 @@ static void test_store__rollback_leaves_the_store_as_it_was(void **state)
     TU_OK(pl_store_add_map(f->st, &r, m, NULL, &err));
     TU_OK(pl_store_add_operator(f->st, "PLX-0001", "Operator B", "2020-01-01", &err));
     pl_site s = site("PLX-0001", "F01");
+    snprintf(s.zone, sizeof s.zone, "232");
     TU_OK(pl_store_correct_site(f->st, &s, "checking rollback", NULL, &err));
     pl_store_rollback(f->st);
     pl_store_rollback(f->st); /* harmless when none is open */
@@ -1539,7 +1831,7 @@ static void test_store__listings_filter_and_order(void **state)
     TU_OK(pl_store_list_sites(f->st, &sf, on_site, &c, &err));
     assert_string_equal(c.out, "PLX-0001:W01");
 
-    add_inspection(f->st, "PLX-0001", "F02", "scheduled", "2022-03-01");
+    add_inspection(f->st, "PLX-0001", "F02", "unscheduled", "2022-03-01");
     add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
     add_inspection(f->st, "PLX-0002", "F02", "baseline", "2016-01-10");
     add_inspection(f->st, "PLX-0001", "F01", "unscheduled", "2019-07-15");
@@ -2211,8 +2503,11 @@ static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state
 
     db = raw_open(old);
     assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
-    char *history = raw_text(db, "SELECT value FROM store_info WHERE name = 'schema.0002'");
-    assert_non_null(strstr(history, pl__migrations[1].name));
+    char name[64];
+    snprintf(name, sizeof name, "SELECT value FROM store_info WHERE name = 'schema.%04d'",
+             PL_STORE_SCHEMA_VERSION);
+    char *history = raw_text(db, name);
+    assert_non_null(strstr(history, pl__migrations[PL_STORE_SCHEMA_VERSION - 1].name));
     assert_non_null(strstr(history, pl_version()));
     free(history);
     char *after = raw_text(db, rows);
@@ -2225,10 +2520,34 @@ static void test_store__previous_schema_migrates_and_keeps_its_rows(void **state
                                       "'x-ray', 'STA', 'mm', 0, 0, 0, 1, 0, 0, 0, 1, 0, 0, 0, "
                                       "1, 1, 'now')", NULL, NULL, NULL), SQLITE_OK);
     assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
+    /* from schema 3 on a new inspection says whether it is simulated */
+    assert_int_not_equal(sqlite3_exec(db, "INSERT INTO inspection (site_key, kind, "
+                                      "performed_on, procedure, procedure_rev, equipment, "
+                                      "calibration_ref, inspector, inspector_level, "
+                                      "software_version, recorded_at) VALUES (1, 'unscheduled', "
+                                      "'2035-02-01', 'P', 'A', 'E', 'C', 'I', '2', '0.1.0', "
+                                      "'now')", NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_extended_errcode(db), SQLITE_CONSTRAINT_TRIGGER);
     sqlite3_close(db);
     TU_OK(pl_store_open(&st2, old, 0, &err));
     pl_site s = site("OLD-0001", "F02");
     TU_OK(pl_store_add_site(st2, &s, NULL, &err));
+    /* rows recorded before schema 3 do not say whether they were simulated,
+     * and a correction of one may leave it unsaid; a new record must say */
+    pl_inspection got;
+    memset(&got, 0, sizeof got);
+    TU_OK(pl_store_get_inspection(st2, 1, &got, &err));
+    assert_int_equal(got.simulated, -1);
+    snprintf(got.notes, sizeof got.notes, "baseline of the old store");
+    TU_OK(pl_store_correct_inspection(st2, 1, &got, "notes added", NULL, &err));
+    pl_inspection_clear(&got);
+    TU_OK(pl_store_get_inspection(st2, 1, &got, &err));
+    assert_int_equal(got.simulated, -1);
+    assert_string_equal(got.notes, "baseline of the old store");
+    snprintf(got.performed_on, sizeof got.performed_on, "2035-03-01");
+    snprintf(got.kind, sizeof got.kind, "unscheduled");
+    expect_fail(pl_store_add_inspection(st2, &got, NULL, &err), PL_EINVAL, &err, "simulated");
+    pl_inspection_clear(&got);
     pl_store_close(st2);
     free(before);
     free(after);
@@ -2293,6 +2612,9 @@ int main(void)
         T(test_store__summary_counts_the_record),
         T(test_store__registrations_and_comparisons),
         T(test_store__schema_checks_equal_the_vocabularies),
+        T(test_store__refuses_inspections_out_of_chronology),
+        T(test_store__corrections_keep_the_record_sound),
+        T(test_store__simulated_never_serves_as_a_real_baseline),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
         T(test_store__schema_version_is_the_number_of_schema_files),
         T(test_store__a_writer_waits_for_another_and_writes),

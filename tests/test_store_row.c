@@ -493,10 +493,14 @@ static void test_store_row__json_follows_the_descriptions(void **state)
             if (!v)
                 fail_msg("%s: no %s in %s", t->name, t->cols[i].json, text);
             int rows = t->cols[i].ctype == PL_C_ROWS, size = t->cols[i].ctype == PL_C_SIZE;
-            /* zeroed: every field absent but sizes, counts and reals, whose 0 is a value */
-            if (!rows && !size && t->cols[i].ctype != PL_C_F64 && t->cols[i].ctype != PL_C_I64 &&
-                !cJSON_IsNull(v))
+            int flag = t->cols[i].ctype == PL_C_FLAG;
+            /* zeroed: every field absent but sizes, counts, reals and flags, whose 0 is a
+             * value (a flag's is false) */
+            if (!rows && !size && !flag && t->cols[i].ctype != PL_C_F64 &&
+                t->cols[i].ctype != PL_C_I64 && !cJSON_IsNull(v))
                 fail_msg("%s: %s should be null in %s", t->name, t->cols[i].json, text);
+            if (flag && !cJSON_IsFalse(v))
+                fail_msg("%s: %s should be false in %s", t->name, t->cols[i].json, text);
             if (rows && cJSON_GetArraySize(v) != 0)
                 fail_msg("%s: %s should be empty", t->name, t->cols[i].json);
         }

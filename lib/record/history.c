@@ -7,12 +7,65 @@
 
 #include "common/common_int.h"
 #include "plyledger/history.h"
+#include "plyledger/render.h"
 
 #include <assert.h>
 #include <cjson/cJSON.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+/* ---- what every output shows ------------------------------------------------------ */
+
+PL_EXPORT const char *pl_caution(void)
+{
+    return "plyledger supports certified NDT staff and approved data; it does not replace "
+           "them. Local regulations and the design holder's data govern.";
+}
+
+PL_EXPORT const char *pl_history_data_word(int simulated)
+{
+    return simulated == 1 ? "simulated" : simulated == 0 ? "real" : "not recorded";
+}
+
+/* The inspection of stored map `map_id` into [out] in (clear it). */
+static int map_inspection(pl_inspection *in, pl_store *store, pl_id map_id, pl_err *err)
+{
+    pl_id key = 0;
+    int rc = pl_store__map_inspection(store, map_id, &key, err);
+    memset(in, 0, sizeof *in);
+    return rc ? rc : pl_store_get_inspection(store, key, in, err);
+}
+
+PL_EXPORT int pl_history_identification(char *buf, size_t size, int *simulated,
+                                        pl_store *store, pl_id map_id, pl_id onto_map,
+                                        const char *quantity, pl_err *err)
+{
+    assert(buf && size && store);
+    buf[0] = '\0';
+    if (simulated)
+        *simulated = 0;
+    pl_inspection in, base;
+    int rc = map_inspection(&in, store, map_id, err);
+    memset(&base, 0, sizeof base);
+    if (!rc && onto_map)
+        rc = map_inspection(&base, store, onto_map, err);
+    if (!rc) {
+        int n = pl_render_identification(buf, size, in.airframe_serial, in.site_code,
+                                         in.performed_on, (long long)map_id, quantity);
+        if (onto_map && n >= 0 && (size_t)n < size)
+            snprintf(buf + n, size - (size_t)n, " onto %s map %lld", base.performed_on,
+                     (long long)onto_map);
+        for (char *p = buf; *p; p++)
+            if ((unsigned char)*p < 0x20 || (unsigned char)*p > 0x7e)
+                *p = '?';
+        if (simulated)
+            *simulated = in.simulated == 1 || base.simulated == 1;
+    }
+    pl_inspection_clear(&in);
+    pl_inspection_clear(&base);
+    return rc;
+}
 
 /* ---- gathering ------------------------------------------------------------------ */
 
@@ -211,7 +264,8 @@ PL_EXPORT int pl_history_json(char **out, const pl_history *h, pl_err *err)
     assert(out && h);
     cJSON *root = cJSON_CreateObject();
     cJSON *site = pl_row__json(pl_row__table(PL_TABLE_SITE), &h->site);
-    int ok = root && site && cJSON_AddItemToObject(root, "site", site);
+    int ok = root && site && cJSON_AddStringToObject(root, "caution", pl_caution())
+             && cJSON_AddItemToObject(root, "site", site);
     if (!ok)
         cJSON_Delete(site);
     cJSON *list = ok ? cJSON_AddArrayToObject(root, "inspections") : NULL;
@@ -294,8 +348,18 @@ PL_EXPORT int pl_registration_summary_load(pl_registration_summary *out, pl_stor
     if (!rc && !f.found)
         rc = pl__err(err, PL_ENOTFOUND, "registration %lld of map %lld: not recorded",
                      (long long)registration_id, (long long)pair->current_map);
-    if (rc)
+    for (int k = 0; !rc && k < 2; k++) {
+        pl_inspection in;
+        memset(&in, 0, sizeof in);
+        rc = pl_store_get_inspection(store, k ? pair->current_inspection
+                                              : pair->baseline_inspection, &in, err);
+        out->simulated |= !rc && in.simulated == 1;
+        pl_inspection_clear(&in);
+    }
+    if (rc) {
+        pl_row__release(pl_row__table(PL_TABLE_REGISTRATION), &out->registration);
         memset(out, 0, sizeof *out);
+    }
     return rc;
 }
 
@@ -350,10 +414,12 @@ PL_EXPORT int pl_registration_summary_json(char **out, const pl_registration_sum
 {
     assert(out && s);
     cJSON *head = cJSON_CreateObject();
-    int ok = head && cJSON_AddStringToObject(head, "airframe", s->airframe_serial)
+    int ok = head && cJSON_AddStringToObject(head, "caution", pl_caution())
+             && cJSON_AddStringToObject(head, "airframe", s->airframe_serial)
              && cJSON_AddStringToObject(head, "site", s->site_code)
              && add_id_or_null(head, "baseline_inspection", s->pair.baseline_inspection)
-             && add_id_or_null(head, "current_inspection", s->pair.current_inspection);
+             && add_id_or_null(head, "current_inspection", s->pair.current_inspection)
+             && cJSON_AddBoolToObject(head, "simulated", s->simulated);
     cJSON *o = prepend(ok ? head : (cJSON_Delete(head), NULL),
                        pl_row__json(pl_row__table(PL_TABLE_REGISTRATION), &s->registration));
     if (o && !(add_id_or_null(o, "comparison_not_done", s->comparison_not_done)
@@ -403,7 +469,8 @@ PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char 
     assert(out && s);
     const pl_vocabulary *kinds = pl_vocabulary_get(PL_VOCAB_INSPECTION_KIND);
     cJSON *o = cJSON_CreateObject();
-    int ok = o && add_text_or_null(o, "store", path)
+    int ok = o && cJSON_AddStringToObject(o, "caution", pl_caution())
+             && add_text_or_null(o, "store", path)
              && cJSON_AddStringToObject(o, "store_id", s->store_id)
              && cJSON_AddNumberToObject(o, "schema_version", s->schema_version)
              && cJSON_AddStringToObject(o, "created_at", s->created_at)
@@ -426,6 +493,9 @@ PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char 
     for (size_t i = 0; ok && i < kinds->count; i++)
         ok = cJSON_AddNumberToObject(by, kinds->words[i], (double)s->inspections_by_kind[i])
              != NULL;
+    ok = ok && cJSON_AddNumberToObject(o, "simulated_inspections",
+                                       (double)s->simulated_inspections)
+         && cJSON_AddNumberToObject(o, "simulated_unknown", (double)s->unknown_inspections);
     for (size_t i = 0; ok && i < sizeof more / sizeof more[0]; i++)
         ok = cJSON_AddNumberToObject(o, more[i].key, (double)more[i].n) != NULL;
     int dated = s->first_inspection[0] != '\0';

@@ -441,15 +441,19 @@ PL_EXPORT int pl_plan_load(pl_plan **out, const char *path, pl_err *err)
     if (!rc && r.nsites == 0)
         rc = pl__err(err, PL_EFORMAT, "%s: no sites below the header", path);
     pl_plan *plan = NULL;
-    if (!rc && !(plan = malloc(sizeof *plan)))
+    if (!rc && !(plan = calloc(1, sizeof *plan)))
         rc = pl__err(err, PL_ENOMEM, "%s: out of memory", path);
-    free(r.site_lines);
+    if (!rc && !(plan->path = pl__strdup(path)))
+        rc = pl__err(err, PL_ENOMEM, "%s: out of memory", path);
     if (rc) {
+        free(plan);
+        free(r.site_lines);
         free(r.sites);
         return rc;
     }
     plan->nsites = r.nsites;
     plan->sites = r.sites;
+    plan->lines = r.site_lines;
     *out = plan;
     return PL_OK;
 }
@@ -459,6 +463,8 @@ PL_EXPORT void pl_plan_free(pl_plan *plan)
     if (!plan)
         return;
     free(plan->sites);
+    free(plan->lines);
+    free(plan->path);
     free(plan);
 }
 
@@ -479,6 +485,15 @@ PL_EXPORT int pl_plan_apply(pl_store *store, const pl_plan *plan, const char *se
                            "airframe serial", err);
         if (!rc)
             rc = pl_store_add_site(store, &site, NULL, err);
+        if (rc && plan->path && err) {
+            /* name the plan and the line the site came from */
+            char msg[PL_ERR_MSG_SIZE];
+            snprintf(msg, sizeof msg, "%s", err->msg);
+            if (plan->lines)
+                pl__err(err, rc, "%.200s line %zu: %.280s", plan->path, plan->lines[n], msg);
+            else
+                pl__err(err, rc, "%.200s: %.280s", plan->path, msg);
+        }
     }
     rc = pl_store__write_end(store, owned, rc, err);
     if (!rc && added)

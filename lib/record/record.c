@@ -39,6 +39,7 @@ PL_EXPORT void pl_record_free(pl_record *rec)
         free(s->insp.parameters_json);
     }
     free(rec->sites);
+    free(rec->source);
     free(rec);
 }
 
@@ -204,6 +205,7 @@ static const text_field text_fields[] = {
     TEXT_FIELD("inspector_level", inspector_level, NAME),
     TEXT_FIELD("software_version", software_version, NAME),
     TEXT_FIELD("notes", notes, FREE),
+    TEXT_FIELD("hours_reason", hours_reason, FREE),
 };
 
 /* The text of a sidecar string as it can be stored (valid UTF-8, control
@@ -278,6 +280,11 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
             int rc = take_whole(&insp->aircraft_cycles, it, PL_BOUND_CYCLES, what, err);
             if (rc)
                 return rc;
+        } else if (strcmp(k, "simulated") == 0) {
+            if (!cJSON_IsBool(it))
+                return pl__err(err, PL_EFORMAT, "%s: %s: \"simulated\" must be true (the data "
+                               "come from a simulation) or false", file, where);
+            insp->simulated = cJSON_IsTrue(it);
         } else if (strcmp(k, "parameters") == 0) {
             if (!cJSON_IsObject(it))
                 return pl__err(err, PL_EFORMAT, "%s: %s: \"parameters\" must be an object", file, where);
@@ -301,18 +308,30 @@ static int take_inspection_fields(pl_inspection *insp, const cJSON *obj, const c
     return PL_OK;
 }
 
+/* Make a failure's message start with `at` (the sidecar, and where in it),
+ * unless it already does. */
+static int located(int rc, const char *at, pl_err *err)
+{
+    if (rc && err && strncmp(err->msg, at, strlen(at)) != 0) {
+        char msg[PL_ERR_MSG_SIZE];
+        snprintf(msg, sizeof msg, "%s", err->msg);
+        pl__err(err, rc, "%s: %.400s", at, msg);
+    }
+    return rc;
+}
+
 /* Three numbers; with `coordinates`, each a part coordinate in its bound. */
-static int take_vec3(double out[3], const cJSON *arr, const char *file, const char *what,
+static int take_vec3(double out[3], const cJSON *arr, const char *at, const char *what,
                      int coordinates, pl_err *err)
 {
     if (!cJSON_IsArray(arr) || cJSON_GetArraySize(arr) != 3)
-        return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+        return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", at, what);
     for (int i = 0; i < 3; i++) {
         const cJSON *v = cJSON_GetArrayItem(arr, i);
         if (!cJSON_IsNumber(v))
-            return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", file, what);
+            return pl__err(err, PL_EFORMAT, "%s: %s must be an array of 3 numbers", at, what);
         char name[PL_ERR_MSG_SIZE / 2];
-        snprintf(name, sizeof name, "%s: %s %c", file, what, "xyz"[i]);
+        snprintf(name, sizeof name, "%s: %s %c", at, what, "xyz"[i]);
         int rc = coordinates ? pl_bound_check(PL_BOUND_COORDINATE, v->valuedouble, name, err)
                              : PL_OK;
         if (rc)
@@ -322,26 +341,27 @@ static int take_vec3(double out[3], const cJSON *arr, const char *file, const ch
     return PL_OK;
 }
 
-static int take_placement(pl_placement *p, const cJSON *obj, const char *file, pl_err *err)
+/* A map's "placement" object; `at` names the map in the sidecar. */
+static int take_placement(pl_placement *p, const cJSON *obj, const char *at, pl_err *err)
 {
     if (!cJSON_IsObject(obj))
-        return pl__err(err, PL_EFORMAT, "%s: \"placement\" must be an object", file);
+        return pl__err(err, PL_EFORMAT, "%s: \"placement\" must be an object", at);
     snprintf(p->system, sizeof p->system, "STA/BL/WL");
     snprintf(p->unit, sizeof p->unit, "mm");
     int have = 0;
     for (const cJSON *it = obj->child; it; it = it->next) {
         int rc = PL_OK;
         if (strcmp(it->string, "origin") == 0)
-            rc = take_vec3(p->origin, it, file, "placement origin", 1, err), have |= 1;
+            rc = take_vec3(p->origin, it, at, "placement origin", 1, err), have |= 1;
         else if (strcmp(it->string, "u") == 0)
-            rc = take_vec3(p->u, it, file, "placement u", 0, err), have |= 2;
+            rc = take_vec3(p->u, it, at, "placement u", 0, err), have |= 2;
         else if (strcmp(it->string, "v") == 0)
-            rc = take_vec3(p->v, it, file, "placement v", 0, err), have |= 4;
+            rc = take_vec3(p->v, it, at, "placement v", 0, err), have |= 4;
         else if ((strcmp(it->string, "system") == 0 || strcmp(it->string, "unit") == 0) &&
                  cJSON_IsString(it)) {
             int sys = it->string[0] == 's';
             char what[PL_ERR_MSG_SIZE];
-            snprintf(what, sizeof what, "%s: placement %.16s", file, it->string);
+            snprintf(what, sizeof what, "%.400s: placement %.16s", at, it->string);
             rc = pl_text_check(it->valuestring, 0, what, err);
             if (!rc)
                 rc = pl__copy_text(sys ? p->system : p->unit, sys ? sizeof p->system
@@ -349,34 +369,39 @@ static int take_placement(pl_placement *p, const cJSON *obj, const char *file, p
                                    it->valuestring, what, err);
         }
         else
-            return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", file,
+            return pl__err(err, PL_EFORMAT, "%s: placement: unknown or malformed key \"%s\"", at,
                            it->string);
         if (rc)
-            return rc;
+            return located(rc, at, err);
     }
     if (have != 7)
-        return pl__err(err, PL_EFORMAT, "%s: placement needs \"origin\", \"u\" and \"v\"", file);
-    return pl_placement_check(p, err);
+        return pl__err(err, PL_EFORMAT, "%s: placement needs \"origin\", \"u\" and \"v\"", at);
+    return located(pl_placement_check(p, err), at, err);
 }
 
-static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *file,
-                    const char *where, const char *dir, pl_err *err)
+/* One entry of a site's "maps"; `at` names it ("FILE: site CODE: map N"). */
+static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *at,
+                    const char *dir, pl_err *err)
 {
     if (!cJSON_IsObject(obj))
-        return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", file);
-    const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL;
+        return pl__err(err, PL_EFORMAT, "%s: each entry of \"maps\" must be an object", at);
+    const cJSON *jfile = NULL, *jch = NULL, *jpitch = NULL, *jplace = NULL, *jinf = NULL;
     for (const cJSON *it = obj->child; it; it = it->next) {
         if (strcmp(it->string, "file") == 0) jfile = it;
         else if (strcmp(it->string, "channels") == 0) jch = it;
         else if (strcmp(it->string, "pitch_mm") == 0) jpitch = it;
         else if (strcmp(it->string, "placement") == 0) jplace = it;
+        else if (strcmp(it->string, "infinite_as_no_data") == 0) jinf = it;
         else
-            return pl__err(err, PL_EFORMAT, "%s: map entry: unknown key \"%s\"", file, it->string);
+            return pl__err(err, PL_EFORMAT, "%s: unknown key \"%s\"", at, it->string);
     }
+    if (jinf && !cJSON_IsBool(jinf))
+        return pl__err(err, PL_EFORMAT, "%s: \"infinite_as_no_data\" must be true or false",
+                       at);
     if (!cJSON_IsString(jfile) || !*jfile->valuestring)
-        return pl__err(err, PL_EFORMAT, "%s: map entry needs \"file\" (a string)", file);
-    char what[PL_ERR_MSG_SIZE / 2];
-    snprintf(what, sizeof what, "%s: %s: \"file\"", file, where);
+        return pl__err(err, PL_EFORMAT, "%s: a map needs \"file\" (a file name)", at);
+    char what[PL_ERR_MSG_SIZE];
+    snprintf(what, sizeof what, "%.400s: \"file\"", at);
     /* its name is recorded with the map */
     int trc = pl_text_check(jfile->valuestring, 0, what, err);
     if (trc)
@@ -391,11 +416,11 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
             pu = cJSON_GetArrayItem(jpitch, 0)->valuedouble;
             pv = cJSON_GetArrayItem(jpitch, 1)->valuedouble;
         } else {
-            return pl__err(err, PL_EFORMAT, "%s: \"pitch_mm\" must be a number or [u, v]", file);
+            return pl__err(err, PL_EFORMAT, "%s: \"pitch_mm\" must be a number or [u, v]", at);
         }
         if (!(pu > 0) || !(pv > 0))
-            return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", file);
-        snprintf(what, sizeof what, "%s: %s: \"pitch_mm\"", file, where);
+            return pl__err(err, PL_EINVAL, "%s: \"pitch_mm\" must be positive", at);
+        snprintf(what, sizeof what, "%.400s: \"pitch_mm\"", at);
         int rc = pl_bound_check(PL_BOUND_PITCH, pu, what, err);
         if (!rc)
             rc = pl_bound_check(PL_BOUND_PITCH, pv, what, err);
@@ -407,15 +432,15 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
     uint32_t n = 0;
     if (jch) {
         if (!cJSON_IsArray(jch))
-            return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", file);
+            return pl__err(err, PL_EFORMAT, "%s: \"channels\" must be an array", at);
         for (const cJSON *c = jch->child; c; c = c->next) {
             const cJSON *q = cJSON_GetObjectItemCaseSensitive(c, "quantity");
             const cJSON *u = cJSON_GetObjectItemCaseSensitive(c, "unit");
             if (!cJSON_IsString(q) || (u && !cJSON_IsString(u)) || cJSON_GetArraySize(c) != (u ? 2 : 1))
                 return pl__err(err, PL_EFORMAT,
-                               "%s: each channel is {\"quantity\": text, \"unit\": text}", file);
+                               "%s: each channel is {\"quantity\": text, \"unit\": text}", at);
             if (n == MAX_LISTED_CHANNELS)
-                return pl__err(err, PL_EINVAL, "%s: too many channels (at most %d)", file,
+                return pl__err(err, PL_EINVAL, "%s: too many channels (at most %d)", at,
                                MAX_LISTED_CHANNELS);
             int rc = pl__copy_text(ch[n].quantity, sizeof ch[n].quantity, q->valuestring,
                                    "channel quantity", err);
@@ -423,7 +448,7 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
                 rc = pl__copy_text(ch[n].unit, sizeof ch[n].unit, u->valuestring, "channel unit",
                                    err);
             if (rc)
-                return rc;
+                return located(rc, at, err);
             n++;
         }
     }
@@ -433,14 +458,13 @@ static int take_map(pl_record *rec, size_t site, const cJSON *obj, const char *f
         snprintf(path, sizeof path, "%s", name);
     else
         snprintf(path, sizeof path, "%s/%s", dir, name);
-    int rc = add_map(rec, site, path, ch, n, pu, pv, err);
+    int rc = located(add_map(rec, site, path, ch, n, pu, pv, err), at, err);
     if (rc)
         return rc;
+    rec->sites[site].maps[rec->sites[site].nmaps - 1].infinite_as_nodata = cJSON_IsTrue(jinf);
     if (jplace) {
         pl_record_site *s = &rec->sites[site];
         pl_record_map *m = &s->maps[s->nmaps - 1];
-        char at[PL_ERR_MSG_SIZE / 2];
-        snprintf(at, sizeof at, "%s: %s", file, where);
         if ((rc = take_placement(&m->placement, jplace, at, err)))
             return rc;
         m->has_placement = 1;
@@ -455,6 +479,64 @@ static void blank_inspection(pl_inspection *insp)
     insp->aircraft_cycles = -1;
 }
 
+/* The entry of the batch before `n` that names the same airframe and site
+ * (keys compare without regard to case), or n. */
+static size_t earlier_entry(const pl_record *rec, size_t n)
+{
+    const pl_inspection *in = &rec->sites[n].insp;
+    for (size_t i = 0; i < n; i++)
+        if (strcasecmp(rec->sites[i].insp.airframe_serial, in->airframe_serial) == 0
+            && strcasecmp(rec->sites[i].insp.site_code, in->site_code) == 0)
+            return i;
+    return n;
+}
+
+/* One entry of "sites": its inspection fields over the top level's, then
+ * its maps; `file` names the sidecar in messages. */
+static int take_site(pl_record *rec, const cJSON *s, const pl_inspection *top, const char *file,
+                     const char *dir, pl_err *err)
+{
+    if (!cJSON_IsObject(s))
+        return pl__err(err, PL_EFORMAT, "%s: each entry of \"sites\" must be an object", file);
+    const cJSON *code = cJSON_GetObjectItemCaseSensitive(s, "site");
+    char where[96], at[PL_ERR_MSG_SIZE];
+    snprintf(where, sizeof where, "site %.80s", cJSON_IsString(code) ? code->valuestring : "?");
+    snprintf(at, sizeof at, "%.400s: %s", file, where);
+    pl_inspection insp = *top;
+    insp.parameters_json = top->parameters_json ? pl__strdup(top->parameters_json) : NULL;
+    if (top->parameters_json && !insp.parameters_json)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    static const char *const site_extra[] = { "maps", NULL };
+    int rc = take_inspection_fields(&insp, s, file, where, site_extra, err);
+    if (!rc && !insp.site_code[0])
+        rc = pl__err(err, PL_EFORMAT, "%s: a site entry has no \"site\" code", file);
+    size_t idx = 0;
+    if (!rc)
+        rc = pl_record_add_site(rec, &insp, &idx, err);
+    free(insp.parameters_json);
+    if (rc)
+        return rc;
+    size_t first = earlier_entry(rec, idx);
+    if (first != idx)
+        return pl__err(err, PL_EINVAL, "%s: site %s of %s appears twice in the batch (entries %zu "
+                       "and %zu of \"sites\"); record each site once", at, insp.site_code,
+                       insp.airframe_serial, first + 1, idx + 1);
+    const cJSON *maps = cJSON_GetObjectItemCaseSensitive(s, "maps");
+    if (maps && !cJSON_IsArray(maps))
+        return pl__err(err, PL_EFORMAT, "%s: \"maps\" must be an array", at);
+    size_t k = 0;
+    for (const cJSON *m = maps ? maps->child : NULL; m; m = m->next) {
+        char map_at[PL_ERR_MSG_SIZE];
+        snprintf(map_at, sizeof map_at, "%.440s: map %zu", at, ++k);
+        if ((rc = take_map(rec, idx, m, map_at, dir, err)))
+            return rc;
+    }
+    if (!k)
+        return pl__err(err, PL_EINVAL, "%s: no map given: \"maps\" must list the map files of "
+                       "the inspection", at);
+    return PL_OK;
+}
+
 static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, const char *dir,
                          pl_err *err)
 {
@@ -467,34 +549,8 @@ static int parse_sidecar(pl_record *rec, const cJSON *root, const char *file, co
     const cJSON *sites = cJSON_GetObjectItemCaseSensitive(root, "sites");
     if (!rc && (!cJSON_IsArray(sites) || cJSON_GetArraySize(sites) == 0))
         rc = pl__err(err, PL_EFORMAT, "%s: \"sites\" must be a non-empty array", file);
-    for (const cJSON *s = sites ? sites->child : NULL; !rc && s; s = s->next) {
-        if (!cJSON_IsObject(s)) {
-            rc = pl__err(err, PL_EFORMAT, "%s: each entry of \"sites\" must be an object", file);
-            break;
-        }
-        pl_inspection insp = top;
-        insp.parameters_json = top.parameters_json ? pl__strdup(top.parameters_json) : NULL;
-        if (top.parameters_json && !insp.parameters_json) {
-            rc = pl__err(err, PL_ENOMEM, "out of memory");
-            break;
-        }
-        const cJSON *code = cJSON_GetObjectItemCaseSensitive(s, "site");
-        char where[96];
-        snprintf(where, sizeof where, "site %s", cJSON_IsString(code) ? code->valuestring : "?");
-        static const char *const site_extra[] = { "maps", NULL };
-        rc = take_inspection_fields(&insp, s, file, where, site_extra, err);
-        if (!rc && !insp.site_code[0])
-            rc = pl__err(err, PL_EFORMAT, "%s: a site entry has no \"site\" code", file);
-        size_t idx = 0;
-        if (!rc)
-            rc = pl_record_add_site(rec, &insp, &idx, err);
-        free(insp.parameters_json);
-        const cJSON *maps = cJSON_GetObjectItemCaseSensitive(s, "maps");
-        if (!rc && maps && !cJSON_IsArray(maps))
-            rc = pl__err(err, PL_EFORMAT, "%s: %s: \"maps\" must be an array", file, where);
-        for (const cJSON *m = maps ? maps->child : NULL; !rc && m; m = m->next)
-            rc = take_map(rec, idx, m, file, where, dir, err);
-    }
+    for (const cJSON *s = sites ? sites->child : NULL; !rc && s; s = s->next)
+        rc = take_site(rec, s, &top, file, dir, err);
     free(top.parameters_json);
     return rc;
 }
@@ -527,6 +583,8 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
         dir[0] = '\0';
     pl_record *rec;
     int rc = pl_record_new(&rec, err);
+    if (!rc && !(rec->source = pl__strdup(path)))
+        rc = pl__err(err, PL_ENOMEM, "out of memory");
     if (!rc)
         rc = parse_sidecar(rec, root, path, dir, err);
     cJSON_Delete(root);
@@ -622,16 +680,47 @@ static void forget_ids(pl_record *rec)
     }
 }
 
-/* Read, complete, check and encode one map of a site (all before any lock). */
-static int prepare_map(pl_prepared_map **out, const pl_record_map *req, const pl_site *site,
-                       pl_err *err)
+/* A batch records each site once, each with at least one map. */
+static int check_batch(const pl_record *rec, pl_err *err)
+{
+    for (size_t i = 0; i < rec->nsites; i++) {
+        const pl_inspection *in = &rec->sites[i].insp;
+        if (!rec->sites[i].nmaps)
+            return pl__err(err, PL_EINVAL, "%.64s site %.64s: no map given: an inspection is "
+                           "recorded with the maps it produced", in->airframe_serial,
+                           in->site_code);
+        size_t first = earlier_entry(rec, i);
+        if (first != i)
+            return pl__err(err, PL_EINVAL, "%.64s site %.64s: the site appears twice in the batch "
+                           "(entries %zu and %zu); record each site once", in->airframe_serial,
+                           in->site_code, first + 1, i + 1);
+    }
+    return PL_OK;
+}
+
+/* A failure of a batch read from a sidecar names the sidecar first. */
+static int name_source(int rc, const pl_record *rec, pl_err *err)
+{
+    return rec->source ? located(rc, rec->source, err) : rc;
+}
+
+/* Read, complete, check and encode one map of a site (all before any lock);
+ * what the load did to the values goes into `params` (recorded with the map). */
+static int prepare_map(pl_prepared_map **out, char *params, size_t cap,
+                       const pl_record_map *req, const pl_site *site, pl_err *err)
 {
     pl_map *map = NULL;
-    int rc = pl_map_load(&map, req->path, err);
+    pl_map_load_options lo = PL_MAP_LOAD_OPTIONS_INIT;
+    lo.infinite = req->infinite_as_nodata ? PL_MAP_INFINITE_TO_NAN : PL_MAP_INFINITE_REFUSE;
+    pl_map_load_info info;
+    memset(&info, 0, sizeof info);
+    int rc = pl_map_load_v2(&map, &info, req->path, &lo, err);
     if (!rc)
         rc = complete_map(map, req, site, err);
     if (!rc)
         rc = pl_site_check_map(site, map, err);
+    if (!rc && pl_map_load_info_json(params, cap, &info) >= (int)cap)
+        rc = pl__err(err, PL_ENOMEM, "%s: the load's record does not fit", req->path);
     if (!rc) {
         pl_err e = { 0 };
         if ((rc = pl_prepared_map_new(out, map, &e)))
@@ -656,17 +745,25 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
     size_t total = 0, done = 0;
     for (size_t i = 0; i < rec->nsites; i++)
         total += rec->sites[i].nmaps;
+    int rc = check_batch(rec, err);
+    if (rc)
+        return name_source(rc, rec, err);
+    enum { PARAMS_SIZE = 160 };
     pl_prepared_map **prep = calloc(total ? total : 1, sizeof *prep);
-    if (!prep)
+    char *params = calloc(total ? total : 1, PARAMS_SIZE);
+    if (!prep || !params) {
+        free(prep);
+        free(params);
         return pl__err(err, PL_ENOMEM, "out of memory");
-    int rc = PL_OK;
+    }
     for (size_t i = 0; i < rec->nsites && !rc; i++) {
         pl_record_site *s = &rec->sites[i];
         pl_site site;
         rc = name_site(pl_store_get_site(store, s->insp.airframe_serial, s->insp.site_code,
                                          &site, err), &s->insp, err);
         for (size_t j = 0; j < s->nmaps && !rc; j++) {
-            rc = prepare_map(&prep[done], &s->maps[j], &site, err);
+            rc = prepare_map(&prep[done], params + done * PARAMS_SIZE, PARAMS_SIZE, &s->maps[j],
+                             &site, err);
             name_site(name_file(rc, s->maps[j].path, err), &s->insp, err);
             done++;
             if (!rc && progress && progress(userdata, total ? (double)done / (double)total : 1.0))
@@ -690,6 +787,7 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
                 mr.inspection_key = s->inspection_key;
                 snprintf(mr.source, sizeof mr.source, "%s", pl__basename(req->path));
                 snprintf(mr.origin, sizeof mr.origin, "%s", made_by_for(req->path));
+                mr.parameters_json = params + done * PARAMS_SIZE;
                 rc = pl_store_add_prepared_map(store, &mr, prep[done++], &req->map_id, err);
                 name_site(name_file(rc, req->path, err), &s->insp, err);
             }
@@ -702,16 +800,33 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
     for (size_t k = 0; k < total; k++)
         pl_prepared_map_free(prep[k]);
     free(prep);
+    free(params);
     if (rc)
         forget_ids(rec);
-    return rc;
+    return name_source(rc, rec, err);
 }
 
-PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *insp, pl_map *map,
+/* Whether a making's parameters say the data were simulated: the
+ * simulator writes a "simulation" object into the sequence manifest's
+ * acquisition, which a reduction records as its "acquisition". */
+static int parameters_simulated(const char *parameters_json)
+{
+    cJSON *j = parameters_json ? cJSON_Parse(parameters_json) : NULL;
+    const cJSON *acq = cJSON_GetObjectItemCaseSensitive(j, "acquisition");
+    int sim = cJSON_IsObject(cJSON_GetObjectItemCaseSensitive(acq, "simulation"));
+    cJSON_Delete(j);
+    return sim;
+}
+
+PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *given, pl_map *map,
                                        const char *made_by, const char *source,
                                        const char *parameters_json, pl_id *inspection_key,
                                        pl_id *map_id, pl_err *err)
 {
+    pl_inspection marked = *given;
+    if (parameters_simulated(parameters_json))
+        marked.simulated = 1;
+    const pl_inspection *insp = &marked;
     pl_site site;
     int rc = pl_store_get_site(store, insp->airframe_serial, insp->site_code, &site, err);
     if (rc)
@@ -765,6 +880,7 @@ PL_EXPORT int pl_record_map_inspection(pl_store *store, const pl_inspection *ins
 
 typedef struct pair_scan {
     pl_id baseline, latest;
+    int baseline_simulated, latest_simulated;
     char latest_date[PL_DATE_SIZE];
 } pair_scan;
 
@@ -773,8 +889,10 @@ static int scan_inspection(void *ud, const pl_inspection *in)
     pair_scan *p = ud;
     if (strcmp(in->kind, "baseline") == 0) {
         p->baseline = in->key;
+        p->baseline_simulated = in->simulated;
     } else if (strcmp(in->performed_on, p->latest_date) >= 0) {
         p->latest = in->key;
+        p->latest_simulated = in->simulated;
         snprintf(p->latest_date, sizeof p->latest_date, "%s", in->performed_on);
     }
     return 0;
@@ -832,6 +950,7 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
     if (!p.baseline)
         return pl__err(err, PL_ENOTFOUND, "%s site %s has no baseline inspection", serial, code);
     pair->baseline_inspection = p.baseline;
+    int current_simulated = p.latest_simulated;
     if (pair->current_inspection) {
         pl_inspection in;
         memset(&in, 0, sizeof in);
@@ -841,6 +960,7 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
         int same = strcmp(in.airframe_serial, site.airframe_serial) == 0 &&
                    strcmp(in.site_code, site.code) == 0;
         int base = strcmp(in.kind, "baseline") == 0;
+        current_simulated = in.simulated;
         pl_inspection_clear(&in);
         if (!same)
             return pl__err(err, PL_ENOMATCH, "inspection %lld is not of %s site %s",
@@ -854,6 +974,10 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
         return pl__err(err, PL_ENOTFOUND, "%s site %s has no inspection after its baseline",
                        serial, code);
     }
+    if (p.baseline_simulated == 1 && current_simulated == 0)
+        return pl__err(err, PL_EINVAL, "%s site %s: the baseline (inspection %lld) is simulated "
+                       "and cannot be the baseline of inspection %lld, which is real", serial,
+                       code, (long long)p.baseline, (long long)pair->current_inspection);
     if ((rc = inspection_map(store, pair->baseline_inspection, &pair->baseline_map, "baseline",
                              err)))
         return rc;

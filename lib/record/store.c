@@ -123,6 +123,24 @@ int pl_store__valid_date(const char *s)
     return d <= mdays[m - 1] + (m == 2 && leap);
 }
 
+int pl_store__not_after_today(pl_store *s, const char *date, const char *what, pl_err *err,
+                              const char *label)
+{
+    if (s->today[0] && date && *date && strcmp(date, s->today) > 0)
+        return pl__err(err, PL_EINVAL, "%s: %s %s is after today (%s)", label, what, date,
+                       s->today);
+    return PL_OK;
+}
+
+int pl_store__check_changes(const pl_table_desc *t, const void *current, const void *corrected,
+                            pl_err *err, const char *label)
+{
+    if (pl_row__same_input(t, current, corrected))
+        return pl__err(err, PL_EINVAL, "%s: nothing to correct: the correction gives every field "
+                       "the value it has", label);
+    return PL_OK;
+}
+
 int pl_store__bind_opt_text(sqlite3_stmt *st, int i, const char *v)
 {
     if (v && *v)
@@ -359,6 +377,15 @@ PL_EXPORT void pl_store_close(pl_store *s)
     }
     free(s->path);
     free(s);
+}
+
+PL_EXPORT int pl_store_set_today(pl_store *s, const char *today, pl_err *err)
+{
+    assert(s);
+    if (today && *today && !pl_store__valid_date(today))
+        return pl__err(err, PL_EINVAL, "today '%.32s' is not a calendar date YYYY-MM-DD", today);
+    snprintf(s->today, sizeof s->today, "%s", today ? today : "");
+    return PL_OK;
 }
 
 PL_EXPORT int pl_store_schema_version(const pl_store *s)
@@ -697,6 +724,10 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         { "SELECT count(*) FROM ledger", &sum->ledger_links },
         { "SELECT count(*) FROM registration", &sum->registrations },
         { "SELECT coalesce(sum(length(data)), 0) FROM map", &sum->map_bytes },
+        { "SELECT count(*) FROM inspection_current WHERE simulated = 1",
+          &sum->simulated_inspections },
+        { "SELECT count(*) FROM inspection_current WHERE simulated IS NULL",
+          &sum->unknown_inspections },
     };
     for (size_t i = 0; !rc && i < sizeof counts / sizeof counts[0]; i++)
         rc = pl_store__query_int(s, counts[i].sql, counts[i].out, err);

@@ -131,6 +131,11 @@ PL_EXPORT int pl_store_add_airframe(pl_store *s, const pl_airframe *af, pl_id *i
     if (af->operator_name[0] && af->manufactured[0] && strcmp(since, af->manufactured) < 0)
         return pl__err(err, PL_EINVAL, "%s: operator_since %s is before the date of manufacture %s",
                        label, since, af->manufactured);
+    if ((rc = pl_store__not_after_today(s, af->manufactured, "date of manufacture", err, label)))
+        return rc;
+    if (af->operator_name[0] &&
+        (rc = pl_store__not_after_today(s, since, "operator_since", err, label)))
+        return rc;
 
     int owned;
     rc = pl_store__write_begin(s, &owned, err);
@@ -201,6 +206,8 @@ PL_EXPORT int pl_store_add_operator(pl_store *s, const char *serial, const char 
                                 sizeof op.operator_name, 1);
     if (!rc)
         rc = pl_row__check_date(err, label, "since", since, sizeof op.since, 1);
+    if (!rc)
+        rc = pl_store__not_after_today(s, since, "operator since", err, label);
     int owned;
     if (rc || (rc = pl_store__write_begin(s, &owned, err)))
         return rc;
@@ -282,6 +289,71 @@ PL_EXPORT int pl_store_list_airframes(pl_store *s, const pl_airframe_filter *fil
                           args, 2, call_airframe, &cb, err, NULL);
 }
 
+/* The first date of `sql` (?1: the airframe's key) with what it belongs to:
+ * its first column the date, the second an id (0 for none), the third a
+ * site code (may be NULL). */
+static int first_dated(pl_store *s, const char *sql, pl_id key, char *date, pl_id *what,
+                       char *code, pl_err *err, const char *label)
+{
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, sql, err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, key);
+    int r = sqlite3_step(st);
+    date[0] = code[0] = '\0';
+    *what = 0;
+    if (r == SQLITE_ROW) {
+        pl_store__col_text(st, 0, date, PL_DATE_SIZE);
+        *what = sqlite3_column_int64(st, 1);
+        pl_store__col_text(st, 2, code, PL_NAME_SIZE);
+    } else if (r != SQLITE_DONE) {
+        rc = pl_store__fail(s, err, label);
+    }
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/*
+ * A corrected airframe must change something, and its date of manufacture
+ * may not come after today, after any of its inspections or after the
+ * start of its operator history.
+ */
+static int check_airframe_correction(pl_store *s, pl_id key, const pl_airframe *af,
+                                     pl_err *err, const char *label)
+{
+    pl_airframe cur;
+    pl_value arg = pl_store__arg_id(key);
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_AIRFRAME, "WHERE t.stable_key = ?1", &arg, 1, &cur,
+                           &found, err, label);
+    if (rc)
+        return rc;
+    rc = pl_store__check_changes(pl_row__table(PL_TABLE_AIRFRAME), &cur, af, err, label);
+    pl_row__release(pl_row__table(PL_TABLE_AIRFRAME), &cur);
+    if (rc || !af->manufactured[0])
+        return rc;
+    if ((rc = pl_store__not_after_today(s, af->manufactured, "date of manufacture", err, label)))
+        return rc;
+    char date[PL_DATE_SIZE], code[PL_NAME_SIZE];
+    pl_id what = 0;
+    rc = first_dated(s, "SELECT i.performed_on, i.stable_key, c.code FROM inspection_current i "
+                     "JOIN site_current c ON c.stable_key = i.site_key WHERE c.airframe_key = ?1 "
+                     "ORDER BY i.performed_on, i.stable_key LIMIT 1", key, date, &what, code, err,
+                     label);
+    if (!rc && what && strcmp(date, af->manufactured) < 0)
+        return pl__err(err, PL_EINVAL, "%s: inspection %lld (site %s, %s) would come before the "
+                       "date of manufacture %s", label, (long long)what, code, date,
+                       af->manufactured);
+    if (!rc)
+        rc = first_dated(s, "SELECT since, id, NULL FROM airframe_operator WHERE airframe_key = ?1 "
+                         "ORDER BY since, id LIMIT 1", key, date, &what, code, err, label);
+    if (!rc && what && strcmp(date, af->manufactured) < 0)
+        return pl__err(err, PL_EINVAL, "%s: the operator history starts on %s, before the date of "
+                       "manufacture %s", label, date, af->manufactured);
+    return rc;
+}
+
 PL_EXPORT int pl_store_correct_airframe(pl_store *s, const pl_airframe *af, const char *reason,
                                         pl_id *id, pl_err *err)
 {
@@ -294,6 +366,8 @@ PL_EXPORT int pl_store_correct_airframe(pl_store *s, const pl_airframe *af, cons
         return rc;
     pl_id key = 0, current = 0, newid = 0;
     rc = pl_store__airframe_key(s, af->serial, &key, &current, err, label);
+    if (!rc)
+        rc = check_airframe_correction(s, key, af, err, label);
     if (!rc)
         rc = insert_airframe(s, af, key, current, reason, &newid, err, label);
     return pl_store__write_end_id(s, owned, rc, newid, id, err);
@@ -432,6 +506,15 @@ PL_EXPORT int pl_store_correct_site(pl_store *s, const pl_site *site, const char
     rc = pl_store__airframe_key(s, site->airframe_serial, &af, NULL, err, label);
     if (!rc)
         rc = pl_store__site_key(s, af, site->code, &key, &current, err, label);
+    if (!rc) {
+        pl_site cur;
+        pl_value arg = pl_store__arg_id(key);
+        int found = 0;
+        rc = pl_store__get(s, PL_TABLE_SITE, "WHERE t.stable_key = ?1", &arg, 1, &cur, &found,
+                           err, label);
+        if (!rc)
+            rc = pl_store__check_changes(pl_row__table(PL_TABLE_SITE), &cur, site, err, label);
+    }
     if (!rc)
         rc = insert_site(s, site, af, key, current, reason, &newid, err, label);
     return pl_store__write_end_id(s, owned, rc, newid, id, err);

@@ -66,6 +66,225 @@ static int check_baseline(pl_store *s, pl_id site, pl_id replacing, pl_err *err,
     return rc;
 }
 
+/* ---- chronology ------------------------------------------------------------ */
+
+/* One current inspection of a site, as its chronology sees it. */
+typedef struct dated {
+    pl_id key;
+    char kind[PL_WORD_SIZE];
+    char date[PL_DATE_SIZE];
+    int simulated;  /* 1, 0, or -1 unknown */
+} dated;
+
+typedef struct dated_list {
+    dated *items;
+    size_t n, cap;
+} dated_list;
+
+/* The current inspections of `site` but the row `replacing` (0: none),
+ * oldest first. */
+static int site_inspections(pl_store *s, pl_id site, pl_id replacing, dated_list *out,
+                            pl_err *err, const char *label)
+{
+    memset(out, 0, sizeof *out);
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, "SELECT stable_key, kind, performed_on, simulated FROM "
+                               "inspection_current WHERE site_key = ?1 AND id <> ?2 "
+                               "ORDER BY performed_on, stable_key", err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, site);
+    sqlite3_bind_int64(st, 2, replacing);
+    int r;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        if (out->n == out->cap) {
+            size_t cap = out->cap ? 2 * out->cap : 16;
+            dated *grown = realloc(out->items, cap * sizeof *grown);
+            if (!grown) {
+                rc = pl__err(err, PL_ENOMEM, "%s: out of memory", label);
+                break;
+            }
+            out->items = grown;
+            out->cap = cap;
+        }
+        dated *d = &out->items[out->n++];
+        d->key = sqlite3_column_int64(st, 0);
+        pl_store__col_text(st, 1, d->kind, sizeof d->kind);
+        pl_store__col_text(st, 2, d->date, sizeof d->date);
+        d->simulated = sqlite3_column_type(st, 3) == SQLITE_NULL
+                           ? -1 : sqlite3_column_int64(st, 3) != 0;
+    }
+    rc = pl_store__finish_listing(s, st, r, rc, err, label);
+    if (rc) {
+        free(out->items);
+        memset(out, 0, sizeof *out);
+    }
+    return rc;
+}
+
+/*
+ * The site's inspections in order, as they would stand with `in` recorded
+ * (replacing the row `replacing`, whose kind was `replaced_kind`): a
+ * scheduled inspection needs the site's baseline, no inspection comes
+ * before the baseline, and a simulated baseline serves no real scheduled
+ * inspection. Unscheduled and post-repair inspections need no baseline
+ * (damage is found, and repaired, where none was ever recorded), but none
+ * comes before one.
+ */
+static int check_site_order(pl_store *s, const pl_inspection *in, pl_id site, pl_id replacing,
+                            const char *replaced_kind, pl_err *err, const char *label)
+{
+    dated_list l;
+    int rc = site_inspections(s, site, replacing, &l, err, label);
+    if (rc)
+        return rc;
+    int is_base = strcmp(in->kind, "baseline") == 0;
+    const dated *base = NULL;
+    for (size_t i = 0; !is_base && i < l.n; i++)
+        if (strcmp(l.items[i].kind, "baseline") == 0)
+            base = &l.items[i];
+    const char *base_date = is_base ? in->performed_on : base ? base->date : NULL;
+    int base_sim = is_base ? in->simulated : base ? base->simulated : -1;
+    int sched = strcmp(in->kind, "scheduled") == 0;
+    if (!base_date && sched && replaced_kind && strcmp(replaced_kind, "baseline") == 0)
+        rc = pl__err(err, PL_EINVAL, "%s: it is the site's only baseline: as a scheduled "
+                     "inspection it would leave the site without a baseline, which a scheduled "
+                     "inspection is compared with", label);
+    else if (!base_date && sched)
+        rc = pl__err(err, PL_EINVAL, "%s: the site has no baseline inspection: record the "
+                     "baseline first (a scheduled inspection is compared with it)", label);
+    else if (!is_base && base && strcmp(in->performed_on, base->date) < 0)
+        rc = pl__err(err, PL_EINVAL, "%s: performed_on %s is before the site's baseline "
+                     "(inspection %lld, %s)", label, in->performed_on, (long long)base->key,
+                     base->date);
+    else if (sched && in->simulated == 0 && base_sim == 1)
+        rc = pl__err(err, PL_EINVAL, "%s: the site's baseline (inspection %lld, %s) is simulated "
+                     "and cannot be the baseline of a real inspection", label,
+                     (long long)base->key, base->date);
+    for (size_t i = 0; !rc && i < l.n; i++) {
+        const dated *d = &l.items[i];
+        int d_sched = strcmp(d->kind, "scheduled") == 0;
+        if (strcmp(d->kind, "baseline") == 0)
+            continue;
+        if (!base_date && d_sched)
+            rc = pl__err(err, PL_EINVAL, "%s: the site would be left without a baseline while its "
+                         "scheduled inspection %lld (%s) is compared with it", label,
+                         (long long)d->key, d->date);
+        else if (base_date && strcmp(d->date, base_date) < 0)
+            rc = pl__err(err, PL_EINVAL, "%s: inspection %lld (%s, %s) would come before the "
+                         "site's baseline on %s; the baseline comes first", label,
+                         (long long)d->key, d->kind, d->date, base_date);
+        else if (is_base && d_sched && base_sim == 1 && d->simulated == 0)
+            rc = pl__err(err, PL_EINVAL, "%s: a simulated baseline cannot be the baseline of the "
+                         "site's real scheduled inspection %lld (%s)", label, (long long)d->key,
+                         d->date);
+    }
+    free(l.items);
+    return rc;
+}
+
+/* One side of the airframe's order of hours or cycles: the inspection that
+ * `sql` (?1 airframe, ?2 the row replaced, ?3 the date, ?4 the value) finds
+ * against `in`, refused with `words`. */
+static int check_count_order(pl_store *s, const char *sql, pl_id af, pl_id replacing,
+                             const char *date, double value, const char *what,
+                             const char *words, pl_err *err, const char *label)
+{
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st, sql, err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, af);
+    sqlite3_bind_int64(st, 2, replacing);
+    sqlite3_bind_text(st, 3, date, -1, SQLITE_STATIC);
+    sqlite3_bind_double(st, 4, value);
+    int r = sqlite3_step(st);
+    if (r == SQLITE_ROW)
+        rc = pl__err(err, PL_EINVAL, "%s: flight %s %.15g are %s the %.15g of inspection %lld "
+                     "(site %s, %s); when the aircraft's records were corrected, record the "
+                     "reason (--hours-reason, or \"hours_reason\" in a sidecar)", label, what, value, words,
+                     sqlite3_column_double(st, 1), (long long)sqlite3_column_int64(st, 0),
+                     (const char *)sqlite3_column_text(st, 2),
+                     (const char *)sqlite3_column_text(st, 3));
+    else if (r != SQLITE_DONE)
+        rc = pl_store__fail(s, err, label);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* The inspections of the airframe that count: current, not the one
+ * replaced, and not themselves out of order for a recorded reason. */
+#define COUNTED(col)                                                                       \
+    "SELECT i.stable_key, i." col ", c.code, i.performed_on FROM inspection_current i "    \
+    "JOIN site_current c ON c.stable_key = i.site_key WHERE c.airframe_key = ?1 AND "      \
+    "i.id <> ?2 AND i.hours_reason IS NULL AND i." col " IS NOT NULL AND "
+
+/*
+ * Flight hours and cycles only grow: an inspection may not have fewer than
+ * one of the airframe's earlier inspections (any site), nor more than a
+ * later one, unless it records why (a documented correction of the
+ * aircraft's records). Inspections of the same day are not ordered.
+ */
+static int check_counts(pl_store *s, const pl_inspection *in, pl_id af, pl_id replacing,
+                        pl_err *err, const char *label)
+{
+    if (in->hours_reason[0])
+        return PL_OK;
+    int rc = PL_OK;
+    if (!isnan(in->aircraft_hours)) {
+        rc = check_count_order(s, COUNTED("aircraft_hours") "i.performed_on < ?3 AND "
+                               "i.aircraft_hours > ?4 ORDER BY i.aircraft_hours DESC LIMIT 1", af,
+                               replacing, in->performed_on, in->aircraft_hours, "hours",
+                               "fewer than", err, label);
+        if (!rc)
+            rc = check_count_order(s, COUNTED("aircraft_hours") "i.performed_on > ?3 AND "
+                                   "i.aircraft_hours < ?4 ORDER BY i.aircraft_hours LIMIT 1", af,
+                                   replacing, in->performed_on, in->aircraft_hours, "hours",
+                                   "more than", err, label);
+    }
+    if (!rc && in->aircraft_cycles >= 0) {
+        rc = check_count_order(s, COUNTED("aircraft_cycles") "i.performed_on < ?3 AND "
+                               "i.aircraft_cycles > ?4 ORDER BY i.aircraft_cycles DESC LIMIT 1",
+                               af, replacing, in->performed_on, (double)in->aircraft_cycles,
+                               "cycles", "fewer than", err, label);
+        if (!rc)
+            rc = check_count_order(s, COUNTED("aircraft_cycles") "i.performed_on > ?3 AND "
+                                   "i.aircraft_cycles < ?4 ORDER BY i.aircraft_cycles LIMIT 1",
+                                   af, replacing, in->performed_on, (double)in->aircraft_cycles,
+                                   "cycles", "more than", err, label);
+    }
+    return rc;
+}
+
+/*
+ * Everything that places an inspection in time, checked as the record would
+ * stand with it: not after today, not before the airframe was built, in
+ * order with its site's baseline and with the airframe's hours and cycles.
+ */
+static int check_chronology(pl_store *s, const pl_inspection *in, pl_id af, pl_id site,
+                            pl_id replacing, const char *replaced_kind, pl_err *err,
+                            const char *label)
+{
+    int rc = pl_store__not_after_today(s, in->performed_on, "performed_on", err, label);
+    if (rc)
+        return rc;
+    sqlite3_stmt *st;
+    rc = pl_store__row_by_id(s, &st, "SELECT manufactured FROM airframe_current WHERE "
+                             "stable_key = ?1", af, err, label, "no such airframe");
+    if (rc)
+        return rc;
+    char made[PL_DATE_SIZE];
+    pl_store__col_text(st, 0, made, sizeof made);
+    sqlite3_finalize(st);
+    if (made[0] && strcmp(in->performed_on, made) < 0)
+        return pl__err(err, PL_EINVAL, "%s: performed_on %s is before the airframe's date of "
+                       "manufacture %s", label, in->performed_on, made);
+    rc = check_site_order(s, in, site, replacing, replaced_kind, err, label);
+    if (!rc)
+        rc = check_counts(s, in, af, replacing, err, label);
+    return rc;
+}
+
 PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_id *id,
                                       pl_err *err)
 {
@@ -74,6 +293,9 @@ PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_i
     snprintf(label, sizeof label, "inspection of site %.*s on %.*s", FLD(in->site_code),
              FLD(in->airframe_serial));
     int rc = pl_row__check(pl_row__table(PL_TABLE_INSPECTION), in, label, err);
+    if (!rc && in->simulated < 0)
+        rc = pl__err(err, PL_EINVAL, "%s: simulated must say whether the data come from a "
+                     "simulation (1) or from the part (0)", label);
     int owned;
     if (rc || (rc = pl_store__write_begin(s, &owned, err)))
         return rc;
@@ -83,6 +305,8 @@ PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_i
         rc = pl_store__site_key(s, af, in->site_code, &site, NULL, err, label);
     if (!rc && strcmp(in->kind, "baseline") == 0)
         rc = check_baseline(s, site, 0, err, label);
+    if (!rc)
+        rc = check_chronology(s, in, af, site, 0, NULL, err, label);
     if (!rc)
         rc = insert_inspection(s, in, site, 0, 0, NULL, &newid, err, label);
     return pl_store__write_end_id(s, owned, rc, newid, id, err);
@@ -126,8 +350,20 @@ PL_EXPORT int pl_store_correct_inspection(pl_store *s, pl_id key, const pl_inspe
     if (!rc && named_site != site)
         rc = pl__err(err, PL_EINVAL, "%s: a correction cannot move the inspection to another "
                      "site (%s on %s)", label, in->site_code, in->airframe_serial);
+    pl_inspection cur;
+    memset(&cur, 0, sizeof cur);
+    if (!rc)
+        rc = pl_store_get_inspection(s, key, &cur, err);
+    if (!rc)
+        rc = pl_store__check_changes(pl_row__table(PL_TABLE_INSPECTION), &cur, in, err, label);
+    if (!rc && in->simulated < 0 && cur.simulated >= 0)
+        rc = pl__err(err, PL_EINVAL, "%s: simulated must stay said: 1 for data from a "
+                     "simulation, 0 for data from the part", label);
     if (!rc && strcmp(in->kind, "baseline") == 0)
         rc = check_baseline(s, site, current, err, label);
+    if (!rc)
+        rc = check_chronology(s, in, af, site, current, cur.kind, err, label);
+    pl_inspection_clear(&cur);
     if (!rc)
         rc = insert_inspection(s, in, site, key, current, reason, &newid, err, label);
     return pl_store__write_end_id(s, owned, rc, newid, id, err);
@@ -401,6 +637,20 @@ PL_EXPORT int pl_store_add_map(pl_store *s, const pl_map_record *rec, const pl_m
     rc = pl_store_add_prepared_map(s, rec, p, id, err);
     pl_prepared_map_free(p);
     return rc;
+}
+
+int pl_store__map_inspection(pl_store *s, pl_id map_id, pl_id *inspection_key, pl_err *err)
+{
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "%s: map %lld", s->path, (long long)map_id);
+    sqlite3_stmt *st;
+    int rc = pl_store__row_by_id(s, &st, "SELECT inspection_key FROM map WHERE id = ?1", map_id,
+                                 err, label, "no such map");
+    if (rc)
+        return rc;
+    *inspection_key = sqlite3_column_int64(st, 0);
+    sqlite3_finalize(st);
+    return PL_OK;
 }
 
 /* Channels of map `id` into `ch` (room for n), checking they are 0..n-1. */

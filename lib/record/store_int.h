@@ -35,6 +35,7 @@ struct pl_store {
     unsigned char last_row[32];            /* SHA-256 of the last row's canonical encoding */
     double wait_s;                         /* how long a write waits for another's lock */
     struct timespec busy_since;            /* when the current wait began */
+    char today[PL_DATE_SIZE];              /* pl_store_set_today(), or "" */
 };
 
 /* A fixed text field as printf arguments: "%.*s" never reads past it. */
@@ -124,6 +125,12 @@ int pl_store__write_end_id(pl_store *store, int owned, int rc, pl_id newid, pl_i
  */
 int pl_store__valid_date(const char *s);
 
+/* Refuse `date` (field `what` of `label`) when it lies after the store's
+ * today (pl_store_set_today()); PL_OK when it does not or no today is set. */
+int pl_store__not_after_today(pl_store *s, const char *date, const char *what, pl_err *err,
+                              const char *label);
+
+
 /* Lookups by name (store_airframe.c): the key and current row of the airframe
  * with `serial`, of the site `code` of airframe `af_key`; PL_ENOTFOUND
  * naming `label`. */
@@ -131,6 +138,10 @@ int pl_store__airframe_key(pl_store *s, const char *serial, pl_id *key, pl_id *c
                            pl_err *err, const char *label);
 int pl_store__site_key(pl_store *s, pl_id af_key, const char *code, pl_id *key, pl_id *current,
                        pl_err *err, const char *label);
+
+/* The key of the inspection map `map_id` belongs to (store_inspection.c);
+ * PL_ENOTFOUND when there is no such map. */
+int pl_store__map_inspection(pl_store *s, pl_id map_id, pl_id *inspection_key, pl_err *err);
 
 /* The latest operator's `col` of the airframe `t` (a current row) in SQL. */
 #define PL_STORE_LATEST_OPERATOR(col) \
@@ -172,6 +183,7 @@ typedef enum pl_ctype {
     PL_C_TEXT,      /* char[size]; "" absent */
     PL_C_STR,       /* char *, malloc'd on read; NULL (or "") absent */
     PL_C_SIZE,      /* size_t */
+    PL_C_FLAG,      /* int: 0 or 1; -1 absent (JSON true, false or null) */
     PL_C_ROWS,      /* pointer to `count` child structs */
 } pl_ctype;
 
@@ -273,6 +285,15 @@ int pl_row__check_text(pl_err *err, const char *label, const char *field, const 
                        size_t cap, int required);
 int pl_row__check_date(pl_err *err, const char *label, const char *field, const char *v,
                        size_t cap, int required);
+
+/* 1 when records a and b of `t` give every PL_COL_INPUT field the same
+ * stored value (a correction of a into b would change nothing), else 0. */
+int pl_row__same_input(const pl_table_desc *t, const void *a, const void *b);
+
+/* Refuse a correction that gives `t`'s record the values it has: PL_EINVAL
+ * "nothing to correct". */
+int pl_store__check_changes(const pl_table_desc *t, const void *current, const void *corrected,
+                            pl_err *err, const char *label);
 
 /* The values of `rec`'s fields into a new row of `t` (others NULL). */
 void pl_row__from_record(pl_row *row, const pl_table_desc *t, const void *rec);

@@ -20,6 +20,7 @@ typedef struct map_owner {
     pl_id site, inspection;
     char kind[PL_WORD_SIZE];
     char performed_on[PL_DATE_SIZE];
+    int simulated;  /* 1, 0, or -1 not recorded */
 } map_owner;
 
 static int find_map_owner(pl_store *s, pl_id map_id, map_owner *o, const char *label,
@@ -29,7 +30,8 @@ static int find_map_owner(pl_store *s, pl_id map_id, map_owner *o, const char *l
     char missing[48];
     snprintf(missing, sizeof missing, "no map %lld", (long long)map_id);
     int rc = pl_store__row_by_id(s, &st,
-                                 "SELECT i.site_key, i.stable_key, i.kind, i.performed_on FROM "
+                                 "SELECT i.site_key, i.stable_key, i.kind, i.performed_on, "
+                                 "i.simulated FROM "
                                  "map m JOIN inspection_current i ON i.stable_key = "
                                  "m.inspection_key WHERE m.id = ?1", map_id, err, label, missing);
     if (rc)
@@ -38,6 +40,8 @@ static int find_map_owner(pl_store *s, pl_id map_id, map_owner *o, const char *l
     o->inspection = sqlite3_column_int64(st, 1);
     pl_store__col_text(st, 2, o->kind, sizeof o->kind);
     pl_store__col_text(st, 3, o->performed_on, sizeof o->performed_on);
+    o->simulated = sqlite3_column_type(st, 4) == SQLITE_NULL ? -1
+                                                             : sqlite3_column_int64(st, 4) != 0;
     sqlite3_finalize(st);
     return PL_OK;
 }
@@ -106,6 +110,12 @@ PL_EXPORT int pl_store_add_registration(pl_store *s, const pl_registration_recor
                        "%s: map %lld is of a %s inspection (%s) that is not earlier than map "
                        "%lld's (%s)", label, (long long)r->baseline_map_id, base.kind,
                        base.performed_on, (long long)r->current_map_id, cur.performed_on);
+    if (base.simulated == 1 && cur.simulated == 0)
+        return pl__err(err, PL_EINVAL,
+                       "%s: map %lld is of a simulated inspection (%lld, %s) and cannot be the "
+                       "baseline of map %lld, which is of a real inspection", label,
+                       (long long)r->baseline_map_id, (long long)base.inspection,
+                       base.performed_on, (long long)r->current_map_id);
     pl_row row;
     pl_row__from_record(&row, pl_row__table(PL_TABLE_REGISTRATION), r);
     return pl_store__write_row(s, &row, id, err, label);
@@ -132,23 +142,23 @@ PL_EXPORT int pl_store_list_registrations(pl_store *s, pl_id current_map_id,
 
 /* ---- comparisons --------------------------------------------------------------------- */
 
-/* The site key of an inspection (by key). */
-static int inspection_site_key(pl_store *s, pl_id key, pl_id *site, const char *label,
-                               pl_err *err)
+/* The site key of an inspection (by key), and whether it is simulated (1,
+ * 0, or -1 not recorded). */
+static int inspection_site_key(pl_store *s, pl_id key, pl_id *site, int *simulated,
+                               const char *label, pl_err *err)
 {
+    char missing[64];
+    snprintf(missing, sizeof missing, "no inspection with key %lld", (long long)key);
     sqlite3_stmt *st;
-    int rc = pl_store__prepare(s, &st, "SELECT site_key FROM inspection_current WHERE "
-                               "stable_key = ?1", err);
+    int rc = pl_store__row_by_id(s, &st, "SELECT site_key, simulated FROM inspection_current "
+                                 "WHERE stable_key = ?1", key, err, label, missing);
     if (rc)
         return rc;
-    sqlite3_bind_int64(st, 1, key);
-    int found = 0;
-    int64_t v = 0;
-    rc = pl_store__finish_int(s, st, &found, &v, err, label);
-    if (!rc && !found)
-        rc = pl__err(err, PL_ENOTFOUND, "%s: no inspection with key %lld", label, (long long)key);
-    *site = v;
-    return rc;
+    *site = sqlite3_column_int64(st, 0);
+    *simulated = sqlite3_column_type(st, 1) == SQLITE_NULL ? -1
+                                                           : sqlite3_column_int64(st, 1) != 0;
+    sqlite3_finalize(st);
+    return PL_OK;
 }
 
 static int check_comparison(const pl_comparison_record *c, const char *label, pl_err *err)
@@ -172,14 +182,19 @@ PL_EXPORT int pl_store_add_comparison(pl_store *s, const pl_comparison_record *c
              (long long)c->current_inspection, (long long)c->baseline_inspection);
     int rc = check_comparison(c, label, err);
     pl_id bsite = 0, csite = 0;
+    int bsim = -1, csim = -1;
     if (!rc)
-        rc = inspection_site_key(s, c->baseline_inspection, &bsite, label, err);
+        rc = inspection_site_key(s, c->baseline_inspection, &bsite, &bsim, label, err);
     if (!rc)
-        rc = inspection_site_key(s, c->current_inspection, &csite, label, err);
+        rc = inspection_site_key(s, c->current_inspection, &csite, &csim, label, err);
     if (rc)
         return rc;
     if (bsite != csite)
         return pl__err(err, PL_ENOMATCH, "%s: the inspections are of different sites", label);
+    if (bsim == 1 && csim == 0)
+        return pl__err(err, PL_EINVAL, "%s: inspection %lld is simulated and cannot be the "
+                       "baseline of inspection %lld, which is real", label,
+                       (long long)c->baseline_inspection, (long long)c->current_inspection);
     pl_row row;
     pl_row__from_record(&row, pl_row__table(PL_TABLE_COMPARISON), c);
     pl_row__set_id(&row, "site_key", bsite);

@@ -412,6 +412,7 @@ PL_EXPORT int pl_key_check(const char *key, const char *what, pl_err *err)
     BCOLUMN(T, f, #f, col, js, PL_S_REAL, PL_C_F64, fl, form, 1 + (b))
 #define BINT(T, f, col, js, ct, fl, form, b) \
     BCOLUMN(T, f, #f, col, js, PL_S_INTEGER, ct, fl, form, 1 + (b))
+#define FLAG(T, f, col, js, fl) COLUMN(T, f, #f, col, js, PL_S_INTEGER, PL_C_FLAG, fl, PL_F_ANY)
 #define WORD(T, f, col, js, vocab_) \
     { .column = col, .field = #f, .json = js, .stype = PL_S_TEXT, .ctype = PL_C_TEXT, \
       .offset = offsetof(T, f), .size = FSIZE(T, f), .flags = IN | REQ, .form = PL_F_NAME, \
@@ -512,12 +513,14 @@ static const pl_column inspection_cols[] = {
            PL_F_KEY),
     JOINED(pl_inspection, site_code, "s.code", "site", PL_C_TEXT, IN | REQ, PL_F_KEY),
     WORD(pl_inspection, kind, "kind", "kind", PL_VOCAB_INSPECTION_KIND),
+    FLAG(pl_inspection, simulated, "simulated", "simulated", IN | NUL),
     TEXT(pl_inspection, performed_on, "performed_on", "date", IN | REQ, PL_F_DATE),
     TEXT(pl_inspection, task_ref, "task_ref", "task", IN | NUL, PL_F_NAME),
     BREAL(pl_inspection, aircraft_hours, "aircraft_hours", "hours", IN | NUL, PL_F_NONNEGATIVE,
           PL_BOUND_HOURS),
     BINT(pl_inspection, aircraft_cycles, "aircraft_cycles", "cycles", PL_C_I64, IN | NUL,
          PL_F_NONNEGATIVE, PL_BOUND_CYCLES),
+    TEXT(pl_inspection, hours_reason, "hours_reason", "hours_reason", IN | NUL, PL_F_TEXT),
     TEXT(pl_inspection, procedure, "procedure", "procedure", IN | REQ, PL_F_NAME),
     TEXT(pl_inspection, procedure_rev, "procedure_rev", "procedure_revision", IN | REQ,
          PL_F_NAME),
@@ -848,6 +851,14 @@ static int check_field(const pl_column *c, const void *rec, const char *label, p
         memcpy(&v, cfield(c, rec), sizeof v);
         return check_number(c, v, label, err);
     }
+    case PL_C_FLAG: {
+        int v;
+        memcpy(&v, cfield(c, rec), sizeof v);
+        if (v != 0 && v != 1 && !((c->flags & PL_COL_NULLABLE) && v == -1))
+            return pl__err(err, PL_EINVAL, "%s: %s must be 0 or 1%s (got %d)", label, c->field,
+                           (c->flags & PL_COL_NULLABLE) ? ", or -1 for unknown" : "", v);
+        return PL_OK;
+    }
     case PL_C_I64: {
         int64_t v;
         memcpy(&v, cfield(c, rec), sizeof v);
@@ -915,6 +926,12 @@ static pl_value field_value(const pl_column *c, const void *rec, int *absent)
         *absent = v == 0;
         return int_value(v);
     }
+    case PL_C_FLAG: {
+        int v;
+        memcpy(&v, f, sizeof v);
+        *absent = v < 0;
+        return int_value(v);
+    }
     case PL_C_SIZE: {
         size_t v;
         memcpy(&v, f, sizeof v);
@@ -953,6 +970,31 @@ static pl_value value_of(const pl_column *c, const void *rec)
     if (absent && ((c->flags & PL_COL_NULLABLE) || c->ctype == PL_C_F64))
         return null_value();
     return v;
+}
+
+static int same_value(const pl_value *a, const pl_value *b)
+{
+    if (a->type != b->type)
+        return 0;
+    switch (a->type) {
+    case PL_S_NONE: return 1;
+    case PL_S_INTEGER: return a->i == b->i;
+    case PL_S_REAL: return a->r == b->r;
+    default: return a->n == b->n && (a->n == 0 || memcmp(a->p, b->p, a->n) == 0);
+    }
+}
+
+int pl_row__same_input(const pl_table_desc *t, const void *a, const void *b)
+{
+    for (size_t i = 0; i < t->ncols; i++) {
+        const pl_column *c = &t->cols[i];
+        if (!(c->flags & PL_COL_INPUT))
+            continue;
+        pl_value va = value_of(c, a), vb = value_of(c, b);
+        if (!same_value(&va, &vb))
+            return 0;
+    }
+    return 1;
 }
 
 void pl_row__from_record(pl_row *row, const pl_table_desc *t, const void *rec)
@@ -1395,6 +1437,11 @@ int pl_row__read(const pl_table_desc *t, sqlite3_stmt *st, void *rec)
             memcpy(f, &v, sizeof v);
             break;
         }
+        case PL_C_FLAG: {
+            int v = null ? -1 : sqlite3_column_int64(st, col) != 0;
+            memcpy(f, &v, sizeof v);
+            break;
+        }
         case PL_C_SIZE: {
             size_t v = (size_t)sqlite3_column_int64(st, col);
             memcpy(f, &v, sizeof v);
@@ -1618,6 +1665,8 @@ static cJSON *json_value(const pl_column *c, const void *rec)
     pl_value v = field_value(c, rec, &absent);
     if (absent)
         return cJSON_CreateNull();
+    if (c->ctype == PL_C_FLAG)
+        return cJSON_CreateBool(v.i != 0);
     switch (v.type) {
     case PL_S_INTEGER: return cJSON_CreateNumber((double)v.i);
     case PL_S_REAL: return json_number(v.r);

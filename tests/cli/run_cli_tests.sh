@@ -202,6 +202,54 @@ run "correct site" 0 ply correct --airframe TST-0001 --site T02 --description "K
 run "summary corrections" 0 ply summary --json
 "$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["corrections"]==2, s' "$WORK/out" || fail "summary counts corrections"
 
+# ---- simulated data, hours out of order, infinities as no data -------------------
+# (issue 8 faults 4, 14 and 2: each option changes what is recorded and shown)
+
+run "record simulated" 0 ply record --airframe TST-0001 --site T02 --kind scheduled --date 2016-04-01 \
+    --hours 1000 --cycles 700 $TRACE --simulated --map "$WORK/t01_base.npy" --quantity temperature-contrast
+run "inspections DATA column" 0 ply inspections --airframe TST-0001 --site T02
+expect_out "inspections DATA column" "DATA"
+grep "2016-04-01" "$WORK/out" | grep -qw simulated || fail "inspections: the simulated inspection is not shown as simulated"
+grep "2015-02-01" "$WORK/out" | grep -qw simulated && fail "inspections: the real baseline is shown as simulated"
+run "inspections simulated json" 0 ply inspections --airframe TST-0001 --site T02 --json
+"$PY" -c 'import json,sys; a=json.load(open(sys.argv[1])); assert [x["simulated"] for x in a]==[False, True], a' "$WORK/out" \
+    || fail "inspections --json: simulated flags wrong"
+run "history simulated" 0 ply history --airframe TST-0001 --site T02 && expect_out "history simulated" "SIMULATED DATA"
+expect_out "history simulated" "does not replace"
+grep -c "SIMULATED DATA" "$WORK/out" | grep -qx 1 || fail "history: SIMULATED DATA on more than the simulated inspection"
+
+run "hours go down without a reason" 1 ply record --airframe TST-0001 --site T02 --kind scheduled --date 2016-05-01 \
+    --hours 900 --cycles 650 $TRACE --map "$WORK/t01_base.npy" --quantity temperature-contrast \
+    && expect_one_line_err "hours go down without a reason" "hours" "--hours-reason"
+run "hours go down with a reason" 0 ply record --airframe TST-0001 --site T02 --kind scheduled --date 2016-05-01 \
+    --hours 900 --cycles 650 --hours-reason "log book re-read: 1000 FH was a typing slip" $TRACE \
+    --map "$WORK/t01_base.npy" --quantity temperature-contrast
+run "history hours reason" 0 ply history --airframe TST-0001 --site T02 \
+    && expect_out "history hours reason" "log book re-read: 1000 FH was a typing slip"
+
+"$PY" - "$WORK/t01_base.npy" "$WORK/t01_inf.npy" <<'PY'
+import sys, numpy as np
+m = np.load(sys.argv[1]).astype(np.float32)
+m[3, 4] = np.inf; m[5, 6] = -np.inf
+np.save(sys.argv[2], m)
+PY
+run "infinite refused" 1 ply record --airframe TST-0001 --site T02 --kind scheduled --date 2016-06-01 \
+    --hours 1100 --cycles 720 $TRACE --map "$WORK/t01_inf.npy" --quantity temperature-contrast \
+    && expect_one_line_err "infinite refused" "t01_inf.npy" "infinite"
+run "infinite as no data" 0 ply record --airframe TST-0001 --site T02 --kind scheduled --date 2016-06-01 \
+    --hours 1100 --cycles 720 $TRACE --infinite-as-no-data --map "$WORK/t01_inf.npy" --quantity temperature-contrast --json
+MAPID=$("$PY" -c 'import json,sys; print(json.load(open(sys.argv[1]))[0]["maps"][0])' "$WORK/out") \
+    || fail "infinite as no data: no map id in --json"
+run "infinite as no data export" 0 ply export-map --map "$MAPID" --output "$WORK/inf_back.npy"
+"$PY" - "$WORK/inf_back.npy" <<'PY' || fail "infinite as no data: the infinities are not recorded as no data"
+import sys, numpy as np
+m = np.load(sys.argv[1])
+base = np.load(sys.argv[1].replace("inf_back", "t01_base"))
+assert m.shape == base.shape, (m.shape, base.shape)
+assert np.isnan(m[3, 4]) and np.isnan(m[5, 6]), (m[3, 4], m[5, 6])
+assert np.isfinite(m).sum() == m.size - 2 - np.isnan(base).sum()
+PY
+
 # ---- simulate and reduce ------------------------------------------------------
 
 # scene.json: make_fixtures.sh
@@ -299,7 +347,7 @@ import json, sys
 r = json.load(open(sys.argv[1]))
 h = json.load(open(sys.argv[2]))
 g = [x for x in h["inspections"][-1]["maps"][0]["registrations"] if x["registration"] == r["registration"]][0]
-for k in ("airframe", "site", "baseline_inspection", "current_inspection", "comparison_not_done", "aligned", "view"):
+for k in ("caution", "airframe", "site", "baseline_inspection", "current_inspection", "simulated", "comparison_not_done", "aligned", "view"):
     del r[k]
 assert r == g, (r, g)
 PY

@@ -26,6 +26,36 @@
 extern "C" {
 #endif
 
+/* ---- what every output shows -------------------------------------------- */
+
+/**
+ * The caution every output carries where a record is shown to support a
+ * decision (a history, a summary, a registration): one line, static
+ * storage. Text outputs print it; JSON forms hold it as "caution".
+ */
+PL_EXPORT const char *pl_caution(void);
+
+/**
+ * The word outputs use for an inspection's pl_inspection.simulated:
+ * "simulated" (1), "real" (0), "not recorded" (-1: recorded before the
+ * store kept it). Static storage.
+ */
+PL_EXPORT const char *pl_history_data_word(int simulated);
+
+/**
+ * The identification line of a rendering of stored map `map_id`, as
+ * pl_render_identification() writes it (airframe serial, site, inspection
+ * date, map id and `quantity`, which may be NULL), followed, when
+ * `onto_map` is not 0, by " onto DATE map ID" of the baseline map it was
+ * aligned to. Bytes that are not printable ASCII are written as '?'.
+ * @param[out] simulated  1 when either inspection's data are simulated (for
+ *                        pl_render_options.simulated), else 0; may be NULL
+ * @return PL_OK, PL_ENOTFOUND (no such map), PL_EDB.
+ */
+PL_EXPORT int pl_history_identification(char *buf, size_t size, int *simulated,
+                                        pl_store *store, pl_id map_id, pl_id onto_map,
+                                        const char *quantity, pl_err *err);
+
 /* ---- a site's history --------------------------------------------------- */
 
 /** One map of an inspection with the registrations made of it. */
@@ -63,9 +93,10 @@ PL_EXPORT int pl_history_load(pl_history **out, pl_store *store, const char *ser
 PL_EXPORT void pl_history_free(pl_history *history);
 
 /**
- * A history as JSON: { "site": {...}, "inspections": [ {..., "maps": [ {...,
- * "registrations": [...] } ], "comparisons": [...] } ] }, each record in
- * its pl_row_json() form.
+ * A history as JSON: { "caution": pl_caution(), "site": {...},
+ * "inspections": [ {..., "maps": [ {..., "registrations": [...] } ],
+ * "comparisons": [...] } ] }, each record in its pl_row_json() form (an
+ * inspection's "simulated" says whether its data are simulated).
  * @param[out] out  free with free()
  * @return PL_OK, PL_ENOMEM.
  */
@@ -88,6 +119,8 @@ typedef struct pl_registration_summary {
     pl_record_pair pair;                   /**< the inspections and maps aligned */
     pl_registration_record registration;   /**< as recorded; parameters_json owned */
     pl_id comparison_not_done;             /**< the comparison it stopped, or 0 */
+    int simulated;                         /**< 1 when either inspection's data are
+                                                simulated */
     const char *aligned;                   /**< file the aligned map went to, or NULL
                                                 (borrowed; set by the caller) */
     const char *view;                      /**< file the picture went to, or NULL (idem) */
@@ -110,10 +143,10 @@ PL_EXPORT int pl_registration_summary_load(pl_registration_summary *out, pl_stor
 PL_EXPORT void pl_registration_summary_clear(pl_registration_summary *summary);
 
 /**
- * A summary as JSON: "airframe", "site", "baseline_inspection",
- * "current_inspection", the registration in its pl_row_json() form (the
- * same shape a history shows), "comparison_not_done", "aligned" and "view"
- * (null when absent).
+ * A summary as JSON: "caution", "airframe", "site", "baseline_inspection",
+ * "current_inspection", "simulated", the registration in its pl_row_json()
+ * form (the same shape a history shows), "comparison_not_done", "aligned"
+ * and "view" (null when absent).
  * @param[out] out  free with free()
  * @return PL_OK, PL_ENOMEM.
  */
@@ -123,10 +156,12 @@ PL_EXPORT int pl_registration_summary_json(char **out, const pl_registration_sum
 /* ---- a store's summary -------------------------------------------------- */
 
 /**
- * A store's summary (pl_store_summarize()) as JSON: "store" (`path`),
- * "store_id", "schema_version", "created_at", "created_by", the counts,
- * "inspections_by_kind" (by the kind vocabulary's words), "map_bytes",
- * "first_inspection" and "last_inspection" (null when there is none).
+ * A store's summary (pl_store_summarize()) as JSON: "caution", "store"
+ * (`path`), "store_id", "schema_version", "created_at", "created_by", the
+ * counts, "inspections_by_kind" (by the kind vocabulary's words),
+ * "simulated_inspections", "simulated_unknown" (inspections recorded before
+ * the store said), "map_bytes", "first_inspection" and "last_inspection"
+ * (null when there is none).
  * @param[out] out  free with free()
  * @return PL_OK, PL_ENOMEM.
  */

@@ -39,6 +39,8 @@ extern "C" {
 typedef struct pl_plan {
     size_t nsites;
     pl_site *sites;  /**< nsites records, airframe_serial empty; owned */
+    char *path;      /**< the file it was read from, for messages; owned */
+    size_t *lines;   /**< nsites line numbers: where each site's row starts; owned */
 } pl_plan;
 
 /**
@@ -61,7 +63,8 @@ PL_EXPORT void pl_plan_free(pl_plan *plan);
  * Add every site of the plan to the airframe `serial`, all or none (one
  * savepoint: inside a caller's transaction it rolls back with it).
  * @param[out] added  sites added (may be NULL); 0 on failure
- * @return as pl_store_add_site(), naming the failing site.
+ * @return as pl_store_add_site(), naming the plan file, the line and the
+ *         failing site ("plan.csv line 7: site F03 on CR7-0107: ...").
  */
 PL_EXPORT int pl_plan_apply(pl_store *store, const pl_plan *plan, const char *serial,
                             size_t *added, pl_err *err);

@@ -22,18 +22,27 @@
  *     "equipment": "equipment used",   "calibration": "reference standard",
  *     "inspector": "name",             "inspector_level": "level",
  *     "software_version": "x.y.z",     "notes": "text",
+ *     "simulated": false,              true: the data come from a simulation
+ *     "hours_reason": "text",          why hours or cycles go back (see
+ *                                      pl_store_add_inspection())
  *     "parameters": { ...processing parameters... },
  *     "sites": [
  *       { "site": "code",
  *         "maps": [ { "file": "relative/to/sidecar.npy",
  *                     "channels": [ {"quantity": "...", "unit": "..."} ],
  *                     "pitch_mm": 0.5  or  [0.5, 0.5],
+ *                     "infinite_as_no_data": false,   true: infinities become
+ *                                                     no data (recorded)
  *                     "placement": { "origin": [x,y,z], "u": [..], "v": [..],
  *                                    "system": "STA/BL/WL", "unit": "mm" } } ] }
  *     ]
  *   }
  *
  * Unknown keys are refused, so a misspelt field is never silently lost.
+ * Every site entry lists at least one map, and a batch names each site of
+ * an airframe once (site codes and serials compared without regard to
+ * case). Every refusal names the sidecar file and, below the top level,
+ * the site and the map entry ("check.json: site F03: map 2: ...").
  * pl_record_new() / pl_record_load_sidecar() allocate; pl_record_free()
  * releases everything, including the strings the record owns.
  */
@@ -58,6 +67,9 @@ typedef struct pl_record_map {
     int has_placement;        /**< 1: use `placement`, else the site's map frame */
     pl_placement placement;
     pl_id map_id;             /**< (after apply) the stored map */
+    int infinite_as_nodata;   /**< 1: an infinite value becomes no data (NaN) instead
+                                   of refusing the file (PL_MAP_INFINITE_TO_NAN); the
+                                   option and its count are recorded with the map */
 } pl_record_map;
 
 /** One site's inspection. */
@@ -71,6 +83,9 @@ typedef struct pl_record_site {
 typedef struct pl_record {
     size_t nsites;
     pl_record_site *sites;    /**< owned */
+    char *source;             /**< the sidecar it was read from, named first in the
+                                   messages of pl_record_apply(); NULL for a batch
+                                   made by calls; owned */
 } pl_record;
 
 /** An empty batch. @param[out] out  free with pl_record_free(). */
@@ -109,11 +124,16 @@ PL_EXPORT int pl_record_load_sidecar(pl_record **out, const char *path, pl_err *
 
 /**
  * Write the batch into the store: every inspection and map, or nothing.
- * Each map file is loaded and checked against its site (size, pitch).
+ * Each site must have at least one map and appear once in the batch. Each
+ * map file is loaded (pl_map_load_v2(): an infinity refuses the file unless
+ * the map asks for infinite_as_nodata) and checked against its site (size,
+ * pitch); the map's parameters record what the load did
+ * (pl_map_load_info_json()).
  * `progress` (may be NULL) is told after each map.
  * @return PL_OK, or the first failure (PL_EIO, PL_EFORMAT, PL_ENOTFOUND,
- *         PL_ENOMATCH, PL_EEXISTS, PL_EINVAL, PL_EDB, PL_ECANCELED), with a
- *         message naming the site and file.
+ *         PL_ENOMATCH, PL_EEXISTS, PL_EINVAL (also a site without maps or
+ *         twice in the batch), PL_EDB, PL_ECANCELED), with a message naming
+ *         the sidecar (rec->source), the site and the map file.
  */
 PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn progress,
                               void *userdata, pl_err *err);
@@ -122,6 +142,10 @@ PL_EXPORT int pl_record_apply(pl_store *store, pl_record *rec, pl_progress_fn pr
  * Record one inspection of a site with one map made in memory (a
  * reduction's output, say), in one transaction. The map's pitch, where NaN,
  * is taken from the site, and its placement is set to the site's map frame.
+ * When `parameters_json` says the data were simulated (its "acquisition"
+ * holds the "simulation" object the simulator writes into a sequence's
+ * manifest, which a reduction records), the inspection is recorded as
+ * simulated whatever insp->simulated says.
  * @param map              completed in place (pitch, placement)
  * @param made_by          how the map was made ("reduce", ...)
  * @param source           what it was made from (a file name), or NULL
@@ -151,7 +175,9 @@ typedef struct pl_record_pair {
  * @param[in,out] pair  zeros to choose, or ids to check
  * @return PL_OK, PL_ENOTFOUND (no such site, no baseline, no later
  *         inspection, an inspection without maps), PL_ENOMATCH (a given map
- *         or inspection of another site or inspection), PL_EDB.
+ *         or inspection of another site or inspection), PL_EINVAL (the
+ *         baseline itself given as current, a simulated baseline for a real
+ *         inspection), PL_EDB.
  */
 PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const char *code,
                                   pl_record_pair *pair, pl_err *err);

@@ -113,6 +113,16 @@ PL_EXPORT int pl_store_create(pl_store **out, const char *path, pl_err *err);
  */
 PL_EXPORT int pl_store_open(pl_store **out, const char *path, unsigned flags, pl_err *err);
 
+/**
+ * Set the date the store takes for today (YYYY-MM-DD). No inspection,
+ * date of manufacture or operator change may lie after it. The library
+ * reads no clock for this: the caller says (the command line gives the
+ * local date). NULL or "" forgets it; dates are then not checked against
+ * today.
+ * @return PL_OK, PL_EINVAL (not a calendar date).
+ */
+PL_EXPORT int pl_store_set_today(pl_store *store, const char *today, pl_err *err);
+
 /** Close; rolls back an open transaction. NULL is accepted. */
 PL_EXPORT void pl_store_close(pl_store *store);
 
@@ -269,6 +279,7 @@ typedef struct pl_airframe {
  * Register an airframe; when operator_name is set it starts the operator
  * history from operator_since (or the date of manufacture; one of the two
  * is then required, and operator_since may not precede manufacture).
+ * Neither date may lie after today (pl_store_set_today()).
  * @param[out] id  the new row (may be NULL)
  * @return PL_OK, PL_EINVAL (missing serial or type, bad date, operator
  *         without a date), PL_EEXISTS (serial already registered), PL_EDB.
@@ -284,7 +295,7 @@ PL_EXPORT int pl_store_get_airframe(pl_store *store, const char *serial, pl_airf
 /**
  * Record that `operator_name` operates the airframe from `since`
  * (YYYY-MM-DD). Dates must not go backwards: `since` may not precede the
- * current operator's start or the date of manufacture.
+ * current operator's start or the date of manufacture, nor lie after today.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
  */
 PL_EXPORT int pl_store_add_operator(pl_store *store, const char *serial, const char *operator_name,
@@ -319,7 +330,10 @@ PL_EXPORT int pl_store_list_airframes(pl_store *store, const pl_airframe_filter 
 
 /**
  * Correct an airframe: `af` holds the full corrected record (serial names
- * the airframe and cannot itself change). `reason` is required.
+ * the airframe and cannot itself change). `reason` is required. The
+ * correction must change something, and a corrected date of manufacture may
+ * not lie after today, after any inspection of the airframe or after the
+ * start of its operator history.
  * operator_name and operator_since are ignored: the operator history only
  * grows, through pl_store_add_operator().
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EDB.
@@ -371,7 +385,8 @@ PL_EXPORT int pl_store_add_site(pl_store *store, const pl_site *site, pl_id *id,
 PL_EXPORT int pl_store_get_site(pl_store *store, const char *serial, const char *code,
                                 pl_site *site, pl_err *err);
 
-/** Correct a site (airframe_serial and code name it). @return as add. */
+/** Correct a site (airframe_serial and code name it); it must change
+ * something ("nothing to correct"). @return as add. */
 PL_EXPORT int pl_store_correct_site(pl_store *store, const pl_site *site, const char *reason,
                                     pl_id *id, pl_err *err);
 
@@ -410,6 +425,12 @@ typedef struct pl_inspection {
                                                on read owned by the record: see
                                                pl_inspection_clear() */
     char recorded_at[PL_DATE_SIZE];       /**< (read) */
+    int simulated;                        /**< 1: the data come from a simulation, 0: from
+                                               the part; (read) -1: recorded before the
+                                               store kept it (schema 2 and older) */
+    char hours_reason[PL_TEXT_SIZE];      /**< why hours or cycles go against the airframe's
+                                               other inspections (a documented records
+                                               correction); empty when they are in order */
 } pl_inspection;
 
 /** Free what a read put in `insp` (parameters_json) and zero it. */
@@ -420,7 +441,23 @@ PL_EXPORT int pl_inspection_kind_check(const char *kind, pl_err *err);
 
 /**
  * Record an inspection of a site. parameters_json, when given, must parse as
- * a JSON object. A site has at most one baseline that is not superseded.
+ * a JSON object; simulated must be 0 or 1. A site has at most one baseline
+ * that is not superseded. Chronology (every message says which record it
+ * conflicts with):
+ *  - performed_on lies neither before the airframe's date of manufacture
+ *    nor after today (pl_store_set_today(); unchecked when none is set);
+ *  - a scheduled inspection needs the site's baseline ("record the
+ *    baseline first") and, when it is real, a baseline that is not
+ *    simulated; unscheduled and post-repair inspections need none (damage
+ *    is found, and repaired, where no baseline was recorded);
+ *  - no inspection of the site comes before its baseline (a baseline may
+ *    not be dated after the site's other inspections either);
+ *  - flight hours and cycles do not go back: not fewer than those of an
+ *    earlier inspection of the airframe (any site), not more than a later
+ *    one's, unless hours_reason says why (a documented correction of the
+ *    aircraft's records; it is recorded with the inspection, and such an
+ *    inspection is no reference for the order of others). Inspections of
+ *    the same day are not ordered.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND (airframe or site), PL_EEXISTS
  *         (a second baseline), PL_EDB.
  */
@@ -437,6 +474,12 @@ PL_EXPORT int pl_store_get_inspection(pl_store *store, pl_id key, pl_inspection 
 /**
  * Correct the inspection whose key is `key`; `insp` is the full corrected
  * record (its airframe and site must stay the same). `reason` is required.
+ * The correction must change something ("nothing to correct"), and the
+ * record must stand the chronology of pl_store_add_inspection() after it:
+ * the site's only baseline cannot become another kind while scheduled
+ * inspections rest on it (nor become scheduled itself), a baseline cannot
+ * move after the site's other inspections. simulated may stay -1 only on a
+ * record that was -1.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_EEXISTS (it would become a
  *         second baseline), PL_EDB.
  */
@@ -578,7 +621,8 @@ typedef struct pl_registration_record {
  * earlier than the current map's (by date, then as recorded);
  * "aligned" and "manual" need the transform (finite shift, rotation, scale
  * > 0) and the overlap; "refused" needs the refusal; "manual" needs who and
- * why.
+ * why. A map of a simulated inspection is never the baseline of a map of a
+ * real one.
  * @return PL_OK, PL_EINVAL (including a baseline map that is not earlier),
  *         PL_ENOTFOUND (a map), PL_ENOMATCH (maps of different sites), PL_EDB.
  */
@@ -608,7 +652,8 @@ typedef struct pl_comparison_record {
 } pl_comparison_record;
 
 /**
- * Record a comparison (its classified changes come with later work).
+ * Record a comparison (its classified changes come with later work). A
+ * simulated inspection is never the baseline of a real one.
  * @return PL_OK, PL_EINVAL, PL_ENOTFOUND, PL_ENOMATCH (inspections of
  *         different sites), PL_EDB.
  */
@@ -635,6 +680,9 @@ typedef struct pl_store_summary {
     int64_t map_bytes;                 /**< compressed map data */
     char first_inspection[PL_DATE_SIZE];
     char last_inspection[PL_DATE_SIZE];
+    int64_t simulated_inspections;     /**< current inspections of simulated data */
+    int64_t unknown_inspections;       /**< current inspections recorded before the store
+                                            said whether they were simulated (schema 2) */
 } pl_store_summary;
 
 /** Counts and dates of the whole store into [out] sum. @return PL_OK, PL_EDB. */
