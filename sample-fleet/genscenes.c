@@ -55,18 +55,18 @@ typedef struct check {
 } check;
 
 static const check checks[] = {
-    { "DEL", "baseline", { "2029-04-22", "2029-08-09", "2029-12-18" }, { "14.2", "11.8", "12.5" },
+    { "DEL", "baseline", { "2009-04-22", "2009-08-09", "2009-12-18" }, { "14.2", "11.8", "12.5" },
       { "9", "7", "8" }, "B", "J. Varga-Moreau",
       "flash thermography rig FTR-1 (2 x 2.4 kJ lamps, cooled MWIR camera IRC-0442)",
-      "CFRP step-wedge reference standard RS-53-04, verified 2029-03-01" },
-    { "HC-1", "scheduled", { "2035-05-11", "2035-09-02", "2036-01-27" },
+      "CFRP step-wedge reference standard RS-53-04, verified 2009-03-01" },
+    { "HC-1", "scheduled", { "2015-05-11", "2015-09-02", "2016-01-27" },
       { "16210.4", "15873.9", "15990.1" }, { "13912", "13540", "13701" }, "C", "P. Ansel-Kiri",
       "flash thermography rig FTR-3 (2 x 2.4 kJ lamps, cooled MWIR camera IRC-1187)",
-      "CFRP step-wedge reference standard RS-53-11, verified 2035-02-14" },
-    { "HC-2", "scheduled", { "2041-06-03", "2041-10-14", "2042-02-08" },
+      "CFRP step-wedge reference standard RS-53-11, verified 2015-02-14" },
+    { "HC-2", "scheduled", { "2021-06-03", "2021-10-14", "2022-02-08" },
       { "32655.0", "31980.7", "32102.3" }, { "27815", "27190", "27344" }, "C", "L. Dunmore-Sato",
       "flash thermography rig FTR-3 (2 x 2.4 kJ lamps, cooled MWIR camera IRC-1187)",
-      "CFRP step-wedge reference standard RS-53-11, verified 2041-01-20" },
+      "CFRP step-wedge reference standard RS-53-11, verified 2021-01-20" },
 };
 
 /* The scenario's indications, in the site frame (mm from the nominal map

@@ -149,11 +149,11 @@ static void test_store_row__golden_vectors(void **state)
     memset(&op, 0, sizeof op);
     op.airframe_key = 3;
     snprintf(op.operator_name, sizeof op.operator_name, "Fenmoor Skylink \xe2\x80\x93 Nord");
-    snprintf(op.since, sizeof op.since, "2038-03-01");
+    snprintf(op.since, sizeof op.since, "2018-03-01");
     pl_row row;
     pl_row__from_record(&row, pl_row__table(PL_TABLE_OPERATOR), &op);
     pl_row__set_id(&row, "id", 7);
-    pl_row__set_text(&row, "recorded_at", "2038-03-01T09:30:00.000Z");
+    pl_row__set_text(&row, "recorded_at", "2018-03-01T09:30:00.000Z");
     unsigned char *enc = NULL;
     size_t len = 0;
     TU_OK(pl_row__encode(&enc, &len, &row, 7, &err));
@@ -164,8 +164,8 @@ static void test_store_row__golden_vectors(void **state)
         "000c0000006169726672616d655f6b6579010300000000000000020000006964"
         "0107000000000000000d0000006f70657261746f725f6e616d65031800000046"
         "656e6d6f6f7220536b796c696e6b20e28093204e6f72640b0000007265636f72"
-        "6465645f61740318000000323033382d30332d30315430393a33303a30302e30"
-        "30305a0500000073696e6365030a000000323033382d30332d3031");
+        "6465645f61740318000000323031382d30332d30315430393a33303a30302e30"
+        "30305a0500000073696e6365030a000000323031382d30332d3031");
     free(hex);
     free(enc);
 
@@ -205,7 +205,7 @@ static void test_store_row__refuses_values_without_canonical_form(void **state)
     pl_err err = { 0 };
     pl_operator op;
     memset(&op, 0, sizeof op);
-    snprintf(op.since, sizeof op.since, "2038-03-01");
+    snprintf(op.since, sizeof op.since, "2018-03-01");
     static const struct {
         const char *text;
         int ok;
@@ -376,7 +376,7 @@ static void test_store_row__stored_rows_encode_as_inserted_and_as_defined(void *
     char *d = last_row(f->st);
     check_stored(f, PL_TABLE_AIRFRAME, aid, d);
     free(d);
-    TU_OK(pl_store_add_operator(f->st, "ENC-0001", "Operator \xc3\x85", "2035-07-01", &err));
+    TU_OK(pl_store_add_operator(f->st, "ENC-0001", "Operator \xc3\x85", "2015-07-01", &err));
     d = last_row(f->st);
     check_stored(f, PL_TABLE_OPERATOR, 1, d);
     free(d);
@@ -394,13 +394,13 @@ static void test_store_row__stored_rows_encode_as_inserted_and_as_defined(void *
     check_stored(f, PL_TABLE_SITE, sid, d);
     free(d);
 
-    pl_inspection in = test_inspection("baseline", "2030-02-01");
+    pl_inspection in = test_inspection("baseline", "2010-02-01");
     pl_id base = 0, next = 0;
     TU_OK(pl_store_add_inspection(f->st, &in, &base, &err));
     d = last_row(f->st);
     check_stored(f, PL_TABLE_INSPECTION, base, d);
     free(d);
-    in = test_inspection("scheduled", "2036-02-01");
+    in = test_inspection("scheduled", "2016-02-01");
     char params[] = "{\"note\": \"sidecar\"}";
     in.parameters_json = params;
     in.aircraft_cycles = -1;
