@@ -363,6 +363,15 @@ run "register manual" 0 ply register --airframe TST-0002 --site T04 --manual 1.5
 "$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert r["status"]=="manual" and r["transform"]["shift_col_px"]==1.5 and r["quality"]["ncc"]>0.5, r' "$WORK/out" \
     || fail "register manual: not recorded as given"
 
+# Where a record is shown to support a decision, the caution stays (fault 15).
+CAUTION="it does not replace them. Local regulations and the design holder's data govern."
+run "register text" 0 ply register --airframe TST-0002 --site T04 && expect_out "register caution" "$CAUTION"
+run "summary text" 0 ply summary && expect_out "summary caution" "$CAUTION"
+run "history text" 0 ply history --airframe TST-0002 --site T04 && expect_out "history caution" "$CAUTION"
+run "register json" 0 ply register --airframe TST-0002 --site T04 --json
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert "does not replace" in r["caution"], r' "$WORK/out" \
+    || fail "register --json: no caution"
+
 # The record itself refuses changes in place.
 sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"
 grep -q "append-only" "$WORK/err" || fail "UPDATE refusal message"
