@@ -12,7 +12,7 @@
 # measures how long the record takes (T) and when it starts writing (W); then
 # each round copies the prepared store, starts the record and kills it after a
 # moment drawn uniformly from [0, T) or, every other round, from [W, T). A round
-# whose record finished before its kill counts as no kill; the test needs
+# whose record finished before its kill counts as no kill (and shortens T); the test needs
 # KILLS kills that landed, a quarter of them at least while the record was
 # writing (its rollback journal or write-ahead log left behind).
 set -u
@@ -75,13 +75,25 @@ SEED=${PL_KILL_SEED:-$(od -An -N4 -tu4 /dev/urandom | tr -d ' ')}
 echo "# moments drawn with PL_KILL_SEED=$SEED"
 # every other moment from the whole run [0, T), the others from its writing
 # part [W, T): the writing part is short beside the reading and checking, and
-# the test needs kills in both
-MOMENTS=$(awk -v s="$SEED" -v t="$T" -v w="$W" -v n=$((KILLS * 3)) \
-    'BEGIN { srand(s); for (i = 0; i < n; i++)
-             printf "%.3f\n", i % 2 ? w + rand() * (t - w) : rand() * t }')
+# the test needs kills in both. Moments are drawn round by round: when a
+# record ends before its kill (the machine ran faster than in the whole run,
+# as a shared machine does), T shrinks to that moment and W with it, so the
+# later moments still fall inside the record.
+FRACTIONS=$(awk -v s="$SEED" -v n=$((KILLS * 5)) \
+    'BEGIN { srand(s); for (i = 0; i < n; i++) printf "%.6f\n", rand() }')
+# moment R: round R's moment, from the R-th fraction and today's T and W
+moment() {
+    echo "$FRACTIONS" | awk -v r="$1" -v t="$T" -v w="$W" \
+        'NR == r + 1 { printf "%.3f\n", r % 2 ? w + $1 * (t - w) : $1 * t }'
+}
+# shrink M: the record ended before M; T becomes M and W keeps its share
+shrink() {
+    W=$(awk -v w="$W" -v t="$T" -v m="$1" 'BEGIN { printf "%.3f", m < t ? w * m / t : w }')
+    T=$(awk -v t="$T" -v m="$1" 'BEGIN { printf "%.3f", m < t ? m : t }')
+}
 kills=0 whole=0 none=0 rounds=0 writing=0
-for m in $MOMENTS; do
-    [ "$kills" -ge "$KILLS" ] && break
+while [ "$kills" -lt "$KILLS" ] && [ "$rounds" -lt $((KILLS * 5)) ]; do
+    m=$(moment "$rounds")
     rounds=$((rounds + 1))
     cp "$PREP" "$STORE"
     rm -f "$STORE-wal" "$STORE-shm" "$STORE-journal"
@@ -91,10 +103,15 @@ for m in $MOMENTS; do
     if kill -KILL "$pid" 2>/dev/null; then
         { wait "$pid"; } 2>/dev/null
         st=$?
-        [ "$st" -eq 137 ] || { echo "# round $rounds: the record had ended (status $st) as it was killed"; continue; }
+        if [ "$st" -ne 137 ]; then
+            echo "# round $rounds: the record had ended (status $st) as it was killed"
+            shrink "$m"
+            continue
+        fi
         kills=$((kills + 1))
     else
         wait "$pid"
+        shrink "$m"
         continue
     fi
     # a journal or write-ahead log left behind: the kill came while writing
