@@ -559,7 +559,10 @@ static void fill_every_table(fixture *f)
 
     sqlite3 *db = raw_open(f->path);
     raw_exec(db, "PRAGMA foreign_keys = ON;"
-             "INSERT INTO criteria (name, revision, recorded_at) VALUES ('growth', 'A', 'now');"
+             "INSERT INTO criteria (name, revision, format_version, example_values,"
+             " rule_count, content_json, content_sha256, recorded_at) VALUES ('growth', 'A', 1,"
+             " 1, 1, '{}', '" "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef"
+             "', 'now');"
              "INSERT INTO indication (map_id, channel, label, area_px, area_mm2, centroid_col,"
              " centroid_row, recorded_at) VALUES (1, 0, 1, 4, 1.0, 2.0, 3.0, 'now');"
              "INSERT INTO registration (baseline_map_id, current_map_id, method, status,"
