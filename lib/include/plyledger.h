@@ -26,5 +26,6 @@
 #include "plyledger/reduce.h"
 #include "plyledger/register.h"
 #include "plyledger/detect.h"
+#include "plyledger/change.h"
 
 #endif
