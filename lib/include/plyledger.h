@@ -27,5 +27,6 @@
 #include "plyledger/register.h"
 #include "plyledger/detect.h"
 #include "plyledger/criteria.h"
+#include "plyledger/change.h"
 
 #endif
