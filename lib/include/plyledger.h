@@ -28,5 +28,6 @@
 #include "plyledger/detect.h"
 #include "plyledger/criteria.h"
 #include "plyledger/change.h"
+#include "plyledger/compare.h"
 
 #endif

@@ -620,7 +620,7 @@ static const pl_column comparison_cols[] = {
         "baseline_inspection", PL_C_ID, 0, PL_F_ANY),
     INT(pl_comparison_record, current_inspection, "current_inspection", "current_inspection",
         PL_C_ID, 0, PL_F_ANY),
-    SUPPLIED("criteria_id", PL_S_INTEGER, NUL),
+    INT(pl_comparison_record, criteria_id, "criteria_id", "criteria", PL_C_ID, NUL, PL_F_ANY),
     INT(pl_comparison_record, registration_id, "registration_id", "registration", PL_C_ID, NUL,
         PL_F_ANY),
     WORD(pl_comparison_record, status, "status", "status", PL_VOCAB_COMPARISON_STATUS),
