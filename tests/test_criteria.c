@@ -771,12 +771,19 @@ static void test_criteria__round_trip_through_the_record(void **state)
 
     /* the JSON form: the marking, the boolean, the content when asked */
     char *json = NULL;
-    TU_OK(pl_criteria_record_json(&json, &rec, 0, &err));
+    TU_OK(pl_criteria_record_json(&json, &rec, 0, -1, &err));
     assert_non_null(strstr(json, "\"marking\":\t\"" PL_CRITERIA_EXAMPLE_MARKING "\""));
     assert_non_null(strstr(json, "\"example_values\":\ttrue"));
     assert_null(strstr(json, "\"content\""));
+    assert_null(strstr(json, "already_recorded"));
     free(json);
-    TU_OK(pl_criteria_record_json(&json, &rec, 1, &err));
+    TU_OK(pl_criteria_list_json(&json, f->st, NULL, &err));
+    assert_int_equal(json[0], '[');
+    assert_non_null(strstr(json, "\"marking\":\t\"" PL_CRITERIA_EXAMPLE_MARKING "\""));
+    assert_non_null(strstr(json, "\"name\":\t\"EXAMPLE-CR7-GROWTH\""));
+    free(json);
+    TU_OK(pl_criteria_record_json(&json, &rec, 1, 1, &err));
+    assert_non_null(strstr(json, "\"already_recorded\":\ttrue"));
     assert_non_null(strstr(json, "\"content\":\t{"));
     assert_non_null(strstr(json, "door-corner-bonded-joint-fwd-pax"));
     free(json);

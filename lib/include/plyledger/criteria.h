@@ -337,13 +337,24 @@ PL_EXPORT int pl_criteria_from_record(pl_criteria **out, const pl_criteria_recor
 
 /**
  * A record as a JSON object: its header fields, "example_values" as a
- * boolean, "marking" (PL_CRITERIA_EXAMPLE_MARKING or null) and, when
- * with_content, the set itself under "content".
+ * boolean, "marking" (PL_CRITERIA_EXAMPLE_MARKING or null), when
+ * with_content the set itself under "content", and when `already` is 0 or
+ * 1 "already_recorded" (what pl_store_add_criteria() said; -1 leaves it
+ * out).
  * @param[out] out  free with free()
  * @return PL_OK, PL_ENOMEM.
  */
 PL_EXPORT int pl_criteria_record_json(char **out, const pl_criteria_record *rec,
-                                      int with_content, pl_err *err);
+                                      int with_content, int already, pl_err *err);
+
+/**
+ * Every recorded revision (of `name`; NULL or "": of all), in the order of
+ * pl_store_list_criteria(), as one JSON array of pl_criteria_record_json()
+ * objects without content.
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_EDB, PL_ENOMEM.
+ */
+PL_EXPORT int pl_criteria_list_json(char **out, pl_store *store, const char *name, pl_err *err);
 
 #ifdef __cplusplus
 }
