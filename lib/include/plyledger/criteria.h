@@ -202,8 +202,9 @@ typedef struct pl_criteria {
  * @return PL_OK, PL_EFORMAT (too large, not UTF-8, not one JSON object,
  *         trailing bytes, repeated, unknown or missing fields, wrong types,
  *         unknown format or version), PL_EINVAL (a value outside its
- *         vocabulary, bound or form; limits that contradict each other),
- *         PL_EEXISTS (two rules alike), PL_ENOMEM.
+ *         vocabulary or form, a number not finite; limits that contradict
+ *         each other), PL_ERANGE (a number outside its bound, too many
+ *         rules), PL_EEXISTS (two rules alike), PL_ENOMEM.
  */
 PL_EXPORT int pl_criteria_parse(pl_criteria **out, const char *text, size_t len,
                                 const char *label, pl_err *err);
@@ -302,8 +303,9 @@ PL_EXPORT void pl_criteria_record_clear(pl_criteria_record *rec);
  * @param[out] already  1 when the same name, revision and content were
  *                      already recorded (nothing written), else 0; may be
  *                      NULL
- * @return PL_OK, PL_EEXISTS (the name and revision hold other content),
- *         PL_EBUSY, PL_EDB, PL_ENOMEM.
+ * @return PL_OK, PL_EINVAL (a set not made by pl_criteria_parse()),
+ *         PL_EEXISTS (the name and revision hold other content), PL_EBUSY,
+ *         PL_EDB, PL_ENOMEM.
  */
 PL_EXPORT int pl_store_add_criteria(pl_store *store, const pl_criteria *criteria, pl_id *id,
                                     int *already, pl_err *err);
