@@ -285,9 +285,9 @@ static const refusal refusals[] = {
     { "not JSON", "\"note\": \"n\",", "\"note\": n,", PL_EFORMAT,
       { "test.json: not valid JSON at line 9, column 11", "" } },
     { "invalid UTF-8", "\"note\": \"n\"", "\"note\": \"\xff\"", PL_EFORMAT,
-      { "test.json: byte 0xff", "is not valid UTF-8" } },
+      { "test.json: line 9: byte 0xff at position 12", "is not valid UTF-8" } },
     { "overlong UTF-8", "\"note\": \"n\"", "\"note\": \"\xc0\xaf\"", PL_EFORMAT,
-      { "test.json: byte 0xc0", "is not valid UTF-8" } },
+      { "test.json: line 9: byte 0xc0 at position 12", "is not valid UTF-8" } },
 };
 
 static void expect_refusal(const char *what, const char *text, size_t len, int code,
@@ -348,6 +348,10 @@ static void test_criteria__refuses_faults_of_the_whole_file(void **state)
 
     const char *const nul[2] = { "test.json: a NUL byte at position 6", "" };
     expect_refusal("NUL byte", "{\"a\":\0}", 7, PL_EFORMAT, nul);
+
+    const char *const control[2] = { "test.json: line 2 contains a control character (U+0001)",
+                                     "" };
+    expect_refusal("control character", "{\n\001}", 4, PL_EFORMAT, control);
 
     const char *const array[2] = { "test.json: expected one JSON object, got an array", "" };
     expect_refusal("array", "[1, 2]", 6, PL_EFORMAT, array);
