@@ -19,6 +19,7 @@ const cli_command cli_commands[] = {
     { "airframes", cmd_airframes, "list airframes" },
     { "sites", cmd_sites, "list inspection sites" },
     { "inspections", cmd_inspections, "list inspections" },
+    { "criteria", cmd_criteria, "import, list and show criteria sets for indication growth" },
     { "history", cmd_history, "show every inspection of one site, oldest first" },
     { "export-map", cmd_export_map, "write a stored map as PNG, .npy or a colour rendering" },
     { "summary", cmd_summary, "show what the store holds" },

@@ -285,9 +285,9 @@ static const refusal refusals[] = {
     { "not JSON", "\"note\": \"n\",", "\"note\": n,", PL_EFORMAT,
       { "test.json: not valid JSON at line 9, column 11", "" } },
     { "invalid UTF-8", "\"note\": \"n\"", "\"note\": \"\xff\"", PL_EFORMAT,
-      { "test.json: byte 0xff", "is not valid UTF-8" } },
+      { "test.json: line 9: byte 0xff at position 12", "is not valid UTF-8" } },
     { "overlong UTF-8", "\"note\": \"n\"", "\"note\": \"\xc0\xaf\"", PL_EFORMAT,
-      { "test.json: byte 0xc0", "is not valid UTF-8" } },
+      { "test.json: line 9: byte 0xc0 at position 12", "is not valid UTF-8" } },
 };
 
 static void expect_refusal(const char *what, const char *text, size_t len, int code,
@@ -348,6 +348,10 @@ static void test_criteria__refuses_faults_of_the_whole_file(void **state)
 
     const char *const nul[2] = { "test.json: a NUL byte at position 6", "" };
     expect_refusal("NUL byte", "{\"a\":\0}", 7, PL_EFORMAT, nul);
+
+    const char *const control[2] = { "test.json: line 2 contains a control character (U+0001)",
+                                     "" };
+    expect_refusal("control character", "{\n\001}", 4, PL_EFORMAT, control);
 
     const char *const array[2] = { "test.json: expected one JSON object, got an array", "" };
     expect_refusal("array", "[1, 2]", 6, PL_EFORMAT, array);
@@ -771,12 +775,19 @@ static void test_criteria__round_trip_through_the_record(void **state)
 
     /* the JSON form: the marking, the boolean, the content when asked */
     char *json = NULL;
-    TU_OK(pl_criteria_record_json(&json, &rec, 0, &err));
+    TU_OK(pl_criteria_record_json(&json, &rec, 0, -1, &err));
     assert_non_null(strstr(json, "\"marking\":\t\"" PL_CRITERIA_EXAMPLE_MARKING "\""));
     assert_non_null(strstr(json, "\"example_values\":\ttrue"));
     assert_null(strstr(json, "\"content\""));
+    assert_null(strstr(json, "already_recorded"));
     free(json);
-    TU_OK(pl_criteria_record_json(&json, &rec, 1, &err));
+    TU_OK(pl_criteria_list_json(&json, f->st, NULL, &err));
+    assert_int_equal(json[0], '[');
+    assert_non_null(strstr(json, "\"marking\":\t\"" PL_CRITERIA_EXAMPLE_MARKING "\""));
+    assert_non_null(strstr(json, "\"name\":\t\"EXAMPLE-CR7-GROWTH\""));
+    free(json);
+    TU_OK(pl_criteria_record_json(&json, &rec, 1, 1, &err));
+    assert_non_null(strstr(json, "\"already_recorded\":\ttrue"));
     assert_non_null(strstr(json, "\"content\":\t{"));
     assert_non_null(strstr(json, "door-corner-bonded-joint-fwd-pax"));
     free(json);
@@ -797,6 +808,69 @@ static void test_criteria__round_trip_through_the_record(void **state)
     pl_criteria_free(c);
 }
 
+/* The migration that gives the criteria table its content: a store of the
+ * schema before it, holding a criteria row of the first schema's form,
+ * migrates, keeps that row as it was, lists it, refuses to apply it (it
+ * has no content to check), and takes new sets. */
+static void test_criteria__a_store_before_the_migration_keeps_its_criteria(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    char *old = tu_path(f->dir, "old.db");
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(old, &db), SQLITE_OK);
+    char sql[256];
+    snprintf(sql, sizeof sql, "PRAGMA application_id = %d", PL_STORE_APPLICATION_ID);
+    assert_int_equal(sqlite3_exec(db, sql, NULL, NULL, NULL), SQLITE_OK);
+    int last = -1;
+    for (int i = 0; i < pl__migration_count; i++)
+        if (strstr(pl__migrations[i].name, "_criteria.sql"))
+            last = i;
+    assert_true(last > 0);
+    for (int i = 0; i < last; i++)
+        assert_int_equal(sqlite3_exec(db, pl__migrations[i].sql, NULL, NULL, NULL), SQLITE_OK);
+    snprintf(sql, sizeof sql, "PRAGMA user_version = %d; INSERT INTO store_info (name, value) "
+             "VALUES ('store_id', '0123456789abcdef0123456789abcdef'), ('created_at', "
+             "'2030-01-01T00:00:00.000Z'), ('created_by', '0.1.0')", last);
+    assert_int_equal(sqlite3_exec(db, sql, NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(db, "INSERT INTO criteria (name, revision, source_document, "
+                                  "min_area_mm2, area_growth_mm2, recorded_at) VALUES ('OLD', "
+                                  "'1', 'OLD-DOC', 20, 40, '2030-01-01T00:00:00.000Z')", NULL,
+                                  NULL, NULL), SQLITE_OK);
+    sqlite3_close(db);
+
+    pl_store *st = NULL;
+    TU_OK(pl_store_open(&st, old, 0, &err));
+    assert_int_equal(pl_store_schema_version(st), PL_STORE_SCHEMA_VERSION);
+    pl_criteria_record rec;
+    TU_OK(pl_store_find_criteria(st, "OLD", NULL, &rec, &err));
+    assert_string_equal(rec.source_document, "OLD-DOC");
+    assert_null(rec.content_json);
+    assert_int_equal(rec.format_version, -1);
+    pl_criteria *c = NULL;
+    assert_int_equal(pl_criteria_from_record(&c, &rec, &err), PL_ENOMATCH);
+    assert_null(c);
+    pl_criteria_record_clear(&rec);
+    c = parse_ok(base_set);
+    pl_id id = 0;
+    TU_OK(pl_store_add_criteria(st, c, &id, NULL, &err));
+    assert_int_equal(id, 2);
+    seen all = { "" };
+    TU_OK(pl_store_list_criteria(st, NULL, collect, &all, &err));
+    assert_string_equal(all.text, "OLD/1/-1 TEST-LIMITS/A/2");
+    pl_criteria_free(c);
+    pl_store_close(st);
+    assert_int_equal(sqlite3_open(old, &db), SQLITE_OK);
+    sqlite3_stmt *q;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT min_area_mm2, area_growth_mm2 FROM "
+                                        "criteria WHERE id = 1", -1, &q, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_step(q), SQLITE_ROW);
+    assert_true(sqlite3_column_double(q, 0) == 20.0 && sqlite3_column_double(q, 1) == 40.0);
+    sqlite3_finalize(q);
+    sqlite3_close(db);
+    free(old);
+}
+
 int main(void)
 {
 #define T(t) cmocka_unit_test(t)
@@ -813,6 +887,7 @@ int main(void)
         T(test_criteria__no_growth_limits_are_the_repeatability),
         TF(test_criteria__revisions_are_append_only),
         TF(test_criteria__round_trip_through_the_record),
+        TF(test_criteria__a_store_before_the_migration_keeps_its_criteria),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -620,7 +620,18 @@ PL_EXPORT int pl_criteria_parse(pl_criteria **out, const char *text, size_t len,
     if (len)
         memcpy(buf, text, len);
     buf[len] = '\0';
-    int rc = pl_text_check(buf + skip, PL_TEXT_LINES, r.label, err);
+    /* line by line, so that a bad byte is named by its line */
+    int rc = PL_OK;
+    for (size_t at = skip, line = 1; !rc && at < len; line++) {
+        char *eol = memchr(buf + at, '\n', len - at);
+        size_t end = eol ? (size_t)(eol - buf) : len;
+        char what[200];
+        snprintf(what, sizeof what, "%s: line %zu", r.label, line);
+        buf[end] = '\0';
+        rc = pl_text_check(buf + at, PL_TEXT_LINES, what, err);
+        buf[end] = eol ? '\n' : '\0';
+        at = end + 1;
+    }
     if (rc) {
         free(buf);
         if (err)

@@ -120,24 +120,65 @@ PL_EXPORT int pl_store_list_criteria(pl_store *s, const char *name, pl_criteria_
                           "ORDER BY t.name, t.id", &arg, 1, call_criteria, &cb, err, NULL);
 }
 
+/* The JSON object of a record (NULL when out of memory). */
+static cJSON *record_json(const pl_criteria_record *rec, int with_content, int already)
+{
+    cJSON *o = pl_row__json(pl_row__table(PL_TABLE_CRITERIA), rec);
+    if (!o)
+        return NULL;
+    cJSON *marking = rec->example_values ? cJSON_CreateString(PL_CRITERIA_EXAMPLE_MARKING)
+                                         : cJSON_CreateNull();
+    int ok = marking && cJSON_AddItemToObject(o, "marking", marking);
+    if (!ok)
+        cJSON_Delete(marking);
+    ok = ok && cJSON_ReplaceItemInObjectCaseSensitive(
+                   o, "example_values", cJSON_CreateBool(rec->example_values != 0));
+    if (ok && !with_content)
+        cJSON_DeleteItemFromObjectCaseSensitive(o, "content");
+    if (ok && already >= 0)
+        ok = cJSON_AddBoolToObject(o, "already_recorded", already != 0) != NULL;
+    if (!ok) {
+        cJSON_Delete(o);
+        return NULL;
+    }
+    return o;
+}
+
 PL_EXPORT int pl_criteria_record_json(char **out, const pl_criteria_record *rec,
-                                      int with_content, pl_err *err)
+                                      int with_content, int already, pl_err *err)
 {
     assert(out && rec);
     *out = NULL;
-    cJSON *o = pl_row__json(pl_row__table(PL_TABLE_CRITERIA), rec);
-    if (o) {
-        cJSON_ReplaceItemInObjectCaseSensitive(o, "example_values",
-                                               cJSON_CreateBool(rec->example_values != 0));
-        cJSON *marking = rec->example_values ? cJSON_CreateString(PL_CRITERIA_EXAMPLE_MARKING)
-                                             : cJSON_CreateNull();
-        if (!marking || !cJSON_AddItemToObject(o, "marking", marking)) {
-            cJSON_Delete(marking);
-            cJSON_Delete(o);
-            o = NULL;
-        }
+    return pl_row__print_json(out, record_json(rec, with_content, already), err);
+}
+
+/* A listing's records into a JSON array: a pl_row_fn, failing with
+ * PL_ENOMEM. */
+static int add_to_array(void *ud, void *rec)
+{
+    cJSON *o = record_json(rec, 0, -1);
+    if (!o || !cJSON_AddItemToArray(ud, o)) {
+        cJSON_Delete(o);
+        return PL_ENOMEM;
     }
-    if (o && !with_content)
-        cJSON_DeleteItemFromObjectCaseSensitive(o, "content");
-    return pl_row__print_json(out, o, err);
+    return 0;
+}
+
+PL_EXPORT int pl_criteria_list_json(char **out, pl_store *s, const char *name, pl_err *err)
+{
+    assert(out && s);
+    *out = NULL;
+    cJSON *a = cJSON_CreateArray();
+    if (!a)
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    pl_value arg = pl_store__arg_text(name);
+    int rc = pl_store__list(s, PL_TABLE_CRITERIA, "WHERE ?1 IS NULL OR t.name = ?1 "
+                            "ORDER BY t.name, t.id", &arg, 1, add_to_array, a, err, NULL);
+    if (rc == PL_ENOMEM)
+        rc = pl__err(err, PL_ENOMEM, "out of memory");
+    if (rc) {
+        cJSON_Delete(a);
+        return rc;
+    }
+    return pl_row__print_json(out, a, err);
 }

@@ -371,6 +371,45 @@ run "history text" 0 ply history --airframe TST-0002 --site T04 && expect_out "h
 run "register json" 0 ply register --airframe TST-0002 --site T04 --json
 "$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert "does not replace" in r["caution"], r' "$WORK/out" \
     || fail "register --json: no caution"
+# ---- criteria sets ------------------------------------------------------------
+
+SAMPLE_CRITERIA="$HERE/../../sample-fleet/criteria-example.json"
+for c in "" import list show; do
+    run "criteria $c --help" 0 ply criteria $c --help && expect_out "criteria $c --help" "usage: plyledger criteria"
+done
+run "criteria import" 0 ply criteria import "$SAMPLE_CRITERIA" \
+    && expect_out "criteria import" "recorded criteria EXAMPLE-CR7-GROWTH revision A" \
+    && expect_out "criteria import" "EXAMPLE VALUES, NOT APPROVED DATA"
+run "criteria import again" 0 ply criteria import "$SAMPLE_CRITERIA" \
+    && expect_out "criteria import again" "already recorded with this content" \
+    && expect_out "criteria import again" "nothing changed"
+run "criteria import again json" 0 ply criteria import --json "$SAMPLE_CRITERIA"
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert r["already_recorded"] is True and r["marking"]=="EXAMPLE VALUES, NOT APPROVED DATA", r' "$WORK/out" \
+    || fail "criteria import --json: already_recorded and the marking"
+# a new revision is a new row; the first stays
+sed 's/"revision": "A"/"revision": "B"/; s/"area_growth_mm2": 40/"area_growth_mm2": 45/' "$SAMPLE_CRITERIA" >"$WORK/criteria-b.json"
+run "criteria import revision B" 0 ply criteria import "$WORK/criteria-b.json" \
+    && expect_out "criteria import revision B" "revision B (row 2, 6 rules"
+run "criteria list" 0 ply criteria list && expect_out "criteria list" "EXAMPLE-CR7-GROWTH  B" \
+    && expect_out "criteria list" "EXAMPLE VALUES, NOT APPROVED DATA"
+run "criteria list json" 0 ply criteria list --json
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert [(x["revision"], x["criteria"], x["example_values"], x["rule_count"]) for x in r]==[("A",1,True,6),("B",2,True,6)], r' "$WORK/out" \
+    || fail "criteria list --json"
+run "criteria show latest" 0 ply criteria show EXAMPLE-CR7-GROWTH \
+    && expect_out "criteria show latest" "criteria EXAMPLE-CR7-GROWTH revision B" \
+    && expect_out "criteria show latest" "*** EXAMPLE VALUES, NOT APPROVED DATA ***" \
+    && expect_out "criteria show latest" "door-corner-bonded-joint-fwd-pax    no-growth"
+# the set read back from the record is the file imported, field for field
+run "criteria show json" 0 ply criteria show EXAMPLE-CR7-GROWTH --revision A --json
+"$PY" - "$WORK/out" "$SAMPLE_CRITERIA" <<'PY' || fail "criteria show --json: the content is not the file imported"
+import json, sys
+r = json.load(open(sys.argv[1]))
+f = json.load(open(sys.argv[2]))
+assert r["content"] == f, (r["content"], f)
+assert r["revision"] == "A" and r["marking"] == "EXAMPLE VALUES, NOT APPROVED DATA", r
+PY
+sqlite3 "$STORE" "UPDATE criteria SET revision='Z'" 2>"$WORK/err" && fail "UPDATE of a criteria set was allowed"
+grep -q "append-only" "$WORK/err" || fail "criteria UPDATE refusal message"
 
 # The record itself refuses changes in place.
 sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"

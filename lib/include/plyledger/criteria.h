@@ -202,8 +202,9 @@ typedef struct pl_criteria {
  * @return PL_OK, PL_EFORMAT (too large, not UTF-8, not one JSON object,
  *         trailing bytes, repeated, unknown or missing fields, wrong types,
  *         unknown format or version), PL_EINVAL (a value outside its
- *         vocabulary, bound or form; limits that contradict each other),
- *         PL_EEXISTS (two rules alike), PL_ENOMEM.
+ *         vocabulary or form, a number not finite; limits that contradict
+ *         each other), PL_ERANGE (a number outside its bound, too many
+ *         rules), PL_EEXISTS (two rules alike), PL_ENOMEM.
  */
 PL_EXPORT int pl_criteria_parse(pl_criteria **out, const char *text, size_t len,
                                 const char *label, pl_err *err);
@@ -302,8 +303,9 @@ PL_EXPORT void pl_criteria_record_clear(pl_criteria_record *rec);
  * @param[out] already  1 when the same name, revision and content were
  *                      already recorded (nothing written), else 0; may be
  *                      NULL
- * @return PL_OK, PL_EEXISTS (the name and revision hold other content),
- *         PL_EBUSY, PL_EDB, PL_ENOMEM.
+ * @return PL_OK, PL_EINVAL (a set not made by pl_criteria_parse()),
+ *         PL_EEXISTS (the name and revision hold other content), PL_EBUSY,
+ *         PL_EDB, PL_ENOMEM.
  */
 PL_EXPORT int pl_store_add_criteria(pl_store *store, const pl_criteria *criteria, pl_id *id,
                                     int *already, pl_err *err);
@@ -337,13 +339,24 @@ PL_EXPORT int pl_criteria_from_record(pl_criteria **out, const pl_criteria_recor
 
 /**
  * A record as a JSON object: its header fields, "example_values" as a
- * boolean, "marking" (PL_CRITERIA_EXAMPLE_MARKING or null) and, when
- * with_content, the set itself under "content".
+ * boolean, "marking" (PL_CRITERIA_EXAMPLE_MARKING or null), when
+ * with_content the set itself under "content", and when `already` is 0 or
+ * 1 "already_recorded" (what pl_store_add_criteria() said; -1 leaves it
+ * out).
  * @param[out] out  free with free()
  * @return PL_OK, PL_ENOMEM.
  */
 PL_EXPORT int pl_criteria_record_json(char **out, const pl_criteria_record *rec,
-                                      int with_content, pl_err *err);
+                                      int with_content, int already, pl_err *err);
+
+/**
+ * Every recorded revision (of `name`; NULL or "": of all), in the order of
+ * pl_store_list_criteria(), as one JSON array of pl_criteria_record_json()
+ * objects without content.
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_EDB, PL_ENOMEM.
+ */
+PL_EXPORT int pl_criteria_list_json(char **out, pl_store *store, const char *name, pl_err *err);
 
 #ifdef __cplusplus
 }
