@@ -204,10 +204,12 @@ static void print_site(const pl_site_comparison *sc)
 static void print_counts(const pl_compare_counts *k)
 {
     printf("  %zu site(s): %zu compared, %zu not compared or refused; changes: %zu new, %zu "
-           "grown, %zu stable, %zu vanished, %zu not compared, %zu changed region(s); %zu beyond "
-           "their limits\n", k->sites, k->compared, k->refused, k->kinds[PL_CHANGE_NEW],
-           k->kinds[PL_CHANGE_GROWN], k->kinds[PL_CHANGE_STABLE], k->kinds[PL_CHANGE_VANISHED],
-           k->kinds[PL_CHANGE_NOT_COMPARED], k->kinds[PL_CHANGE_REGION], k->exceeding);
+           "grown, %zu stable, %zu vanished, %zu not compared, %zu changed region(s) (and %zu "
+           "below the minimum reportable size); %zu beyond their limits\n", k->sites, k->compared,
+           k->refused, k->kinds[PL_CHANGE_NEW], k->kinds[PL_CHANGE_GROWN],
+           k->kinds[PL_CHANGE_STABLE], k->kinds[PL_CHANGE_VANISHED],
+           k->kinds[PL_CHANGE_NOT_COMPARED], k->kinds[PL_CHANGE_REGION], k->below_min,
+           k->exceeding);
 }
 
 static int status_of(const pl_compare_counts *k)
@@ -359,12 +361,37 @@ static int compare_check(cmp_args *a, cli_common *common)
         printf("check %s of %s against %s: %zu site(s)%s\n", cc->task, cc->serial,
                pl_compare_against_name(cc->against), cc->nsites,
                a->o.dry_run ? " (dry run: nothing recorded)" : "");
+        /* a line a site, then the details of the sites with findings */
+        const char *hdr[] = { "SITE", "INSPECTION", "STATUS", "NEW", "GROWN", "STABLE",
+                              "VANISHED", "NOT COMPARED", "REGIONS", "BEYOND LIMITS",
+                              "WARNINGS" };
+        cli_table *t = cli_table_new(11, hdr);
         for (size_t i = 0; i < cc->nsites; i++) {
-            if (cc->sites[i].sc)
-                print_site(cc->sites[i].sc);
-            else
-                printf("\n%s site %s: REFUSED: %s\n", cc->serial, cc->sites[i].code,
-                       cc->sites[i].refusal);
+            const pl_check_site *cs = &cc->sites[i];
+            pl_compare_counts k;
+            pl_compare_counts_of(&k, cs->sc);
+            char v[9][24];
+            snprintf(v[0], sizeof v[0], "%lld", (long long)cs->current_inspection);
+            const int kinds[6] = { PL_CHANGE_NEW, PL_CHANGE_GROWN, PL_CHANGE_STABLE,
+                                   PL_CHANGE_VANISHED, PL_CHANGE_NOT_COMPARED, PL_CHANGE_REGION };
+            for (int j = 0; j < 6; j++)
+                snprintf(v[1 + j], sizeof v[1 + j], "%zu", k.kinds[kinds[j]]);
+            snprintf(v[7], sizeof v[7], "%zu", k.exceeding);
+            snprintf(v[8], sizeof v[8], "%zu", cs->sc ? cs->sc->nwarnings : 0);
+            const char *status = !cs->sc ? "REFUSED" : cs->sc->done ? "compared" : "NOT COMPARED";
+            const char *row[] = { cs->code, v[0], status, v[1], v[2], v[3], v[4], v[5], v[6], v[7],
+                                  v[8] };
+            cli_table_row(t, row);
+        }
+        printf("\n");
+        cli_table_print(t, stdout);
+        cli_table_free(t);
+        for (size_t i = 0; i < cc->nsites; i++) {
+            const pl_check_site *cs = &cc->sites[i];
+            if (!cs->sc)
+                printf("\n%s site %s: REFUSED: %s\n", cc->serial, cs->code, cs->refusal);
+            else if (!cs->sc->done || (cs->sc->cmp && cs->sc->cmp->exceeding))
+                print_site(cs->sc);
         }
         printf("\nsummary of check %s of %s (%.2f s, %.3f s a site)\n", cc->task, cc->serial,
                cc->seconds, cc->nsites ? cc->seconds / (double)cc->nsites : 0.0);

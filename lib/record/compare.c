@@ -549,8 +549,13 @@ PL_EXPORT void pl_compare_counts_of(pl_compare_counts *out, const pl_site_compar
         return;
     }
     out->compared = 1;
-    for (int k = 0; k < PL_CHANGE_KIND_COUNT; k++)
-        out->kinds[k] = sc->cmp->counts[k];
+    for (size_t i = 0; i < sc->cmp->count; i++) {
+        const pl_change *c = &sc->cmp->changes[i];
+        if (c->reportable)
+            out->kinds[c->kind]++;
+        else
+            out->below_min++;
+    }
     out->exceeding = sc->cmp->exceeding;
     out->not_compared_mm2 = sc->cmp->not_compared_mm2;
 }
@@ -563,6 +568,7 @@ static void add_counts(pl_compare_counts *a, const pl_compare_counts *b)
     for (int k = 0; k < PL_CHANGE_KIND_COUNT; k++)
         a->kinds[k] += b->kinds[k];
     a->exceeding += b->exceeding;
+    a->below_min += b->below_min;
     a->not_compared_mm2 += b->not_compared_mm2;
 }
 
@@ -661,6 +667,7 @@ static cJSON *counts_json(const pl_compare_counts *k)
     cJSON_AddNumberToObject(o, "refused", (double)k->refused);
     for (int i = 0; i < PL_CHANGE_KIND_COUNT; i++)
         cJSON_AddNumberToObject(o, pl_change_kind_name((pl_change_kind)i), (double)k->kinds[i]);
+    cJSON_AddNumberToObject(o, "below_min_reportable", (double)k->below_min);
     cJSON_AddNumberToObject(o, "exceeding", (double)k->exceeding);
     add_num(o, "not_compared_mm2", k->not_compared_mm2);
     return o;

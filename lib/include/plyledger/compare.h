@@ -165,7 +165,8 @@ typedef struct pl_compare_counts {
     size_t sites;          /**< sites attempted */
     size_t compared;       /**< done */
     size_t refused;        /**< not done, or refused before (comparability, criteria) */
-    size_t kinds[PL_CHANGE_KIND_COUNT];
+    size_t kinds[PL_CHANGE_KIND_COUNT]; /**< reportable changes of each kind */
+    size_t below_min;      /**< changes below the minimum reportable size (listed only) */
     size_t exceeding;      /**< changes beyond their limits */
     double not_compared_mm2;
 } pl_compare_counts;
