@@ -767,6 +767,70 @@ PL_EXPORT int pl_site_comparison_json(char **out, const pl_site_comparison *sc, 
     return print_json(out, site_json(sc), err);
 }
 
+/* ---- a recorded comparison, told ---------------------------------------------- */
+
+static double num_at(const cJSON *o, const char *k)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, k);
+    return cJSON_IsNumber(v) ? v->valuedouble : NAN;
+}
+
+static const char *str_at(const cJSON *o, const char *k)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, k);
+    return cJSON_IsString(v) ? v->valuestring : "";
+}
+
+PL_EXPORT int pl_comparison_text(char **out, const pl_comparison_record *c, const char *indent,
+                                 pl_err *err)
+{
+    *out = NULL;
+    cJSON *j = c->parameters_json ? cJSON_Parse(c->parameters_json) : NULL;
+    const cJSON *cr = cJSON_GetObjectItemCaseSensitive(j, "criteria");
+    const cJSON *k = cJSON_GetObjectItemCaseSensitive(j, "counts");
+    const cJSON *ch = cJSON_GetObjectItemCaseSensitive(j, "changes");
+    size_t cap = 4096, n = 0;
+    char *buf = malloc(cap);
+    if (!buf) {
+        cJSON_Delete(j);
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    }
+    buf[0] = '\0';
+#define ADD(...)                                                                          \
+    do {                                                                                  \
+        int m_ = snprintf(buf + n, cap - n, __VA_ARGS__);                                 \
+        if (m_ > 0)                                                                       \
+            n = (size_t)m_ < cap - n ? n + (size_t)m_ : cap - 1;                          \
+    } while (0)
+    if (!cJSON_IsObject(cr) || !cJSON_IsObject(k)) {
+        ADD("%s(no recorded result)\n", indent);
+    } else {
+        ADD("%scriteria %s rev %s, rule \"%s\" (%s)%s%s\n", indent, str_at(cr, "name"),
+            str_at(cr, "revision"), str_at(cr, "rule"), str_at(cr, "kind"),
+            *str_at(cr, "marking") ? " -- " : "", str_at(cr, "marking"));
+        ADD("%s%.0f new, %.0f grown, %.0f stable, %.0f vanished, %.0f not compared, %.0f changed "
+            "region(s); %.0f beyond their limits\n", indent, num_at(k, "new"),
+            num_at(k, "grown"), num_at(k, "stable"), num_at(k, "vanished"),
+            num_at(k, "not-compared"), num_at(k, "changed-region"), num_at(k, "exceeding"));
+        const cJSON *x;
+        cJSON_ArrayForEach(x, ch)
+        {
+            if (!cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(x, "reportable")))
+                continue;
+            const cJSON *a = cJSON_GetObjectItemCaseSensitive(
+                cJSON_GetObjectItemCaseSensitive(x, "area_mm2"), "threshold");
+            ADD("%s  %.0f %-14s %6.1f -> %6.1f mm^2, margin %+.1f mm^2%s\n", indent,
+                num_at(x, "number"), str_at(x, "kind"), num_at(a, "reference"),
+                num_at(a, "current"), num_at(x, "area_margin_mm2"),
+                cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(x, "exceeds")) ? "  EXCEEDS" : "");
+        }
+    }
+#undef ADD
+    cJSON_Delete(j);
+    *out = buf;
+    return PL_OK;
+}
+
 /* ---- a whole check ----------------------------------------------------------- */
 
 typedef struct check_scan {

@@ -456,6 +456,9 @@ PY
 run "compare recorded" 0 ply summary --json
 "$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); b=json.loads(sys.argv[2]); assert s["comparisons"]==b["comparisons"]+1 and s["registrations"]==b["registrations"]+1, (s, b)' "$WORK/out" "$BEFORE" \
     || fail "compare: the comparison and its registration are not recorded"
+run "compare in history" 0 ply history --airframe TST-0002 --site T04 \
+    && expect_out "compare in history" "criteria EXAMPLE-CR7-GROWTH rev A" \
+    && expect_out "compare in history" "beyond their limits"
 run "compare check" 0 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run
 expect_out "compare check" "summary of check HC-1 of TST-0002"
 run "compare check unknown task" 1 ply compare --airframe TST-0002 --task NO-SUCH-CHECK --criteria EXAMPLE-CR7-GROWTH \

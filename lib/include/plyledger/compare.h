@@ -209,6 +209,16 @@ PL_EXPORT void pl_compare_counts_of(pl_compare_counts *out, const pl_site_compar
 /** A check as JSON: serial, task, counts, each site's comparison or refusal. */
 PL_EXPORT int pl_check_comparison_json(char **out, const pl_check_comparison *cc, pl_err *err);
 
+/**
+ * A recorded comparison's result as lines of text for a history: its
+ * criteria (with the example marking), its counts, and each reportable
+ * change (number, kind, area before and now, margin, EXCEEDS), each line
+ * led by `indent`. A row without a recorded result says so.
+ * @param[out] out  free with free()
+ */
+PL_EXPORT int pl_comparison_text(char **out, const pl_comparison_record *c, const char *indent,
+                                 pl_err *err);
+
 /** The name of a reference: "baseline", "previous". */
 PL_EXPORT const char *pl_compare_against_name(pl_compare_against a);
 
