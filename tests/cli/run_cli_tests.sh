@@ -389,16 +389,17 @@ run "criteria import again json" 0 ply criteria import --json "$SAMPLE_CRITERIA"
 # a new revision is a new row; the first stays
 sed 's/"revision": "A"/"revision": "B"/; s/"area_growth_mm2": 40/"area_growth_mm2": 45/' "$SAMPLE_CRITERIA" >"$WORK/criteria-b.json"
 run "criteria import revision B" 0 ply criteria import "$WORK/criteria-b.json" \
-    && expect_out "criteria import revision B" "revision B (row 2, 6 rules"
+    && expect_out "criteria import revision B" "revision B (row 2, 8 rules"
 run "criteria list" 0 ply criteria list && expect_out "criteria list" "EXAMPLE-CR7-GROWTH  B" \
     && expect_out "criteria list" "EXAMPLE VALUES, NOT APPROVED DATA"
 run "criteria list json" 0 ply criteria list --json
-"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert [(x["revision"], x["criteria"], x["example_values"], x["rule_count"]) for x in r]==[("A",1,True,6),("B",2,True,6)], r' "$WORK/out" \
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert [(x["revision"], x["criteria"], x["example_values"], x["rule_count"]) for x in r]==[("A",1,True,8),("B",2,True,8)], r' "$WORK/out" \
     || fail "criteria list --json"
 run "criteria show latest" 0 ply criteria show EXAMPLE-CR7-GROWTH \
     && expect_out "criteria show latest" "criteria EXAMPLE-CR7-GROWTH revision B" \
     && expect_out "criteria show latest" "*** EXAMPLE VALUES, NOT APPROVED DATA ***" \
-    && expect_out "criteria show latest" "door-corner-bonded-joint-fwd-pax    no-growth"
+    && { grep -E "^[0-9]+ +door-corner-bonded-joint-fwd-pax +no-growth" "$WORK/out" >/dev/null \
+         || fail "criteria show latest: the door-corner rule is not shown as no-growth"; }
 # the set read back from the record is the file imported, field for field
 run "criteria show json" 0 ply criteria show EXAMPLE-CR7-GROWTH --revision A --json
 "$PY" - "$WORK/out" "$SAMPLE_CRITERIA" <<'PY' || fail "criteria show --json: the content is not the file imported"
