@@ -218,12 +218,14 @@ int cmd_airframes(int argc, char **argv);
 int cmd_sites(int argc, char **argv);
 int cmd_inspections(int argc, char **argv);
 int cmd_history(int argc, char **argv);
+int cmd_criteria(int argc, char **argv);
 int cmd_export_map(int argc, char **argv);
 int cmd_summary(int argc, char **argv);
 int cmd_quantities(int argc, char **argv);
 int cmd_simulate(int argc, char **argv);
 int cmd_reduce(int argc, char **argv);
 int cmd_register(int argc, char **argv);
+int cmd_compare(int argc, char **argv);
 int cmd_version(int argc, char **argv);
 int cmd_help(int argc, char **argv);
 

@@ -90,9 +90,15 @@ static void print_comparison(const pl_comparison_record *c)
     if (strcmp(c->status, "not-done") == 0)
         printf("      comparison %lld with inspection %lld not done: %s\n", (long long)c->id,
                (long long)c->baseline_inspection, c->not_done_reason);
-    else
+    else {
         printf("      comparison %lld with inspection %lld done\n", (long long)c->id,
                (long long)c->baseline_inspection);
+        char *text = NULL;
+        pl_err err = { 0 };
+        if (!pl_comparison_text(&text, c, "        ", &err))
+            fputs(text, stdout);
+        free(text);
+    }
 }
 
 static void print_site(const pl_site *s)

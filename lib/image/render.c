@@ -953,6 +953,83 @@ PL_EXPORT int pl_render_map(pl_image **out, const pl_map *map, uint32_t c,
     return pl_render__map(out, NULL, map, c, opts, err);
 }
 
+/* ---- numbered outlines ------------------------------------------------- */
+
+static void fill_square(pl_image *img, int x0, int y0, int side, const unsigned char rgb[3])
+{
+    for (int y = y0; y < y0 + side; y++)
+        for (int x = x0; x < x0 + side; x++)
+            if (x >= 0 && y >= 0 && (uint32_t)x < img->width && (uint32_t)y < img->height)
+                memcpy(img->rgb + ((size_t)y * img->width + (size_t)x) * 3, rgb, 3);
+}
+
+PL_EXPORT int pl_render_outlined(pl_image **out, const pl_map *map, uint32_t c,
+                                 const uint32_t *marks, uint32_t count,
+                                 const pl_render_options *opts, pl_err *err)
+{
+    *out = NULL;
+    if (!marks)
+        return pl__err(err, PL_EINVAL, "outlines need their marks");
+    pl_render_layout lay;
+    pl_image *img = NULL;
+    int rc = pl_render__map(&img, &lay, map, c, opts, err);
+    if (rc)
+        return rc;
+    static const unsigned char ink[3] = { 214, 0, 140 }, core[3] = { 255, 255, 255 };
+    const uint32_t w = map->width, h = map->height;
+    const int z = (int)lay.zoom;
+    uint32_t *top = calloc((size_t)count + 1, sizeof *top);
+    uint32_t *left = calloc((size_t)count + 1, sizeof *left);
+    if (!top || !left) {
+        free(top);
+        free(left);
+        pl_image_free(img);
+        return pl__err(err, PL_ENOMEM, "out of memory for the outlines");
+    }
+    for (uint32_t k = 0; k <= count; k++)
+        top[k] = left[k] = UINT32_MAX;
+    for (uint32_t j = 0; j < h; j++)
+        for (uint32_t i = 0; i < w; i++) {
+            uint32_t k = marks[(size_t)j * w + i];
+            if (!k || k > count)
+                continue;
+            if (j < top[k] || (j == top[k] && i < left[k]))
+                top[k] = j, left[k] = i;
+            int edge = i == 0 || j == 0 || i + 1 == w || j + 1 == h
+                       || marks[(size_t)j * w + i - 1] != k || marks[(size_t)j * w + i + 1] != k
+                       || marks[(size_t)(j - 1) * w + i] != k
+                       || marks[(size_t)(j + 1) * w + i] != k;
+            if (!edge)
+                continue;
+            int x = lay.map_x + (int)i * z, y = lay.map_y + (int)j * z;
+            fill_square(img, x, y, z, ink);
+            if (z >= 3)
+                fill_square(img, x + z / 3, y + z / 3, z - 2 * (z / 3), core);
+        }
+    unsigned s = lay.text_scale ? lay.text_scale : 1;
+    for (uint32_t k = 1; k <= count; k++) {
+        if (top[k] == UINT32_MAX)
+            continue;
+        char num[16];
+        snprintf(num, sizeof num, "%u", (unsigned)k);
+        int x = lay.map_x + (int)left[k] * z;
+        int y = lay.map_y + (int)top[k] * z - PL_FONT_HEIGHT * (int)s - 2;
+        if (y < lay.map_y)
+            y = lay.map_y + (int)top[k] * z + 2;
+        int tw = (int)strlen(num) * (PL_FONT_WIDTH + 1) * (int)s;
+        /* a white box under the number keeps it legible over any colour */
+        for (int yy = y - 1; yy < y + PL_FONT_HEIGHT * (int)s + 1; yy++)
+            for (int xx = x - 1; xx < x + tw + 1; xx++)
+                if (xx >= 0 && yy >= 0 && (uint32_t)xx < img->width && (uint32_t)yy < img->height)
+                    memcpy(img->rgb + ((size_t)yy * img->width + (size_t)xx) * 3, core, 3);
+        pl_image_text(img, x, y, num, s, ink);
+    }
+    free(top);
+    free(left);
+    *out = img;
+    return PL_OK;
+}
+
 /* ---- two maps together ------------------------------------------------- */
 
 /* 1st and 99th percentiles of the finite values of one or two arrays. */

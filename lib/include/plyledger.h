@@ -26,5 +26,8 @@
 #include "plyledger/reduce.h"
 #include "plyledger/register.h"
 #include "plyledger/detect.h"
+#include "plyledger/criteria.h"
+#include "plyledger/change.h"
+#include "plyledger/compare.h"
 
 #endif

@@ -5,6 +5,7 @@
 #include "plyledger/record.h"
 
 #include "common/common_int.h"
+#include "record/record_int.h"
 
 #include <cjson/cJSON.h>
 #include <math.h>
@@ -984,11 +985,11 @@ PL_EXPORT int pl_record_find_pair(pl_store *store, const char *serial, const cha
     return inspection_map(store, pair->current_inspection, &pair->current_map, "current", err);
 }
 
-PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair,
-                                     const pl_register_result *res, int manual,
-                                     const char *method, const char *supplied_by,
-                                     const char *supplied_reason, const char *parameters_json,
-                                     pl_id *registration_id, pl_id *comparison_id, pl_err *err)
+int pl_record__add_registration(pl_store *store, const pl_record_pair *pair,
+                                const pl_register_result *res, int manual, const char *method,
+                                const char *supplied_by, const char *supplied_reason,
+                                const char *parameters_json, pl_id *registration_id,
+                                pl_id *comparison_id, pl_err *err)
 {
     pl_registration_record g;
     memset(&g, 0, sizeof g);
@@ -1020,10 +1021,8 @@ PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair
     g.parameters_json = parameters_json ? pl__strdup(parameters_json) : NULL;
     if (parameters_json && !g.parameters_json)
         return pl__err(err, PL_ENOMEM, "out of memory");
-    int rc = pl_store_begin(store, err);
     pl_id rid = 0, cid = 0;
-    if (!rc)
-        rc = pl_store_add_registration(store, &g, &rid, err);
+    int rc = pl_store_add_registration(store, &g, &rid, err);
     if (!rc && res->refused) {
         pl_comparison_record c;
         memset(&c, 0, sizeof c);
@@ -1037,6 +1036,26 @@ PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair
         rc = pl_store_add_comparison(store, &c, &cid, err);
     }
     free(g.parameters_json);
+    if (rc)
+        return rc;
+    if (registration_id)
+        *registration_id = rid;
+    if (comparison_id)
+        *comparison_id = cid;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_record_registration(pl_store *store, const pl_record_pair *pair,
+                                     const pl_register_result *res, int manual,
+                                     const char *method, const char *supplied_by,
+                                     const char *supplied_reason, const char *parameters_json,
+                                     pl_id *registration_id, pl_id *comparison_id, pl_err *err)
+{
+    pl_id rid = 0, cid = 0;
+    int rc = pl_store_begin(store, err);
+    if (!rc)
+        rc = pl_record__add_registration(store, pair, res, manual, method, supplied_by,
+                                         supplied_reason, parameters_json, &rid, &cid, err);
     if (rc) {
         pl_store_rollback(store);
         return rc;

@@ -1,6 +1,7 @@
 /*
  * store_int.h - internals shared by the store's files (store.c,
- * store_row.c, store_airframe.c, store_inspection.c, store_registration.c),
+ * store_row.c, store_airframe.c, store_inspection.c, store_registration.c,
+ * store_criteria.c),
  * plan.c, history.c and the generated schema_sql.c; never installed.
  *
  * All SQL of the library lives in the store's files; no other module sees a

@@ -12,6 +12,7 @@
 #include "record/store_int.h"
 
 #include "common/common_int.h"
+#include "plyledger/criteria.h"
 #include "plyledger/hash.h"
 
 #include <assert.h>
@@ -619,7 +620,7 @@ static const pl_column comparison_cols[] = {
         "baseline_inspection", PL_C_ID, 0, PL_F_ANY),
     INT(pl_comparison_record, current_inspection, "current_inspection", "current_inspection",
         PL_C_ID, 0, PL_F_ANY),
-    SUPPLIED("criteria_id", PL_S_INTEGER, NUL),
+    INT(pl_comparison_record, criteria_id, "criteria_id", "criteria", PL_C_ID, NUL, PL_F_ANY),
     INT(pl_comparison_record, registration_id, "registration_id", "registration", PL_C_ID, NUL,
         PL_F_ANY),
     WORD(pl_comparison_record, status, "status", "status", PL_VOCAB_COMPARISON_STATUS),
@@ -632,6 +633,36 @@ static const pl_column comparison_cols[] = {
     PARAMETERS(pl_comparison_record),
     SOFTWARE(pl_comparison_record),
     RECORDED(pl_comparison_record),
+};
+
+/* A criteria set: its header fields and its whole canonical JSON (content).
+ * The per-set limit columns of the first schema stay NULL: the limits are
+ * per rule, inside the content. */
+static const pl_column criteria_cols[] = {
+    ROWID(pl_criteria_record, "criteria"),
+    TEXT(pl_criteria_record, name, "name", "name", IN | REQ, PL_F_NAME),
+    TEXT(pl_criteria_record, revision, "revision", "revision", IN | REQ, PL_F_NAME),
+    TEXT(pl_criteria_record, source_document, "source_document", "source_document", IN | REQ,
+         PL_F_NAME),
+    INT(pl_criteria_record, format_version, "format_version", "format_version", PL_C_I64, 0,
+        PL_F_ANY),
+    INT(pl_criteria_record, example_values, "example_values", "example_values", PL_C_I64, 0,
+        PL_F_ANY),
+    REAL(pl_criteria_record, repeatability_area_mm2, "repeatability_area_mm2",
+         "repeatability_area_mm2", IN | REQ, PL_F_POSITIVE),
+    INT(pl_criteria_record, rule_count, "rule_count", "rule_count", PL_C_I64, 0, PL_F_ANY),
+    TEXT(pl_criteria_record, sha256, "content_sha256", "sha256", 0, PL_F_ANY),
+    COLUMN(pl_criteria_record, content_json, "content_json", "content_json", "content",
+           PL_S_TEXT, PL_C_STR, IN | REQ, PL_F_JSON),
+    RECORDED(pl_criteria_record),
+    CORRECTION,
+    SUPPLIED("min_area_mm2", PL_S_REAL, NUL),
+    SUPPLIED("area_growth_mm2", PL_S_REAL, NUL),
+    SUPPLIED("area_growth_ratio", PL_S_REAL, NUL),
+    SUPPLIED("contrast_growth", PL_S_REAL, NUL),
+    SUPPLIED("depth_change_mm", PL_S_REAL, NUL),
+    SUPPLIED("parameters_json", PL_S_TEXT, NUL),
+    SUPPLIED("approved_by", PL_S_TEXT, NUL),
 };
 
 #define TABLE(id, name, from, cols, T) \
@@ -651,6 +682,7 @@ static const pl_table_desc tables[PL_TABLE_COUNT] = {
           pl_registration_record),
     TABLE(PL_TABLE_COMPARISON, "comparison", "comparison t", comparison_cols,
           pl_comparison_record),
+    TABLE(PL_TABLE_CRITERIA, "criteria", "criteria t", criteria_cols, pl_criteria_record),
 };
 
 const pl_table_desc *pl_row__table(pl_table table)

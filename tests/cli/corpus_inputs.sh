@@ -92,3 +92,55 @@ sed 's/"seq.npy"/"seq_trailing.npy"/' seq.json >seq_trailing.json
 : >empty.json
 : >empty.csv
 : >empty.npy
+
+# criteria sets: one the prepared store holds (criteria_ok.json), and each
+# fault of a criteria file made from it
+cat >criteria_ok.json <<'JSON'
+{
+  "format": "plyledger-criteria",
+  "format_version": 1,
+  "name": "TEST-LIMITS",
+  "revision": "A",
+  "source_document": "TEST-DOC-01",
+  "example_values": true,
+  "repeatability": { "area_mm2": 10 },
+  "rules": [
+    { "name": "joint", "kind": "no-growth", "method": "flash-thermography",
+      "quantity": "temperature-contrast", "site": "T0*", "contrast_unit": "K",
+      "repeatability_contrast": 0.05, "min_reportable_area_mm2": 20,
+      "new_reportable_area_mm2": 20, "vanished": "investigate" },
+    { "name": "skin", "kind": "growth-limit", "method": "flash-thermography",
+      "quantity": "temperature-contrast", "contrast_unit": "K",
+      "repeatability_contrast": 0.05, "min_reportable_area_mm2": 25,
+      "new_reportable_area_mm2": 50, "area_growth_mm2": 40, "area_growth_percent": 25,
+      "vanished": "report" }
+  ]
+}
+JSON
+sed 's/"area_growth_mm2"/"area_grow_mm2"/' criteria_ok.json >crit_typo.json
+sed 's/"area_growth_mm2": 40/"area_growth_mm2": -5/' criteria_ok.json >crit_negative.json
+sed 's/"area_growth_percent": 25/"area_growth_percent": 5000/' criteria_ok.json >crit_percent.json
+sed 's/"area_growth_mm2": 40/"area_growth_mm2": 2e6/' criteria_ok.json >crit_area_huge.json
+sed 's/"area_growth_mm2": 40/"area_growth_mm2": 1e999/' criteria_ok.json >crit_inf.json
+sed 's/"area_growth_mm2": 40/"area_growth_mm2": "40"/' criteria_ok.json >crit_type.json
+sed 's/"example_values": true/"example_values": "yes"/' criteria_ok.json >crit_marking.json
+sed '0,/"flash-thermography"/s//"x-ray"/' criteria_ok.json >crit_method.json
+sed '0,/"temperature-contrast"/s//"ultrasonic-amplitude"/' criteria_ok.json >crit_quantity.json
+sed 's/"name": "skin"/"name": "joint"/' criteria_ok.json >crit_dup_name.json
+sed 's/"site": "T0\*", //' criteria_ok.json >crit_dup_rule.json
+sed 's/"vanished": "investigate" }/"vanished": "investigate", "area_growth_mm2": 30 }/' criteria_ok.json >crit_no_growth.json
+sed 's/"name": "TEST-LIMITS"/"name": "TEST-LIMITS", "name": "OTHER"/' criteria_ok.json >crit_twice.json
+"$PY" - criteria_ok.json <<'PY'
+import json, sys
+ok = open(sys.argv[1], "rb").read()
+m = json.loads(ok)
+m["rules"] = []
+json.dump(m, open("crit_empty.json", "w"))
+open("crit_utf8.json", "wb").write(ok.replace(b'"TEST-DOC-01"', b'"TEST-\xff-DOC"'))
+open("crit_trailing.json", "wb").write(ok + b'{"more": 1}\n')
+open("crit_oversize.json", "wb").write(ok + b" " * (1024 * 1024))
+open("crit_array.json", "wb").write(b"[" + ok + b"]")
+m = json.loads(ok)
+m["rules"][1]["area_growth_mm2"] = 45
+json.dump(m, open("crit_changed.json", "w"))
+PY

@@ -317,7 +317,7 @@ JSON
     run "simulate $which" 0 ply simulate "$WORK/scene_$which.json" --output "$WORK/seq_$which.json" --no-truth -q
 done
 run "reduce base" 0 ply reduce "$WORK/seq_base.json" --airframe TST-0002 --site T04 --kind baseline --date 2015-06-01 $TRACE -q
-run "reduce cur" 0 ply reduce "$WORK/seq_cur.json" --airframe TST-0002 --site T04 --kind scheduled --date 2021-06-01 $TRACE -q
+run "reduce cur" 0 ply reduce "$WORK/seq_cur.json" --airframe TST-0002 --site T04 --kind scheduled --date 2021-06-01 --task HC-1 $TRACE -q
 run "register" 0 ply register --airframe TST-0002 --site T04 --aligned "$WORK/aligned.npy" \
     --view "$WORK/view.png" --json
 "$PY" - "$WORK" <<'PY' || fail "register: transform or outputs wrong"
@@ -371,6 +371,99 @@ run "history text" 0 ply history --airframe TST-0002 --site T04 && expect_out "h
 run "register json" 0 ply register --airframe TST-0002 --site T04 --json
 "$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert "does not replace" in r["caution"], r' "$WORK/out" \
     || fail "register --json: no caution"
+# ---- criteria sets ------------------------------------------------------------
+
+SAMPLE_CRITERIA="$HERE/../../sample-fleet/criteria-example.json"
+for c in "" import list show; do
+    run "criteria $c --help" 0 ply criteria $c --help && expect_out "criteria $c --help" "usage: plyledger criteria"
+done
+run "criteria import" 0 ply criteria import "$SAMPLE_CRITERIA" \
+    && expect_out "criteria import" "recorded criteria EXAMPLE-CR7-GROWTH revision A" \
+    && expect_out "criteria import" "EXAMPLE VALUES, NOT APPROVED DATA"
+run "criteria import again" 0 ply criteria import "$SAMPLE_CRITERIA" \
+    && expect_out "criteria import again" "already recorded with this content" \
+    && expect_out "criteria import again" "nothing changed"
+run "criteria import again json" 0 ply criteria import --json "$SAMPLE_CRITERIA"
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert r["already_recorded"] is True and r["marking"]=="EXAMPLE VALUES, NOT APPROVED DATA", r' "$WORK/out" \
+    || fail "criteria import --json: already_recorded and the marking"
+# a new revision is a new row; the first stays
+sed 's/"revision": "A"/"revision": "B"/; s/"area_growth_mm2": 40/"area_growth_mm2": 45/' "$SAMPLE_CRITERIA" >"$WORK/criteria-b.json"
+run "criteria import revision B" 0 ply criteria import "$WORK/criteria-b.json" \
+    && expect_out "criteria import revision B" "revision B (row 2, 8 rules"
+run "criteria list" 0 ply criteria list && expect_out "criteria list" "EXAMPLE-CR7-GROWTH  B" \
+    && expect_out "criteria list" "EXAMPLE VALUES, NOT APPROVED DATA"
+run "criteria list json" 0 ply criteria list --json
+"$PY" -c 'import json,sys; r=json.load(open(sys.argv[1])); assert [(x["revision"], x["criteria"], x["example_values"], x["rule_count"]) for x in r]==[("A",1,True,8),("B",2,True,8)], r' "$WORK/out" \
+    || fail "criteria list --json"
+run "criteria show latest" 0 ply criteria show EXAMPLE-CR7-GROWTH \
+    && expect_out "criteria show latest" "criteria EXAMPLE-CR7-GROWTH revision B" \
+    && expect_out "criteria show latest" "*** EXAMPLE VALUES, NOT APPROVED DATA ***" \
+    && { grep -E "^[0-9]+ +door-corner-bonded-joint-fwd-pax +no-growth" "$WORK/out" >/dev/null \
+         || fail "criteria show latest: the door-corner rule is not shown as no-growth"; }
+# the set read back from the record is the file imported, field for field
+run "criteria show json" 0 ply criteria show EXAMPLE-CR7-GROWTH --revision A --json
+"$PY" - "$WORK/out" "$SAMPLE_CRITERIA" <<'PY' || fail "criteria show --json: the content is not the file imported"
+import json, sys
+r = json.load(open(sys.argv[1]))
+f = json.load(open(sys.argv[2]))
+assert r["content"] == f, (r["content"], f)
+assert r["revision"] == "A" and r["marking"] == "EXAMPLE VALUES, NOT APPROVED DATA", r
+PY
+sqlite3 "$STORE" "UPDATE criteria SET revision='Z'" 2>"$WORK/err" && fail "UPDATE of a criteria set was allowed"
+grep -q "append-only" "$WORK/err" || fail "criteria UPDATE refusal message"
+
+# ---- compare ----------------------------------------------------------------------
+# T04's two inspections simulate the same laminate, flanges, delamination and
+# impact (different noise, the robot 1.5 mm and 0.6 deg off): both indications
+# must be found again, stable, and nothing new.
+
+run "compare --help" 0 ply compare --help && expect_out "compare --help" "Exit status"
+run "compare without criteria" 2 ply compare --airframe TST-0002 --site T04
+run "compare site and task" 2 ply compare --airframe TST-0002 --site T04 --task X --criteria EXAMPLE-CR7-GROWTH
+run "compare unknown criteria" 1 ply compare --airframe TST-0002 --site T04 --criteria NO-SUCH-SET \
+    && expect_one_line_err "compare unknown criteria" "NO-SUCH-SET"
+run "compare unknown revision" 1 ply compare --airframe TST-0002 --site T04 --criteria EXAMPLE-CR7-GROWTH --revision Q \
+    && expect_one_line_err "compare unknown revision" "Q"
+run "compare quantity absent" 1 ply compare --airframe TST-0002 --site T04 --criteria EXAMPLE-CR7-GROWTH --quantity ultrasonic-amplitude \
+    && expect_one_line_err "compare quantity absent" "T04"
+run "compare summary before" 0 ply summary --json
+BEFORE=$(cat "$WORK/out")
+run "compare dry run" 0 ply compare --airframe TST-0002 --site T04 --criteria EXAMPLE-CR7-GROWTH --revision A --dry-run \
+    && expect_out "compare dry run" "nothing recorded"
+expect_out "compare dry run" "EXAMPLE VALUES, NOT APPROVED DATA"
+expect_out "compare dry run" "does not replace"
+ply summary --json >"$WORK/out" 2>/dev/null
+[ "$(cat "$WORK/out")" = "$BEFORE" ] || fail "compare --dry-run changed the store"
+mkdir -p "$WORK/pictures"
+run "compare site" 0 ply compare --airframe TST-0002 --site T04 --criteria EXAMPLE-CR7-GROWTH --revision A \
+    --pictures "$WORK/pictures" --json
+"$PY" - "$WORK/out" "$WORK/pictures" <<'PY' || fail "compare site: result"
+import json, sys, os
+r = json.load(open(sys.argv[1]))
+assert r["status"] == "done" and r["criteria"]["revision"] == "A", r["status"]
+assert r["criteria"]["marking"] == "EXAMPLE VALUES, NOT APPROVED DATA"
+assert "does not replace" in r["caution"]
+kinds = [c["kind"] for c in r["changes"] if c["reportable"]]
+# the delamination (12 x 8 mm ellipse, 75 mm^2) and the impact: found in both, not new
+assert kinds.count("new") == 0 and r["counts"]["exceeding"] == 0, [(c["kind"], c["area_mm2"]) for c in r["changes"]]
+assert kinds.count("stable") >= 1, kinds
+for c in r["changes"]:
+    if c["kind"] == "stable":
+        assert c["area_margin_mm2"] >= 0 and not c["exceeds"], c
+for n in ("reference", "aligned", "difference", "overlay"):
+    p = os.path.join(sys.argv[2], "TST-0002-T04-%s.png" % n)
+    assert open(p, "rb").read(8) == b"\x89PNG\r\n\x1a\n", p
+PY
+run "compare recorded" 0 ply summary --json
+"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); b=json.loads(sys.argv[2]); assert s["comparisons"]==b["comparisons"]+1 and s["registrations"]==b["registrations"]+1, (s, b)' "$WORK/out" "$BEFORE" \
+    || fail "compare: the comparison and its registration are not recorded"
+run "compare in history" 0 ply history --airframe TST-0002 --site T04 \
+    && expect_out "compare in history" "criteria EXAMPLE-CR7-GROWTH rev A" \
+    && expect_out "compare in history" "beyond their limits"
+run "compare check" 0 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run
+expect_out "compare check" "summary of check HC-1 of TST-0002"
+run "compare check unknown task" 1 ply compare --airframe TST-0002 --task NO-SUCH-CHECK --criteria EXAMPLE-CR7-GROWTH \
+    && expect_one_line_err "compare check unknown task" "NO-SUCH-CHECK"
 
 # The record itself refuses changes in place.
 sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"

@@ -83,6 +83,7 @@ prep history --airframe TST-0001 --site T01 --json
 BASE_MAP=$("$PY" -c 'import json,sys; print(json.load(open(sys.argv[1]))["inspections"][0]["maps"][0]["map"])' "$WORK/prep.out")
 PNG_MAP=$("$PY" -c 'import json,sys; print(json.load(open(sys.argv[1]))["inspections"][1]["maps"][0]["map"])' "$WORK/prep.out")
 "$HERE/corpus_inputs.sh" "$W" || { echo "FAIL: corpus inputs" >&2; exit 1; }
+prep criteria import "$W/criteria_ok.json"
 cp "$PREP" "$W/newer.plyledger"
 sqlite3 "$W/newer.plyledger" "PRAGMA user_version = 99"
 sqlite3 "$PREP" .dump >"$WORK/prepared.sql" || { echo "FAIL: cannot dump the prepared store" >&2; exit 1; }

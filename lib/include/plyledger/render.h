@@ -136,6 +136,19 @@ PL_EXPORT void pl_colormap_rgb(pl_colormap cmap, double t, unsigned char rgb[3])
 PL_EXPORT int pl_render_map(pl_image **out, const pl_map *map, uint32_t c,
                             const pl_render_options *opts, pl_err *err);
 
+/**
+ * pl_render_map() with numbered outlines drawn over the map: `marks`
+ * (width x height of the map, row-major) holds 0 for no mark or k >= 1 for
+ * the k-th outlined region; each region's edge pixels (a marked pixel with
+ * a 4-neighbour of another mark, or at the map's border) are drawn in a
+ * magenta ink with a white core, and k is written next to the region's top
+ * left corner. Marks above `count` are ignored.
+ * @return as pl_render_map(); PL_EINVAL (marks NULL).
+ */
+PL_EXPORT int pl_render_outlined(pl_image **out, const pl_map *map, uint32_t c,
+                                 const uint32_t *marks, uint32_t count,
+                                 const pl_render_options *opts, pl_err *err);
+
 /** How pl_render_pair() shows two maps of one grid together. */
 typedef enum pl_pair_mode {
     PL_PAIR_CHECKERBOARD = 0, /**< alternate square tiles of each, one colour scale */

@@ -642,6 +642,7 @@ typedef struct pl_comparison_record {
     pl_id baseline_inspection;            /**< key; required */
     pl_id current_inspection;             /**< key; required, same site */
     pl_id registration_id;                /**< the registration it rests on, or 0 */
+    pl_id criteria_id;                    /**< the criteria revision applied, or 0 */
     char status[PL_WORD_SIZE];            /**< PL_VOCAB_COMPARISON_STATUS */
     char not_done_reason[PL_TEXT_SIZE];   /**< why, when not done (required then) */
     double uncompared_mm2;                /**< area that could not be compared; NaN unknown */

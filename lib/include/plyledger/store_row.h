@@ -70,6 +70,7 @@ typedef enum pl_table {
     PL_TABLE_MAP_CHANNEL = 5,   /**< pl_channel (a part of a map record) */
     PL_TABLE_REGISTRATION = 6,  /**< pl_registration_record */
     PL_TABLE_COMPARISON = 7,    /**< pl_comparison_record */
+    PL_TABLE_CRITERIA = 8,      /**< pl_criteria_record (plyledger/criteria.h) */
     PL_TABLE_COUNT
 } pl_table;
 
