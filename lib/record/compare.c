@@ -356,7 +356,15 @@ static int compare_loaded(pl_site_comparison *sc, const pl_map *cur, const pl_co
     if ((rc = pl_detect(&sc->reference_detection, sc->reference_data, sc->reference_channel, &d,
                         err)))
         return rc;
-    if ((rc = pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &d, err)))
+    /* the current map's noise from its own grid: resampling onto the
+     * reference grid smooths the noise, which the high-pass estimate
+     * would then find too small (thresholds too low, noise called) */
+    pl_detect_options dcur = d;
+    int rcc = channel_of(cur, sc->quantity, sc->label);
+    if (isnan(dcur.noise) && rcc >= 0 &&
+        (rc = pl_detect_noise(&dcur.noise, NULL, cur, (uint32_t)rcc, &d, err)))
+        return rc;
+    if ((rc = pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &dcur, err)))
         return rc;
     pl_change_input in = PL_CHANGE_INPUT_INIT;
     in.baseline = sc->reference_data;
@@ -622,8 +630,10 @@ static cJSON *change_json(const pl_change *c, size_t number, const pl_map *grid)
     cJSON *o = cJSON_CreateObject();
     cJSON_AddNumberToObject(o, "number", (double)number);
     cJSON_AddStringToObject(o, "kind", pl_change_kind_name(c->kind));
-    cJSON_AddStringToObject(o, "match", c->match == PL_MATCH_OVERLAP ? "overlap"
-                                        : c->match == PL_MATCH_DISTANCE ? "distance" : "none");
+    cJSON_AddStringToObject(o, "match", c->match == PL_MATCH_OVERLAP    ? "overlap"
+                                        : c->match == PL_MATCH_DISTANCE ? "distance"
+                                        : c->match == PL_MATCH_SIGNAL   ? "signal"
+                                                                        : "none");
     cJSON_AddItemToObject(o, "reference_labels", labels_json(c->baseline_labels, c->nbaseline));
     cJSON_AddItemToObject(o, "current_labels", labels_json(c->current_labels, c->ncurrent));
     cJSON *sz = cJSON_AddObjectToObject(o, "area_mm2");
