@@ -458,6 +458,290 @@ static void test_change__refusals_name_the_fault(void **state)
     pl_map_free(c);
 }
 
+/* ---- a map against itself, a noise-only re-acquisition -------------------------- */
+
+/*
+ * A map compared with itself (analytic: d = 0 everywhere): every group is
+ * stable with zero deltas, no changed region, nothing exceeds, and the
+ * difference map is exactly 0 on every pixel.
+ */
+static void test_change__map_against_itself_is_no_change(void **state)
+{
+    (void)state;
+    pl_map *b = flat_map(64, 48, "temperature-contrast", "K", 0, 0.01, 21);
+    add_disk(b, 20, 20, 6, 0, 1.0);
+    add_rect(b, 40, 30, 49, 37, 0.6);
+    pl_change_limits l = test_limits();
+    l.kind = PL_LIMITS_NO_GROWTH; /* the strictest: any growth beyond 2 mm2 */
+    pl_comparison *cmp = compare_flat(b, b, 0.01, 0.01, 0.0, &l);
+    print_changes("itself", cmp);
+    assert_int_equal(cmp->count, 2);
+    assert_int_equal(cmp->counts[PL_CHANGE_STABLE], 2);
+    assert_int_equal(cmp->exceeding, 0);
+    for (size_t k = 0; k < cmp->count; k++) {
+        assert_true(cmp->changes[k].area_delta_mm2[PL_SIZING_THRESHOLD] == 0.0);
+        assert_true(cmp->changes[k].area_delta_mm2[PL_SIZING_HALF_MAX] == 0.0);
+        assert_true(cmp->changes[k].contrast_delta == 0.0);
+    }
+    for (size_t i = 0; i < 64 * 48; i++)
+        assert_true(cmp->difference[i] == 0.0f);
+    pl_comparison_free(cmp);
+    pl_map_free(b);
+}
+
+/* ---- simulated sites ---------------------------------------------------------------- */
+
+/*
+ * A simulated site (lib/thermal/sim.c): a 3 mm CFRP skin as the sample
+ * fleet's (sample-fleet/genscenes.c) with a stringer flange bonded behind
+ * along u, seen by a 64 x 48 camera of 1 mm pitch at 25 Hz for 8 s (the
+ * thermal time of a 1 mm deep delamination, d^2 / alpha_z with alpha_z =
+ * 0.4 mm^2/s, is 2.5 s), with 20 mK NETD and 10 mK fixed pattern, and a
+ * placement error. Defects are disbonds (interface resistances) given as
+ * circles: `ndef` of (centre u, v, diameter, depth) in mm.
+ */
+#define SITE_W 64
+#define SITE_H 48
+typedef struct site_defect {
+    double u, v, diameter, depth;
+} site_defect;
+
+typedef struct sim_feed {
+    pl_reducer *r;
+} sim_feed;
+
+static int sim_feed_frame(void *ud, uint32_t index, double time_s, const float *kelvin)
+{
+    (void)time_s;
+    return pl_reducer_frame(((sim_feed *)ud)->r, index, kelvin, NULL);
+}
+
+static pl_map *simulate_site(unsigned seed, double du, double dv, double rot,
+                             const site_defect *def, size_t ndef, double nonuniformity,
+                             int flange)
+{
+    char defects[2048] = "";
+    size_t len = 0;
+    for (size_t k = 0; k < ndef; k++)
+        len += (size_t)snprintf(defects + len, sizeof defects - len,
+                                "%s{\"kind\": \"disbond\", \"depth_mm\": %.3f, \"outline\": "
+                                "{\"shape\": \"circle\", \"centre_mm\": [%.3f, %.3f], "
+                                "\"diameter_mm\": %.3f}}",
+                                k ? ", " : "", def[k].depth, def[k].u, def[k].v, def[k].diameter);
+    char json[4096];
+    snprintf(json, sizeof json,
+             "{\"seed\": %u, \"laminate\": {\"thickness_mm\": 3.0, \"density_kg_m3\": 1560, "
+             "\"specific_heat_j_kgk\": 1200, \"conductivity_along_w_mk\": 2.6, "
+             "\"conductivity_across_w_mk\": 1.9, \"conductivity_through_w_mk\": 0.75}, "
+             "\"flash\": {\"energy_j_m2\": 7500, \"nonuniformity\": %.3f}, "
+             "\"surface\": {\"ambient_k\": 294.15, \"front_h_w_m2k\": 8, \"emissivity\": 0.92}, "
+             "\"camera\": {\"width\": %d, \"height\": %d, \"pitch_mm\": 1.0, "
+             "\"frame_rate_hz\": 25, \"frame_count\": 200, \"netd_k\": 0.02, "
+             "\"fixed_pattern_k\": 0.01}, "
+             "\"placement_error\": {\"shift_mm\": [%.3f, %.3f], \"rotation_deg\": %.3f}, "
+             "\"substructure\": [%s], \"defects\": [%s]}",
+             seed, nonuniformity, SITE_W, SITE_H, du, dv, rot,
+             flange ? "{\"kind\": \"flange\", \"outline\": {\"shape\": \"rectangle\", "
+                      "\"centre_mm\": [32, 6], \"size_mm\": [120, 14], \"angle_deg\": 0}, "
+                      "\"thickness_mm\": 2.5, \"bond_resistance_m2k_w\": 0.0002}"
+                    : "",
+             defects);
+    pl_sim_scene *sc;
+    pl_err err = { 0 };
+    if (pl_sim_scene_parse(&sc, json, "site.json", &err))
+        fail_msg("%s", err.msg);
+    pl_sim_info info;
+    pl_sim_scene_info(sc, &info);
+    double *times = malloc(info.frame_count * sizeof *times);
+    assert_non_null(times);
+    for (uint32_t i = 0; i < info.frame_count; i++)
+        times[i] = i / info.frame_rate_hz - info.flash_time_s;
+    sim_feed f;
+    if (pl_reducer_new(&f.r, info.width, info.height, times, info.frame_count,
+                       info.preflash_frames, NULL, &err))
+        fail_msg("%s", err.msg);
+    if (pl_sim_run_frames(sc, sim_feed_frame, &f, NULL, NULL, &err))
+        fail_msg("%s", err.msg);
+    pl_map *m = NULL;
+    if (pl_reducer_finish(f.r, &m, NULL, &err))
+        fail_msg("%s", err.msg);
+    pl_reducer_free(f.r);
+    pl_sim_scene_free(sc);
+    free(times);
+    m->pitch_u = m->pitch_v = 1.0;
+    const double origin[3] = { 5410.0, -320.0, 1280.0 };
+    memcpy(m->placement.origin, origin, sizeof origin);
+    snprintf(m->placement.system, sizeof m->placement.system, "STA/BL/WL");
+    return m;
+}
+
+/* The limits of the simulated comparisons: growth beyond 20 mm2 (about a
+ * third of a 9 mm disbond) and no contrast limit, the repeatability 6 mm2
+ * (a one-pixel ring around a 12 mm disbond is 38 mm2, so the area of a
+ * stable disbond moves by more than a few mm2 with the sampling alone). */
+static pl_change_limits sim_limits(void)
+{
+    pl_change_limits l = PL_CHANGE_LIMITS_INIT;
+    l.area_repeatability_mm2 = 6.0;
+    l.contrast_repeatability = 0.05;
+    l.min_reportable_mm2 = 6.0;
+    l.new_reportable_mm2 = 10.0;
+    l.area_growth_mm2 = 20.0;
+    return l;
+}
+
+/* pl_change_site() on the first temperature-contrast channel of both maps
+ * (the compared quantity of a flash-thermography comparison, see
+ * lib/record/compare.c), registered on the default (phase). */
+static pl_comparison *compare_sites(const pl_map *b, const pl_map *c, pl_register_result *reg)
+{
+    int ch = pl_map_find_channel(b, "temperature-contrast");
+    assert_true(ch >= 0);
+    pl_change_limits l = sim_limits();
+    pl_comparison *cmp = NULL;
+    pl_err err = { 0 };
+    TU_OK(pl_change_site(&cmp, reg, b, (uint32_t)ch, c, &l, NULL, &err));
+    if (!cmp)
+        fail_msg("registration refused: %s", reg->reason);
+    return cmp;
+}
+
+/* The change whose centroid lies nearest (col, row), of `kind` (or any
+ * when kind < 0) and not a changed region; NULL when none within `tol`. */
+static const pl_change *change_near(const pl_comparison *cmp, double col, double row,
+                                    double tol)
+{
+    const pl_change *best = NULL;
+    double bd = tol;
+    for (size_t k = 0; k < cmp->count; k++) {
+        const pl_change *ch = &cmp->changes[k];
+        if (ch->kind == PL_CHANGE_REGION)
+            continue;
+        double d = hypot(ch->centroid_col - col, ch->centroid_row - row);
+        if (d <= bd) {
+            bd = d;
+            best = ch;
+        }
+    }
+    return best;
+}
+
+/*
+ * A noise-only re-acquisition: the same site and defect, another noise
+ * seed, no placement error. Every group is stable and nothing exceeds
+ * (the noise of a 20 mK camera moves a 12 mm disbond's area by a few
+ * pixels at most, below the 6 mm2 repeatability: common practice is
+ * that a repeat scan reproduces the sizes within the repeatability).
+ */
+static void test_change__noise_only_reacquisition_is_no_change(void **state)
+{
+    (void)state;
+    const site_defect d = { 40, 28, 12, 1.0 };
+    pl_map *b = simulate_site(31, 0, 0, 0, &d, 1, 0.0, 0), *c = simulate_site(32, 0, 0, 0, &d, 1, 0.0, 0);
+    pl_register_result reg;
+    pl_comparison *cmp = compare_sites(b, c, &reg);
+    print_changes("noise-only re-acquisition", cmp);
+    assert_int_equal(cmp->exceeding, 0);
+    assert_int_equal(cmp->counts[PL_CHANGE_NEW] + cmp->counts[PL_CHANGE_GROWN]
+                         + cmp->counts[PL_CHANGE_VANISHED],
+                     0);
+    const pl_change *g = change_near(cmp, 40, 28, 3);
+    assert_non_null(g);
+    assert_int_equal(g->kind, PL_CHANGE_STABLE);
+    pl_comparison_free(cmp);
+    /* and the reinspection against itself: nothing at all changes */
+    cmp = compare_sites(c, c, &reg);
+    assert_int_equal(cmp->exceeding, 0);
+    assert_int_equal(cmp->count, cmp->counts[PL_CHANGE_STABLE]);
+    pl_comparison_free(cmp);
+    pl_map_free(b);
+    pl_map_free(c);
+}
+
+/* ---- an ultrasonic amplitude comparison --------------------------------------------- */
+
+/*
+ * An ultrasonic C-scan back-wall amplitude map in dB (quantity
+ * "ultrasonic-amplitude", whose polarity falls: the back-wall echo drops
+ * over a delamination, which shadows it). The generator is this test's
+ * own invention, no measured data: a 96 x 72 scan of 1 mm index, the back
+ * wall at 0 dB with a slow coupling drift of +-0.3 dB across the part and
+ * 0.25 dB of white noise; the baseline has one old defect (a 14 mm disk at
+ * -12 dB), the reinspection the same plus a loss of 6 dB over a 10 x 8 mm
+ * region (new) and the old defect grown to 20 mm (grown). Detection with
+ * the defaults (its polarity from the vocabulary) but for the background:
+ * the back wall's own level, the channel's median, as a C-scan is read
+ * against its reference back-wall echo (common practice; the default
+ * line-median window of 40 mm would take half of a 20 mm shadow into the
+ * background).
+ */
+static pl_map *ut_map(uint64_t seed, double old_radius, int with_new)
+{
+    pl_map *m = NULL;
+    assert_int_equal(pl_map_new(&m, 96, 72, 1, NULL), PL_OK);
+    assert_int_equal(pl_map_set_channel(m, 0, "ultrasonic-amplitude", "dB", NULL), PL_OK);
+    m->pitch_u = m->pitch_v = 1.0;
+    rng_state = seed;
+    for (uint32_t r = 0; r < 72; r++)
+        for (uint32_t c = 0; c < 96; c++)
+            m->data[r * 96 + c] = (float)(0.3 * sin(2 * M_PI * c / 192.0)
+                                          * cos(2 * M_PI * r / 144.0) + 0.25 * gauss());
+    add_disk(m, 28, 30, old_radius, 0, -12.0);
+    if (with_new)
+        add_rect(m, 65, 45, 74, 52, -6.0);
+    return m;
+}
+
+static void test_change__ultrasonic_amplitude_loss_is_new(void **state)
+{
+    (void)state;
+    pl_map *b = ut_map(41, 7, 0), *c = ut_map(42, 10, 1);
+    pl_detection *db = NULL, *dc = NULL;
+    pl_err err = { 0 };
+    pl_detect_options o = PL_DETECT_OPTIONS_INIT;
+    o.background = PL_BACKGROUND_MEDIAN;
+    TU_OK(pl_detect(&db, b, 0, &o, &err));
+    TU_OK(pl_detect(&dc, c, 0, &o, &err));
+    assert_int_equal(db->polarity, PL_POLARITY_FALLS);
+    pl_change_input in = PL_CHANGE_INPUT_INIT;
+    in.baseline = b;
+    in.baseline_detection = db;
+    in.current = c;
+    in.current_detection = dc;
+    in.registration_uncertainty_px = PL_CHANGE_DEFAULT_REGISTRATION_UNCERTAINTY_PX;
+    pl_change_limits l = PL_CHANGE_LIMITS_INIT;
+    l.area_repeatability_mm2 = 4;
+    l.contrast_repeatability = 1.0; /* dB */
+    l.min_reportable_mm2 = 6;
+    l.new_reportable_mm2 = 10;
+    l.area_growth_mm2 = 20;
+    pl_comparison *cmp = NULL;
+    TU_OK(pl_change_compare(&cmp, &in, &l, &err));
+    print_changes("ultrasonic dB", cmp);
+    assert_int_equal(cmp->polarity, PL_POLARITY_FALLS);
+    const pl_change *n = change_near(cmp, 69.5, 48.5, 2);
+    assert_non_null(n);
+    assert_int_equal(n->kind, PL_CHANGE_NEW);
+    assert_true(n->exceeds);
+    /* analytic: 10 x 8 px of 1 mm; the -6 dB step is 24 noise sigmas, so
+     * the threshold region is the rectangle within a pixel's ring */
+    tu_assert_close(n->area_current_mm2[PL_SIZING_THRESHOLD], 80, 12, "new loss area");
+    /* its contrast is positive when it looks more like a defect: 6 dB */
+    tu_assert_close(n->contrast_current, 6.0, 1.0, "new loss depth, dB");
+    const pl_change *g = change_near(cmp, 28, 30, 2);
+    assert_non_null(g);
+    assert_int_equal(g->kind, PL_CHANGE_GROWN);
+    /* analytic: pixels within 10 px minus those within 7 px (pi (100 - 49)
+     * = 160 mm2); the 12 dB shadow is sized to its edge within a pixel */
+    tu_assert_close(g->area_delta_mm2[PL_SIZING_THRESHOLD], M_PI * (100 - 49), 25, "growth");
+    assert_int_equal(cmp->counts[PL_CHANGE_VANISHED], 0);
+    pl_comparison_free(cmp);
+    pl_detection_free(db);
+    pl_detection_free(dc);
+    pl_map_free(b);
+    pl_map_free(c);
+}
+
 int main(int argc, char **argv)
 {
     const struct CMUnitTest unit[] = {
@@ -467,6 +751,9 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_change__growth_at_the_limit),
         cmocka_unit_test(test_change__difference_finds_faint_growth),
         cmocka_unit_test(test_change__refusals_name_the_fault),
+        cmocka_unit_test(test_change__map_against_itself_is_no_change),
+        cmocka_unit_test(test_change__noise_only_reacquisition_is_no_change),
+        cmocka_unit_test(test_change__ultrasonic_amplitude_loss_is_new),
     };
     const struct CMUnitTest study[] = {
         cmocka_unit_test(test_change__split_and_merge_are_groups),
