@@ -239,6 +239,61 @@ static timing summarise(double *s, int reps)
     return t;
 }
 
+/* The same steps one at a time (the median of each over the runs), to
+ * show where the time goes: pl_register_maps() with the aligned map,
+ * pl_detect() of each map, pl_change_compare(). */
+static void time_steps(const pl_map *b, const pl_map *c, int reps)
+{
+    double *t[4];
+    for (int k = 0; k < 4; k++)
+        if (!(t[k] = malloc((size_t)reps * sizeof **t)))
+            die("timing", "out of memory");
+    pl_change_limits l = limits();
+    pl_err err = { 0 };
+    for (int i = 0; i < reps; i++) {
+        pl_register_result reg;
+        pl_map *al = NULL;
+        pl_detection *db = NULL, *dc = NULL;
+        pl_comparison *cmp = NULL;
+        double t0 = now();
+        if (pl_register_maps(&reg, &al, b, c, NULL, NULL, NULL, &err) || !al)
+            die("pl_register_maps", err.msg);
+        double t1 = now();
+        if (pl_detect(&db, b, 1, NULL, &err))
+            die("pl_detect", err.msg);
+        double t2 = now();
+        if (pl_detect(&dc, al, 1, NULL, &err))
+            die("pl_detect", err.msg);
+        double t3 = now();
+        pl_change_input in = PL_CHANGE_INPUT_INIT;
+        in.baseline = b;
+        in.baseline_channel = 1;
+        in.baseline_detection = db;
+        in.current = al;
+        in.current_channel = 1;
+        in.current_detection = dc;
+        in.registration_uncertainty_px = PL_CHANGE_DEFAULT_REGISTRATION_UNCERTAINTY_PX;
+        if (pl_change_compare(&cmp, &in, &l, &err))
+            die("pl_change_compare", err.msg);
+        double t4 = now();
+        t[0][i] = t1 - t0;
+        t[1][i] = t2 - t1;
+        t[2][i] = t3 - t2;
+        t[3][i] = t4 - t3;
+        pl_comparison_free(cmp);
+        pl_detection_free(db);
+        pl_detection_free(dc);
+        pl_map_free(al);
+    }
+    const char *names[4] = { "register (and resample)", "detect baseline", "detect current",
+                             "compare" };
+    for (int k = 0; k < 4; k++) {
+        timing m = summarise(t[k], reps);
+        printf("      step %-24s median %8.1f ms\n", names[k], 1e3 * m.median);
+        free(t[k]);
+    }
+}
+
 /* pl_change_site on the two maps in memory. */
 static timing time_site(const pl_map *b, const pl_map *c, int reps, int *bad)
 {
@@ -422,6 +477,7 @@ int main(int argc, char **argv)
 
     printf("    plyledger pl_change_site     median %8.1f ms  (min %8.1f)\n", 1e3 * ours.median,
            1e3 * ours.min);
+    time_steps(b, c, reps);
     printf("    plyledger pl_compare_site    median %8.1f ms  (min %8.1f)  store read, "
            "compare and record\n",
            1e3 * store.median, 1e3 * store.min);
