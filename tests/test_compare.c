@@ -15,6 +15,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include <cmocka.h>
+#include <cjson/cJSON.h>
 
 #include <math.h>
 #include <stdio.h>
@@ -192,6 +193,20 @@ static pl_compare_options options(void)
     return o;
 }
 
+typedef struct recorded_json {
+    pl_id id;
+    char *json;
+} recorded_json;
+
+/* Keep the parameters of the comparison with the given id. */
+static int keep_json(void *ud, const pl_comparison_record *c)
+{
+    recorded_json *r = ud;
+    if (c->id == r->id && c->parameters_json)
+        r->json = strdup(c->parameters_json);
+    return 0;
+}
+
 /* A disc growing from 6 to 9 mm radius at a no-growth site, seen 2.3 and
  * -1.7 px off: one change, grown, its area change within 20 % of
  * pi (9^2 - 6^2) mm^2, beyond the no-growth limit; recorded with its
@@ -244,6 +259,29 @@ static void test_compare__a_growing_disc_is_grown_by_its_analytic_area(void **st
     assert_non_null(strstr(json, "does not replace"));
     assert_non_null(strstr(json, "\"kind\":\t\"grown\""));
     free(json);
+    /* the record holds every indication of both maps, measured, with its
+     * outline: read back from the store, the discs are pi r^2 within 15 %
+     * (analytic; the threshold rule's pixels on a 1 mm grid) */
+    recorded_json rj = { sc->comparison_id, NULL };
+    TU_OK(pl_store_list_comparisons(f->store, cur, keep_json, &rj, &err));
+    assert_non_null(rj.json);
+    cJSON *j = cJSON_Parse(rj.json);
+    assert_non_null(j);
+    const cJSON *det = cJSON_GetObjectItem(j, "detection");
+    const double radius[2] = { 6.0, 9.0 };
+    const char *side[2] = { "reference", "current" };
+    for (int k = 0; k < 2; k++) {
+        const cJSON *inds = cJSON_GetObjectItem(cJSON_GetObjectItem(det, side[k]), "indications");
+        assert_int_equal(cJSON_GetArraySize(inds), 1);
+        const cJSON *ind = cJSON_GetArrayItem(inds, 0);
+        const cJSON *sz = cJSON_GetArrayItem(cJSON_GetObjectItem(ind, "sizes"), 0);
+        double want = M_PI * radius[k] * radius[k];
+        tu_assert_close(cJSON_GetObjectItem(sz, "area_mm2")->valuedouble, want, 0.15 * want,
+                        "recorded indication area");
+        assert_true(cJSON_IsString(cJSON_GetObjectItem(ind, "outline")));
+    }
+    cJSON_Delete(j);
+    free(rj.json);
     pl_site_comparison_free(sc);
 }
 

@@ -388,6 +388,175 @@ static void fill_sizes(pl_change *ch, const work *wk)
     ch->distance_px = wb > 0 && wc > 0 ? hypot(ccx / wc - cbx / wb, ccy / wc - cby / wb) : NAN;
 }
 
+/* ---- an indication in one map only: looked for in the other ------------------ */
+
+static int cmp_float(const void *a, const void *b)
+{
+    float x = *(const float *)a, y = *(const float *)b;
+    return (x > y) - (x < y);
+}
+
+/* The level of the difference d around a group's pixels: the median of d
+ * over the compared pixels within LOOK_RING px of the members' bounding
+ * boxes that lie in no indication of either map (the change of the flash's
+ * pattern or shading between the two acquisitions there); 0 with fewer
+ * than LOOK_RING_MIN such pixels. */
+#define LOOK_RING 4u
+#define LOOK_RING_MIN 16u
+
+typedef struct box {
+    uint32_t c0, r0, c1, r1;
+} box;
+
+static box members_box(const pl_change *ch, const work *wk, int current)
+{
+    box bx = { UINT32_MAX, UINT32_MAX, 0, 0 };
+    size_t n = current ? ch->ncurrent : ch->nbaseline;
+    for (size_t k = 0; k < n; k++) {
+        const pl_indication *ind = current ? &wk->dc->indications[ch->current_labels[k] - 1]
+                                           : &wk->db->indications[ch->baseline_labels[k] - 1];
+        if (ind->bbox_col0 < bx.c0)
+            bx.c0 = ind->bbox_col0;
+        if (ind->bbox_row0 < bx.r0)
+            bx.r0 = ind->bbox_row0;
+        if (ind->bbox_col1 > bx.c1)
+            bx.c1 = ind->bbox_col1;
+        if (ind->bbox_row1 > bx.r1)
+            bx.r1 = ind->bbox_row1;
+    }
+    return bx;
+}
+
+static int ring_level(double *level, const work *wk, const float *d, const uint32_t *also,
+                      box bx)
+{
+    uint32_t c0 = bx.c0 > LOOK_RING ? bx.c0 - LOOK_RING : 0;
+    uint32_t r0 = bx.r0 > LOOK_RING ? bx.r0 - LOOK_RING : 0;
+    uint32_t c1 = bx.c1 + LOOK_RING < wk->w ? bx.c1 + LOOK_RING : wk->w - 1;
+    uint32_t r1 = bx.r1 + LOOK_RING < wk->h ? bx.r1 + LOOK_RING : wk->h - 1;
+    size_t cap = (size_t)(c1 - c0 + 1) * (r1 - r0 + 1), n = 0;
+    float *v = malloc(cap * sizeof *v);
+    if (!v)
+        return PL_ENOMEM;
+    const uint32_t *lb = wk->db->labels, *lc = wk->dc->labels;
+    for (uint32_t y = r0; y <= r1; y++)
+        for (uint32_t x = c0; x <= c1; x++) {
+            size_t i = (size_t)y * wk->w + x;
+            if (wk->cov[i] && !lb[i] && !lc[i] && !(also && also[i]) && isfinite(d[i]))
+                v[n++] = d[i];
+        }
+    *level = 0.0;
+    if (n >= LOOK_RING_MIN) {
+        qsort(v, n, sizeof *v, cmp_float);
+        *level = n % 2 ? v[n / 2] : 0.5 * ((double)v[n / 2 - 1] + (double)v[n / 2]);
+    }
+    free(v);
+    return PL_OK;
+}
+
+/* A group with indications in one map only (a candidate new or vanished
+ * change) is looked for in the other map at the same pixels, with the
+ * first map's background and thresholds: the other map's signal there is
+ *     s' = s - (d - level)      (current members, the baseline's values)
+ *     s' = s + (d - level)      (baseline members, the current's values)
+ * s the members' own detection signal, d the difference polarity x
+ * (current - baseline) and level its median around the group; s - s' is
+ * then the change toward the members' map. When, summed over the members'
+ * pixels, the change is at most half of their signal (less than half of
+ * the departure came or went between the two inspections: an average
+ * over the whole group, so that no single noisy pixel decides) and s'
+ * reaches the low threshold somewhere, the other map shows the same
+ * departure: its own detection left it out (its background, taken along
+ * lines that the edge of the map or of the coverage cut short, rose with
+ * it), and
+ * the group is matched by signal (PL_MATCH_SIGNAL) with the other side's
+ * sizes measured from s' and d: threshold, the members' pixels less those
+ * that changed (s' short of the low threshold and the difference itself,
+ * d - level, beyond the low multiple of its noise sqrt(sigma_b^2 +
+ * sigma_c^2), toward the members' map); half-maximum, the members' pixels
+ * at s' >= half of its peak; and its contrast the peak of s'. Counting
+ * pixels at s' >= low instead would take from the other side every
+ * pixel of the members' hysteresis fringe that its noise pushes under the
+ * threshold, and call growth where nothing changed. */
+static int look_across(pl_change *ch, const work *wk, const float *d)
+{
+    int current = ch->ncurrent > 0;
+    const pl_detection *det = current ? wk->dc : wk->db;
+    if (!(det->low_threshold > 0) || !(det->high_threshold > 0))
+        return PL_OK;
+    box bx = members_box(ch, wk, current);
+    if (bx.c0 > bx.c1 || bx.r0 > bx.r1)
+        return PL_OK;
+    double level;
+    int rc = ring_level(&level, wk, d, NULL, bx);
+    if (rc)
+        return rc;
+    const uint32_t *lab = det->labels;
+    const float *s = det->signal;
+    const long *gon = wk->group_of_node;
+    size_t base = current ? wk->nb : 0;
+    long me = gon[base + (current ? ch->current_labels[0] : ch->baseline_labels[0]) - 1];
+    uint64_t own = 0, low = 0, changed = 0, nfin = 0;
+    double sum_s = 0, sum_change = 0;
+    double peak = -INFINITY;
+    /* a pixel changed: the other map short of the low threshold there and
+     * the difference itself beyond the low multiple of its noise */
+    double sd = hypot(wk->db->noise, wk->dc->noise);
+    double dlow = isfinite(sd) && sd > 0 ? det->options.low * sd : det->low_threshold;
+    for (int pass = 0; pass < 2; pass++) {
+        uint64_t half = 0;
+        for (uint32_t y = bx.r0; y <= bx.r1; y++)
+            for (uint32_t x = bx.c0; x <= bx.c1; x++) {
+                size_t i = (size_t)y * wk->w + x;
+                uint32_t k = lab[i];
+                if (!k)
+                    continue;
+                if (gon[base + k - 1] != me)
+                    continue;
+                double other = !isfinite(d[i]) ? NAN
+                               : current       ? s[i] - (d[i] - level)
+                                               : s[i] + (d[i] - level);
+                if (pass == 0) {
+                    own++;
+                    if (isfinite(other)) {
+                        nfin++;
+                        sum_s += s[i];
+                        sum_change += s[i] - other;
+                    }
+                    if (other >= det->low_threshold)
+                        low++;
+                    else if (isfinite(other) && s[i] - other >= dlow)
+                        changed++;
+                    if (other > peak)
+                        peak = other;
+                } else if (other >= 0.5 * peak) {
+                    half++;
+                }
+            }
+        if (pass == 0 && !(nfin > 0 && sum_change <= 0.5 * sum_s && peak >= det->low_threshold))
+            return PL_OK;
+        if (pass == 1) {
+            double px = wk->in->baseline->pitch_u * wk->in->baseline->pitch_v;
+            double *area = current ? ch->area_baseline_mm2 : ch->area_current_mm2;
+            area[PL_SIZING_THRESHOLD] = (double)(own - changed) * px;
+            area[PL_SIZING_HALF_MAX] = (double)half * px;
+            if (current)
+                ch->contrast_baseline = peak;
+            else
+                ch->contrast_current = peak;
+        }
+    }
+    for (int r = 0; r < PL_SIZING_COUNT; r++) {
+        ch->area_delta_mm2[r] = ch->area_current_mm2[r] - ch->area_baseline_mm2[r];
+        ch->area_delta_percent[r] = ch->area_baseline_mm2[r] > 0
+                                        ? 100.0 * ch->area_delta_mm2[r] / ch->area_baseline_mm2[r]
+                                        : NAN;
+    }
+    ch->contrast_delta = ch->contrast_current - ch->contrast_baseline;
+    ch->match = PL_MATCH_SIGNAL;
+    return PL_OK;
+}
+
 /* The area growth limit for a baseline area a0 (see the header). */
 static double area_limit(const pl_change_limits *l, double a0)
 {
@@ -434,7 +603,7 @@ static void classify(pl_change *ch, const work *wk)
     ch->touches = -1;
     double biggest = fmax(ch->area_baseline_mm2[r], ch->area_current_mm2[r]);
     ch->reportable = biggest >= l->min_reportable_mm2;
-    if (ch->nbaseline && ch->ncurrent) {
+    if ((ch->nbaseline && ch->ncurrent) || ch->match == PL_MATCH_SIGNAL) {
         ch->area_limit_mm2 = area_limit(l, ch->area_baseline_mm2[r]);
         ch->area_measured_mm2 = ch->area_delta_mm2[r];
         judge_growth(ch->area_limit_mm2, ch->area_measured_mm2, &ch->area_margin_mm2,
@@ -444,6 +613,8 @@ static void classify(pl_change *ch, const work *wk)
                      &ch->contrast_exceeds);
         ch->exceeds = ch->reportable && (ch->area_exceeds || ch->contrast_exceeds);
         ch->kind = ch->exceeds ? PL_CHANGE_GROWN : PL_CHANGE_STABLE;
+        if (ch->match == PL_MATCH_SIGNAL)
+            return;
         ch->match = PL_MATCH_DISTANCE;
         for (size_t k = 0; k < ch->nbaseline; k++)
             if (wk->overlap_edge[ch->baseline_labels[k] - 1])
@@ -514,8 +685,17 @@ static int make_groups(work *wk, pl_comparison *cmp)
             ch->current_labels[ch->ncurrent++] = i - wk->nb + 1;
     }
     for (size_t g = 0; g < ng; g++) {
-        fill_sizes(&cmp->changes[g], wk);
-        classify(&cmp->changes[g], wk);
+        pl_change *ch = &cmp->changes[g];
+        fill_sizes(ch, wk);
+        int judged = 0;
+        for (size_t k = 0; k < ch->nbaseline; k++)
+            judged |= !wk->not_judged[ch->baseline_labels[k]];
+        if (!ch->nbaseline != !ch->ncurrent && (ch->ncurrent || judged)) {
+            int rc = look_across(ch, wk, cmp->difference);
+            if (rc)
+                return rc;
+        }
+        classify(ch, wk);
     }
     return PL_OK;
 }
@@ -583,6 +763,34 @@ static int add_region(pl_comparison *cmp, const work *wk, uint32_t label, uint64
         judge_new(ch->area_limit_mm2, area, &ch->area_margin_mm2, &ch->area_exceeds);
     }
     ch->exceeds = ch->reportable && ch->area_exceeds;
+    return PL_OK;
+}
+
+/* Whether changed region k is a change of the maps themselves: summed
+ * over its pixels, the difference d less its level around the region (the
+ * median over the compared pixels near it in no indication and no region)
+ * is at least half of the region's signal s_c - s_b. Where the two maps'
+ * backgrounds part (the line windows of one ran short at the edge of the
+ * map or of the coverage), s_c - s_b departs while d, the maps' values,
+ * does not: no change. */
+static int region_supported(int *yes, const work *wk, const float *d, const float *sig,
+                            const uint32_t *lab, uint32_t k, const pl_detect__sums *sk)
+{
+    box bx = { sk->col0, sk->row0, sk->col1, sk->row1 };
+    double level;
+    int rc = ring_level(&level, wk, d, lab, bx);
+    if (rc)
+        return rc;
+    double sum_sig = 0, sum_d = 0;
+    for (uint32_t y = sk->row0; y <= sk->row1; y++)
+        for (uint32_t x = sk->col0; x <= sk->col1; x++) {
+            size_t i = (size_t)y * wk->w + x;
+            if (lab[i] != k || !isfinite(d[i]) || !isfinite(sig[i]))
+                continue;
+            sum_sig += sig[i];
+            sum_d += d[i] - level;
+        }
+    *yes = sum_sig > 0 && sum_d >= 0.5 * sum_sig;
     return PL_OK;
 }
 
@@ -720,6 +928,11 @@ static int regions(work *wk, pl_comparison *cmp, pl_err *err)
             const pl_detect__sums *sk = &s[k - 1];
             if (sk->n < min_px || sk->n == 0)
                 continue;
+            int yes = 0;
+            if ((rc = region_supported(&yes, wk, cmp->difference, dd->signal, lab, k, sk)))
+                break;
+            if (!yes)
+                continue;
             renum[k] = ++next;
             double sc = sk->sc + (double)sk->ref_col * (double)sk->n;
             double sr = sk->sr + (double)sk->ref_row * (double)sk->n;
@@ -794,7 +1007,7 @@ PL_EXPORT int pl_change_compare(pl_comparison **out, const pl_change_input *in,
     if (coverage(&wk, cmp) || match_overlap(&wk))
         goto fail;
     match_distance(&wk, cmp->tolerance_px);
-    if (make_groups(&wk, cmp) || difference(&wk, cmp))
+    if (difference(&wk, cmp) || make_groups(&wk, cmp))
         goto fail;
     if ((rc = regions(&wk, cmp, err)))
         goto fail_msg;
@@ -859,9 +1072,23 @@ PL_EXPORT int pl_change_site(pl_comparison **out, pl_register_result *reg,
         return pl__err(err, PL_ENOTFOUND, "current map: no channel %s \"%s\"", bc->quantity,
                        bc->label);
     }
+    /* the current map's noise from its own grid: resampling onto the
+     * baseline's smooths the noise, which the high-pass estimate would
+     * then find too small (thresholds too low, noise called) */
+    pl_detect_options dcur = o.detect;
+    int rc_own = -1;
+    for (uint32_t c = 0; c < current->nchannels && rc_own < 0; c++)
+        if (!strcmp(current->channels[c].quantity, bc->quantity) &&
+            !strcmp(current->channels[c].label, bc->label))
+            rc_own = (int)c;
     pl_detection *db = NULL, *dc = NULL;
+    if (isnan(dcur.noise) && rc_own >= 0 &&
+        (rc = pl_detect_noise(&dcur.noise, NULL, current, (uint32_t)rc_own, &o.detect, err))) {
+        pl_map_free(aligned);
+        return rc;
+    }
     if ((rc = pl_detect(&db, baseline, baseline_channel, &o.detect, err)) ||
-        (rc = pl_detect(&dc, aligned, (uint32_t)cc, &o.detect, err))) {
+        (rc = pl_detect(&dc, aligned, (uint32_t)cc, &dcur, err))) {
         pl_detection_free(db);
         pl_map_free(aligned);
         return rc;

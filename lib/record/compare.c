@@ -356,7 +356,15 @@ static int compare_loaded(pl_site_comparison *sc, const pl_map *cur, const pl_co
     if ((rc = pl_detect(&sc->reference_detection, sc->reference_data, sc->reference_channel, &d,
                         err)))
         return rc;
-    if ((rc = pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &d, err)))
+    /* the current map's noise from its own grid: resampling onto the
+     * reference grid smooths the noise, which the high-pass estimate
+     * would then find too small (thresholds too low, noise called) */
+    pl_detect_options dcur = d;
+    int rcc = channel_of(cur, sc->quantity, sc->label);
+    if (isnan(dcur.noise) && rcc >= 0 &&
+        (rc = pl_detect_noise(&dcur.noise, NULL, cur, (uint32_t)rcc, &d, err)))
+        return rc;
+    if ((rc = pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &dcur, err)))
         return rc;
     pl_change_input in = PL_CHANGE_INPUT_INIT;
     in.baseline = sc->reference_data;
@@ -617,13 +625,26 @@ static void part_xyz(double xyz[3], const pl_map *m, double col, double row)
                  m->placement.v[i] * row * m->pitch_v;
 }
 
+/* A detection as pl_detection_json() gives it; null when it cannot be made. */
+static cJSON *detection_json(const pl_detection *d)
+{
+    char *text = NULL;
+    if (pl_detection_json(&text, d, NULL))
+        return cJSON_CreateNull();
+    cJSON *o = cJSON_Parse(text);
+    free(text);
+    return o ? o : cJSON_CreateNull();
+}
+
 static cJSON *change_json(const pl_change *c, size_t number, const pl_map *grid)
 {
     cJSON *o = cJSON_CreateObject();
     cJSON_AddNumberToObject(o, "number", (double)number);
     cJSON_AddStringToObject(o, "kind", pl_change_kind_name(c->kind));
-    cJSON_AddStringToObject(o, "match", c->match == PL_MATCH_OVERLAP ? "overlap"
-                                        : c->match == PL_MATCH_DISTANCE ? "distance" : "none");
+    cJSON_AddStringToObject(o, "match", c->match == PL_MATCH_OVERLAP    ? "overlap"
+                                        : c->match == PL_MATCH_DISTANCE ? "distance"
+                                        : c->match == PL_MATCH_SIGNAL   ? "signal"
+                                                                        : "none");
     cJSON_AddItemToObject(o, "reference_labels", labels_json(c->baseline_labels, c->nbaseline));
     cJSON_AddItemToObject(o, "current_labels", labels_json(c->current_labels, c->ncurrent));
     cJSON *sz = cJSON_AddObjectToObject(o, "area_mm2");
@@ -748,6 +769,11 @@ static cJSON *site_json(const pl_site_comparison *sc)
         cJSON_AddNumberToObject(det, "reference_indications",
                                 (double)sc->reference_detection->count);
         cJSON_AddNumberToObject(det, "current_indications", (double)sc->current_detection->count);
+        /* every indication of both maps with its measures and outline, and
+         * the options as used: the current map's on the reference grid */
+        cJSON_AddItemToObject(det, "reference", detection_json(sc->reference_detection));
+        cJSON_AddItemToObject(det, "current", detection_json(sc->current_detection));
+        cJSON_AddStringToObject(det, "current_grid", "reference (through the registration)");
         cJSON *chs = cJSON_AddArrayToObject(o, "changes");
         for (size_t i = 0; i < c->count; i++)
             cJSON_AddItemToArray(chs, change_json(&c->changes[i], i + 1, sc->reference_data));
@@ -789,7 +815,7 @@ PL_EXPORT int pl_comparison_text(char **out, const pl_comparison_record *c, cons
     const cJSON *cr = cJSON_GetObjectItemCaseSensitive(j, "criteria");
     const cJSON *k = cJSON_GetObjectItemCaseSensitive(j, "counts");
     const cJSON *ch = cJSON_GetObjectItemCaseSensitive(j, "changes");
-    size_t cap = 4096, n = 0;
+    size_t cap = 16384, n = 0;
     char *buf = malloc(cap);
     if (!buf) {
         cJSON_Delete(j);
@@ -812,6 +838,35 @@ PL_EXPORT int pl_comparison_text(char **out, const pl_comparison_record *c, cons
             "region(s); %.0f beyond their limits\n", indent, num_at(k, "new"),
             num_at(k, "grown"), num_at(k, "stable"), num_at(k, "vanished"),
             num_at(k, "not-compared"), num_at(k, "changed-region"), num_at(k, "exceeding"));
+        /* the indications of both maps in their labels' order (at most
+         * eight a map here; the record holds them all) */
+        const cJSON *det = cJSON_GetObjectItemCaseSensitive(j, "detection");
+        static const char *const sides[2] = { "reference", "current" };
+        for (int sd = 0; sd < 2 && cJSON_IsObject(det); sd++) {
+            const cJSON *inds = cJSON_GetObjectItemCaseSensitive(
+                cJSON_GetObjectItemCaseSensitive(det, sides[sd]), "indications");
+            if (!cJSON_IsArray(inds))
+                continue;
+            int total = cJSON_GetArraySize(inds), shown = 0;
+            ADD("%sindications in the %s map: %d%s\n", indent, sides[sd], total,
+                total > 8 ? " (the first 8)" : "");
+            const cJSON *ind;
+            cJSON_ArrayForEach(ind, inds)
+            {
+                if (shown++ == 8)
+                    break;
+                const cJSON *sz = cJSON_GetArrayItem(
+                    cJSON_GetObjectItemCaseSensitive(ind, "sizes"), 0);
+                const cJSON *at = cJSON_GetObjectItemCaseSensitive(ind, "centroid_part");
+                ADD("%s  #%.0f %.0f mm^2 (diameter %.1f mm)", indent, num_at(ind, "label"),
+                    num_at(sz, "area_mm2"), num_at(sz, "equivalent_diameter_mm"));
+                if (cJSON_GetArraySize(at) == 3)
+                    ADD(" at %.0f, %.0f, %.0f mm", cJSON_GetArrayItem(at, 0)->valuedouble,
+                        cJSON_GetArrayItem(at, 1)->valuedouble,
+                        cJSON_GetArrayItem(at, 2)->valuedouble);
+                ADD("\n");
+            }
+        }
         const cJSON *x;
         cJSON_ArrayForEach(x, ch)
         {
