@@ -10,7 +10,7 @@
  * this file (an invented plate, clearly not measured data). The study
  * (argument "study") runs the ground-truth check over 100 simulated sites
  * under a uniform flash and 12 under a non-uniform one, and prints the
- * false calls and the sizing bias; "study-strict" also enforces the checks
+ * false calls and the sizing bias; "study-strict" also enforces the check
  * the library does not pass yet (see test_change__simulated_ground_truth).
  */
 #include "plyledger/change.h"
@@ -955,14 +955,13 @@ static void test_change__ultrasonic_amplitude_loss_is_new(void **state)
  * the areas are pi d^2 / 4 mm^2: analytic):
  *   - every seeded new disbond is a change of kind "new" within 3 px of
  *     its centre, and exceeds;
- *   - every grown disbond is "grown";
+ *   - every grown disbond is "grown", its area change under the threshold
+ *     rule within 20 % of the simulated pi (d1^2 - d0^2) / 4;
+ *   - every stable disbond is "stable";
  *   - under the uniform flash, no false call: on the sound and stable
  *     sites, no other change that exceeds;
  * and, with the argument "study-strict" only (kept out of `meson test`:
- * the library does not pass them yet, see tests/bench/README.md):
- *   - every grown disbond's area change under the threshold rule is within
- *     20 % of the simulated pi (d1^2 - d0^2) / 4;
- *   - every stable disbond is "stable";
+ * the library does not pass it yet, see tests/bench/README.md):
  *   - no false call under the non-uniform flash either.
  * Printed: a line a site, the sizing bias of each rule (measured / true
  * area over every disbond sized, baseline and current), the error of the
@@ -979,7 +978,6 @@ typedef struct gt_stats {
     size_t dgrow_n;
     double stable_sum[PL_SIZING_COUNT], stable_min[PL_SIZING_COUNT], stable_max[PL_SIZING_COUNT];
     size_t stable_n;
-    size_t strict_fails;
 } gt_stats;
 
 static const char *const gt_kind[4] = { "sound", "new", "grown", "stable" };
@@ -999,7 +997,7 @@ static void gt_size(gt_stats *st, const double *measured, double truth)
 
 /* One site of kind `kind` (0..3) and index `i`, the flash's
  * non-uniformity `nonu`; returns the number of failed checks that are
- * always enforced (each printed); st->strict_fails counts the others. */
+ * enforced (each printed). */
 static int gt_site(gt_stats *st, int kind, unsigned i, double nonu)
 {
     rng_state = 0x9e3779b97f4a7c15ull ^ ((uint64_t)(kind + 1) << 32) ^ i;
@@ -1034,10 +1032,7 @@ static int gt_site(gt_stats *st, int kind, unsigned i, double nonu)
         if (!hit || hit->kind != want[kind] || (kind == 1 && !hit->exceeds)) {
             snprintf(what, sizeof what, "seeded %s: %s", gt_kind[kind],
                      hit ? pl_change_kind_name(hit->kind) : "nothing there");
-            if (kind == 3)
-                st->strict_fails++;
-            else
-                fails++;
+            fails++;
         }
         if (kind == 3 && hit && hit->nbaseline && hit->ncurrent) {
             for (int r = 0; r < PL_SIZING_COUNT; r++) {
@@ -1065,7 +1060,7 @@ static int gt_site(gt_stats *st, int kind, unsigned i, double nonu)
             if (fabs(hit->area_delta_mm2[PL_SIZING_THRESHOLD] / truth - 1) > 0.20) {
                 snprintf(what, sizeof what, "growth %.1f mm2 against %.1f simulated",
                          hit->area_delta_mm2[PL_SIZING_THRESHOLD], truth);
-                st->strict_fails++;
+                fails++;
             }
         }
         if (hit && hit->nbaseline == 1 && hit->ncurrent == 1) {
@@ -1169,13 +1164,11 @@ static void gt_run(size_t per_kind, unsigned kinds, double nonu)
                    "%+.0f) over %lu stable disbonds\n",
                    pl_sizing_name((pl_sizing)r), st.stable_sum[r] / (double)st.stable_n,
                    st.stable_min[r], st.stable_max[r], (unsigned long)st.stable_n);
-    printf("#   checks enforced only by study-strict that failed: %lu\n",
-           (unsigned long)st.strict_fails);
     assert_int_equal(fails, 0);
+    /* the aim, no false call, holds under a uniform flash; under a flash
+     * that differs between the acquisitions only study-strict enforces it */
     if (nonu == 0.0 || strict)
         assert_int_equal(st.false_calls, 0);
-    if (strict)
-        assert_int_equal(st.strict_fails, 0);
 }
 
 /* One site of each kind in every build; the study runs 25 of each under a
@@ -1207,10 +1200,10 @@ int main(int argc, char **argv)
     const struct CMUnitTest study[] = {
         cmocka_unit_test(test_change__simulated_ground_truth),
     };
-    /* "study-strict": the study with the checks the library does not pass
-     * yet enforced too (growth within 20 %, stable disbonds stable, no false
-     * call under a non-uniform flash). Kept out of `meson test` until the
-     * library passes them (see tests/bench/README.md); run it by hand. */
+    /* "study-strict": the study with the check the library does not pass
+     * yet enforced too (no false call under a flash whose pattern differs
+     * between the acquisitions). Kept out of `meson test` until the library
+     * passes it (see tests/bench/README.md); run it by hand. */
     if (argc == 2 && strcmp(argv[1], "study-strict") == 0) {
         static char study_arg[] = "study";
         strict = 1;
