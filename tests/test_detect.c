@@ -932,52 +932,6 @@ static void test_detect__measure_given_labels(void **state)
     pl_map_free(m);
 }
 
-/*
- * An indication longer than 3/8 of the line-median background's window is
- * sized whole: the window grows and detection runs again. Constructed: an
- * ellipse of semi-axes 13 and 8 px (26 mm along the rows at 1 mm pitch,
- * more than half of the default 40 mm window) and a disc of radius 6 px,
- * 10 noise sigmas high, on a 120 x 96 map. The threshold rule's areas are
- * pi a b and pi r^2 within 5 % (analytic: 326.7 and 113.1 mm^2). With the
- * window left at 40 mm (adapt_background 0) the ellipse's own background
- * rose into its middle and cut it into two pieces of about a tenth of its
- * area each: the fault this keeps.
- */
-static void test_detect__long_indication_is_sized_whole(void **state)
-{
-    (void)state;
-    pl_map *m = new_map(120, 96, "temperature-contrast", "K");
-    float *v = pl_map_channel(m, 0);
-    for (uint32_t y = 0; y < m->height; y++)
-        for (uint32_t x = 0; x < m->width; x++) {
-            double dx = (double)x - 40, dy = (double)y - 48;
-            if (dx * dx / 169.0 + dy * dy / 64.0 <= 1.0)
-                v[(size_t)y * m->width + x] += 5.0f;
-        }
-    add_disk(m, 95, 30, 6, 5.0);
-    rng = 41;
-    add_noise(m, 0.5);
-    pl_detect_options o = PL_DETECT_OPTIONS_INIT;
-    pl_detection *d = NULL;
-    pl_err err = {0};
-    TU_OK(pl_detect(&d, m, 0, &o, &err));
-    assert_int_equal(d->count, 2);
-    assert_true(d->options.background_mm > PL_DETECT_DEFAULT_BACKGROUND_MM);
-    const double want[2] = { M_PI * 13.0 * 8.0, M_PI * 36.0 };
-    for (size_t k = 0; k < 2; k++) {
-        const pl_indication *ind = &d->indications[k];
-        int big = ind->centroid_col < 60;
-        tu_assert_close(ind->size[PL_SIZING_THRESHOLD].area_mm2, want[big ? 0 : 1],
-                        0.05 * want[big ? 0 : 1], "area, threshold rule");
-    }
-    pl_detection_free(d);
-    o.adapt_background = 0;
-    TU_OK(pl_detect(&d, m, 0, &o, &err));
-    assert_true(d->options.background_mm == PL_DETECT_DEFAULT_BACKGROUND_MM);
-    pl_detection_free(d);
-    pl_map_free(m);
-}
-
 /* ---- JSON --------------------------------------------------------------------------------------- */
 
 static void test_detect__json_records_options_and_indications(void **state)
@@ -1205,7 +1159,6 @@ int main(void)
         cmocka_unit_test(test_detect__depth_is_compared_with_nominal),
         cmocka_unit_test(test_detect__refusals_name_the_fault),
         cmocka_unit_test(test_detect__measure_given_labels),
-        cmocka_unit_test(test_detect__long_indication_is_sized_whole),
         cmocka_unit_test(test_detect__json_records_options_and_indications),
         cmocka_unit_test(test_detect__simulated_sites),
     };

@@ -826,65 +826,8 @@ static int detection_new(pl_detection **out, prep *p, const pl_map *map, uint32_
     return PL_OK;
 }
 
-static int detect_once(pl_detection **out, const pl_map *map, uint32_t channel,
-                       const pl_detect_options *opts, pl_err *err);
-
-/* The longest extent of an indication along the line windows' directions,
- * mm: its bounding box along rows and columns (and so along the
- * diagonals, within a factor sqrt 2). */
-static double longest_extent_mm(const pl_detection *det, const pl_map *map)
-{
-    double L = 0;
-    for (size_t k = 0; k < det->count; k++) {
-        const pl_indication *ind = &det->indications[k];
-        double eu = (double)(ind->bbox_col1 - ind->bbox_col0 + 1) * map->pitch_u;
-        double ev = (double)(ind->bbox_row1 - ind->bbox_row0 + 1) * map->pitch_v;
-        L = fmax(L, fmax(eu, ev));
-    }
-    return L;
-}
-
 PL_EXPORT int pl_detect(pl_detection **out, const pl_map *map, uint32_t channel,
                         const pl_detect_options *opts, pl_err *err)
-{
-    assert(out && map);
-    *out = NULL;
-    pl_detection *det = NULL;
-    int rc = detect_once(&det, map, channel, opts, err);
-    if (rc)
-        return rc;
-    /* An indication longer than 3/8 of the line-median background's window
-     * is partly taken into the background (see the header): the window
-     * grows to 8/3 of the longest indication and a quarter more, up to the
-     * map's larger side, and detection runs again (at most twice), so that
-     * a disbond that grew is sized whole, not cut down by its own
-     * background. */
-    const pl_detect_options *used = &det->options;
-    for (int pass = 0; pass < 2 && used->background == PL_BACKGROUND_LINE_MEDIAN &&
-                       isnan(used->nominal) && (!opts || opts->adapt_background != 0);
-         pass++) {
-        double L = longest_extent_mm(det, map);
-        double side = fmax((double)map->width * map->pitch_u, (double)map->height * map->pitch_v);
-        double want = fmin(L * 8.0 / 3.0 * 1.25, side);
-        if (!(L > 0.375 * used->background_mm) || !(want > used->background_mm * 1.01))
-            break;
-        pl_detect_options o2 = *used;
-        o2.background_mm = want;
-        pl_detection *d2 = NULL;
-        if ((rc = detect_once(&d2, map, channel, &o2, err))) {
-            pl_detection_free(det);
-            return rc;
-        }
-        pl_detection_free(det);
-        det = d2;
-        used = &det->options;
-    }
-    *out = det;
-    return PL_OK;
-}
-
-static int detect_once(pl_detection **out, const pl_map *map, uint32_t channel,
-                       const pl_detect_options *opts, pl_err *err)
 {
     assert(out && map);
     *out = NULL;
@@ -977,7 +920,6 @@ static cJSON *options_object(const pl_detect_options *o)
     add_number(j, "nominal_margin", o->nominal_margin);
     cJSON_AddStringToObject(j, "background", pl_background_name(o->background));
     add_number(j, "background_mm", o->background_mm);
-    cJSON_AddBoolToObject(j, "adapt_background", o->adapt_background != 0);
     add_number(j, "noise", o->noise);
     if (o->noise_w && o->noise_h) {
         cJSON *r = cJSON_AddArrayToObject(j, "noise_region");
@@ -1078,7 +1020,7 @@ PL_EXPORT int pl_detect_options_json(char **out, const pl_detect_options *opts, 
     int rc = resolve_options(&o, opts, err);
     if (rc)
         return rc;
-    return finish_json(out, options_object(&o), 14, err);
+    return finish_json(out, options_object(&o), 13, err);
 }
 
 PL_EXPORT int pl_indication_json(char **out, const pl_detection *det, size_t i, pl_err *err)

@@ -41,13 +41,6 @@
  *      than 3/8 of the window is partly taken into the background (sized
  *      smaller, its contrast lower), and one longer than half the window
  *      along a row, a column or a diagonal is taken for substructure there.
- *      So, unless adapt_background is 0, pl_detect() looks at what it
- *      found: when the longest indication (its bounding box along rows or
- *      columns) is longer than 3/8 of the window, the window becomes 8/3 of
- *      that length and a quarter more (at most the map's larger side) and
- *      detection runs again, at most twice; the detection's options give
- *      the window used. Substructure strips that cross the map stay longer
- *      than half of any such window.
  *      PL_BACKGROUND_MEDIAN: the median of the channel over the pixels with
  *      data (for maps without shading or substructure).
  *      PL_BACKGROUND_ZERO: b = 0, for values that already are a contrast
@@ -225,17 +218,12 @@ typedef struct pl_detect_options {
     int despeckle;             /**< 1 (default): replace dead and hot pixels first */
     int depth_channel;         /**< channel (unit mm) whose median inside gives
                                     each indication's depth; -1 (default): none */
-    int adapt_background;      /**< 1 (default): with the line-median
-                                    background, lengthen its window when an
-                                    indication is longer than 3/8 of it and
-                                    detect again (pl_detect() only; the
-                                    detection's options give the window used) */
 } pl_detect_options;
 
 #define PL_DETECT_OPTIONS_VERSION 1
 #define PL_DETECT_OPTIONS_INIT                                                        \
     { PL_DETECT_OPTIONS_VERSION, NAN, NAN, NAN, 0, NAN, NAN, PL_BACKGROUND_LINE_MEDIAN, \
-      NAN, NAN, 0, 0, 0, 0, 1, -1, 1 }
+      NAN, NAN, 0, 0, 0, 0, 1, -1 }
 
 /** One size of an indication under one sizing rule. */
 typedef struct pl_indication_size {
@@ -363,7 +351,7 @@ PL_EXPORT const char *pl_noise_method_name(pl_noise_method m);
  * The options, defaults filled in, as a JSON object for the record:
  * {"version", "high", "low", "min_area_mm2", "polarity" ("quantity",
  * "rises" or "falls"), "nominal" (null when none), "nominal_margin",
- * "background", "background_mm", "adapt_background", "noise" (null: estimated),
+ * "background", "background_mm", "noise" (null: estimated),
  * "noise_region" ([x, y, w, h] or null), "despeckle", "depth_channel"
  * (null: none)}.
  * @param[out] out  malloc'd text; free with free()
