@@ -116,22 +116,25 @@ static float blur_tap(const float *in, uint32_t w, uint32_t h, const float *k, i
     return (float)(acc / ws);
 }
 
-/* Rows and columns far from the edges and from pixels without data take
- * a branch-free path (most of an image), the rest blur_tap(). */
+/*
+ * Rows and columns far from the edges take a branch-free path (most of an
+ * image), tap by tap over whole rows (vectorisable); a window that holds a
+ * pixel without data gives a non-finite sum there (NaN and infinities
+ * propagate), and only those pixels, and the edges, are redone by
+ * blur_tap(). (A sum of finite values that overflows is redone too, in
+ * double.)
+ */
 int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, double sigma)
 {
     int rad = (int)ceil(3.0 * sigma);
     size_t np = (size_t)w * h;
     float *tmp = malloc(np * sizeof *tmp), *o = malloc(np * sizeof *o);
     float *k = malloc((size_t)(2 * rad + 1) * sizeof *k);
-    unsigned char *bad_row = calloc(h, 1), *bad_col = calloc(w, 1);
     *out = NULL;
-    if (!tmp || !o || !k || !bad_row || !bad_col) {
+    if (!tmp || !o || !k) {
         free(tmp);
         free(o);
         free(k);
-        free(bad_row);
-        free(bad_col);
         return PL_ENOMEM;
     }
     double ksum = 0.0;
@@ -139,18 +142,11 @@ int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, doub
         ksum += exp(-0.5 * i * i / (sigma * sigma));
     for (int i = -rad; i <= rad; i++)
         k[i + rad] = (float)(exp(-0.5 * i * i / (sigma * sigma)) / ksum);
-    for (uint32_t y = 0; y < h; y++)
-        for (uint32_t x = 0; x < w; x++)
-            if (!isfinite(src[(size_t)y * w + x])) {
-                bad_row[y] = 1;
-                bad_col[x] = 1;
-            }
-    /* rows: the interior of a row without NaN tap by tap (vectorisable),
-     * its ends and rows with NaN by the general case */
+    /* rows */
     for (uint32_t y = 0; y < h; y++) {
         const float *r = src + (size_t)y * w;
         float *d = tmp + (size_t)y * w;
-        if (!bad_row[y] && (long)w > 2L * rad) {
+        if ((long)w > 2L * rad) {
             uint32_t x0 = (uint32_t)rad, x1 = w - (uint32_t)rad;
             for (uint32_t x = x0; x < x1; x++)
                 d[x] = 0.0f;
@@ -160,6 +156,9 @@ int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, doub
                 for (uint32_t x = x0; x < x1; x++)
                     d[x] += kk * ri[x];
             }
+            for (uint32_t x = x0; x < x1; x++)
+                if (!isfinite(d[x]))
+                    d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
             for (uint32_t x = 0; x < x0; x++)
                 d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
             for (uint32_t x = x1; x < w; x++)
@@ -169,7 +168,7 @@ int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, doub
                 d[x] = blur_tap(src, w, h, k, rad, x, y, 1);
         }
     }
-    /* columns: interior rows by whole rows at a time (vectorisable) */
+    /* columns: interior rows by whole rows at a time */
     for (uint32_t y = 0; y < h; y++) {
         float *d = o + (size_t)y * w;
         int inside = (long)y >= rad && (long)y + rad < (long)h;
@@ -182,9 +181,8 @@ int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, doub
                 for (uint32_t x = 0; x < w; x++)
                     d[x] += kk * r[x];
             }
-            /* redo the columns a NaN touches */
             for (uint32_t x = 0; x < w; x++)
-                if (bad_col[x])
+                if (!isfinite(d[x]))
                     d[x] = blur_tap(tmp, w, h, k, rad, x, y, 0);
         } else {
             for (uint32_t x = 0; x < w; x++)
@@ -193,8 +191,6 @@ int pl_filter__gauss(float **out, const float *src, uint32_t w, uint32_t h, doub
     }
     free(tmp);
     free(k);
-    free(bad_row);
-    free(bad_col);
     *out = o;
     return PL_OK;
 }
@@ -262,10 +258,22 @@ int pl_filter__median(float **out, const float *src, uint32_t w, uint32_t h, uns
 #define DESPECKLE_RANGE 0.25
 #define DESPECKLE_SAMPLES 16384u
 
-static int cmp_float(const void *a, const void *b)
+/* The median of 8 finite values (the mean of the 4th and 5th), by
+ * Batcher's odd-even merge network of 19 comparators (Knuth, TAOCP vol. 3,
+ * 5.3.4), branch-free. */
+static float median8(float v[8])
 {
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
+    static const unsigned char net[19][2] = {
+        { 0, 1 }, { 2, 3 }, { 4, 5 }, { 6, 7 }, { 0, 2 }, { 1, 3 }, { 4, 6 },
+        { 5, 7 }, { 1, 2 }, { 5, 6 }, { 0, 4 }, { 3, 7 }, { 1, 5 }, { 2, 6 },
+        { 1, 4 }, { 3, 6 }, { 2, 4 }, { 3, 5 }, { 3, 4 },
+    };
+    for (int i = 0; i < 19; i++) {
+        float a = v[net[i][0]], b = v[net[i][1]];
+        v[net[i][0]] = a < b ? a : b;
+        v[net[i][1]] = a < b ? b : a;
+    }
+    return 0.5f * (v[3] + v[4]);
 }
 
 /* The finite 8-neighbours of (x, y) into v (unsorted); their count. */
@@ -283,6 +291,52 @@ static int neighbours(float v[8], const float *src, uint32_t w, uint32_t h, uint
             }
         }
     return n;
+}
+
+/* Pixel (x, y) replaced by its finite neighbours' median when it stands
+ * more than lim above the largest or below the smallest of them. */
+static void despeckle_at(float *o, const float *src, uint32_t w, uint32_t h, uint32_t x,
+                         uint32_t y, double lim)
+{
+    size_t i = (size_t)y * w + x;
+    float c = src[i], q[8];
+    if (!isfinite(c))
+        return;
+    int n = neighbours(q, src, w, h, x, y);
+    if (n < 3)
+        return;
+    float lo = q[0], hi = q[0];
+    for (int j = 1; j < n; j++) {
+        lo = q[j] < lo ? q[j] : lo;
+        hi = q[j] > hi ? q[j] : hi;
+    }
+    if (c > hi + lim || c < lo - lim)
+        o[i] = n == 8 ? median8(q) : pl_filter__median_small(q, n);
+}
+
+static inline float min2(float p, float q)
+{
+    return p < q ? p : q;
+}
+
+static inline float max2(float p, float q)
+{
+    return p > q ? p : q;
+}
+
+/* flag[x] for x in [1, w - 1): c[x] stands more than lim above the
+ * largest, or below the smallest, of its 8 neighbours in rows a, c, b. */
+static void row_outliers(unsigned char *restrict flag, const float *restrict a,
+                         const float *restrict c, const float *restrict b, uint32_t w,
+                         float lim)
+{
+    for (uint32_t x = 1; x + 1 < w; x++) {
+        float lo = min2(min2(min2(a[x - 1], a[x]), min2(a[x + 1], c[x - 1])),
+                        min2(min2(c[x + 1], b[x - 1]), min2(b[x], b[x + 1])));
+        float hi = max2(max2(max2(a[x - 1], a[x]), max2(a[x + 1], c[x - 1])),
+                        max2(max2(c[x + 1], b[x - 1]), max2(b[x], b[x + 1])));
+        flag[x] = (unsigned char)((c[x] > hi + lim) | (c[x] < lo - lim));
+    }
 }
 
 int pl_filter__despeckle(float **out, const float *src, uint32_t w, uint32_t h)
@@ -308,14 +362,17 @@ int pl_filter__despeckle(float **out, const float *src, uint32_t w, uint32_t h)
         float v[8];
         int n = neighbours(v, src, w, h, (uint32_t)(i % w), (uint32_t)(i / w));
         if (n)
-            sample[k++] = fabsf(src[i] - pl_filter__median_small(v, n));
+            sample[k++] = fabsf(src[i] - (n == 8 ? median8(v) : pl_filter__median_small(v, n)));
     }
     double sigma = 0.0, range = 0.0;
     if (k && kv) {
-        qsort(sample, k, sizeof *sample, cmp_float);
-        sigma = 1.4826 * sample[k / 2];
-        qsort(vals, kv, sizeof *vals, cmp_float);
-        range = (double)vals[(kv * 99) / 100] - (double)vals[kv / 100];
+        /* the order statistics a sort gave (the upper middle of an even
+         * count), by selection */
+        sigma = 1.4826 * pl_filter__select_float(sample, k, k / 2);
+        float hi = pl_filter__select_float(vals, kv, (kv * 99) / 100);
+        /* selection left everything at or below hi before it */
+        float lo = pl_filter__select_float(vals, (kv * 99) / 100 + 1, kv / 100);
+        range = (double)hi - (double)lo;
     }
     free(sample);
     /* an impulse stands out from the noise and from the texture's range */
@@ -327,32 +384,29 @@ int pl_filter__despeckle(float **out, const float *src, uint32_t w, uint32_t h)
     int any_nan = 0;
     for (size_t i = 0; i < np && !any_nan; i++)
         any_nan = !isfinite(src[i]);
-    for (uint32_t y = 0; y < h; y++)
-        for (uint32_t x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            float c = src[i], q[8];
-            int n = 8;
-            if (!any_nan && x > 0 && y > 0 && x + 1 < w && y + 1 < h) {
-                /* the common case: all 8 neighbours there and finite */
-                const float *a = src + i - w, *b = src + i + w;
-                const float all[8] = { a[-1], a[0], a[1], src[i - 1],
-                                       src[i + 1], b[-1], b[0], b[1] };
-                memcpy(q, all, sizeof q);
-            } else {
-                if (!isfinite(c))
-                    continue;
-                n = neighbours(q, src, w, h, x, y);
-            }
-            if (n < 3)
-                continue;
-            float lo = q[0], hi = q[0];
-            for (int j = 1; j < n; j++) {
-                lo = q[j] < lo ? q[j] : lo;
-                hi = q[j] > hi ? q[j] : hi;
-            }
-            if (c > hi + lim || c < lo - lim)
-                o[i] = pl_filter__median_small(q, n);
+    unsigned char *flag = any_nan ? NULL : malloc(w);
+    for (uint32_t y = 0; y < h; y++) {
+        if (flag && y > 0 && y + 1 < h && w > 2) {
+            /* the common case, a row whose 8 neighbours are all there and
+             * finite: the test over the whole row (vectorisable), then
+             * the few pixels it flags */
+            const float *c = src + (size_t)y * w;
+            row_outliers(flag, c - w, c, c + w, w, (float)lim);
+            for (uint32_t x = 1; x + 1 < w; x++)
+                if (flag[x]) {
+                    const float *a = c - w + x, *b = c + w + x;
+                    float q[8] = { a[-1], a[0], a[1], c[x - 1], c[x + 1], b[-1], b[0], b[1] };
+                    o[(size_t)y * w + x] = median8(q);
+                }
+            uint32_t ends[2] = { 0, w - 1 };
+            for (int e = 0; e < 2; e++)
+                despeckle_at(o, src, w, h, ends[e], y, lim);
+            continue;
         }
+        for (uint32_t x = 0; x < w; x++)
+            despeckle_at(o, src, w, h, x, y, lim);
+    }
+    free(flag);
     *out = o;
     return PL_OK;
 }
