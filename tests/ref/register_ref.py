@@ -29,6 +29,10 @@ toward +y.
         scale:  as rot, the moving image also scaled: what it shows at p
                 lies on the fixed one at c + s R(theta) (p - c) + d, s is
                 written after the photograph's name on the line;
+        large:  a 640 x 512 map-sized pair: coffee in grey enlarged by
+                1.4 (skimage.transform.rescale, cubic, anti-aliased), then
+                as rot (rotations of 0.25 to 2 degrees about the centre)
+                with the central 512 x 640 pixels kept;
         photo:  a photograph alone (id.fixed only), cropped to 384 x 448,
                 for pairs without common content.
       snr is the signal's standard deviation over the noise's: Gaussian
@@ -53,7 +57,7 @@ import sys
 import numpy as np
 from scipy import ndimage
 from scipy.signal import windows
-from skimage import color, data
+from skimage import color, data, transform
 from skimage.registration import phase_cross_correlation
 
 
@@ -152,6 +156,12 @@ def make(out):
         mov = rigid(img, theta, dx, dy, s)
         add("scale", name + " %g" % s, crop(img, 320, 352), crop(mov, 320, 352), dx, dy, theta,
             np.inf)
+    big = transform.rescale(photo("coffee"), 1.4, order=3, anti_aliasing=True, mode="reflect")
+    big = big[:, 80:760]  # 560 x 680: margins that hold the rotated grid
+    for theta, dx, dy in ((0.25, 1.37, -0.82), (0.5, -2.61, 1.94), (1.0, 3.21, 2.47),
+                          (2.0, -1.73, -3.36), (-1.5, 0.58, 4.12)):
+        mov = rigid(big, theta, dx, dy)
+        add("large", "coffee", crop(big, 512, 640), crop(mov, 512, 640), dx, dy, theta, np.inf)
     img = crop(photo("camera"), 384, 448)
     # np.roll by (+7, -19) rows, columns: moving(q) = fixed(q - roll), d = -roll
     add("roll", "camera", img, np.roll(img, (7, -19), axis=(0, 1)), 19.0, -7.0, 0.0, np.inf)
