@@ -63,9 +63,21 @@
  *    2004, "Lucas-Kanade 20 years on", IJCV 56(3)). It starts from the
  *    candidate's phase-correlation estimate and is kept only when it
  *    converges, moves the corners by at most a tenth of the smaller side
- *    and does not lower the correlation. It takes the log-polar stage's
- *    residual of a few hundredths of a degree (photographs) down to the
- *    noise.
+ *    and does not lower the correlation, the correlations before and after
+ *    being taken over the same pixels (the overlap both share), with a
+ *    slack of a hundredth of what the start lacks of a perfect match so
+ *    that a step onto the truth is not refused for float rounding. It
+ *    takes the log-polar stage's residual of a few hundredths of a degree
+ *    (photographs) down to the noise: on 640 x 512 photographs rotated by
+ *    0.25 to 2 degrees the shift is found within 0.002 px and the angle
+ *    within 0.001 degree (tests/test_register.c).
+ *  - Large maps (rotation on, 256 pixels a side or more): the search
+ *    above runs first on both maps halved (2 x 2 means), down to 128
+ *    pixels a side; at full size the half-size answer, doubled, is
+ *    checked against the de-rotated phase-correlation peak (refined as
+ *    above, and taken instead when it lies within half a pixel of
+ *    corner movement) and refined once. Smaller maps are searched at
+ *    their own size only.
  *  - Resampling: bicubic convolution (Keys 1981, "Cubic convolution
  *    interpolation for digital image processing", a = -0.5, with Keys'
  *    boundary extension f(-1) = 3 f(0) - 3 f(1) + f(2)) or bilinear;
