@@ -380,7 +380,7 @@ static void test_register__recovers_rotation_photographs(void **state)
  * Map-sized pairs (640 x 512, a photograph enlarged and rotated by 0.25 to
  * 2 degrees with scipy's order-5 spline, register_ref.py "large"): these
  * take the half-size search of plyledger/register.h. The shift under
- * rotation within 0.05 px (the issue's limit) and the rotation within
+ * rotation within 0.05 px (the required limit) and the rotation within
  * 0.002 degrees; over the unit pairs the worst shift error must also stay
  * within 0.01 px, a margin that the refinement's judgement of its own
  * steps (refine_rigid() in lib/image/register.c) has to keep.
