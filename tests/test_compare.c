@@ -207,6 +207,56 @@ static int keep_json(void *ud, const pl_comparison_record *c)
     return 0;
 }
 
+/* The indication and change rows of one comparison, as read back. */
+typedef struct rows {
+    int nind, nchg;
+    struct {
+        char role[PL_WORD_SIZE];
+        pl_id map_id;
+        double area_mm2, area_halfmax_mm2;
+        int has_outline;
+    } ind[8];
+    struct {
+        int64_t number;
+        char class_[24], baseline_labels[32], current_labels[32];
+        double area_delta_mm2, area_limit_mm2, area_margin_mm2;
+        int exceeds;
+    } chg[8];
+} rows;
+
+static int keep_indication(void *ud, const pl_indication_record *x)
+{
+    rows *r = ud;
+    if (r->nind < 8) {
+        snprintf(r->ind[r->nind].role, sizeof r->ind[0].role, "%s", x->role);
+        r->ind[r->nind].map_id = x->map_id;
+        r->ind[r->nind].area_mm2 = x->area_mm2;
+        r->ind[r->nind].area_halfmax_mm2 = x->area_halfmax_mm2;
+        r->ind[r->nind].has_outline = x->outline && x->outline[0];
+    }
+    r->nind++;
+    return 0;
+}
+
+static int keep_change(void *ud, const pl_change_record *x)
+{
+    rows *r = ud;
+    if (r->nchg < 8) {
+        r->chg[r->nchg].number = x->number;
+        snprintf(r->chg[r->nchg].class_, sizeof r->chg[0].class_, "%s", x->class_);
+        snprintf(r->chg[r->nchg].baseline_labels, sizeof r->chg[0].baseline_labels, "%s",
+                 x->baseline_labels);
+        snprintf(r->chg[r->nchg].current_labels, sizeof r->chg[0].current_labels, "%s",
+                 x->current_labels);
+        r->chg[r->nchg].area_delta_mm2 = x->area_delta_mm2;
+        r->chg[r->nchg].area_limit_mm2 = x->area_limit_mm2;
+        r->chg[r->nchg].area_margin_mm2 = x->area_margin_mm2;
+        r->chg[r->nchg].exceeds = x->exceeds;
+    }
+    r->nchg++;
+    return 0;
+}
+
 /* A disc growing from 6 to 9 mm radius at a no-growth site, seen 2.3 and
  * -1.7 px off: one change, grown, its area change within 20 % of
  * pi (9^2 - 6^2) mm^2, beyond the no-growth limit; recorded with its
@@ -282,6 +332,34 @@ static void test_compare__a_growing_disc_is_grown_by_its_analytic_area(void **st
     }
     cJSON_Delete(j);
     free(rj.json);
+    /* and as rows of their own: each side's disc with its map and outline,
+     * and each change with its class, deltas, limit and margin */
+    rows r = { 0 };
+    TU_OK(pl_store_list_indications(f->store, sc->comparison_id, keep_indication, &r, &err));
+    assert_int_equal(r.nind, 2);
+    for (int k = 0; k < 2; k++) {
+        assert_string_equal(r.ind[k].role, side[k][0] == 'r' ? "baseline" : "current");
+        assert_int_equal(r.ind[k].map_id, k == 0 ? sc->reference_map : sc->current_map);
+        double want = M_PI * radius[k] * radius[k];
+        tu_assert_close(r.ind[k].area_mm2, want, 0.15 * want, "indication row area");
+        assert_true(r.ind[k].area_halfmax_mm2 > 0);
+        assert_true(r.ind[k].has_outline);
+    }
+    TU_OK(pl_store_list_changes(f->store, sc->comparison_id, keep_change, &r, &err));
+    assert_int_equal(r.nchg, (int)sc->cmp->count);
+    for (int k = 0; k < r.nchg && k < 8; k++) {
+        const pl_change *c = &sc->cmp->changes[k];
+        assert_int_equal(r.chg[k].number, k + 1);
+        assert_string_equal(r.chg[k].class_, pl_change_kind_name(c->kind));
+        assert_int_equal(r.chg[k].exceeds, c->exceeds != 0);
+        if (c->kind == PL_CHANGE_GROWN) {
+            assert_string_equal(r.chg[k].baseline_labels, "[1]");
+            assert_string_equal(r.chg[k].current_labels, "[1]");
+            assert_true(r.chg[k].area_delta_mm2 == c->area_delta_mm2[PL_SIZING_THRESHOLD]);
+            assert_true(r.chg[k].area_margin_mm2 < 0);
+            assert_true(r.chg[k].area_limit_mm2 == c->area_limit_mm2);
+        }
+    }
     pl_site_comparison_free(sc);
 }
 

@@ -27,6 +27,7 @@
 #include <unistd.h>
 
 #include "record/store_int.h"
+#include "plyledger/change.h"
 #include "plyledger/hash.h"
 #include "plyledger/map.h"
 #include "plyledger/store.h"
@@ -563,14 +564,20 @@ static void fill_every_table(fixture *f)
              " rule_count, content_json, content_sha256, recorded_at) VALUES ('growth', 'A', 1,"
              " 1, 1, '{}', '" "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef"
              "', 'now');"
-             "INSERT INTO indication (map_id, channel, label, area_px, area_mm2, centroid_col,"
-             " centroid_row, recorded_at) VALUES (1, 0, 1, 4, 1.0, 2.0, 3.0, 'now');"
              "INSERT INTO registration (baseline_map_id, current_map_id, method, status,"
              " software_version, recorded_at) VALUES (1, 2, 'phase', 'aligned', '0', 'now');"
              "INSERT INTO comparison (site_key, baseline_inspection, current_inspection, status,"
              " software_version, recorded_at) VALUES (1, 1, 2, 'done', '0', 'now');"
-             "INSERT INTO indication_change (comparison_id, class, current_indication,"
-             " recorded_at) VALUES (1, 'new', 1, 'now');"
+             "INSERT INTO indication (comparison_id, role, map_id, channel, label, area_px,"
+             " area_mm2, equivalent_diameter_mm, area_halfmax_px, area_halfmax_mm2,"
+             " equivalent_diameter_halfmax_mm, centroid_col, centroid_row, bbox_col0,"
+             " bbox_row0, bbox_col1, bbox_row1, peak_contrast, peak_col, peak_row,"
+             " mean_contrast, recorded_at) VALUES (1, 'current', 2, 0, 1, 4, 1.0, 1.1, 2, 0.5,"
+             " 0.8, 2.0, 3.0, 1, 2, 3, 4, 0.5, 2, 3, 0.3, 'now');"
+             "INSERT INTO indication_change (comparison_id, number, class, matched_by,"
+             " baseline_labels, current_labels, sizing, area_exceeds, contrast_exceeds,"
+             " reportable, exceeds, recorded_at) VALUES (1, 1, 'new', 'none', '[]', '[1]',"
+             " 'threshold', 0, 0, 1, 1, 'now');"
              "INSERT INTO disposition (comparison_id, decision, engineer, recorded_at)"
              " VALUES (1, 'accept', 'A. Engineer', 'now');"
              "INSERT INTO disposition_change (disposition_id, change_id) VALUES (1, 1);"
@@ -2341,6 +2348,10 @@ static void test_store__schema_checks_equal_the_vocabularies(void **state)
         { "registration", "status IN (", PL_VOCAB_REGISTRATION_STATUS },
         { "comparison", "status IN (", PL_VOCAB_COMPARISON_STATUS },
         { "site_method_known", "NEW.method NOT IN (", PL_VOCAB_METHOD },
+        { "indication", "role IN (", PL_VOCAB_INDICATION_ROLE },
+        { "indication_change", "class IN (", PL_VOCAB_CHANGE_CLASS },
+        { "indication_change", "matched_by IN (", PL_VOCAB_CHANGE_MATCH },
+        { "indication_change", "sizing IN (", PL_VOCAB_SIZING },
     };
     for (size_t i = 0; i < sizeof lists / sizeof lists[0]; i++) {
         char *q = sqlite3_mprintf("SELECT sql FROM sqlite_master WHERE name = '%q'",
@@ -2359,6 +2370,16 @@ static void test_store__schema_checks_equal_the_vocabularies(void **state)
     }
     assert_int_equal(pl_vocabulary_get(PL_VOCAB_INSPECTION_KIND)->count,
                      PL_INSPECTION_KIND_COUNT);
+    /* the change classes and sizing rules are the comparison's own words,
+     * indexed by its enums */
+    assert_int_equal(pl_vocabulary_get(PL_VOCAB_CHANGE_CLASS)->count, PL_CHANGE_KIND_COUNT);
+    for (int k = 0; k < PL_CHANGE_KIND_COUNT; k++)
+        assert_string_equal(pl_vocabulary_get(PL_VOCAB_CHANGE_CLASS)->words[k],
+                            pl_change_kind_name((pl_change_kind)k));
+    assert_int_equal(pl_vocabulary_get(PL_VOCAB_SIZING)->count, PL_SIZING_COUNT);
+    for (int k = 0; k < PL_SIZING_COUNT; k++)
+        assert_string_equal(pl_vocabulary_get(PL_VOCAB_SIZING)->words[k],
+                            pl_sizing_name((pl_sizing)k));
     assert_null(pl_vocabulary_get(PL_VOCAB_COUNT));
     char text[128];
     pl_vocabulary_text(text, sizeof text, PL_VOCAB_INSPECTION_KIND, " or ");
@@ -2385,6 +2406,287 @@ static void test_store__schema_checks_equal_the_vocabularies(void **state)
     }
     sqlite3_close(db);
     (void)err;
+}
+
+static void make_old_store(const char *path, int version);
+
+/* A recorded comparison's indication (its side's map) and change. */
+static pl_indication_record indication_on(pl_id cid, const char *role, pl_id map, int64_t label)
+{
+    pl_indication_record r;
+    memset(&r, 0, sizeof r);
+    r.comparison_id = cid;
+    snprintf(r.role, sizeof r.role, "%s", role);
+    r.map_id = map;
+    r.label = label;
+    r.area_px = 12;
+    r.area_mm2 = 3.0;
+    r.equivalent_diameter_mm = 1.954;
+    r.area_halfmax_px = 8;
+    r.area_halfmax_mm2 = 2.0;
+    r.equivalent_diameter_halfmax_mm = 1.596;
+    r.centroid_col = 4.0;
+    r.centroid_row = 2.5;
+    r.part_x = r.part_y = r.part_z = NAN;
+    r.bbox_col0 = 2;
+    r.bbox_row0 = 1;
+    r.bbox_col1 = 6;
+    r.bbox_row1 = 4;
+    r.major_axis_mm = 4.0;
+    r.minor_axis_mm = 2.0;
+    r.orientation_deg = 10.0;
+    r.peak_contrast = 0.5;
+    r.peak_snr = 9.0;
+    r.peak_col = 4;
+    r.peak_row = 2;
+    r.mean_contrast = 0.3;
+    r.depth_mm = NAN;
+    r.perimeter_mm = 11.0;
+    return r;
+}
+
+static pl_change_record change_of(pl_id cid, int64_t number, const char *klass,
+                                  char *baseline_labels, char *current_labels)
+{
+    pl_change_record r;
+    memset(&r, 0, sizeof r);
+    r.comparison_id = cid;
+    r.number = number;
+    snprintf(r.class_, sizeof r.class_, "%s", klass);
+    snprintf(r.matched_by, sizeof r.matched_by, "overlap");
+    snprintf(r.sizing, sizeof r.sizing, "threshold");
+    r.baseline_labels = baseline_labels;
+    r.current_labels = current_labels;
+    r.area_baseline_mm2 = 3.0;
+    r.area_current_mm2 = 3.25;
+    r.area_delta_mm2 = 0.25;
+    r.area_delta_percent = 8.3;
+    r.area_baseline_halfmax_mm2 = r.area_current_halfmax_mm2 = 2.0;
+    r.area_delta_halfmax_mm2 = 0.0;
+    r.contrast_baseline = r.contrast_current = 0.5;
+    r.contrast_delta = 0.0;
+    r.centroid_col = 4.0;
+    r.centroid_row = 2.5;
+    r.distance_px = 0.1;
+    r.area_limit_mm2 = 1.0;
+    r.area_measured_mm2 = 0.25;
+    r.area_margin_mm2 = 0.75;
+    r.contrast_limit = 0.1;
+    r.contrast_margin = 0.1;
+    r.reportable = 1;
+    r.region_pixels = r.touches = -1;
+    return r;
+}
+
+typedef struct row_list {
+    int n;
+    char what[8][48];
+} row_list;
+
+static int note_indication(void *ud, const pl_indication_record *r)
+{
+    row_list *l = ud;
+    if (l->n < 8)
+        snprintf(l->what[l->n], sizeof l->what[0], "%s %lld %.2f", r->role, (long long)r->label,
+                 r->area_mm2);
+    l->n++;
+    return 0;
+}
+
+static int note_change(void *ud, const pl_change_record *r)
+{
+    row_list *l = ud;
+    if (l->n < 8)
+        snprintf(l->what[l->n], sizeof l->what[0], "%lld %s %s %s", (long long)r->number,
+                 r->class_, r->baseline_labels, r->current_labels);
+    l->n++;
+    return 0;
+}
+
+/*
+ * A done comparison's indications and changes go in through the one insert
+ * path, read back in their order, and whatever no comparison could produce
+ * is refused with the field named: a role or class outside the
+ * vocabulary, a map of another inspection, a label taken twice, numbers
+ * that are not finite, a box inside out, labels that are not a sorted
+ * JSON array, a change of a comparison not done.
+ */
+static void test_store__indications_and_changes_of_a_comparison(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    add_airframe(f->st, "PLX-0001", "PLX-T1");
+    add_site(f->st, "PLX-0001", "F01");
+    pl_id base = add_inspection(f->st, "PLX-0001", "F01", "baseline", "2016-01-10");
+    pl_id next = add_inspection(f->st, "PLX-0001", "F01", "scheduled", "2022-03-01");
+    pl_map *m = test_map(8, 6, 1, 1.0f);
+    pl_map_record mr = map_record(base);
+    pl_id mb = 0, mc = 0;
+    TU_OK(pl_store_add_map(f->st, &mr, m, &mb, &err));
+    m->data[0] += 1.0f;
+    mr.inspection_key = next;
+    TU_OK(pl_store_add_map(f->st, &mr, m, &mc, &err));
+    pl_map_free(m);
+    pl_comparison_record c;
+    memset(&c, 0, sizeof c);
+    c.baseline_inspection = base;
+    c.current_inspection = next;
+    snprintf(c.status, sizeof c.status, "done");
+    c.uncompared_mm2 = c.uncompared_fraction = 0.0;
+    pl_id cid = 0, undone = 0;
+    TU_OK(pl_store_add_comparison(f->st, &c, &cid, &err));
+    snprintf(c.status, sizeof c.status, "not-done");
+    snprintf(c.not_done_reason, sizeof c.not_done_reason, "registration refused: too little "
+             "texture");
+    TU_OK(pl_store_add_comparison(f->st, &c, &undone, &err));
+
+    pl_indication_record b1 = indication_on(cid, "baseline", mb, 1);
+    pl_indication_record c1 = indication_on(cid, "current", mc, 1);
+    pl_indication_record c2 = indication_on(cid, "current", mc, 2);
+    c2.area_mm2 = 4.5;
+    TU_OK(pl_store_add_indication(f->st, &c2, NULL, &err));
+    TU_OK(pl_store_add_indication(f->st, &c1, NULL, &err));
+    TU_OK(pl_store_add_indication(f->st, &b1, NULL, &err));
+
+    static const struct {
+        const char *what, *needle;
+        int code;
+    } bad_indications[] = {
+        { "role", "indication role 'both' is not one of baseline, current", PL_EINVAL },
+        { "other map", "the map of that comparison's inspection on its side", PL_EINVAL },
+        { "taken label", "", PL_EEXISTS },
+        { "peak", "peak_contrast must be a finite number (got inf)", PL_EINVAL },
+        { "area", "area_mm2 must be > 0 (got nan)", PL_EINVAL },
+        { "box", "bounding box (6, 1)-(2, 4) is not first corner then last", PL_EINVAL },
+        { "orientation", "orientation_deg must lie in (-90, 90] (got -90)", PL_EINVAL },
+        { "label", "label must be 1 or more (got 0)", PL_EINVAL },
+        { "not done", "belongs to a comparison that was done", PL_EINVAL },
+    };
+    for (size_t i = 0; i < sizeof bad_indications / sizeof bad_indications[0]; i++) {
+        pl_indication_record r = indication_on(cid, "current", mc, 3);
+        switch (i) {
+        case 0: snprintf(r.role, sizeof r.role, "both"); break;
+        case 1: r.map_id = mb; break;
+        case 2: r.label = 2; break;
+        case 3: r.peak_contrast = INFINITY; break;
+        case 4: r.area_mm2 = NAN; break;
+        case 5: r.bbox_col0 = 6; r.bbox_col1 = 2; break;
+        case 6: r.orientation_deg = -90.0; break;
+        case 7: r.label = 0; break;
+        default: r.comparison_id = undone; break;
+        }
+        int rc = pl_store_add_indication(f->st, &r, NULL, &err);
+        if (rc != bad_indications[i].code)
+            fail_msg("%s: expected %d, got %d (%s)", bad_indications[i].what,
+                     bad_indications[i].code, rc, err.msg);
+        tu_assert_msg_has(err.msg, bad_indications[i].needle);
+    }
+    row_list l = { 0 };
+    TU_OK(pl_store_list_indications(f->st, cid, note_indication, &l, &err));
+    assert_int_equal(l.n, 3);
+    assert_string_equal(l.what[0], "baseline 1 3.00");
+    assert_string_equal(l.what[1], "current 1 3.00");
+    assert_string_equal(l.what[2], "current 2 4.50");
+
+    char none[] = "[]", one[] = "[1]", both[] = "[1,2]";
+    pl_change_record g = change_of(cid, 2, "changed-region", none, none);
+    g.region_pixels = 9;
+    g.touches = 1;
+    TU_OK(pl_store_add_change(f->st, &g, NULL, &err));
+    g = change_of(cid, 1, "grown", one, both);
+    TU_OK(pl_store_add_change(f->st, &g, NULL, &err));
+    char unsorted[] = "[2,1]", spaced[] = "[1, 2]", zero[] = "[0]", object[] = "{}";
+    static const struct {
+        const char *what, *needle;
+        int code;
+    } bad_changes[] = {
+        { "class", "change class 'unchanged' is not one of new, grown", PL_EINVAL },
+        { "unsorted", "current_labels must be a JSON array of labels in increasing order",
+          PL_EINVAL },
+        { "spaced", "current_labels must be a JSON array", PL_EINVAL },
+        { "zero", "baseline_labels must be a JSON array", PL_EINVAL },
+        { "object", "baseline_labels must be a JSON array", PL_EINVAL },
+        { "missing", "baseline_labels must be a JSON array", PL_EINVAL },
+        { "margin", "area_margin_mm2 must be a finite number or unknown (got -inf)",
+          PL_EINVAL },
+        { "flag", "exceeds must be 0 or 1 (got 2)", PL_EINVAL },
+        { "taken number", "", PL_EEXISTS },
+        { "number", "number must be 1 or more (got 0)", PL_EINVAL },
+        { "touches", "touches must be 1 or more (got 0)", PL_EINVAL },
+        { "sizing", "sizing rule 'area' is not one of threshold, half-maximum", PL_EINVAL },
+        { "not done", "a change belongs to a comparison that was done", PL_EINVAL },
+    };
+    for (size_t i = 0; i < sizeof bad_changes / sizeof bad_changes[0]; i++) {
+        pl_change_record r = change_of(cid, 3, "stable", one, one);
+        switch (i) {
+        case 0: snprintf(r.class_, sizeof r.class_, "unchanged"); break;
+        case 1: r.current_labels = unsorted; break;
+        case 2: r.current_labels = spaced; break;
+        case 3: r.baseline_labels = zero; break;
+        case 4: r.baseline_labels = object; break;
+        case 5: r.baseline_labels = NULL; break;
+        case 6: r.area_margin_mm2 = -INFINITY; break;
+        case 7: r.exceeds = 2; break;
+        case 8: r.number = 1; break;
+        case 9: r.number = 0; break;
+        case 10: r.touches = 0; break;
+        case 11: snprintf(r.sizing, sizeof r.sizing, "area"); break;
+        default: r.comparison_id = undone; break;
+        }
+        int rc = pl_store_add_change(f->st, &r, NULL, &err);
+        if (rc != bad_changes[i].code)
+            fail_msg("%s: expected %d, got %d (%s)", bad_changes[i].what, bad_changes[i].code,
+                     rc, err.msg);
+        tu_assert_msg_has(err.msg, bad_changes[i].needle);
+    }
+    memset(&l, 0, sizeof l);
+    TU_OK(pl_store_list_changes(f->st, 0, note_change, &l, &err));
+    assert_int_equal(l.n, 2);
+    assert_string_equal(l.what[0], "1 grown [1] [1,2]");
+    assert_string_equal(l.what[1], "2 changed-region [] []");
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(f->st, &sum, &err));
+    assert_int_equal(sum.indications, 3);
+}
+
+/*
+ * Migration 5 recreates the indication tables, which no earlier version
+ * wrote. A store that holds a row in them all the same is not migrated:
+ * the open fails naming the guard, and the store stays at version 4 with
+ * its row.
+ */
+static void test_store__migration_5_keeps_a_store_whose_indication_tables_hold_rows(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    char *old = tu_path(f->dir, "old4.db");
+    make_old_store(old, 4);
+    sqlite3 *db = raw_open(old);
+    raw_exec(db, "INSERT INTO indication (map_id, channel, label, area_px, area_mm2,"
+             " centroid_col, centroid_row, recorded_at) VALUES (1, 0, 1, 4, 1.0, 2.0, 3.0,"
+             " '2030-01-01T00:00:00.000Z')");
+    sqlite3_close(db);
+    pl_store *st = NULL;
+    int rc = pl_store_open(&st, old, 0, &err);
+    assert_null(st);
+    assert_int_equal(rc, PL_EDB);
+    tu_assert_msg_has(err.msg, "indication_tables_must_be_empty");
+    db = raw_open(old);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), 4);
+    assert_int_equal(raw_int(db, "SELECT count(*) FROM indication"), 1);
+    assert_int_equal(raw_int(db, "SELECT count(*) FROM pragma_table_info('indication')"
+                     " WHERE name = 'role'"), 0);
+    /* emptied (as every store before it is), it migrates */
+    raw_exec(db, "DROP TRIGGER indication_no_delete; DELETE FROM indication");
+    sqlite3_close(db);
+    TU_OK(pl_store_open(&st, old, 0, &err));
+    pl_store_close(st);
+    db = raw_open(old);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION);
+    assert_int_equal(raw_int(db, "SELECT count(*) FROM pragma_table_info('indication')"
+                     " WHERE name = 'role'"), 1);
+    sqlite3_close(db);
+    free(old);
 }
 
 /* A store of schema version `version`: the migrations up to it applied by
@@ -2621,6 +2923,8 @@ int main(void)
         T(test_store__corrections_keep_the_record_sound),
         T(test_store__simulated_never_serves_as_a_real_baseline),
         T(test_store__previous_schema_migrates_and_keeps_its_rows),
+        T(test_store__indications_and_changes_of_a_comparison),
+        T(test_store__migration_5_keeps_a_store_whose_indication_tables_hold_rows),
         T(test_store__schema_version_is_the_number_of_schema_files),
         T(test_store__a_writer_waits_for_another_and_writes),
         T(test_store__a_writer_that_waits_too_long_says_so_plainly),

@@ -275,6 +275,137 @@ static int channel_of(const pl_map *map, const char *quantity, const char *label
     return -1;
 }
 
+/* ---- the indications and changes as rows ----------------------------------- */
+
+/* Write the indications of one side of a done comparison. */
+static int record_indications(pl_store *store, pl_id cid, const char *role, pl_id map,
+                              uint32_t channel, const pl_detection *d, pl_err *err)
+{
+    for (size_t i = 0; i < d->count; i++) {
+        const pl_indication *x = &d->indications[i];
+        const pl_indication_size *t = &x->size[PL_SIZING_THRESHOLD];
+        const pl_indication_size *h = &x->size[PL_SIZING_HALF_MAX];
+        pl_indication_record r;
+        memset(&r, 0, sizeof r);
+        r.comparison_id = cid;
+        snprintf(r.role, sizeof r.role, "%s", role);
+        r.map_id = map;
+        r.channel = channel;
+        r.label = x->label;
+        r.area_px = (int64_t)t->pixels;
+        r.area_mm2 = t->area_mm2;
+        r.equivalent_diameter_mm = t->equivalent_diameter_mm;
+        r.area_halfmax_px = (int64_t)h->pixels;
+        r.area_halfmax_mm2 = h->area_mm2;
+        r.equivalent_diameter_halfmax_mm = h->equivalent_diameter_mm;
+        r.centroid_col = x->centroid_col;
+        r.centroid_row = x->centroid_row;
+        r.part_x = x->centroid_part[0];
+        r.part_y = x->centroid_part[1];
+        r.part_z = x->centroid_part[2];
+        r.bbox_col0 = x->bbox_col0;
+        r.bbox_row0 = x->bbox_row0;
+        r.bbox_col1 = x->bbox_col1;
+        r.bbox_row1 = x->bbox_row1;
+        r.major_axis_mm = x->major_axis_mm;
+        r.minor_axis_mm = x->minor_axis_mm;
+        r.orientation_deg = x->orientation_deg;
+        r.peak_contrast = x->peak_contrast;
+        r.peak_snr = x->peak_snr;
+        r.peak_col = x->peak_col;
+        r.peak_row = x->peak_row;
+        r.mean_contrast = x->mean_contrast;
+        r.depth_mm = x->depth_mm;
+        r.perimeter_mm = x->perimeter_mm;
+        r.outline = x->outline;
+        int rc = pl_store_add_indication(store, &r, NULL, err);
+        if (rc)
+            return rc;
+    }
+    return PL_OK;
+}
+
+static int cmp_u32(const void *a, const void *b)
+{
+    uint32_t x = *(const uint32_t *)a, y = *(const uint32_t *)b;
+    return (x > y) - (x < y);
+}
+
+/* Labels as the JSON array the change rows hold, in increasing order. */
+static int labels_text(char **out, const uint32_t *v, size_t n, pl_err *err)
+{
+    uint32_t *sorted = malloc((n ? n : 1) * sizeof *sorted);
+    char *text = malloc(n * 11 + 3);
+    if (!sorted || !text) {
+        free(sorted);
+        free(text);
+        return pl__err(err, PL_ENOMEM, "out of memory");
+    }
+    if (n)
+        memcpy(sorted, v, n * sizeof *sorted);
+    qsort(sorted, n, sizeof *sorted, cmp_u32);
+    size_t k = 0;
+    text[k++] = '[';
+    for (size_t i = 0; i < n; i++)
+        k += (size_t)sprintf(text + k, i ? ",%u" : "%u", (unsigned)sorted[i]);
+    text[k++] = ']';
+    text[k] = '\0';
+    free(sorted);
+    *out = text;
+    return PL_OK;
+}
+
+static const char *const match_words[] = { "none", "overlap", "distance", "signal" };
+
+/* Write the classified changes of a done comparison, numbered from 1. */
+static int record_changes(pl_store *store, pl_id cid, const pl_comparison *c, pl_err *err)
+{
+    for (size_t i = 0; i < c->count; i++) {
+        const pl_change *x = &c->changes[i];
+        pl_change_record r;
+        memset(&r, 0, sizeof r);
+        r.comparison_id = cid;
+        r.number = (int64_t)i + 1;
+        snprintf(r.class_, sizeof r.class_, "%s", pl_change_kind_name(x->kind));
+        snprintf(r.matched_by, sizeof r.matched_by, "%s", match_words[x->match]);
+        snprintf(r.sizing, sizeof r.sizing, "%s", pl_sizing_name(c->limits.sizing));
+        r.area_baseline_mm2 = x->area_baseline_mm2[PL_SIZING_THRESHOLD];
+        r.area_current_mm2 = x->area_current_mm2[PL_SIZING_THRESHOLD];
+        r.area_delta_mm2 = x->area_delta_mm2[PL_SIZING_THRESHOLD];
+        r.area_delta_percent = x->area_delta_percent[PL_SIZING_THRESHOLD];
+        r.area_baseline_halfmax_mm2 = x->area_baseline_mm2[PL_SIZING_HALF_MAX];
+        r.area_current_halfmax_mm2 = x->area_current_mm2[PL_SIZING_HALF_MAX];
+        r.area_delta_halfmax_mm2 = x->area_delta_mm2[PL_SIZING_HALF_MAX];
+        r.contrast_baseline = x->contrast_baseline;
+        r.contrast_current = x->contrast_current;
+        r.contrast_delta = x->contrast_delta;
+        r.centroid_col = x->centroid_col;
+        r.centroid_row = x->centroid_row;
+        r.distance_px = x->distance_px;
+        r.area_limit_mm2 = x->area_limit_mm2;
+        r.area_measured_mm2 = x->area_measured_mm2;
+        r.area_margin_mm2 = x->area_margin_mm2;
+        r.area_exceeds = x->area_exceeds != 0;
+        r.contrast_limit = x->contrast_limit;
+        r.contrast_margin = x->contrast_margin;
+        r.contrast_exceeds = x->contrast_exceeds != 0;
+        r.reportable = x->reportable != 0;
+        r.exceeds = x->exceeds != 0;
+        r.region_pixels = x->kind == PL_CHANGE_REGION ? (int64_t)x->region_pixels : -1;
+        r.touches = x->kind == PL_CHANGE_REGION && x->touches >= 0 ? x->touches + 1 : -1;
+        int rc = labels_text(&r.baseline_labels, x->baseline_labels, x->nbaseline, err);
+        if (!rc)
+            rc = labels_text(&r.current_labels, x->current_labels, x->ncurrent, err);
+        if (!rc)
+            rc = pl_store_add_change(store, &r, NULL, err);
+        free(r.baseline_labels);
+        free(r.current_labels);
+        if (rc)
+            return rc;
+    }
+    return PL_OK;
+}
+
 PL_EXPORT int pl_compare_record(pl_store *store, pl_site_comparison *sc,
                                 const pl_compare_options *opts, pl_err *err)
 {
@@ -313,6 +444,15 @@ PL_EXPORT int pl_compare_record(pl_store *store, pl_site_comparison *sc,
         c.uncompared_fraction = sc->cmp->not_compared_fraction;
         c.parameters_json = detail;
         rc = pl_store_add_comparison(store, &c, &cid, err);
+        if (!rc)
+            rc = record_indications(store, cid, "baseline", sc->reference_map,
+                                    sc->reference_channel, sc->reference_detection, err);
+        /* the aligned map keeps the current map's channels in their order */
+        if (!rc)
+            rc = record_indications(store, cid, "current", sc->current_map, sc->aligned_channel,
+                                    sc->current_detection, err);
+        if (!rc)
+            rc = record_changes(store, cid, sc->cmp, err);
     }
     free(reg_params);
     free(detail);

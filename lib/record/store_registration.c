@@ -211,3 +211,129 @@ PL_EXPORT int pl_store_list_comparisons(pl_store *s, pl_id current_inspection,
     return list_for(s, PL_TABLE_COMPARISON, "WHERE ?1 = 0 OR t.current_inspection = ?1 "
                     "ORDER BY t.id", current_inspection, call_comparison, &cb, err);
 }
+
+/* ---- indications and changes ------------------------------------------------------ */
+
+static int check_count(int64_t v, int64_t min, const char *field, const char *label,
+                       pl_err *err)
+{
+    if (v < min)
+        return pl__err(err, PL_EINVAL, "%s: %s must be %lld or more (got %lld)", label, field,
+                       (long long)min, (long long)v);
+    return PL_OK;
+}
+
+static int check_indication(const pl_indication_record *r, const char *label, pl_err *err)
+{
+    int rc = pl_row__check(pl_row__table(PL_TABLE_INDICATION), r, label, err);
+    if (!rc)
+        rc = check_count(r->channel, 0, "channel", label, err);
+    if (!rc)
+        rc = check_count(r->label, 1, "label", label, err);
+    if (!rc)
+        rc = check_count(r->area_px, 1, "area_px", label, err);
+    if (!rc)
+        rc = check_count(r->area_halfmax_px, 1, "area_halfmax_px", label, err);
+    if (!rc && (r->bbox_col0 < 0 || r->bbox_row0 < 0 || r->bbox_col1 < r->bbox_col0 ||
+                r->bbox_row1 < r->bbox_row0))
+        rc = pl__err(err, PL_EINVAL, "%s: the bounding box (%lld, %lld)-(%lld, %lld) is not "
+                     "first corner then last", label, (long long)r->bbox_col0,
+                     (long long)r->bbox_row0, (long long)r->bbox_col1, (long long)r->bbox_row1);
+    if (!rc && !isnan(r->orientation_deg) &&
+        !(r->orientation_deg > -90.0 && r->orientation_deg <= 90.0))
+        rc = pl__err(err, PL_EINVAL, "%s: orientation_deg must lie in (-90, 90] (got %g)", label,
+                     r->orientation_deg);
+    return rc;
+}
+
+PL_EXPORT int pl_store_add_indication(pl_store *s, const pl_indication_record *r, pl_id *id,
+                                      pl_err *err)
+{
+    assert(s && r);
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "indication %lld (%s) of comparison %lld", (long long)r->label,
+             r->role, (long long)r->comparison_id);
+    int rc = check_indication(r, label, err);
+    if (rc)
+        return rc;
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_INDICATION), r);
+    return pl_store__write_row(s, &row, id, err, label);
+}
+
+PL_STORE_CALLBACK(indication, pl_indication_fn)
+
+PL_EXPORT int pl_store_list_indications(pl_store *s, pl_id comparison_id, pl_indication_fn fn,
+                                        void *ud, pl_err *err)
+{
+    assert(s && fn);
+    indication_cb cb = { fn, ud };
+    return list_for(s, PL_TABLE_INDICATION, "WHERE ?1 = 0 OR t.comparison_id = ?1 "
+                    "ORDER BY t.comparison_id, t.role, t.label", comparison_id,
+                    call_indication, &cb, err);
+}
+
+/* A JSON array of distinct labels >= 1, in increasing order. */
+static int check_labels(const char *text, const char *field, const char *label, pl_err *err)
+{
+    const char *p = text ? text : "";
+    int ok = *p++ == '[';
+    long long last = 0;
+    while (ok && *p != ']') {
+        if (last && *p++ != ',') {
+            ok = 0;
+            break;
+        }
+        char *end;
+        if (*p < '1' || *p > '9') {
+            ok = 0;
+            break;
+        }
+        long long v = strtoll(p, &end, 10);
+        ok = v > last && end != p;
+        last = v;
+        p = end;
+    }
+    if (ok && p[1] != '\0')
+        ok = 0;
+    if (!ok)
+        return pl__err(err, PL_EINVAL, "%s: %s must be a JSON array of labels in increasing "
+                       "order, like [1,4] or [] (got '%.40s')", label, field, text ? text : "");
+    return PL_OK;
+}
+
+PL_EXPORT int pl_store_add_change(pl_store *s, const pl_change_record *r, pl_id *id,
+                                  pl_err *err)
+{
+    assert(s && r);
+    char label[STORE_LABEL_SIZE];
+    snprintf(label, sizeof label, "change %lld of comparison %lld", (long long)r->number,
+             (long long)r->comparison_id);
+    int rc = pl_row__check(pl_row__table(PL_TABLE_CHANGE), r, label, err);
+    if (!rc)
+        rc = check_count(r->number, 1, "number", label, err);
+    if (!rc)
+        rc = check_labels(r->baseline_labels, "baseline_labels", label, err);
+    if (!rc)
+        rc = check_labels(r->current_labels, "current_labels", label, err);
+    if (!rc && r->touches != -1)
+        rc = check_count(r->touches, 1, "touches", label, err);
+    if (!rc && r->region_pixels != -1)
+        rc = check_count(r->region_pixels, 1, "region_pixels", label, err);
+    if (rc)
+        return rc;
+    pl_row row;
+    pl_row__from_record(&row, pl_row__table(PL_TABLE_CHANGE), r);
+    return pl_store__write_row(s, &row, id, err, label);
+}
+
+PL_STORE_CALLBACK(change, pl_change_fn)
+
+PL_EXPORT int pl_store_list_changes(pl_store *s, pl_id comparison_id, pl_change_fn fn, void *ud,
+                                    pl_err *err)
+{
+    assert(s && fn);
+    change_cb cb = { fn, ud };
+    return list_for(s, PL_TABLE_CHANGE, "WHERE ?1 = 0 OR t.comparison_id = ?1 "
+                    "ORDER BY t.comparison_id, t.number", comparison_id, call_change, &cb, err);
+}

@@ -38,6 +38,14 @@ static const char *const comparison_statuses[] = { "done", "not-done" };
  * Level 1 Limited, 1, 2 and 3; ISO 9712 levels 1, 2 and 3 (from memory).
  * A trainee is not certified and signs no inspection. */
 static const char *const inspector_levels[] = { "1-limited", "1", "2", "3" };
+static const char *const indication_roles[] = { "baseline", "current" };
+/* In pl_change_kind, pl_change_match and pl_sizing order (plyledger/change.h,
+ * detect.h), so that an enum indexes its word. */
+static const char *const change_classes[] = {
+    "new", "grown", "stable", "vanished", "not-compared", "changed-region"
+};
+static const char *const change_matches[] = { "none", "overlap", "distance", "signal" };
+static const char *const sizings[] = { "threshold", "half-maximum" };
 
 #define WORDS(a) sizeof a / sizeof a[0], a
 static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
@@ -46,6 +54,10 @@ static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
     { "registration status", WORDS(registration_statuses) },
     { "comparison status", WORDS(comparison_statuses) },
     { "inspector level", WORDS(inspector_levels) },
+    { "indication role", WORDS(indication_roles) },
+    { "change class", WORDS(change_classes) },
+    { "change match", WORDS(change_matches) },
+    { "sizing rule", WORDS(sizings) },
 };
 
 PL_EXPORT const pl_vocabulary *pl_vocabulary_get(pl_vocab which)
@@ -665,6 +677,117 @@ static const pl_column criteria_cols[] = {
     SUPPLIED("approved_by", PL_S_TEXT, NUL),
 };
 
+/* An indication a comparison found (schema/0005_indications.sql). */
+static const pl_column indication_cols[] = {
+    ROWID(pl_indication_record, "indication"),
+    INT(pl_indication_record, comparison_id, "comparison_id", "comparison", PL_C_ID, IN | REQ,
+        PL_F_ANY),
+    WORD(pl_indication_record, role, "role", "role", PL_VOCAB_INDICATION_ROLE),
+    INT(pl_indication_record, map_id, "map_id", "map", PL_C_ID, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, channel, "channel", "channel", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, label, "label", "label", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, area_px, "area_px", "threshold.pixels", PL_C_I64, IN | REQ,
+        PL_F_ANY),
+    REAL(pl_indication_record, area_mm2, "area_mm2", "threshold.area_mm2", IN | REQ,
+         PL_F_POSITIVE),
+    REAL(pl_indication_record, equivalent_diameter_mm, "equivalent_diameter_mm",
+         "threshold.equivalent_diameter_mm", IN | REQ, PL_F_POSITIVE),
+    INT(pl_indication_record, area_halfmax_px, "area_halfmax_px", "half_maximum.pixels",
+        PL_C_I64, IN | REQ, PL_F_ANY),
+    REAL(pl_indication_record, area_halfmax_mm2, "area_halfmax_mm2", "half_maximum.area_mm2",
+         IN | REQ, PL_F_POSITIVE),
+    REAL(pl_indication_record, equivalent_diameter_halfmax_mm, "equivalent_diameter_halfmax_mm",
+         "half_maximum.equivalent_diameter_mm", IN | REQ, PL_F_POSITIVE),
+    REAL(pl_indication_record, centroid_col, "centroid_col", "centroid_px.0", IN | REQ,
+         PL_F_ANY),
+    REAL(pl_indication_record, centroid_row, "centroid_row", "centroid_px.1", IN | REQ,
+         PL_F_ANY),
+    REAL(pl_indication_record, part_x, "part_x", "centroid_part.0", IN | NUL, PL_F_ANY),
+    REAL(pl_indication_record, part_y, "part_y", "centroid_part.1", IN | NUL, PL_F_ANY),
+    REAL(pl_indication_record, part_z, "part_z", "centroid_part.2", IN | NUL, PL_F_ANY),
+    INT(pl_indication_record, bbox_col0, "bbox_col0", "bbox.0", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, bbox_row0, "bbox_row0", "bbox.1", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, bbox_col1, "bbox_col1", "bbox.2", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, bbox_row1, "bbox_row1", "bbox.3", PL_C_I64, IN | REQ, PL_F_ANY),
+    REAL(pl_indication_record, major_axis_mm, "major_axis_mm", "major_axis_mm", IN | NUL,
+         PL_F_NONNEGATIVE),
+    REAL(pl_indication_record, minor_axis_mm, "minor_axis_mm", "minor_axis_mm", IN | NUL,
+         PL_F_NONNEGATIVE),
+    REAL(pl_indication_record, orientation_deg, "orientation_deg", "orientation_deg", IN | NUL,
+         PL_F_ANY),
+    REAL(pl_indication_record, peak_contrast, "peak_contrast", "peak_contrast", IN | REQ,
+         PL_F_ANY),
+    REAL(pl_indication_record, peak_snr, "peak_snr", "peak_snr", IN | NUL, PL_F_ANY),
+    INT(pl_indication_record, peak_col, "peak_col", "peak_px.0", PL_C_I64, IN | REQ, PL_F_ANY),
+    INT(pl_indication_record, peak_row, "peak_row", "peak_px.1", PL_C_I64, IN | REQ, PL_F_ANY),
+    REAL(pl_indication_record, mean_contrast, "mean_contrast", "mean_contrast", IN | REQ,
+         PL_F_ANY),
+    REAL(pl_indication_record, depth_mm, "depth_mm", "depth_mm", IN | NUL, PL_F_ANY),
+    REAL(pl_indication_record, perimeter_mm, "perimeter_mm", "perimeter_mm", IN | NUL,
+         PL_F_NONNEGATIVE),
+    COLUMN(pl_indication_record, outline, "outline", "outline", "outline", PL_S_TEXT, PL_C_STR,
+           IN | NUL, PL_F_ANY),
+    RECORDED(pl_indication_record),
+};
+
+/* A classified change of a comparison. */
+static const pl_column change_cols[] = {
+    ROWID(pl_change_record, "change"),
+    INT(pl_change_record, comparison_id, "comparison_id", "comparison", PL_C_ID, IN | REQ,
+        PL_F_ANY),
+    INT(pl_change_record, number, "number", "number", PL_C_I64, IN | REQ, PL_F_ANY),
+    WORD(pl_change_record, class_, "class", "class", PL_VOCAB_CHANGE_CLASS),
+    WORD(pl_change_record, matched_by, "matched_by", "matched_by", PL_VOCAB_CHANGE_MATCH),
+    COLUMN(pl_change_record, baseline_labels, "baseline_labels", "baseline_labels",
+           "baseline_labels", PL_S_TEXT, PL_C_STR, IN | REQ, PL_F_ANY),
+    COLUMN(pl_change_record, current_labels, "current_labels", "current_labels",
+           "current_labels", PL_S_TEXT, PL_C_STR, IN | REQ, PL_F_ANY),
+    WORD(pl_change_record, sizing, "sizing", "sizing", PL_VOCAB_SIZING),
+    REAL(pl_change_record, area_baseline_mm2, "area_baseline_mm2", "threshold.baseline_mm2",
+         IN | NUL, PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_current_mm2, "area_current_mm2", "threshold.current_mm2",
+         IN | NUL, PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_delta_mm2, "area_delta_mm2", "threshold.delta_mm2", IN | NUL,
+         PL_F_ANY),
+    REAL(pl_change_record, area_delta_percent, "area_delta_percent", "threshold.delta_percent",
+         IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, area_baseline_halfmax_mm2, "area_baseline_halfmax_mm2",
+         "half_maximum.baseline_mm2", IN | NUL, PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_current_halfmax_mm2, "area_current_halfmax_mm2",
+         "half_maximum.current_mm2", IN | NUL, PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_delta_halfmax_mm2, "area_delta_halfmax_mm2",
+         "half_maximum.delta_mm2", IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, contrast_baseline, "contrast_baseline", "contrast.baseline",
+         IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, contrast_current, "contrast_current", "contrast.current", IN | NUL,
+         PL_F_ANY),
+    REAL(pl_change_record, contrast_delta, "contrast_delta", "contrast.delta", IN | NUL,
+         PL_F_ANY),
+    REAL(pl_change_record, centroid_col, "centroid_col", "centroid_px.0", IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, centroid_row, "centroid_row", "centroid_px.1", IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, distance_px, "distance_px", "distance_px", IN | NUL,
+         PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_limit_mm2, "area_limit_mm2", "area_limit.limit_mm2", IN | NUL,
+         PL_F_NONNEGATIVE),
+    REAL(pl_change_record, area_measured_mm2, "area_measured_mm2", "area_limit.measured_mm2",
+         IN | NUL, PL_F_ANY),
+    REAL(pl_change_record, area_margin_mm2, "area_margin_mm2", "area_limit.margin_mm2",
+         IN | NUL, PL_F_ANY),
+    FLAG(pl_change_record, area_exceeds, "area_exceeds", "area_limit.exceeds", IN | REQ),
+    REAL(pl_change_record, contrast_limit, "contrast_limit", "contrast_limit.limit", IN | NUL,
+         PL_F_NONNEGATIVE),
+    REAL(pl_change_record, contrast_margin, "contrast_margin", "contrast_limit.margin",
+         IN | NUL, PL_F_ANY),
+    FLAG(pl_change_record, contrast_exceeds, "contrast_exceeds", "contrast_limit.exceeds",
+         IN | REQ),
+    FLAG(pl_change_record, reportable, "reportable", "reportable", IN | REQ),
+    FLAG(pl_change_record, exceeds, "exceeds", "exceeds", IN | REQ),
+    INT(pl_change_record, region_pixels, "region_pixels", "region_pixels", PL_C_I64, IN | NUL,
+        PL_F_ANY),
+    INT(pl_change_record, touches, "touches", "touches", PL_C_I64, IN | NUL, PL_F_ANY),
+    RECORDED(pl_change_record),
+};
+
 #define TABLE(id, name, from, cols, T) \
     { id, name, from, cols, sizeof cols / sizeof cols[0], sizeof(T), NULL, NULL }
 static const pl_table_desc tables[PL_TABLE_COUNT] = {
@@ -683,6 +806,10 @@ static const pl_table_desc tables[PL_TABLE_COUNT] = {
     TABLE(PL_TABLE_COMPARISON, "comparison", "comparison t", comparison_cols,
           pl_comparison_record),
     TABLE(PL_TABLE_CRITERIA, "criteria", "criteria t", criteria_cols, pl_criteria_record),
+    TABLE(PL_TABLE_INDICATION, "indication", "indication t", indication_cols,
+          pl_indication_record),
+    TABLE(PL_TABLE_CHANGE, "indication_change", "indication_change t", change_cols,
+          pl_change_record),
 };
 
 const pl_table_desc *pl_row__table(pl_table table)
@@ -843,8 +970,12 @@ static int check_number(const pl_column *c, double v, const char *label, pl_err 
     int nullable = (c->flags & PL_COL_NULLABLE) != 0;
     if (nullable && isnan(v))
         return PL_OK;
-    if (c->form != PL_F_POSITIVE && c->form != PL_F_NONNEGATIVE)
+    if (c->form != PL_F_POSITIVE && c->form != PL_F_NONNEGATIVE) {
+        if (!isfinite(v))
+            return pl__err(err, PL_EINVAL, "%s: %s must be a finite number%s (got %g)", label,
+                           c->field, nullable ? " or unknown" : "", v);
         return check_bound(c, v, label, err);
+    }
     int positive = c->form == PL_F_POSITIVE;
     if (isfinite(v) && (positive ? v > 0 : v >= 0))
         return check_bound(c, v, label, err);

@@ -164,6 +164,11 @@ typedef enum pl_vocab {
     PL_VOCAB_REGISTRATION_STATUS = 2, /**< aligned, refused, manual */
     PL_VOCAB_COMPARISON_STATUS = 3,   /**< done, not-done */
     PL_VOCAB_INSPECTOR_LEVEL = 4,     /**< 1-limited, 1, 2, 3 (EN 4179, NAS 410, ISO 9712) */
+    PL_VOCAB_INDICATION_ROLE = 5,     /**< baseline, current */
+    PL_VOCAB_CHANGE_CLASS = 6,        /**< new, grown, stable, vanished, not-compared,
+                                           changed-region (pl_change_kind_name()) */
+    PL_VOCAB_CHANGE_MATCH = 7,        /**< none, overlap, distance, signal */
+    PL_VOCAB_SIZING = 8,              /**< threshold, half-maximum (pl_sizing_name()) */
     PL_VOCAB_COUNT
 } pl_vocab;
 
@@ -665,6 +670,88 @@ typedef int (*pl_comparison_fn)(void *ud, const pl_comparison_record *cmp);
 /** Comparisons whose current inspection is `current_inspection` (0: all), oldest first. */
 PL_EXPORT int pl_store_list_comparisons(pl_store *store, pl_id current_inspection,
                                         pl_comparison_fn fn, void *ud, pl_err *err);
+
+/* ---- indications and changes ---------------------------------------------- */
+
+/** One indication found by a comparison (schema/0005_indications.sql). */
+typedef struct pl_indication_record {
+    pl_id id;                             /**< (read) */
+    pl_id comparison_id;                  /**< the comparison that found it; required */
+    char role[PL_WORD_SIZE];              /**< PL_VOCAB_INDICATION_ROLE: "baseline" (the
+                                               comparison's reference, own grid) or
+                                               "current" (on the reference's grid) */
+    pl_id map_id;                         /**< the map of that side's inspection */
+    int64_t channel;                      /**< channel examined, >= 0 */
+    int64_t label;                        /**< its number in that side's detection, >= 1 */
+    int64_t area_px;                      /**< threshold sizing: pixels */
+    double area_mm2;                      /**< and mm^2 */
+    double equivalent_diameter_mm;        /**< sqrt(4 area / pi) */
+    int64_t area_halfmax_px;              /**< half-maximum sizing: pixels */
+    double area_halfmax_mm2;
+    double equivalent_diameter_halfmax_mm;
+    double centroid_col, centroid_row;    /**< pixels of the grid its role names */
+    double part_x, part_y, part_z;        /**< centroid on the airframe; NaN: no frame */
+    int64_t bbox_col0, bbox_row0, bbox_col1, bbox_row1; /**< inclusive */
+    double major_axis_mm, minor_axis_mm;  /**< principal axes' lengths; NaN unknown */
+    double orientation_deg;               /**< major axis from u toward v, (-90, 90] */
+    double peak_contrast;                 /**< channel units, toward a defect */
+    double peak_snr;                      /**< over the noise; NaN without one */
+    int64_t peak_col, peak_row;
+    double mean_contrast;
+    double depth_mm;                      /**< median of the depth channel inside; NaN */
+    double perimeter_mm;                  /**< NaN without a pitch */
+    char *outline;                        /**< chain code (plyledger/detect.h) or NULL */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_indication_record;
+
+/** Record an indication of a done comparison; its map must be the map of the
+ * comparison's inspection on its side.
+ * @return PL_OK, PL_EINVAL, PL_EEXISTS (the label is taken), PL_EDB. */
+PL_EXPORT int pl_store_add_indication(pl_store *store, const pl_indication_record *ind,
+                                      pl_id *id, pl_err *err);
+
+typedef int (*pl_indication_fn)(void *ud, const pl_indication_record *ind);
+/** Indications of comparison `comparison_id` (0: all), baseline side first, by label. */
+PL_EXPORT int pl_store_list_indications(pl_store *store, pl_id comparison_id,
+                                        pl_indication_fn fn, void *ud, pl_err *err);
+
+/** One classified change of a comparison (plyledger/change.h's pl_change). */
+typedef struct pl_change_record {
+    pl_id id;                             /**< (read) */
+    pl_id comparison_id;                  /**< required, a done comparison */
+    int64_t number;                       /**< its number in the comparison, >= 1 */
+    char class_[PL_WORD_SIZE];            /**< PL_VOCAB_CHANGE_CLASS */
+    char matched_by[PL_WORD_SIZE];        /**< PL_VOCAB_CHANGE_MATCH */
+    char *baseline_labels;                /**< JSON array of member labels ("[]": none) */
+    char *current_labels;
+    char sizing[PL_WORD_SIZE];            /**< PL_VOCAB_SIZING: the rule the limits use */
+    double area_baseline_mm2, area_current_mm2;  /**< threshold sizing; NaN: none */
+    double area_delta_mm2, area_delta_percent;
+    double area_baseline_halfmax_mm2, area_current_halfmax_mm2, area_delta_halfmax_mm2;
+    double contrast_baseline, contrast_current, contrast_delta;
+    double centroid_col, centroid_row;    /**< on the reference's grid */
+    double distance_px;                   /**< between the two sides' centroids */
+    double area_limit_mm2, area_measured_mm2, area_margin_mm2; /**< margin = limit - measured */
+    int area_exceeds;                     /**< 0 or 1 */
+    double contrast_limit, contrast_margin;
+    int contrast_exceeds;
+    int reportable;                       /**< 0: below the minimum reportable area */
+    int exceeds;                          /**< a finding against the limits */
+    int64_t region_pixels;                /**< a changed region: its pixels; -1 none */
+    int64_t touches;                      /**< a changed region: the number of the change
+                                               it borders; -1 none */
+    char recorded_at[PL_DATE_SIZE];       /**< (read) */
+} pl_change_record;
+
+/** Record a change of a done comparison.
+ * @return PL_OK, PL_EINVAL, PL_EEXISTS (the number is taken), PL_EDB. */
+PL_EXPORT int pl_store_add_change(pl_store *store, const pl_change_record *chg, pl_id *id,
+                                  pl_err *err);
+
+typedef int (*pl_change_fn)(void *ud, const pl_change_record *chg);
+/** Changes of comparison `comparison_id` (0: all), by number. */
+PL_EXPORT int pl_store_list_changes(pl_store *store, pl_id comparison_id, pl_change_fn fn,
+                                    void *ud, pl_err *err);
 
 /* ---- summary ------------------------------------------------------------- */
 

@@ -71,6 +71,8 @@ typedef enum pl_table {
     PL_TABLE_REGISTRATION = 6,  /**< pl_registration_record */
     PL_TABLE_COMPARISON = 7,    /**< pl_comparison_record */
     PL_TABLE_CRITERIA = 8,      /**< pl_criteria_record (plyledger/criteria.h) */
+    PL_TABLE_INDICATION = 9,    /**< pl_indication_record */
+    PL_TABLE_CHANGE = 10,       /**< pl_change_record (table indication_change) */
     PL_TABLE_COUNT
 } pl_table;
 
