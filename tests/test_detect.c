@@ -749,6 +749,73 @@ static void test_detect__falling_quantity(void **state)
 }
 
 /*
+ * A reinspection whose disbond grew wider than 3/8 of the background
+ * window (constructed: a disk of radius 6 px in the reference and 16 px in
+ * the current, both -0.1 rad of phase contrast at 1 mm pitch, noise 0.005
+ * rad, the current's whole level 0.02 rad higher). Alone, the current
+ * map's 40 mm line-median background takes the disk in and it is
+ * undersized; with the reference's level (plus the median offset) every
+ * disk pixel is found, to 3 %. Phase quantities take the reference's
+ * level, the others their own; a reference of another size or quantity is
+ * refused.
+ */
+static void test_detect__reinspection_takes_the_reference_level(void **state)
+{
+    (void)state;
+    pl_map *ref = new_map(128, 96, "phase-contrast", "rad");
+    pl_map *cur = new_map(128, 96, "phase-contrast", "rad");
+    add_disk(ref, 60, 48, 6, -0.1);
+    add_disk(cur, 60, 48, 16, -0.1);
+    float *v = pl_map_channel(cur, 0);
+    for (size_t i = 0; i < (size_t)cur->width * cur->height; i++)
+        v[i] += 0.02f;
+    rng = 71;
+    add_noise(ref, 0.005);
+    add_noise(cur, 0.005);
+    pl_err err = {0};
+    pl_detection *dr, *own, *with;
+    TU_OK(pl_detect(&dr, ref, 0, NULL, &err));
+    TU_OK(pl_detect(&own, cur, 0, NULL, &err));
+    TU_OK(pl_detect_on_reference(&with, cur, 0, dr, NULL, &err));
+    double truth = (double)disk_pixels(128, 96, 60, 48, 16);
+    assert_int_equal(own->count, 1);
+    assert_int_equal(with->count, 1);
+    printf("# disk of %.0f px: own level %lu px, with the reference's %lu px\n", truth,
+           (unsigned long)own->indications[0].size[PL_SIZING_THRESHOLD].pixels,
+           (unsigned long)with->indications[0].size[PL_SIZING_THRESHOLD].pixels);
+    assert_true(own->indications[0].size[PL_SIZING_THRESHOLD].pixels < 0.8 * truth);
+    tu_assert_close((double)with->indications[0].size[PL_SIZING_THRESHOLD].pixels, truth,
+                    0.03 * truth, "pixels with the reference's level");
+    tu_assert_close(with->indications[0].peak_contrast, -0.1, 0.03, "peak contrast");
+    assert_int_equal(with->reference_level, 1);
+    assert_int_equal(own->reference_level, 0);
+    assert_int_equal(pl_detect_reference_level("phase-contrast"), 1);
+    assert_int_equal(pl_detect_reference_level("phase"), 1);
+    assert_int_equal(pl_detect_reference_level("temperature-contrast"), 0);
+    assert_int_equal(pl_detect_reference_level("ultrasonic-amplitude"), 0);
+    assert_int_equal(pl_detect_reference_level(NULL), 0);
+    pl_detection_free(with);
+    /* a reference of another size, or of another quantity */
+    pl_map *small = new_map(64, 96, "phase-contrast", "rad");
+    add_noise(small, 0.005);
+    pl_detection *bad = NULL;
+    assert_int_equal(pl_detect_on_reference(&bad, small, 0, dr, NULL, &err), PL_EINVAL);
+    assert_non_null(strstr(err.msg, "reference's grid"));
+    assert_null(bad);
+    pl_map *other = new_map(128, 96, "temperature-contrast", "K");
+    add_noise(other, 0.005);
+    assert_int_equal(pl_detect_on_reference(&bad, other, 0, dr, NULL, &err), PL_EINVAL);
+    assert_non_null(strstr(err.msg, "not of the reference detection's quantity"));
+    assert_null(bad);
+    pl_map_free(small);
+    pl_map_free(other);
+    pl_detection_free(dr);
+    pl_detection_free(own);
+    pl_map_free(ref);
+    pl_map_free(cur);
+}
+
+/*
  * A thick site's depth map: no data on most sound pixels (the back wall
  * beyond the sequence), scattered noise depths of 77-85 % of nominal, a
  * patch of them, and a delamination at 1.4 mm; depth is compared with the
@@ -1156,6 +1223,7 @@ int main(void)
         cmocka_unit_test(test_detect__noise_is_the_standard_deviation),
         cmocka_unit_test(test_detect__finds_disks_not_the_strip_or_shading),
         cmocka_unit_test(test_detect__falling_quantity),
+        cmocka_unit_test(test_detect__reinspection_takes_the_reference_level),
         cmocka_unit_test(test_detect__depth_is_compared_with_nominal),
         cmocka_unit_test(test_detect__refusals_name_the_fault),
         cmocka_unit_test(test_detect__measure_given_labels),

@@ -1087,8 +1087,13 @@ PL_EXPORT int pl_change_site(pl_comparison **out, pl_register_result *reg,
         pl_map_free(aligned);
         return rc;
     }
+    /* a quantity whose sound level is the part's takes the baseline's
+     * level too, so that an indication that grew is not taken into the
+     * current map's own background (pl_detect_on_reference()) */
     if ((rc = pl_detect(&db, baseline, baseline_channel, &o.detect, err)) ||
-        (rc = pl_detect(&dc, aligned, (uint32_t)cc, &dcur, err))) {
+        (rc = pl_detect_reference_level(bc->quantity)
+                  ? pl_detect_on_reference(&dc, aligned, (uint32_t)cc, db, &dcur, err)
+                  : pl_detect(&dc, aligned, (uint32_t)cc, &dcur, err))) {
         pl_detection_free(db);
         pl_map_free(aligned);
         return rc;

@@ -826,6 +826,35 @@ static int detection_new(pl_detection **out, prep *p, const pl_map *map, uint32_
     return PL_OK;
 }
 
+/* Threshold, label and measure a preparation (taken over). */
+static int detect_prepared(pl_detection **out, prep *p, const pl_map *map, uint32_t channel,
+                           int reference_level, pl_err *err)
+{
+    pl_detection *det;
+    if (detection_new(&det, p, map, channel))
+        return pl__err(err, PL_ENOMEM, "out of memory for a detection");
+    prep_free(p);
+    det->reference_level = reference_level;
+    uint64_t min_px = 0;
+    if (det->options.min_area_mm2 > 0)
+        min_px = (uint64_t)ceil(det->options.min_area_mm2 / (map->pitch_u * map->pitch_v) -
+                                1e-9);
+    uint32_t count;
+    int rc = pl_detect__hysteresis(det->labels, &count, &det->regions_below_min_area,
+                                   det->signal, det->width, det->height, det->low_threshold,
+                                   det->high_threshold, min_px);
+    if (!rc) {
+        det->count = count;
+        rc = measure(det, map, p);
+    }
+    if (rc) {
+        pl_detection_free(det);
+        return pl__err(err, rc, "out of memory measuring indications");
+    }
+    *out = det;
+    return PL_OK;
+}
+
 PL_EXPORT int pl_detect(pl_detection **out, const pl_map *map, uint32_t channel,
                         const pl_detect_options *opts, pl_err *err)
 {
@@ -835,28 +864,82 @@ PL_EXPORT int pl_detect(pl_detection **out, const pl_map *map, uint32_t channel,
     int rc = prepare(&p, map, channel, opts, err);
     if (rc)
         return rc;
-    pl_detection *det;
-    if (detection_new(&det, &p, map, channel))
-        return pl__err(err, PL_ENOMEM, "out of memory for a detection");
-    prep_free(&p);
-    uint64_t min_px = 0;
-    if (det->options.min_area_mm2 > 0)
-        min_px = (uint64_t)ceil(det->options.min_area_mm2 / (map->pitch_u * map->pitch_v) -
-                                1e-9);
-    uint32_t count;
-    rc = pl_detect__hysteresis(det->labels, &count, &det->regions_below_min_area, det->signal,
-                               det->width, det->height, det->low_threshold,
-                               det->high_threshold, min_px);
-    if (!rc) {
-        det->count = count;
-        rc = measure(det, map, &p);
+    return detect_prepared(out, &p, map, channel, 0, err);
+}
+
+PL_EXPORT int pl_detect_reference_level(const char *quantity)
+{
+    /* pulse-phase thermography's phase hardly follows the heating's
+     * pattern or the surface's emissivity (X. Maldague and S. Marinetti,
+     * "Pulse phase infrared thermography", J. Appl. Phys. 79(5), 1996) */
+    return quantity && (strcmp(quantity, "phase") == 0 || strcmp(quantity, "phase-contrast") == 0);
+}
+
+PL_EXPORT int pl_detect_on_reference(pl_detection **out, const pl_map *map, uint32_t channel,
+                                     const pl_detection *reference,
+                                     const pl_detect_options *opts, pl_err *err)
+{
+    assert(out && map && reference);
+    *out = NULL;
+    if (reference->width != map->width || reference->height != map->height)
+        return pl__err(err, PL_EINVAL,
+                       "the reference detection is of a %lu x %lu map, this map is %lu x %lu: "
+                       "lay the map on the reference's grid first",
+                       (unsigned long)reference->width, (unsigned long)reference->height,
+                       (unsigned long)map->width, (unsigned long)map->height);
+    prep p;
+    int rc = prepare(&p, map, channel, opts, err);
+    if (rc)
+        return rc;
+    if (strcmp(reference->quantity, map->channels[channel].quantity) != 0 ||
+        strcmp(reference->unit, map->channels[channel].unit) != 0 ||
+        reference->polarity != p.polarity) {
+        prep_free(&p);
+        return pl__err(err, PL_EINVAL,
+                       "channel %lu ('%s' in %s) is not of the reference detection's quantity "
+                       "('%s' in %s) or polarity",
+                       (unsigned long)channel, map->channels[channel].quantity,
+                       map->channels[channel].unit, reference->quantity, reference->unit);
     }
+    if (p.background != PL_BACKGROUND_LINE_MEDIAN || reference->background != p.background)
+        return detect_prepared(out, &p, map, channel, 0, err);
+    size_t np = (size_t)p.w * p.h;
+    float *d = malloc(np * sizeof *d);
+    if (!d) {
+        prep_free(&p);
+        return pl__err(err, PL_ENOMEM, "out of memory detecting on a map of %lu x %lu",
+                       (unsigned long)p.w, (unsigned long)p.h);
+    }
+    const float *rb = reference->background_map;
+    for (size_t i = 0; i < np; i++)
+        d[i] = p.bmap[i] - rb[i]; /* NaN where either has no data */
+    double offset;
+    rc = finite_median(&offset, d, np);
+    free(d);
     if (rc) {
-        pl_detection_free(det);
-        return pl__err(err, rc, "out of memory measuring indications");
+        prep_free(&p);
+        return pl__err(err, PL_ENOMEM, "out of memory detecting on a map of %lu x %lu",
+                       (unsigned long)p.w, (unsigned long)p.h);
     }
-    *out = det;
-    return PL_OK;
+    if (isnan(offset)) /* no pixel with data in both */
+        return detect_prepared(out, &p, map, channel, 0, err);
+    float pol = (float)p.polarity;
+    for (size_t i = 0; i < np; i++) {
+        float own = p.bmap[i], ref = rb[i] + (float)offset;
+        if (own != own || ref != ref)
+            continue;
+        /* the level nearer the signal's sound side: an indication that grew
+         * raised (or lowered) this map's own background under it */
+        float b = pol > 0 ? fminf(own, ref) : fmaxf(own, ref);
+        p.bmap[i] = b;
+        p.signal[i] = pol * (p.values[i] - b);
+    }
+    if (finite_median(&p.background_level, p.bmap, np)) {
+        prep_free(&p);
+        return pl__err(err, PL_ENOMEM, "out of memory detecting on a map of %lu x %lu",
+                       (unsigned long)p.w, (unsigned long)p.h);
+    }
+    return detect_prepared(out, &p, map, channel, 1, err);
 }
 
 PL_EXPORT int pl_detect_measure(pl_detection **out, const pl_map *map, uint32_t channel,
@@ -1047,6 +1130,7 @@ PL_EXPORT int pl_detection_json(char **out, const pl_detection *det, pl_err *err
         if (b) {
             cJSON_AddStringToObject(b, "method", pl_background_name(det->background));
             add_number(b, "level", det->background_level);
+            cJSON_AddBoolToObject(b, "with_reference", det->reference_level);
         }
         cJSON *nz = cJSON_AddObjectToObject(j, "noise");
         if (nz) {

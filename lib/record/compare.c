@@ -504,7 +504,13 @@ static int compare_loaded(pl_site_comparison *sc, const pl_map *cur, const pl_co
     if (isnan(dcur.noise) && rcc >= 0 &&
         (rc = pl_detect_noise(&dcur.noise, NULL, cur, (uint32_t)rcc, &d, err)))
         return rc;
-    if ((rc = pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &dcur, err)))
+    /* a quantity whose sound level is the part's takes the reference's
+     * level too (pl_detect_on_reference()) */
+    rc = pl_detect_reference_level(sc->quantity)
+             ? pl_detect_on_reference(&sc->current_detection, sc->aligned, sc->aligned_channel,
+                                      sc->reference_detection, &dcur, err)
+             : pl_detect(&sc->current_detection, sc->aligned, sc->aligned_channel, &dcur, err);
+    if (rc)
         return rc;
     pl_change_input in = PL_CHANGE_INPUT_INIT;
     in.baseline = sc->reference_data;

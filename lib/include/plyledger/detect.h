@@ -41,6 +41,9 @@
  *      than 3/8 of the window is partly taken into the background (sized
  *      smaller, its contrast lower), and one longer than half the window
  *      along a row, a column or a diagonal is taken for substructure there.
+ *      A reinspection of a phase quantity laid on its reference's grid
+ *      takes the reference's level too (pl_detect_on_reference()), so
+ *      that an indication that grew past that width keeps its size.
  *      PL_BACKGROUND_MEDIAN: the median of the channel over the pixels with
  *      data (for maps without shading or substructure).
  *      PL_BACKGROUND_ZERO: b = 0, for values that already are a contrast
@@ -281,6 +284,8 @@ typedef struct pl_detection {
     float *signal;                   /**< width * height: polarity x (value - b),
                                           NaN without data */
     float *background_map;           /**< width * height: b (NaN without data) */
+    int reference_level;             /**< 1: b was taken with a reference
+                                          detection's (pl_detect_on_reference()) */
     pl_detect_options options;       /**< as used, defaults filled in */
 } pl_detection;
 
@@ -308,6 +313,47 @@ PL_EXPORT int pl_detect_options_check(const pl_detect_options *opts, pl_err *err
  */
 PL_EXPORT int pl_detect(pl_detection **out, const pl_map *map, uint32_t channel,
                         const pl_detect_options *opts, pl_err *err);
+
+/**
+ * Detect on a reinspection map laid on the reference's grid (registered
+ * and resampled), taking the sound level with the reference detection's.
+ * A line-median background follows an indication that is wider than 3/8
+ * of the window (see the introduction): when a disbond grows from 12 to
+ * 25 mm between two inspections, the current map's own background rises
+ * under it and the growth is undersized (by half on the sample fleet's
+ * door-corner disbond). The reference's background was taken while the
+ * indication was smaller. So, pixel by pixel, b is the one of the two
+ * nearer the sound side of the signal (the lesser where the quantity
+ * rises over a defect, the greater where it falls): this map's own line
+ * median, or the reference's plus the median over the pixels with data
+ * in both of (own - reference), which takes out a change of the whole
+ * level between the acquisitions. Everything else is as pl_detect()
+ * (the noise is this map's own). A background other than the line median
+ * in either detection is used as pl_detect() would (reference_level 0).
+ * Take it only for quantities whose sound level is the part's and not the
+ * acquisition's (pl_detect_reference_level()): a temperature contrast
+ * carries each flash's own pattern, which the reference's level would
+ * turn into indications.
+ * @param reference  pl_detect() of the reference map's channel of the same
+ *                   quantity and unit, on a map of the same size
+ * @return as pl_detect(); PL_EINVAL also for a reference of another size,
+ *         quantity, unit or polarity.
+ */
+PL_EXPORT int pl_detect_on_reference(pl_detection **out, const pl_map *map, uint32_t channel,
+                                     const pl_detection *reference,
+                                     const pl_detect_options *opts, pl_err *err);
+
+/**
+ * 1 when a reinspection of `quantity` should be detected with its
+ * reference's sound level (pl_detect_on_reference()): phase and
+ * phase-contrast, which hardly follow the heating's pattern or the
+ * emissivity (Maldague and Marinetti 1996, J. Appl. Phys. 79(5)). 0 for
+ * every other quantity (a temperature contrast or log-derivative carries
+ * the flash's pattern of that acquisition; an ultrasonic amplitude the
+ * couplant and gain of that scan; a quantity compared with nominal has
+ * no background of its own).
+ */
+PL_EXPORT int pl_detect_reference_level(const char *quantity);
 
 /**
  * Measure given regions of channel `channel`: background, signal and noise
