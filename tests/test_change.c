@@ -14,7 +14,8 @@
  * the library does not pass yet (see test_change__simulated_ground_truth);
  * "study-phase" runs it on the phase contrast instead, with disbonds of 10
  * to 13 mm and of 18 to 22 mm (grown to 23 to 33 mm: past 3/8 of the
- * detection's background window), by hand (tests/bench/README.md).
+ * detection's background window), by hand, and prints without judging
+ * (tests/bench/README.md).
  */
 #include "plyledger/change.h"
 #include "plyledger/detect.h"
@@ -42,6 +43,7 @@ static int strict;
  * first phase-contrast channel in "study-phase". */
 static const char *gt_quantity = "temperature-contrast";
 static double gt_dmin = 10.0, gt_dspan = 3.0;
+static int gt_report_only;
 
 /* ---- analytic maps ----------------------------------------------------------------- */
 
@@ -1211,6 +1213,8 @@ static void gt_run(size_t per_kind, unsigned kinds, double nonu)
                    "%+.0f) over %lu stable disbonds\n",
                    pl_sizing_name((pl_sizing)r), st.stable_sum[r] / (double)st.stable_n,
                    st.stable_min[r], st.stable_max[r], (unsigned long)st.stable_n);
+    if (gt_report_only) /* "study-phase": a measurement, printed only */
+        return;
     assert_int_equal(fails, 0);
     /* the aim, no false call, holds under a uniform flash; under a flash
      * that differs between the acquisitions only study-strict enforces it */
@@ -1262,6 +1266,7 @@ int main(int argc, char **argv)
     if (argc == 2 && strcmp(argv[1], "study-phase") == 0) {
         static char study_arg[] = "study";
         gt_quantity = "phase-contrast";
+        gt_report_only = 1;
         argv[1] = study_arg;
     }
     if (argc == 2 && strcmp(argv[1], "study-strict") == 0) {
