@@ -187,6 +187,10 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     }
     if (rc)
         return cli_fail_err(rc, &err);
+    /* a migration a person should hear of (the hash chain's, for one) */
+    const char *note = pl_store_migration_note(*out);
+    if (note[0] && !common->quiet)
+        fprintf(stderr, "plyledger: %s\n", note);
     /* the library reads no clock: today is the local calendar date here */
     char today[16];
     time_t now = time(NULL);

@@ -226,6 +226,7 @@ int cmd_simulate(int argc, char **argv);
 int cmd_reduce(int argc, char **argv);
 int cmd_register(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
+int cmd_verify(int argc, char **argv);
 int cmd_version(int argc, char **argv);
 int cmd_help(int argc, char **argv);
 

@@ -60,6 +60,7 @@ int cmd_summary(int argc, char **argv)
     printf("registrations %lld\n", (long long)s.registrations);
     printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
            (long long)s.comparisons, (long long)s.dispositions);
+    printf("ledger       %lld links (plyledger verify checks them)\n", (long long)s.ledger_links);
     cli_print_caution();
     return CLI_OK;
 }

@@ -581,8 +581,11 @@ static void fill_every_table(fixture *f)
              "INSERT INTO disposition (comparison_id, decision, engineer, recorded_at)"
              " VALUES (1, 'accept', 'A. Engineer', 'now');"
              "INSERT INTO disposition_change (disposition_id, change_id) VALUES (1, 1);"
-             "INSERT INTO ledger (airframe_key, seq, table_name, row_id, row_sha256,"
-             " prev_link, link, recorded_at) VALUES (1, 1, 'airframe', 1, 'x', 'y', 'z', 'now')");
+             "INSERT INTO ledger (chain, seq, table_name, row_id, encoding, row_sha256,"
+             " prev_link, link, recorded_at) VALUES (1, 99, 'airframe', 999, 1, '"
+             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', '"
+             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', '"
+             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', 'now')");
     sqlite3_close(db);
 }
 
@@ -1921,7 +1924,14 @@ static void test_store__summary_counts_the_record(void **state)
     assert_int_equal(sum.inspections_by_kind[2], 1);
     assert_int_equal(sum.inspections_by_kind[3], 1);
     assert_int_equal(sum.corrections, 1);
-    assert_int_equal(sum.indications + sum.comparisons + sum.dispositions + sum.ledger_links, 0);
+    assert_int_equal(sum.indications + sum.comparisons + sum.dispositions, 0);
+    /* one ledger link for every recorded row (plyledger/ledger.h) */
+    sqlite3 *db = raw_open(f->path);
+    assert_int_equal(sum.ledger_links,
+                     raw_int(db, "SELECT (SELECT count(*) FROM airframe) + (SELECT count(*) "
+                                 "FROM airframe_operator) + (SELECT count(*) FROM site) + "
+                                 "(SELECT count(*) FROM inspection) + (SELECT count(*) FROM map)"));
+    sqlite3_close(db);
     assert_int_equal(sum.map_bytes, (int64_t)(out1.stored_bytes + out2.stored_bytes));
     assert_string_equal(sum.first_inspection, "2016-01-10");
     assert_string_equal(sum.last_inspection, "2023-02-03");

@@ -29,5 +29,6 @@
 #include "plyledger/criteria.h"
 #include "plyledger/change.h"
 #include "plyledger/compare.h"
+#include "plyledger/ledger.h"
 
 #endif

@@ -388,6 +388,11 @@ PL_EXPORT int pl_store_set_today(pl_store *s, const char *today, pl_err *err)
     return PL_OK;
 }
 
+PL_EXPORT const char *pl_store_migration_note(const pl_store *s)
+{
+    return s ? s->migration_note : "";
+}
+
 PL_EXPORT int pl_store_schema_version(const pl_store *s)
 {
     assert(s);
@@ -474,12 +479,25 @@ static int migrate(pl_store *s, pl_err *err)
                 rc = pl__err(err, PL_EDB, "%s: migration %s failed: %s", s->path, m->name,
                              sqlite3_errmsg(s->db));
             } else {
-                char name[32], value[160], now[PL_DATE_SIZE], sql[64];
+                char name[32], value[256], now[PL_DATE_SIZE], sql[64], chained[96] = "";
+                int64_t n = 0;
+                /* the hash chain's migration chains the rows already recorded */
+                if (m->version == PL_STORE_LEDGER_SCHEMA &&
+                    !(rc = pl_ledger__chain_all(s, &n, err)) && n > 0) {
+                    snprintf(chained, sizeof chained,
+                             "; chained the %lld rows recorded before the hash chain existed",
+                             (long long)n);
+                    snprintf(s->migration_note, sizeof s->migration_note,
+                             "%s: migrated to schema %d: chained the %lld rows recorded "
+                             "before the hash chain existed",
+                             s->path, m->version, (long long)n);
+                }
                 pl_store__now(now);
                 snprintf(name, sizeof name, "schema.%04d", m->version);
-                snprintf(value, sizeof value, "%s applied %s by plyledger %s", m->name, now,
-                         pl_version());
-                rc = info_insert(s, name, value, err);
+                snprintf(value, sizeof value, "%s applied %s by plyledger %s%s", m->name, now,
+                         pl_version(), chained);
+                if (!rc)
+                    rc = info_insert(s, name, value, err);
                 snprintf(sql, sizeof sql, "PRAGMA user_version = %d", m->version);
                 if (!rc)
                     rc = pl_store__exec(s, sql, err);

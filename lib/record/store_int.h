@@ -37,6 +37,7 @@ struct pl_store {
     double wait_s;                         /* how long a write waits for another's lock */
     struct timespec busy_since;            /* when the current wait began */
     char today[PL_DATE_SIZE];              /* pl_store_set_today(), or "" */
+    char migration_note[256];              /* what opening migrated, or "" */
 };
 
 /* A fixed text field as printf arguments: "%.*s" never reads past it. */
@@ -314,12 +315,24 @@ void pl_row__set_correction(pl_row *row, pl_id key, pl_id supersedes, const char
  * with the new id and its position, all inside the caller's write scope
  * (pl_store__write_begin()). The row's canonical encoding is computed here
  * too, so a row that could not be encoded never enters; its SHA-256 is kept
- * in store->last_row. This is where every row's ledger link will be
- * appended. *id (may be NULL) gets the new id.
+ * in store->last_row, and the row is appended to its chain in the ledger
+ * (pl_ledger__append()). *id (may be NULL) gets the new id.
  * Returns PL_OK, PL_EINVAL (a value without canonical form, a constraint),
  * PL_EEXISTS, PL_ENOTFOUND, PL_EDB, PL_ENOMEM.
  */
 int pl_store__insert(pl_store *s, pl_row *row, pl_id *id, pl_err *err, const char *label);
+
+/* ---- the ledger (ledger.c) ---------------------------------------------------- */
+
+/* Append row `id` of `table`, whose canonical encoding hashes to
+ * `row_sha256`, to its chain (plyledger/ledger.h), inside the caller's
+ * write scope. */
+int pl_ledger__append(pl_store *s, pl_table table, pl_id id,
+                      const unsigned char row_sha256[32], pl_err *err, const char *label);
+
+/* Chain every recorded row that has no link yet, in the order they were
+ * recorded (migration 6); *count gets how many. */
+int pl_ledger__chain_all(pl_store *s, int64_t *count, pl_err *err);
 
 /* Insert `row` as one atomic call of its own: pl_store__insert() inside
  * pl_store__write_begin() / _end(). */

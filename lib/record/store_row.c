@@ -1539,6 +1539,8 @@ int pl_store__insert(pl_store *s, pl_row *row, pl_id *id, pl_err *err, const cha
             pl_sha256(s->last_row, e.p, e.n);
         free(e.p);
     }
+    if (!rc)
+        rc = pl_ledger__append(s, t->id, newid, s->last_row, err, label);
     if (!rc && id)
         *id = newid;
     return rc;

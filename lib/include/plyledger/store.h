@@ -129,6 +129,14 @@ PL_EXPORT void pl_store_close(pl_store *store);
 /** Schema version of the open store. */
 PL_EXPORT int pl_store_schema_version(const pl_store *store);
 
+/** The schema version that brought the hash chain (plyledger/ledger.h). */
+#define PL_STORE_LEDGER_SCHEMA 6
+
+/** What opening the store migrated that a person should hear of (a store
+ * written before the hash chain existed is chained when it is migrated),
+ * one sentence; "" when nothing. Valid until the store is closed. */
+PL_EXPORT const char *pl_store_migration_note(const pl_store *store);
+
 /** How long a writer waits for another's write lock by default (seconds). */
 #define PL_STORE_WAIT_DEFAULT_S 60.0
 /** The longest wait pl_store_set_wait() takes (seconds): one hour. */
