@@ -12,6 +12,7 @@
 #include "plyledger/common.h"
 #include "plyledger/version.h"
 #include "plyledger/hash.h"
+#include "plyledger/sign.h"
 #include "plyledger/outfile.h"
 #include "plyledger/npy.h"
 #include "plyledger/map.h"
