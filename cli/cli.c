@@ -93,9 +93,10 @@ int cli_help(const char *text)
 }
 
 /* The options every command takes, appended after the command's own. */
-enum { OPT_JSON = 0x1001, OPT_HELP_LONG, OPT_WAIT };
+enum { OPT_JSON = 0x1001, OPT_HELP_LONG, OPT_WAIT, OPT_SEAL_KEY };
 static const struct option common_options[] = {
     { "store", required_argument, NULL, 's' },
+    { "seal-key", required_argument, NULL, OPT_SEAL_KEY },
     { "json", no_argument, NULL, OPT_JSON },
     { "wait", required_argument, NULL, OPT_WAIT },
     { "quiet", no_argument, NULL, 'q' },
@@ -124,6 +125,9 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
     common->store = getenv("PLYLEDGER_STORE");
     if (common->store && !*common->store)
         common->store = NULL;
+    common->seal_key = getenv("PLYLEDGER_SEAL_KEY");
+    if (common->seal_key && !*common->seal_key)
+        common->seal_key = NULL;
     optind = 1;
     opterr = 0;
     int rc = -1, opt, li = -1;
@@ -141,6 +145,7 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
         switch (opt) {
         case 's': common->store = optarg; break;
         case 'q': common->quiet = 1; break;
+        case OPT_SEAL_KEY: common->seal_key = optarg; break;
         case OPT_JSON: common->json = 1; break;
         case OPT_WAIT:
             if (cli_number("--wait", optarg, &common->wait_s, usage))
@@ -180,6 +185,8 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     if (!common->store)
         return cli_usage_error(NULL, "no store given: use --store PATH or set PLYLEDGER_STORE");
     pl_err err = { 0 };
+    int no_key = (flags & CLI_STORE_NO_SEAL_KEY) != 0;
+    flags &= ~CLI_STORE_NO_SEAL_KEY;
     int rc = pl_store_open(out, common->store, flags, &err);
     if (!rc && !isnan(common->wait_s) && (rc = pl_store_set_wait(*out, common->wait_s, &err))) {
         pl_store_close(*out);
@@ -187,6 +194,32 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
     }
     if (rc)
         return cli_fail_err(rc, &err);
+    /* a sealed store records nothing without its seal key */
+    if (!no_key && !(flags & PL_STORE_READONLY) && pl_store_sealed(*out, NULL)) {
+        char path[4096];
+        pl_sign_key key;
+        if (!cli_seal_key_path(common, path, sizeof path)) {
+            pl_store_close(*out);
+            *out = NULL;
+            return cli_fail("the seal key's path is too long");
+        }
+        rc = pl_key_load(path, &key, &err);
+        if (rc == PL_ENOTFOUND) {
+            pl_store_close(*out);
+            *out = NULL;
+            return cli_fail("%s is sealed, and writing to it needs its seal key: %s is not "
+                            "there (give --seal-key FILE or set PLYLEDGER_SEAL_KEY)",
+                            common->store, path);
+        }
+        if (!rc)
+            rc = pl_store_set_seal_key(*out, &key, &err);
+        pl_sign_key_wipe(&key);
+        if (rc) {
+            pl_store_close(*out);
+            *out = NULL;
+            return cli_fail_err(rc, &err);
+        }
+    }
     /* a migration a person should hear of (the hash chain's, for one) */
     const char *note = pl_store_migration_note(*out);
     if (note[0] && !common->quiet)
@@ -202,6 +235,23 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
         return rc ? cli_fail_err(rc, &err) : cli_fail("cannot read today's date from the clock");
     }
     return CLI_OK;
+}
+
+void cli_remove_store(const char *path)
+{
+    char buf[4200];
+    unlink(path);
+    if (snprintf(buf, sizeof buf, "%s-wal", path) < (int)sizeof buf)
+        unlink(buf);
+    if (snprintf(buf, sizeof buf, "%s-shm", path) < (int)sizeof buf)
+        unlink(buf);
+}
+
+const char *cli_seal_key_path(const cli_common *common, char *buf, size_t cap)
+{
+    int n = common->seal_key ? snprintf(buf, cap, "%s", common->seal_key)
+                             : snprintf(buf, cap, "%s.seal-key", common->store ? common->store : "");
+    return n >= 0 && (size_t)n < cap ? buf : NULL;
 }
 
 int cli_guard_output(const cli_common *common, const char *path)

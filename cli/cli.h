@@ -40,6 +40,7 @@ typedef struct cli_common {
     int quiet;          /* -q / --quiet */
     double wait_s;      /* --wait: how long a write waits for another writer; NaN: the
                            library's default */
+    const char *seal_key; /* --seal-key, else $PLYLEDGER_SEAL_KEY; NULL: STORE.seal-key */
 } cli_common;
 
 /* The command being run, for messages ("plyledger record: ..."). */
@@ -76,9 +77,20 @@ int cli_parse(int argc, char **argv, const char *shortopts, const struct option 
 
 
 /* Open the store named by common->store, with the wait of --wait; prints
- * the failure itself. Returns CLI_OK with *out set, or CLI_ERROR /
- * CLI_USAGE. */
+ * the failure itself. A sealed store opened for writing gets its seal key
+ * (cli_seal_key_path()) unless flags hold CLI_STORE_NO_SEAL_KEY (a command
+ * that writes nothing but a migration). Returns CLI_OK with *out set, or
+ * CLI_ERROR / CLI_USAGE. */
+#define CLI_STORE_NO_SEAL_KEY 0x10000u
 int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
+
+/* The seal key file of the store: --seal-key, $PLYLEDGER_SEAL_KEY, else
+ * the store's path with ".seal-key" appended. Into buf; returns buf, or
+ * NULL when it does not fit. */
+const char *cli_seal_key_path(const cli_common *common, char *buf, size_t cap);
+
+/* Remove a store that a failed command made, with its -wal and -shm. */
+void cli_remove_store(const char *path);
 
 /* Refuse an output file that is the store named by common->store (from
  * --store or $PLYLEDGER_STORE, opened or not) or one of its SQLite files;
@@ -227,6 +239,7 @@ int cmd_reduce(int argc, char **argv);
 int cmd_register(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
+int cmd_seal(int argc, char **argv);
 int cmd_version(int argc, char **argv);
 int cmd_help(int argc, char **argv);
 

@@ -61,6 +61,10 @@ int cmd_summary(int argc, char **argv)
     printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
            (long long)s.comparisons, (long long)s.dispositions);
     printf("ledger       %lld links (plyledger verify checks them)\n", (long long)s.ledger_links);
+    if (s.seal_key[0])
+        printf("sealed       with seal key %s\n", s.seal_key);
+    else
+        printf("sealed       NO (plyledger seal seals it)\n");
     cli_print_caution();
     return CLI_OK;
 }

@@ -20,11 +20,14 @@ static const char help[] =
     "first: its rows are chained in the order they were recorded, and verify\n"
     "says so.\n"
     "\n"
-    "A chain alone cannot tell a forged row appended with a correctly computed\n"
-    "link from a true one, nor a chain cut together with its rows. Keep the heads\n"
-    "of the chains outside the store (--keep-heads, for example after each check\n"
-    "or with a hand-over) and verify against them later (--heads): a chain that\n"
-    "no longer holds the link it held then fails.\n"
+    "A sealed store (every store made by plyledger create; an older one after\n"
+    "plyledger seal) signs every link with its seal key, whose secret half is a\n"
+    "key file outside the store: verify holds every link to a valid seal, so a\n"
+    "row appended outside plyledger with a correctly computed link is a fault.\n"
+    "Verify needs no key. Against a chain cut together with its rows, or a store\n"
+    "resealed with another key, keep the heads of the chains and the seal key's\n"
+    "fingerprint outside the store (--keep-heads, for example after each check or\n"
+    "with a hand-over) and verify against them later (--heads).\n"
     "\n"
     "Options:\n"
     "      --heads FILE       also check the chains against heads kept earlier\n"
@@ -111,11 +114,12 @@ int cmd_verify(int argc, char **argv)
     pl_err err = { 0 };
     pl_chain_head *kept = NULL;
     size_t nkept = 0;
+    char kept_key[PL_SIGN_FINGERPRINT_SIZE] = "";
     if (a.heads) {
         char *text = NULL;
         if ((rc = read_text(a.heads, &text)))
             return rc;
-        int st = pl_heads_parse(&kept, &nkept, text, a.heads, &err);
+        int st = pl_heads_parse(&kept, &nkept, kept_key, text, a.heads, &err);
         free(text);
         if (st)
             return cli_fail_err(st, &err);
@@ -123,7 +127,7 @@ int cmd_verify(int argc, char **argv)
     /* opened for writing so that a store older than the hash chain is
      * migrated (and chained, which the migration says) before it is checked */
     pl_store *store;
-    if ((rc = cli_open_store(&store, &common, 0))) {
+    if ((rc = cli_open_store(&store, &common, CLI_STORE_NO_SEAL_KEY))) {
         free(kept);
         return rc;
     }
@@ -132,6 +136,7 @@ int cmd_verify(int argc, char **argv)
     pl_verify_options o = PL_VERIFY_OPTIONS_INIT;
     o.heads = kept;
     o.nheads = nkept;
+    o.seal_key = kept_key;
     o.progress = cli_progress_fn;
     o.userdata = &prog;
     pl_verify_result res;
@@ -153,7 +158,7 @@ int cmd_verify(int argc, char **argv)
     if (a.keep && res.faults == 0) {
         char *text = NULL;
         pl_outfile *of = NULL;
-        if ((st = pl_heads_json(&text, sum.store_id, heads, nheads, &err)) == 0 &&
+        if ((st = pl_heads_json(&text, sum.store_id, res.seal_key, heads, nheads, &err)) == 0 &&
             (rc = cli_open_output(&of, &common, a.keep)) == 0) {
             fputs(text, pl_outfile_stream(of));
             fputc('\n', pl_outfile_stream(of));
@@ -181,6 +186,13 @@ int cmd_verify(int argc, char **argv)
             cJSON_AddNumberToObject(j, "links", (double)res.links);
             cJSON_AddNumberToObject(j, "rows", (double)res.rows);
             cJSON_AddNumberToObject(j, "maps", (double)res.maps);
+            cJSON_AddBoolToObject(j, "sealed", res.sealed);
+            if (res.sealed)
+                cJSON_AddStringToObject(j, "seal_key", res.seal_key);
+            else
+                cJSON_AddNullToObject(j, "seal_key");
+            cJSON_AddNumberToObject(j, "seals", (double)res.seals);
+            cJSON_AddNumberToObject(j, "signatures", (double)res.signatures);
             cJSON *list = cJSON_AddArrayToObject(j, "heads");
             for (size_t i = 0; list && i < nheads; i++) {
                 cJSON *h = cJSON_CreateObject();
@@ -215,6 +227,12 @@ int cmd_verify(int argc, char **argv)
                "decoded and compared\n",
                common.store, (unsigned long)res.chains, (unsigned long)res.links,
                (unsigned long)res.rows, (unsigned long)res.maps);
+        if (res.sealed)
+            printf("sealed with seal key %s: %lu seals checked; %lu signatures checked\n",
+                   res.seal_key, (unsigned long)res.seals, (unsigned long)res.signatures);
+        else
+            printf("NOT sealed: a row appended outside plyledger with a correctly computed "
+                   "link cannot be told from a true one (seal it: plyledger seal)\n");
         for (size_t i = 0; i < nheads; i++)
             printf("  %-24s link %-6lld %s\n",
                    heads[i].chain ? heads[i].serial : "(store: criteria sets)",

@@ -15,6 +15,7 @@ const cli_command cli_commands[] = {
     { "record", cmd_record, "record inspections of one or many sites with their maps" },
     { "register", cmd_register, "align a site's reinspection map onto its baseline and record it" },
     { "compare", cmd_compare, "what changed at a site or a whole check against its baseline, under written criteria" },
+    { "seal", cmd_seal, "seal an older store: sign every link with a new seal key" },
     { "verify", cmd_verify, "check that the record is as it was written (hash chain, maps, triggers)" },
     { "correct", cmd_correct, "correct a recorded inspection or site, with a reason" },
     { "airframes", cmd_airframes, "list airframes" },

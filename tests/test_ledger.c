@@ -24,6 +24,8 @@
 #include "plyledger/hash.h"
 #include "plyledger/ledger.h"
 #include "plyledger/map.h"
+#include "plyledger/sign.h"
+#include "plyledger/store_row.h"
 #include "plyledger/store.h"
 #include "testutil.h"
 
@@ -268,8 +270,10 @@ static void test_ledger__migration_chains_an_older_store(void **state)
         " BEGIN SELECT RAISE(ABORT, 'ledger is append-only'); END;"
         "CREATE TRIGGER ledger_no_delete BEFORE DELETE ON ledger"
         " BEGIN SELECT RAISE(ABORT, 'ledger is append-only'); END;"
+        "DROP TABLE ledger_seal; DROP TABLE seal_key;"
         "PRAGMA user_version = 5");
-    tamper(f->path, "store_info_no_delete", "DELETE FROM store_info WHERE name = 'schema.0006'");
+    tamper(f->path, "store_info_no_delete",
+           "DELETE FROM store_info WHERE name IN ('schema.0006', 'schema.0007')");
     pl_store *st;
     pl_err err = { 0 };
     TU_OK(pl_store_open(&st, f->path, 0, &err));
@@ -303,10 +307,12 @@ static void test_ledger__heads_kept_outside_catch_a_cut(void **state)
     assert_string_equal(h[1].serial, "TLX-0001");
     assert_int_equal(h[1].seq, 7);
     char *text;
-    TU_OK(pl_heads_json(&text, "id", h, n, &err));
+    TU_OK(pl_heads_json(&text, "id", NULL, h, n, &err));
     pl_chain_head *back;
     size_t nb;
-    TU_OK(pl_heads_parse(&back, &nb, text, "heads.json", &err));
+    char fp[PL_SIGN_FINGERPRINT_SIZE] = "x";
+    TU_OK(pl_heads_parse(&back, &nb, fp, text, "heads.json", &err));
+    assert_string_equal(fp, "");
     free(text);
     assert_int_equal(nb, n);
     for (size_t i = 0; i < n; i++) {
@@ -333,6 +339,185 @@ static void test_ledger__heads_kept_outside_catch_a_cut(void **state)
     free(h);
 }
 
+/* Append a forged site row to airframe TLX-0001 with its link computed as
+ * plyledger would (row hash from the library's own encoder, link from
+ * pl_ledger_link()): what a writer who knows the encoding can do. */
+static void forge_append(const char *path)
+{
+    raw(path, "CREATE TEMP TABLE t AS SELECT * FROM site WHERE code = 'F01';"
+              " UPDATE t SET id = (SELECT max(id) + 1 FROM site), code = 'F99';"
+              " INSERT INTO site SELECT * FROM t");
+    pl_store *st;
+    pl_err err = { 0 };
+    TU_OK(pl_store_open(&st, path, PL_STORE_READONLY, &err));
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    sqlite3_stmt *q;
+    assert_int_equal(sqlite3_prepare_v2(db,
+                                        "SELECT (SELECT id FROM site WHERE code = 'F99'),"
+                                        " seq, link FROM ledger WHERE chain = 1 ORDER BY seq DESC"
+                                        " LIMIT 1",
+                                        -1, &q, NULL),
+                     SQLITE_OK);
+    assert_int_equal(sqlite3_step(q), SQLITE_ROW);
+    pl_id id = sqlite3_column_int64(q, 0);
+    int64_t seq = sqlite3_column_int64(q, 1) + 1;
+    unsigned char prev[32], row[32], link[32];
+    TU_OK(pl_sha256_from_hex(prev, (const char *)sqlite3_column_text(q, 2)));
+    sqlite3_finalize(q);
+    unsigned char *enc;
+    size_t n;
+    TU_OK(pl_store_row_encode(&enc, &n, st, PL_TABLE_SITE, id, &err));
+    pl_store_close(st);
+    pl_sha256(row, enc, n);
+    free(enc);
+    pl_ledger_link(link, prev, seq, "site", id, PL_ROW_ENCODING_VERSION, row);
+    char hr[65], hp[65], hl[65], sql[1024];
+    pl_sha256_hex(hr, row);
+    pl_sha256_hex(hp, prev);
+    pl_sha256_hex(hl, link);
+    snprintf(sql, sizeof sql,
+             "INSERT INTO ledger (chain, seq, table_name, row_id, encoding, row_sha256,"
+             " prev_link, link, recorded_at) VALUES (1, %lld, 'site', %lld, 1, '%s', '%s', '%s',"
+             " '2030-01-01T00:00:00.000Z')",
+             (long long)seq, (long long)id, hr, hp, hl);
+    assert_int_equal(sqlite3_exec(db, sql, NULL, NULL, NULL), SQLITE_OK);
+    sqlite3_close(db);
+}
+
+static void tu_copy_file(const char *from, const char *to)
+{
+    size_t n;
+    unsigned char *b = tu_read_file(from, &n);
+    assert_non_null(b);
+    assert_int_equal(tu_write_file(to, b, n), 0);
+    free(b);
+}
+
+static void make_key(pl_sign_key *key, unsigned char fill_byte)
+{
+    unsigned char seed[32];
+    memset(seed, fill_byte, sizeof seed);
+    pl_sign_key_from_seed(key, seed);
+}
+
+/* A forged append with a correctly computed link: whole to an unsealed
+ * store's chain, a fault in a sealed one. */
+static void test_ledger__a_seal_catches_a_forged_append(void **state)
+{
+    fixture *f = *state;
+    fill(f->path);
+    char *copy = tu_path(f->dir, "unsealed.db");
+    tu_copy_file(f->path, copy);
+    forge_append(copy);
+    assert_int_equal(verify(copy, NULL).faults, 0); /* the limit of a chain alone */
+    free(copy);
+
+    pl_store *st;
+    pl_err err = { 0 };
+    pl_sign_key key;
+    make_key(&key, 7);
+    TU_OK(pl_store_open(&st, f->path, 0, &err));
+    assert_int_equal(pl_store_sealed(st, NULL), 0);
+    TU_OK(pl_store_seal(st, &key, &err));
+    assert_int_equal(pl_store_seal(st, &key, &err), PL_EEXISTS);
+    /* what it records from now on is sealed too */
+    TU_OK(pl_store_add_operator(st, "TLX-0002", "Operator C", "2021-01-01", &err));
+    pl_store_close(st);
+    pl_verify_result res = verify(f->path, NULL);
+    if (res.faults)
+        fail_msg("%s", res.message);
+    assert_int_equal(res.sealed, 1);
+    assert_int_equal(res.seals, 10);
+    char fp[PL_SIGN_FINGERPRINT_SIZE];
+    pl_sign_fingerprint(fp, key.public_key);
+    assert_string_equal(res.seal_key, fp);
+
+    forge_append(f->path);
+    res = verify(f->path, NULL);
+    assert_int_equal(res.first, PL_FAULT_SEAL);
+    assert_int_equal(res.faults, 1);
+    tu_assert_msg_has(res.message, "airframe TLX-0001: site record");
+    tu_assert_msg_has(res.message, "carries no seal");
+}
+
+/* A sealed store records nothing without its key, or with another key. */
+static void test_ledger__a_sealed_store_needs_its_key(void **state)
+{
+    fixture *f = *state;
+    fill(f->path);
+    pl_store *st;
+    pl_err err = { 0 };
+    pl_sign_key key, other;
+    make_key(&key, 7);
+    make_key(&other, 8);
+    TU_OK(pl_store_open(&st, f->path, 0, &err));
+    TU_OK(pl_store_seal(st, &key, &err));
+    pl_store_close(st);
+    TU_OK(pl_store_open(&st, f->path, 0, &err));
+    assert_int_equal(pl_store_sealed(st, NULL), 1);
+    assert_int_equal(pl_store_add_operator(st, "TLX-0002", "Operator C", "2021-01-01", &err),
+                     PL_EREFUSED);
+    tu_assert_msg_has(err.msg, "needs its seal key");
+    assert_int_equal(pl_store_set_seal_key(st, &other, &err), PL_EREFUSED);
+    tu_assert_msg_has(err.msg, "is not this store's seal key");
+    pl_store_summary sum;
+    TU_OK(pl_store_summarize(st, &sum, &err));
+    assert_int_equal(sum.ledger_links, 9); /* nothing was recorded */
+    TU_OK(pl_store_set_seal_key(st, &key, &err));
+    TU_OK(pl_store_add_operator(st, "TLX-0002", "Operator C", "2021-01-01", &err));
+    pl_store_close(st);
+    assert_int_equal(verify(f->path, NULL).faults, 0);
+}
+
+/* Seals altered or removed, and a store resealed with another key. */
+static void test_ledger__seal_attacks_are_named(void **state)
+{
+    fixture *f = *state;
+    fill(f->path);
+    pl_store *st;
+    pl_err err = { 0 };
+    pl_sign_key key, other;
+    make_key(&key, 7);
+    make_key(&other, 8);
+    TU_OK(pl_store_open(&st, f->path, 0, &err));
+    TU_OK(pl_store_seal(st, &key, &err));
+    pl_store_close(st);
+    char fp[PL_SIGN_FINGERPRINT_SIZE];
+    pl_sign_fingerprint(fp, key.public_key);
+    char *a = tu_path(f->dir, "a.db"), *b = tu_path(f->dir, "b.db"), *c = tu_path(f->dir, "c.db");
+    tu_copy_file(f->path, a);
+    tu_copy_file(f->path, b);
+    tu_copy_file(f->path, c);
+    /* one seal's bytes changed */
+    tamper(a, "ledger_seal_no_update",
+           "UPDATE ledger_seal SET seal = zeroblob(64) WHERE ledger_id = 3");
+    pl_verify_result res = verify(a, NULL);
+    assert_int_equal(res.first, PL_FAULT_SEAL);
+    tu_assert_msg_has(res.message, "its seal does not hold");
+    /* the own key removed, the seals left */
+    tamper(b, "seal_key_no_delete", "PRAGMA foreign_keys = OFF; DELETE FROM seal_key");
+    res = verify(b, NULL);
+    assert_int_equal(res.first, PL_FAULT_SEAL);
+    tu_assert_msg_has(res.message, "own seal key is gone");
+    /* everything about the seal removed and resealed with another key:
+     * whole to the store alone, caught by the fingerprint kept */
+    tamper(c, "seal_key_no_delete,ledger_seal_no_delete",
+           "DELETE FROM ledger_seal; DELETE FROM seal_key");
+    TU_OK(pl_store_open(&st, c, 0, &err));
+    TU_OK(pl_store_seal(st, &other, &err));
+    pl_store_close(st);
+    assert_int_equal(verify(c, NULL).faults, 0);
+    pl_verify_options o = PL_VERIFY_OPTIONS_INIT;
+    o.seal_key = fp;
+    res = verify(c, &o);
+    assert_int_equal(res.first, PL_FAULT_HEAD);
+    tu_assert_msg_has(res.message, "resealed with another key");
+    free(a);
+    free(b);
+    free(c);
+}
+
 /* A heads file that is not one: the field named. */
 static void test_ledger__heads_file_faults_are_named(void **state)
 {
@@ -341,8 +526,11 @@ static void test_ledger__heads_file_faults_are_named(void **state)
         const char *text, *part;
     } cases[] = {
         { "[1]", "format: expected \"plyledger-heads\"" },
-        { "{\"format\": \"plyledger-heads\", \"format_version\": 2, \"heads\": []}",
-          "format_version: expected 1" },
+        { "{\"format\": \"plyledger-heads\", \"format_version\": 3, \"heads\": []}",
+          "format_version: expected 1 or 2" },
+        { "{\"format\": \"plyledger-heads\", \"format_version\": 2, \"seal_key\": \"AB\","
+          " \"heads\": []}",
+          "seal_key: expected a key fingerprint" },
         { "{\"format\": \"plyledger-heads\", \"format_version\": 1}", "heads: expected an array" },
         { "{\"format\": \"plyledger-heads\", \"format_version\": 1, \"heads\": [{\"airframe\": 7,"
           " \"seq\": 1, \"link\": \"00\"}]}",
@@ -359,7 +547,8 @@ static void test_ledger__heads_file_faults_are_named(void **state)
         pl_chain_head *h = (pl_chain_head *)1;
         size_t n = 9;
         pl_err err = { 0 };
-        assert_int_equal(pl_heads_parse(&h, &n, cases[i].text, "heads.json", &err), PL_EFORMAT);
+        assert_int_equal(pl_heads_parse(&h, &n, NULL, cases[i].text, "heads.json", &err),
+                         PL_EFORMAT);
         assert_null(h);
         assert_int_equal(n, 0);
         tu_assert_msg_has(err.msg, "heads.json: ");
@@ -378,6 +567,11 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_ledger__heads_kept_outside_catch_a_cut, setup,
                                         teardown),
         cmocka_unit_test(test_ledger__heads_file_faults_are_named),
+        cmocka_unit_test_setup_teardown(test_ledger__a_seal_catches_a_forged_append, setup,
+                                        teardown),
+        cmocka_unit_test_setup_teardown(test_ledger__a_sealed_store_needs_its_key, setup,
+                                        teardown),
+        cmocka_unit_test_setup_teardown(test_ledger__seal_attacks_are_named, setup, teardown),
     };
     return cmocka_run_group_tests_name("ledger", tests, NULL, NULL);
 }

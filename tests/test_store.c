@@ -457,20 +457,23 @@ static void test_store__open_refuses_a_newer_schema(void **state)
     pl_store_close(f->st);
     f->st = NULL;
     sqlite3 *db = raw_open(f->path);
-    raw_exec(db, "PRAGMA user_version = 7");
+    char sql[64];
+    snprintf(sql, sizeof sql, "PRAGMA user_version = %d", PL_STORE_SCHEMA_VERSION + 1);
+    raw_exec(db, sql);
     sqlite3_close(db);
     pl_store *st = NULL;
     char want[1024];
     snprintf(want, sizeof want,
-             "%s: store schema version 7 is newer than this plyledger (%s, schema %d); "
-             "use a newer plyledger", f->path, pl_version(), PL_STORE_SCHEMA_VERSION);
+             "%s: store schema version %d is newer than this plyledger (%s, schema %d); "
+             "use a newer plyledger", f->path, PL_STORE_SCHEMA_VERSION + 1, pl_version(),
+             PL_STORE_SCHEMA_VERSION);
     for (unsigned flags = 0; flags <= PL_STORE_READONLY; flags++) {
         assert_int_equal(pl_store_open(&st, f->path, flags, &err), PL_EVERSION);
         assert_null(st);
         assert_string_equal(err.msg, want);
     }
     db = raw_open(f->path);
-    assert_int_equal(raw_int(db, "PRAGMA user_version"), 7);
+    assert_int_equal(raw_int(db, "PRAGMA user_version"), PL_STORE_SCHEMA_VERSION + 1);
     sqlite3_close(db);
 }
 
@@ -585,7 +588,11 @@ static void fill_every_table(fixture *f)
              " prev_link, link, recorded_at) VALUES (1, 99, 'airframe', 999, 1, '"
              "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', '"
              "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', '"
-             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', 'now')");
+             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', 'now');"
+             "INSERT INTO seal_key (public_key, origin, recorded_at) VALUES ('"
+             "0123456789abcdef0123456789abcdef0123456789abcdef0123456789abcdef', 'own', 'now');"
+             "INSERT INTO ledger_seal (ledger_id, key_id, seal) VALUES ((SELECT max(id) FROM"
+             " ledger), 1, zeroblob(64))");
     sqlite3_close(db);
 }
 

@@ -21,6 +21,12 @@ _Static_assert(crypto_sign_SECRETKEYBYTES == PL_SIGN_SECRET_SIZE, "secret key si
 _Static_assert(crypto_sign_BYTES == PL_SIGN_SIZE, "signature size");
 _Static_assert(crypto_sign_SEEDBYTES == 32, "seed size");
 
+PL_EXPORT void pl_sign_key_wipe(pl_sign_key *key)
+{
+    if (key)
+        sodium_memzero(key, sizeof *key);
+}
+
 PL_EXPORT void pl_sign_key_from_seed(pl_sign_key *key, const unsigned char seed[32])
 {
     assert(key && seed);

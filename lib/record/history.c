@@ -498,6 +498,7 @@ PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char 
          && cJSON_AddNumberToObject(o, "simulated_unknown", (double)s->unknown_inspections);
     for (size_t i = 0; ok && i < sizeof more / sizeof more[0]; i++)
         ok = cJSON_AddNumberToObject(o, more[i].key, (double)more[i].n) != NULL;
+    ok = ok && add_text_or_null(o, "seal_key", s->seal_key[0] ? s->seal_key : NULL);
     int dated = s->first_inspection[0] != '\0';
     ok = ok && add_text_or_null(o, "first_inspection", dated ? s->first_inspection : NULL)
          && add_text_or_null(o, "last_inspection", dated ? s->last_inspection : NULL);

@@ -62,7 +62,7 @@ PL_EXPORT const char *pl_fault_name(pl_fault fault)
     static const char *const names[] = { "none",     "row-changed", "row-missing",
                                          "row-unchained", "link-broken", "sequence",
                                          "map-data", "wrong-chain", "trigger-missing",
-                                         "head-differs" };
+                                         "head-differs", "seal", "signature" };
     return (unsigned)fault < sizeof names / sizeof names[0] ? names[fault] : NULL;
 }
 
@@ -121,11 +121,189 @@ static int row_chain(pl_store *s, pl_table table, pl_id id, pl_id *chain, int *f
     return rc;
 }
 
+PL_EXPORT void pl_ledger_seal_message(unsigned char out[40],
+                                      const unsigned char link[PL_SHA256_SIZE])
+{
+    memcpy(out, "PLSL", 4);
+    for (int i = 0; i < 4; i++)
+        out[4 + i] = (unsigned char)(PL_LEDGER_SEAL_VERSION >> (8 * i));
+    memcpy(out + 8, link, PL_SHA256_SIZE);
+}
+
+/* The endorsement message of a received seal key: "PLRK" version:u32
+ * public_key:32 bytes chain:i64 (0: the store's chain) through_seq:i64. */
+static void endorsement_message(unsigned char out[56], const unsigned char pub[32],
+                                pl_id chain, int64_t through)
+{
+    memcpy(out, "PLRK", 4);
+    for (int i = 0; i < 4; i++)
+        out[4 + i] = (unsigned char)(PL_LEDGER_SEAL_VERSION >> (8 * i));
+    memcpy(out + 8, pub, 32);
+    for (int i = 0; i < 8; i++) {
+        out[40 + i] = (unsigned char)((uint64_t)chain >> (8 * i));
+        out[48 + i] = (unsigned char)((uint64_t)through >> (8 * i));
+    }
+}
+
+/* Seal ledger row `ledger_id`, whose link is `link`, with the store's own key. */
+static int seal_link(pl_store *s, pl_id ledger_id, const unsigned char link[PL_SHA256_SIZE],
+                     pl_err *err, const char *label)
+{
+    unsigned char msg[40], sig[PL_SIGN_SIZE];
+    pl_ledger_seal_message(msg, link);
+    pl_sign(sig, msg, sizeof msg, &s->seal_secret);
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st,
+                               "INSERT INTO ledger_seal (ledger_id, key_id, seal) "
+                               "VALUES (?1, ?2, ?3)",
+                               err);
+    if (rc)
+        return rc;
+    sqlite3_bind_int64(st, 1, ledger_id);
+    sqlite3_bind_int64(st, 2, s->seal_key_id);
+    sqlite3_bind_blob(st, 3, sig, sizeof sig, SQLITE_TRANSIENT);
+    if (sqlite3_step(st) != SQLITE_DONE)
+        rc = pl_store__fail(s, err, label);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+int pl_ledger__load_seal(pl_store *s, pl_err *err)
+{
+    s->sealed = 0;
+    s->seal_key_id = 0;
+    if (s->schema_version < 7)
+        return PL_OK;
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(s, &st,
+                               "SELECT id, public_key FROM seal_key WHERE origin = 'own' "
+                               "ORDER BY id LIMIT 1",
+                               err);
+    if (rc)
+        return rc;
+    int r = sqlite3_step(st);
+    if (r == SQLITE_ROW) {
+        const char *hex = (const char *)sqlite3_column_text(st, 1);
+        s->seal_key_id = sqlite3_column_int64(st, 0);
+        /* a key that is not hex still marks the store sealed: writing then
+         * fails on the key check, and verify names the fault */
+        s->sealed = 1;
+        if (!hex || pl_sha256_from_hex(s->seal_public, hex) != PL_OK)
+            memset(s->seal_public, 0, sizeof s->seal_public);
+    } else if (r != SQLITE_DONE) {
+        rc = pl_store__fail(s, err, NULL);
+    }
+    sqlite3_finalize(st);
+    return rc;
+}
+
+PL_EXPORT int pl_store_sealed(const pl_store *s, char out[PL_SIGN_FINGERPRINT_SIZE])
+{
+    assert(s);
+    if (out) {
+        out[0] = '\0';
+        if (s->sealed)
+            pl_sign_fingerprint(out, s->seal_public);
+    }
+    return s->sealed;
+}
+
+PL_EXPORT int pl_store_set_seal_key(pl_store *s, const pl_sign_key *key, pl_err *err)
+{
+    assert(s && key);
+    char want[PL_SIGN_FINGERPRINT_SIZE], have[PL_SIGN_FINGERPRINT_SIZE];
+    pl_sign_fingerprint(have, key->public_key);
+    if (!s->sealed)
+        return pl__err(err, PL_EREFUSED, "%s: the store is not sealed; seal key %s is not its key",
+                       s->path, have);
+    pl_sign_fingerprint(want, s->seal_public);
+    if (memcmp(key->public_key, s->seal_public, PL_SIGN_PUBLIC_SIZE) != 0)
+        return pl__err(err, PL_EREFUSED,
+                       "%s: the seal key given (%s) is not this store's seal key (%s)", s->path,
+                       have, want);
+    s->seal_secret = *key;
+    s->has_seal_secret = 1;
+    return PL_OK;
+}
+
+PL_EXPORT int pl_store_seal(pl_store *s, const pl_sign_key *key, pl_err *err)
+{
+    assert(s && key);
+    if (s->sealed) {
+        char fp[PL_SIGN_FINGERPRINT_SIZE];
+        pl_sign_fingerprint(fp, s->seal_public);
+        return pl__err(err, PL_EEXISTS, "%s: the store is already sealed (seal key %s)", s->path,
+                       fp);
+    }
+    int owned;
+    int rc = pl_store__write_begin(s, &owned, err);
+    if (rc)
+        return rc;
+    char hex[PL_SHA256_HEX_SIZE], now[PL_DATE_SIZE];
+    pl_sha256_hex(hex, key->public_key); /* 32 bytes as 64 hex digits */
+    pl_store__now(now);
+    sqlite3_stmt *st = NULL;
+    rc = pl_store__prepare(s, &st,
+                           "INSERT INTO seal_key (public_key, origin, recorded_at) "
+                           "VALUES (?1, 'own', ?2)",
+                           err);
+    if (!rc) {
+        sqlite3_bind_text(st, 1, hex, -1, SQLITE_STATIC);
+        sqlite3_bind_text(st, 2, now, -1, SQLITE_STATIC);
+        if (sqlite3_step(st) != SQLITE_DONE)
+            rc = pl_store__fail(s, err, NULL);
+        sqlite3_finalize(st);
+        st = NULL;
+    }
+    if (!rc) {
+        s->seal_key_id = sqlite3_last_insert_rowid(s->db);
+        s->seal_secret = *key;
+        memcpy(s->seal_public, key->public_key, PL_SIGN_PUBLIC_SIZE);
+        rc = pl_store__prepare(s, &st,
+                               "SELECT l.id, l.link FROM ledger l WHERE NOT EXISTS "
+                               "(SELECT 1 FROM ledger_seal x WHERE x.ledger_id = l.id) "
+                               "ORDER BY l.id",
+                               err);
+    }
+    int r = SQLITE_DONE;
+    while (!rc && (r = sqlite3_step(st)) == SQLITE_ROW) {
+        unsigned char link[PL_SHA256_SIZE];
+        const char *h = (const char *)sqlite3_column_text(st, 1);
+        if (!h || pl_sha256_from_hex(link, h) != PL_OK)
+            rc = pl__err(err, PL_EFORMAT,
+                         "%s: ledger link %lld is not SHA-256 hex: run verify before sealing",
+                         s->path, (long long)sqlite3_column_int64(st, 0));
+        else
+            rc = seal_link(s, sqlite3_column_int64(st, 0), link, err, NULL);
+    }
+    if (!rc && r != SQLITE_DONE)
+        rc = pl_store__fail(s, err, NULL);
+    sqlite3_finalize(st);
+    rc = pl_store__write_end(s, owned, rc, err);
+    if (rc) {
+        pl_sign_key_wipe(&s->seal_secret);
+        s->seal_key_id = 0;
+        memset(s->seal_public, 0, sizeof s->seal_public);
+        return rc;
+    }
+    s->sealed = 1;
+    s->has_seal_secret = 1;
+    return PL_OK;
+}
+
 int pl_ledger__append(pl_store *s, pl_table table, pl_id id,
                       const unsigned char row_sha256[PL_SHA256_SIZE], pl_err *err,
                       const char *label)
 {
     assert((unsigned)table < PL_TABLE_COUNT && chain_sql[table]);
+    if (s->sealed && !s->has_seal_secret) {
+        char fp[PL_SIGN_FINGERPRINT_SIZE];
+        pl_sign_fingerprint(fp, s->seal_public);
+        return pl__err(err, PL_EREFUSED,
+                       "%s: the store is sealed, and recording needs its seal key (key file of "
+                       "seal key %s): nothing was recorded",
+                       s->path, fp);
+    }
     pl_id chain;
     int found, rc = row_chain(s, table, id, &chain, &found, err, label);
     if (!rc && !found)
@@ -184,6 +362,8 @@ int pl_ledger__append(pl_store *s, pl_table table, pl_id id,
     if (sqlite3_step(st) != SQLITE_DONE)
         rc = pl_store__fail(s, err, label);
     sqlite3_finalize(st);
+    if (!rc && s->sealed)
+        rc = seal_link(s, sqlite3_last_insert_rowid(s->db), link, err, label);
     return rc;
 }
 
@@ -305,15 +485,17 @@ PL_EXPORT int pl_store_heads(pl_store *s, pl_chain_head **out, size_t *n, pl_err
     return rc;
 }
 
-PL_EXPORT int pl_heads_json(char **out, const char *store_id, const pl_chain_head *heads,
-                            size_t n, pl_err *err)
+PL_EXPORT int pl_heads_json(char **out, const char *store_id, const char *seal_key,
+                            const pl_chain_head *heads, size_t n, pl_err *err)
 {
     assert(out && (heads || !n));
     *out = NULL;
     cJSON *j = cJSON_CreateObject(), *list = NULL;
     int ok = j && cJSON_AddStringToObject(j, "format", "plyledger-heads") &&
-             cJSON_AddNumberToObject(j, "format_version", 1) &&
+             cJSON_AddNumberToObject(j, "format_version", 2) &&
              cJSON_AddStringToObject(j, "store_id", store_id ? store_id : "") &&
+             (seal_key && seal_key[0] ? cJSON_AddStringToObject(j, "seal_key", seal_key) != NULL
+                                      : cJSON_AddNullToObject(j, "seal_key") != NULL) &&
              (list = cJSON_AddArrayToObject(j, "heads"));
     for (size_t i = 0; ok && i < n; i++) {
         cJSON *h = cJSON_CreateObject();
@@ -334,12 +516,15 @@ PL_EXPORT int pl_heads_json(char **out, const char *store_id, const pl_chain_hea
     return PL_OK;
 }
 
-PL_EXPORT int pl_heads_parse(pl_chain_head **out, size_t *n, const char *text,
+PL_EXPORT int pl_heads_parse(pl_chain_head **out, size_t *n,
+                             char seal_key[PL_SIGN_FINGERPRINT_SIZE], const char *text,
                              const char *name, pl_err *err)
 {
     assert(out && n && text && name);
     *out = NULL;
     *n = 0;
+    if (seal_key)
+        seal_key[0] = '\0';
     cJSON *j = cJSON_Parse(text);
     if (!j)
         return pl__err(err, PL_EFORMAT, "%s: not JSON (a heads file of plyledger verify)", name);
@@ -349,10 +534,20 @@ PL_EXPORT int pl_heads_parse(pl_chain_head **out, size_t *n, const char *text,
     int rc = PL_OK;
     if (!cJSON_IsString(f) || strcmp(f->valuestring, "plyledger-heads") != 0)
         rc = pl__err(err, PL_EFORMAT, "%s: format: expected \"plyledger-heads\"", name);
-    else if (!cJSON_IsNumber(v) || v->valuedouble != 1)
-        rc = pl__err(err, PL_EFORMAT, "%s: format_version: expected 1", name);
+    else if (!cJSON_IsNumber(v) || (v->valuedouble != 1 && v->valuedouble != 2))
+        rc = pl__err(err, PL_EFORMAT, "%s: format_version: expected 1 or 2", name);
     else if (!cJSON_IsArray(list))
         rc = pl__err(err, PL_EFORMAT, "%s: heads: expected an array", name);
+    const cJSON *sk = cJSON_GetObjectItemCaseSensitive(j, "seal_key");
+    if (!rc && sk && !cJSON_IsNull(sk)) {
+        if (!cJSON_IsString(sk) || strlen(sk->valuestring) != PL_SIGN_FINGERPRINT_SIZE - 1 ||
+            strspn(sk->valuestring, "0123456789abcdef") != PL_SIGN_FINGERPRINT_SIZE - 1)
+            rc = pl__err(err, PL_EFORMAT,
+                         "%s: seal_key: expected a key fingerprint (32 lower-case hex digits) "
+                         "or null", name);
+        else if (seal_key)
+            snprintf(seal_key, PL_SIGN_FINGERPRINT_SIZE, "%s", sk->valuestring);
+    }
     size_t k = rc ? 0 : (size_t)cJSON_GetArraySize(list);
     pl_chain_head *h = rc ? NULL : calloc(k ? k : 1, sizeof *h);
     if (!rc && !h)
@@ -408,6 +603,8 @@ typedef struct verifier {
     pl_store *s;
     pl_verify_result *res;
     pl_err *err;
+    int sealed;                         /* the store has its own seal key */
+    unsigned char own[PL_SIGN_PUBLIC_SIZE];
 } verifier;
 
 /* Count a fault; the first one is kept in words. */
@@ -496,8 +693,132 @@ static int check_triggers(verifier *v)
     return rc;
 }
 
-/* One link: its sequence, its previous link, its own hash, its row's
- * chain, content and (a map) data. */
+/* The seal of the link on row `st` (columns 8 to 13 of walk_chains()). */
+static void check_seal(verifier *v, sqlite3_stmt *st, pl_id chain, int64_t seq,
+                       const unsigned char link[PL_SHA256_SIZE], const char *where,
+                       const char *what)
+{
+    int has = sqlite3_column_int(st, 13);
+    if (!v->sealed)
+        return; /* seals without the store's key: check_seal_keys() names it */
+    if (!has) {
+        fault(v, PL_FAULT_SEAL,
+              "%s: %s carries no seal: it was appended without the store's seal key (outside "
+              "plyledger), or its seal was removed",
+              where, what);
+        return;
+    }
+    v->res->seals++;
+    const void *sig = sqlite3_column_blob(st, 8);
+    int siglen = sqlite3_column_bytes(st, 8);
+    const char *hex = (const char *)sqlite3_column_text(st, 9);
+    const char *origin = (const char *)sqlite3_column_text(st, 10);
+    unsigned char pub[PL_SIGN_PUBLIC_SIZE];
+    if (!hex || !origin || pl_sha256_from_hex(pub, hex) != PL_OK) {
+        fault(v, PL_FAULT_SEAL, "%s: %s is sealed by a key that is not in the store", where,
+              what);
+        return;
+    }
+    if (strcmp(origin, "own") == 0) {
+        if (memcmp(pub, v->own, sizeof pub) != 0) {
+            fault(v, PL_FAULT_SEAL, "%s: %s is sealed by a key that is not the store's own",
+                  where, what);
+            return;
+        }
+    } else if (sqlite3_column_int64(st, 11) != chain ||
+               seq > sqlite3_column_int64(st, 12)) {
+        char fp[PL_SIGN_FINGERPRINT_SIZE];
+        pl_sign_fingerprint(fp, pub);
+        fault(v, PL_FAULT_SEAL,
+              "%s: %s is sealed by key %s, which this store received for %s only: the link "
+              "was added outside plyledger",
+              where, what, fp,
+              sqlite3_column_int64(st, 11) != chain ? "another chain" : "earlier links");
+        return;
+    }
+    unsigned char msg[40];
+    pl_ledger_seal_message(msg, link);
+    if (siglen != PL_SIGN_SIZE || !sig || !pl_sign_check(sig, msg, sizeof msg, pub))
+        fault(v, PL_FAULT_SEAL,
+              "%s: %s: its seal does not hold: the link, or its seal, was altered outside "
+              "plyledger",
+              where, what);
+}
+
+/* The seal keys: the store's own (at most one, as the schema says), and
+ * each received key endorsed by it. */
+static int check_seal_keys(verifier *v)
+{
+    pl_store *s = v->s;
+    v->sealed = 0;
+    int64_t nkeys = 0, nseals = 0;
+    int rc = pl_store__query_int(s, "SELECT count(*) FROM seal_key", &nkeys, v->err);
+    if (!rc)
+        rc = pl_store__query_int(s, "SELECT count(*) FROM ledger_seal", &nseals, v->err);
+    if (rc)
+        return rc;
+    sqlite3_stmt *st;
+    if ((rc = pl_store__prepare(s, &st,
+                                "SELECT public_key FROM seal_key WHERE origin = 'own' "
+                                "ORDER BY id",
+                                v->err)))
+        return rc;
+    int r = sqlite3_step(st), own = 0;
+    if (r == SQLITE_ROW) {
+        own = 1;
+        const char *hex = (const char *)sqlite3_column_text(st, 0);
+        if (!hex || pl_sha256_from_hex(v->own, hex) != PL_OK)
+            fault(v, PL_FAULT_SEAL, "the store's own seal key is not 64 hex digits: it was "
+                  "edited outside plyledger");
+        v->sealed = 1;
+        v->res->sealed = 1;
+        pl_sign_fingerprint(v->res->seal_key, v->own);
+    } else if (r != SQLITE_DONE) {
+        rc = pl_store__fail(s, v->err, NULL);
+    }
+    sqlite3_finalize(st);
+    if (rc)
+        return rc;
+    if (!own && (nkeys > 0 || nseals > 0)) {
+        fault(v, PL_FAULT_SEAL,
+              "the store's own seal key is gone while %lld links carry seals: the seal was "
+              "removed outside plyledger",
+              (long long)nseals);
+        return PL_OK;
+    }
+    if ((rc = pl_store__prepare(s, &st,
+                                "SELECT public_key, coalesce(chain, 0), through_seq, endorsement "
+                                "FROM seal_key WHERE origin = 'received' ORDER BY id",
+                                v->err)))
+        return rc;
+    while ((r = sqlite3_step(st)) == SQLITE_ROW) {
+        unsigned char pub[PL_SIGN_PUBLIC_SIZE], msg[56];
+        const char *hex = (const char *)sqlite3_column_text(st, 0);
+        pl_id chain = sqlite3_column_int64(st, 1);
+        const void *sig = sqlite3_column_blob(st, 3);
+        char where[128];
+        chain_words(s, chain, where, sizeof where);
+        if (!hex || pl_sha256_from_hex(pub, hex) != PL_OK) {
+            fault(v, PL_FAULT_SEAL, "%s: a received seal key is not 64 hex digits", where);
+            continue;
+        }
+        endorsement_message(msg, pub, chain, sqlite3_column_int64(st, 2));
+        char fp[PL_SIGN_FINGERPRINT_SIZE];
+        pl_sign_fingerprint(fp, pub);
+        if (!sig || sqlite3_column_bytes(st, 3) != PL_SIGN_SIZE ||
+            !pl_sign_check(sig, msg, sizeof msg, v->own))
+            fault(v, PL_FAULT_SEAL,
+                  "%s: received seal key %s is not endorsed by the store's own seal key: it "
+                  "was added outside plyledger",
+                  where, fp);
+    }
+    rc = r == SQLITE_DONE ? PL_OK : pl_store__fail(s, v->err, NULL);
+    sqlite3_finalize(st);
+    return rc;
+}
+
+/* One link: its sequence, its previous link, its own hash, its seal, its
+ * row's chain, content and (a map) data. */
 static int check_link(verifier *v, sqlite3_stmt *st, pl_id chain, int64_t want_seq,
                       unsigned char prev[PL_SHA256_SIZE], const char *where)
 {
@@ -543,6 +864,7 @@ static int check_link(verifier *v, sqlite3_stmt *st, pl_id chain, int64_t want_s
               "entry was altered",
               where, what);
     memcpy(prev, slink, PL_SHA256_SIZE);
+    check_seal(v, st, chain, seq, slink, where, what);
     if (t < 0) {
         fault(v, PL_FAULT_LINK, "%s: %s names a table that holds no recorded rows", where, what);
         return PL_OK;
@@ -619,9 +941,12 @@ static int walk_chains(verifier *v, const pl_verify_options *o, size_t total)
     if (rc)
         return rc;
     rc = pl_store__prepare(s, &st,
-                           "SELECT seq, table_name, row_id, encoding, row_sha256, prev_link, "
-                           "link, recorded_at FROM ledger WHERE coalesce(chain, 0) = ?1 "
-                           "ORDER BY seq, id",
+                           "SELECT l.seq, l.table_name, l.row_id, l.encoding, l.row_sha256, "
+                           "l.prev_link, l.link, l.recorded_at, x.seal, k.public_key, k.origin, "
+                           "coalesce(k.chain, 0), k.through_seq, x.ledger_id IS NOT NULL "
+                           "FROM ledger l LEFT JOIN ledger_seal x ON x.ledger_id = l.id "
+                           "LEFT JOIN seal_key k ON k.id = x.key_id "
+                           "WHERE coalesce(l.chain, 0) = ?1 ORDER BY l.seq, l.id",
                            v->err);
     size_t done = 0;
     while (!rc && sqlite3_step(chains) == SQLITE_ROW) {
@@ -689,9 +1014,22 @@ static int check_unchained(verifier *v)
     return PL_OK;
 }
 
-/* Each head kept earlier must still be a link of its chain. */
+/* Each head kept earlier must still be a link of its chain, and the seal
+ * key kept with them the store's. */
 static int check_heads(verifier *v, const pl_verify_options *o)
 {
+    if (o->seal_key && o->seal_key[0]) {
+        if (!v->res->sealed)
+            fault(v, PL_FAULT_HEAD,
+                  "the store is not sealed, but it was sealed with key %s when the heads were "
+                  "kept: its seal was removed outside plyledger",
+                  o->seal_key);
+        else if (strcmp(o->seal_key, v->res->seal_key) != 0)
+            fault(v, PL_FAULT_HEAD,
+                  "the store's seal key is %s, not %s as kept with the heads: the store was "
+                  "resealed with another key outside plyledger",
+                  v->res->seal_key, o->seal_key);
+    }
     for (size_t i = 0; i < o->nheads; i++) {
         const pl_chain_head *h = &o->heads[i];
         if (h->seq <= 0)
@@ -751,7 +1089,7 @@ PL_EXPORT int pl_store_verify(pl_store *s, pl_verify_result *res, const pl_verif
                            (unsigned long)opts->nheads);
         o = *opts;
     }
-    verifier v = { s, res, err };
+    verifier v = { s, res, err, 0, { 0 } };
     int64_t total = 0;
     /* one read transaction: the store does not change under the walk */
     int rc = pl_store__exec(s, "BEGIN", err);
@@ -760,6 +1098,8 @@ PL_EXPORT int pl_store_verify(pl_store *s, pl_verify_result *res, const pl_verif
     rc = pl_store__query_int(s, "SELECT count(*) FROM ledger", &total, err);
     /* the data first: a changed value is the fault a person needs named,
      * the trigger removed to change it comes after */
+    if (!rc)
+        rc = check_seal_keys(&v);
     if (!rc)
         rc = walk_chains(&v, &o, (size_t)total);
     if (!rc)

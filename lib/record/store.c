@@ -16,6 +16,7 @@
  * functions or operators outside the PRAGMAs and transaction control).
  */
 #include "record/store_int.h"
+#include "plyledger/ledger.h"
 
 #include "common/common_int.h"
 
@@ -375,6 +376,7 @@ PL_EXPORT void pl_store_close(pl_store *s)
             sqlite3_finalize(s->insert[t]);
         sqlite3_close(s->db);
     }
+    pl_sign_key_wipe(&s->seal_secret);
     free(s->path);
     free(s);
 }
@@ -668,6 +670,8 @@ PL_EXPORT int pl_store_open(pl_store **out, const char *path, unsigned flags, pl
         if (uv < PL_STORE_SCHEMA_VERSION)
             rc = migrate(s, err);
     }
+    if (!rc)
+        rc = pl_ledger__load_seal(s, err);
     if (rc) {
         pl_store_close(s);
         return rc;
@@ -753,6 +757,7 @@ PL_EXPORT int pl_store_summarize(pl_store *s, pl_store_summary *sum, pl_err *err
         rc = count_kinds(s, sum->inspections_by_kind, err);
     if (rc)
         return rc;
+    pl_store_sealed(s, sum->seal_key);
     sqlite3_stmt *st;
     rc = pl_store__prepare(s, &st, "SELECT min(performed_on), max(performed_on) FROM "
                            "inspection_current", err);

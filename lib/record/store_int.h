@@ -11,6 +11,7 @@
 #define PLYLEDGER_STORE_INT_H
 
 #include "plyledger/store.h"
+#include "plyledger/sign.h"
 #include "plyledger/store_row.h"
 
 #include <sqlite3.h>
@@ -38,6 +39,11 @@ struct pl_store {
     struct timespec busy_since;            /* when the current wait began */
     char today[PL_DATE_SIZE];              /* pl_store_set_today(), or "" */
     char migration_note[256];              /* what opening migrated, or "" */
+    int sealed;                            /* the store has its own seal key */
+    pl_id seal_key_id;                     /* its row in seal_key */
+    unsigned char seal_public[PL_SIGN_PUBLIC_SIZE];
+    int has_seal_secret;                   /* pl_store_set_seal_key() given */
+    pl_sign_key seal_secret;
 };
 
 /* A fixed text field as printf arguments: "%.*s" never reads past it. */
@@ -333,6 +339,9 @@ int pl_ledger__append(pl_store *s, pl_table table, pl_id id,
 /* Chain every recorded row that has no link yet, in the order they were
  * recorded (migration 6); *count gets how many. */
 int pl_ledger__chain_all(pl_store *s, int64_t *count, pl_err *err);
+
+/* Read whether the store is sealed, and with which key (on open). */
+int pl_ledger__load_seal(pl_store *s, pl_err *err);
 
 /* Insert `row` as one atomic call of its own: pl_store__insert() inside
  * pl_store__write_begin() / _end(). */

@@ -22,6 +22,8 @@ WRITERS="WRA-0001 WRB-0002 WRC-0003 WRD-0004"
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-writers-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
 PREP="$WORK/prepared.plyledger"
+# copies of the prepared store write with its seal key
+export PLYLEDGER_SEAL_KEY="$PREP.seal-key"
 STORE="$WORK/store.plyledger"
 FAILS=0
 fail() {

@@ -24,6 +24,8 @@ KILLS=20
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-kill-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
 PREP="$WORK/prepared.plyledger"
+# copies of the prepared store write with its seal key
+export PLYLEDGER_SEAL_KEY="$PREP.seal-key"
 STORE="$WORK/store.plyledger"
 FAILS=0
 fail() {

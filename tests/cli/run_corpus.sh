@@ -43,6 +43,8 @@ trap 'rm -rf "$WORK"' EXIT
 W="$WORK/in"
 STORE="$WORK/store.plyledger"
 PREP="$WORK/prepared.plyledger"
+# copies of the prepared store write with its seal key
+export PLYLEDGER_SEAL_KEY="$PREP.seal-key"
 TRACE="--procedure NDT-TEST-01 --procedure-rev A --equipment test-rig --calibration RS-T1 --inspector tester --level 2"
 export PLYLEDGER_STORE="$STORE"
 mkdir "$W"

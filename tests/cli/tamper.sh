@@ -18,7 +18,8 @@
 #            sql "..." runs SQL on it; bare TRIGGERS "..." runs SQL with the
 #            named triggers (comma separated) dropped and put back as they
 #            were; bytes OLD NEW replaces every occurrence of a text in the
-#            file's raw bytes (same length); forge runs tests/ref's forger
+#            file's raw bytes (same length); forge runs tests/ref's forger;
+#            reseal removes the seal and seals the store with a new key
 #   verify   optional extra arguments of verify ($HEADS: heads kept from the
 #            prepared store)
 set -u
@@ -34,6 +35,8 @@ WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-tamper-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
 W="$WORK/in"
 PREP="$WORK/prepared.plyledger"
+# copies of the prepared store write with its seal key
+export PLYLEDGER_SEAL_KEY="$PREP.seal-key"
 T="$WORK/tampered.plyledger"
 HEADS="$WORK/heads.json"
 TRACE="--procedure NDT-TEST-01 --procedure-rev A --equipment test-rig --calibration RS-T1 --inspector tester --level 2"
@@ -96,6 +99,13 @@ open(path, "wb").write(data.replace(old, new))
 PY
 }
 forge() { "$PY" "$REF/ledger_forge.py" "$T" || return 125; }
+# every trace of the seal removed, then the store sealed anew with a key
+# of the attacker's own
+reseal() {
+    bare seal_key_no_delete,ledger_seal_no_delete "DELETE FROM ledger_seal; DELETE FROM seal_key" &&
+        rm -f "$WORK/other.key" &&
+        "$PLY_BIN" seal -q --store "$T" --seal-key "$WORK/other.key" || return 125
+}
 
 FAILS=0
 COUNT=0

@@ -46,6 +46,10 @@ typedef struct pl_sign_key {
 /** The key pair of a 32-byte seed (RFC 8032's "secret key"). */
 PL_EXPORT void pl_sign_key_from_seed(pl_sign_key *key, const unsigned char seed[32]);
 
+/** Overwrite a key pair in memory with zeros (one the compiler keeps); NULL
+ * is accepted. */
+PL_EXPORT void pl_sign_key_wipe(pl_sign_key *key);
+
 /** The fingerprint of a public key (see the introduction). */
 PL_EXPORT void pl_sign_fingerprint(char out[PL_SIGN_FINGERPRINT_SIZE],
                                    const unsigned char public_key[PL_SIGN_PUBLIC_SIZE]);

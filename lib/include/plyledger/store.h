@@ -779,6 +779,10 @@ typedef struct pl_store_summary {
     int64_t simulated_inspections;     /**< current inspections of simulated data */
     int64_t unknown_inspections;       /**< current inspections recorded before the store
                                             said whether they were simulated (schema 2) */
+    char seal_key[33];                 /**< the fingerprint of the store's seal key
+                                            (plyledger/ledger.h), "" when not sealed */
+    int64_t people;                    /**< people in the register, current versions */
+    int64_t received;                  /**< hand-over packages received */
 } pl_store_summary;
 
 /** Counts and dates of the whole store into [out] sum. @return PL_OK, PL_EDB. */
