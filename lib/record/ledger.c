@@ -132,8 +132,8 @@ PL_EXPORT void pl_ledger_seal_message(unsigned char out[40],
 
 /* The endorsement message of a received seal key: "PLRK" version:u32
  * public_key:32 bytes chain:i64 (0: the store's chain) through_seq:i64. */
-static void endorsement_message(unsigned char out[56], const unsigned char pub[32],
-                                pl_id chain, int64_t through)
+void pl_ledger__endorsement_message(unsigned char out[56], const unsigned char pub[32],
+                                    pl_id chain, int64_t through)
 {
     memcpy(out, "PLRK", 4);
     for (int i = 0; i < 4; i++)
@@ -802,7 +802,7 @@ static int check_seal_keys(verifier *v)
             fault(v, PL_FAULT_SEAL, "%s: a received seal key is not 64 hex digits", where);
             continue;
         }
-        endorsement_message(msg, pub, chain, sqlite3_column_int64(st, 2));
+        pl_ledger__endorsement_message(msg, pub, chain, sqlite3_column_int64(st, 2));
         char fp[PL_SIGN_FINGERPRINT_SIZE];
         pl_sign_fingerprint(fp, pub);
         if (!sig || sqlite3_column_bytes(st, 3) != PL_SIGN_SIZE ||

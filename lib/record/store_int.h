@@ -340,6 +340,13 @@ int pl_ledger__append(pl_store *s, pl_table table, pl_id id,
  * recorded (migration 6); *count gets how many. */
 int pl_ledger__chain_all(pl_store *s, int64_t *count, pl_err *err);
 
+/* The message a store's own seal key signs to endorse a received seal key
+ * (table seal_key, origin 'received'): "PLRK" version:u32 public_key:32
+ * chain:i64 (0: the store's own chain) through_seq:i64, little-endian. The
+ * endorsement is pl_sign() of it with store->seal_secret. */
+void pl_ledger__endorsement_message(unsigned char out[56], const unsigned char pub[32],
+                                    pl_id chain, int64_t through);
+
 /* Read whether the store is sealed, and with which key (on open). */
 int pl_ledger__load_seal(pl_store *s, pl_err *err);
 
