@@ -271,9 +271,19 @@ static void test_ledger__migration_chains_an_older_store(void **state)
         "CREATE TRIGGER ledger_no_delete BEFORE DELETE ON ledger"
         " BEGIN SELECT RAISE(ABORT, 'ledger is append-only'); END;"
         "DROP TABLE ledger_seal; DROP TABLE seal_key;"
+        "DROP TABLE interpretation; DROP TABLE disposition; DROP TABLE person_key;"
+        " DROP TABLE person_qualification; DROP TABLE procedure_level; DROP TABLE person;"
+        "CREATE TABLE disposition (id INTEGER PRIMARY KEY);"
+        "CREATE TABLE disposition_change (disposition_id INTEGER, change_id INTEGER);"
+        "CREATE TRIGGER disposition_no_update BEFORE UPDATE ON disposition BEGIN SELECT 1; END;"
+        "CREATE TRIGGER disposition_no_delete BEFORE DELETE ON disposition BEGIN SELECT 1; END;"
+        "CREATE TRIGGER disposition_change_no_update BEFORE UPDATE ON disposition_change"
+        " BEGIN SELECT 1; END;"
+        "CREATE TRIGGER disposition_change_no_delete BEFORE DELETE ON disposition_change"
+        " BEGIN SELECT 1; END;"
         "PRAGMA user_version = 5");
     tamper(f->path, "store_info_no_delete",
-           "DELETE FROM store_info WHERE name IN ('schema.0006', 'schema.0007')");
+           "DELETE FROM store_info WHERE name IN ('schema.0006', 'schema.0007', 'schema.0008')");
     pl_store *st;
     pl_err err = { 0 };
     TU_OK(pl_store_open(&st, f->path, 0, &err));

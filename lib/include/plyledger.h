@@ -31,5 +31,7 @@
 #include "plyledger/change.h"
 #include "plyledger/compare.h"
 #include "plyledger/ledger.h"
+#include "plyledger/people.h"
+#include "plyledger/disposition.h"
 
 #endif

@@ -39,6 +39,17 @@ static const char *const chain_sql[PL_TABLE_COUNT] = {
     [PL_TABLE_CHANGE] = "SELECT s.airframe_key FROM indication_change x "
                         "JOIN comparison c ON c.id = x.comparison_id "
                         "JOIN site s ON s.id = c.site_key WHERE x.id = ?1",
+    [PL_TABLE_PERSON] = "SELECT NULL FROM person WHERE id = ?1",
+    [PL_TABLE_PERSON_KEY] = "SELECT NULL FROM person_key WHERE id = ?1",
+    [PL_TABLE_QUALIFICATION] = "SELECT NULL FROM person_qualification WHERE id = ?1",
+    [PL_TABLE_PROCEDURE_LEVELS] = "SELECT NULL FROM procedure_level WHERE id = ?1",
+    [PL_TABLE_INTERPRETATION] = "SELECT s.airframe_key FROM interpretation t "
+                                "JOIN indication_change x ON x.id = t.change_id "
+                                "JOIN comparison c ON c.id = x.comparison_id "
+                                "JOIN site s ON s.id = c.site_key WHERE t.id = ?1",
+    [PL_TABLE_DISPOSITION] = "SELECT s.airframe_key FROM disposition t "
+                             "JOIN comparison c ON c.id = t.comparison_id "
+                             "JOIN site s ON s.id = c.site_key WHERE t.id = ?1",
 };
 
 /* How a person names a record of each table. */
@@ -53,6 +64,12 @@ static const char *const record_word[PL_TABLE_COUNT] = {
     [PL_TABLE_CRITERIA] = "criteria revision",
     [PL_TABLE_INDICATION] = "indication",
     [PL_TABLE_CHANGE] = "change",
+    [PL_TABLE_PERSON] = "person",
+    [PL_TABLE_PERSON_KEY] = "person's public key",
+    [PL_TABLE_QUALIFICATION] = "qualification",
+    [PL_TABLE_PROCEDURE_LEVELS] = "procedure's levels",
+    [PL_TABLE_INTERPRETATION] = "interpretation",
+    [PL_TABLE_DISPOSITION] = "disposition",
 };
 
 static const unsigned char zero_link[PL_SHA256_SIZE];
@@ -389,8 +406,8 @@ int pl_ledger__chain_all(pl_store *s, int64_t *count, pl_err *err)
     char sql[2048];
     size_t len = 0;
     for (int t = 0; t < PL_TABLE_COUNT; t++) {
-        if (!chain_sql[t])
-            continue;
+        if (!chain_sql[t] || t >= PL_TABLE_PERSON)
+            continue; /* tables of later migrations held no rows before the chain */
         len += (size_t)snprintf(sql + len, sizeof sql - len,
                                 "%sSELECT recorded_at AS at, %d AS t, id FROM %s",
                                 len ? " UNION ALL " : "", t, pl_table_name((pl_table)t));
@@ -626,7 +643,7 @@ static void chain_words(pl_store *s, pl_id chain, char *out, size_t cap)
     char serial[PL_NAME_SIZE];
     chain_serial(s, chain, serial);
     if (!chain)
-        snprintf(out, cap, "the store's own chain (criteria sets)");
+        snprintf(out, cap, "the store's own chain (criteria sets, people)");
     else if (serial[0])
         snprintf(out, cap, "airframe %s", serial);
     else
@@ -915,6 +932,16 @@ static int check_link(verifier *v, sqlite3_stmt *st, pl_id chain, int64_t want_s
               "%s: %s differs from what was recorded: its content no longer matches the hash "
               "kept in its link (a value, a reference or a map's stored digest was changed)",
               where, what);
+    if (t == PL_TABLE_INTERPRETATION || t == PL_TABLE_DISPOSITION) {
+        int ok = 0;
+        char why[512];
+        if ((rc = pl_people__check_signature(s, (pl_table)t, row_id, &ok, why, sizeof why,
+                                             v->err)))
+            return rc;
+        v->res->signatures++;
+        if (!ok)
+            fault(v, PL_FAULT_SIGNATURE, "%s: %s: %s", where, what, why);
+    }
     if (t == PL_TABLE_MAP) {
         pl_map *m = NULL;
         rc = pl_store_load_map(s, row_id, &m, NULL, &e);
@@ -1051,7 +1078,7 @@ static int check_heads(verifier *v, const pl_verify_options *o)
         if (h->serial[0])
             snprintf(where, sizeof where, "airframe %s", h->serial);
         else
-            snprintf(where, sizeof where, "the store's own chain (criteria sets)");
+            snprintf(where, sizeof where, "the store's own chain (criteria sets, people)");
         if (r == SQLITE_ROW) {
             const char *link = (const char *)sqlite3_column_text(st, 0);
             if (!link || strcmp(link, h->link) != 0)

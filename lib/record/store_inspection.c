@@ -308,6 +308,10 @@ PL_EXPORT int pl_store_add_inspection(pl_store *s, const pl_inspection *in, pl_i
     if (!rc)
         rc = check_chronology(s, in, af, site, 0, NULL, err, label);
     if (!rc)
+        rc = pl_people__check_inspection(s, in, site, err, label);
+    if (!rc)
+        rc = pl_disposition__check_post_repair(s, in, site, err, label);
+    if (!rc)
         rc = insert_inspection(s, in, site, 0, 0, NULL, &newid, err, label);
     return pl_store__write_end_id(s, owned, rc, newid, id, err);
 }

@@ -347,6 +347,37 @@ int pl_ledger__chain_all(pl_store *s, int64_t *count, pl_err *err);
 void pl_ledger__endorsement_message(unsigned char out[56], const unsigned char pub[32],
                                     pl_id chain, int64_t through);
 
+/* The signed-content message of a row (plyledger/disposition.h), "PLSG"
+ * version:u32 digest:32 bytes: of a row on its way in, and of a stored row
+ * with its signature (*sig, *siglen: NULL, 0 when none), whose bytes live
+ * in *keep until the caller finalizes it (also on failure). */
+#define PL_SIGNED_MESSAGE_SIZE 40
+int pl_row__signed_message(const pl_row *row, unsigned char out[PL_SIGNED_MESSAGE_SIZE],
+                           const char *label, pl_err *err);
+int pl_store__signed_message(pl_store *s, pl_table table, pl_id id,
+                             unsigned char out[PL_SIGNED_MESSAGE_SIZE], const void **sig,
+                             size_t *siglen, sqlite3_stmt **keep, pl_err *err);
+
+/* Check the signature of row `id` of a signed table (interpretation,
+ * disposition) against the key its maker held on its signing date:
+ * *ok 1 when it holds, else 0 with the reason in why (store_people.c). */
+int pl_people__check_signature(pl_store *s, pl_table table, pl_id id, int *ok, char *why,
+                               size_t cap, pl_err *err);
+
+/* Check that `handle` may sign on `date` with `key`: in the register, of
+ * one of `roles` (words separated by spaces), holding `key` that day;
+ * *person_id its id. PL_EREFUSED with the reason. */
+int pl_people__signer(pl_store *s, const char *handle, const char *date, const pl_sign_key *key,
+                      const char *roles, pl_id *person_id, pl_err *err, const char *label);
+
+/* The checks recording an inspection makes (store_people.c,
+ * store_disposition.c): the inspector's register entry and qualification,
+ * and the post-repair baseline a repair disposition asks for. */
+int pl_people__check_inspection(pl_store *s, const pl_inspection *in, pl_id site_key,
+                                pl_err *err, const char *label);
+int pl_disposition__check_post_repair(pl_store *s, const pl_inspection *in, pl_id site_key,
+                                      pl_err *err, const char *label);
+
 /* Read whether the store is sealed, and with which key (on open). */
 int pl_ledger__load_seal(pl_store *s, pl_err *err);
 

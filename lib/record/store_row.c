@@ -13,6 +13,8 @@
 
 #include "common/common_int.h"
 #include "plyledger/criteria.h"
+#include "plyledger/disposition.h"
+#include "plyledger/people.h"
 #include "plyledger/hash.h"
 
 #include <assert.h>
@@ -46,6 +48,11 @@ static const char *const change_classes[] = {
 };
 static const char *const change_matches[] = { "none", "overlap", "distance", "signal" };
 static const char *const sizings[] = { "threshold", "half-maximum" };
+static const char *const roles[] = { "inspector", "engineer", "reviewer" };
+/* ASTM E1316's interpretation of an indication. */
+static const char *const interpretations[] = { "false", "nonrelevant", "relevant" };
+static const char *const decisions[] = { "accept", "monitor", "repair",
+                                         "refer-to-design-holder" };
 
 #define WORDS(a) sizeof a / sizeof a[0], a
 static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
@@ -58,6 +65,9 @@ static const pl_vocabulary vocabularies[PL_VOCAB_COUNT] = {
     { "change class", WORDS(change_classes) },
     { "change match", WORDS(change_matches) },
     { "sizing rule", WORDS(sizings) },
+    { "role", WORDS(roles) },
+    { "interpretation", WORDS(interpretations) },
+    { "decision", WORDS(decisions) },
 };
 
 PL_EXPORT const pl_vocabulary *pl_vocabulary_get(pl_vocab which)
@@ -788,6 +798,93 @@ static const pl_column change_cols[] = {
     RECORDED(pl_change_record),
 };
 
+static const pl_column person_cols[] = {
+    ROWID(pl_person, "person"),
+    TEXT(pl_person, handle, "handle", "handle", IN | REQ, PL_F_KEY),
+    TEXT(pl_person, name, "name", "name", IN | REQ, PL_F_NAME),
+    WORD(pl_person, role, "role", "role", PL_VOCAB_ROLE),
+    TEXT(pl_person, organisation, "organisation", "organisation", IN | NUL, PL_F_NAME),
+    RECORDED(pl_person),
+};
+
+static const pl_column person_key_cols[] = {
+    ROWID(pl_person_key, "key"),
+    INT(pl_person_key, person_id, "person_id", "person", PL_C_ID, 0, PL_F_ANY),
+    JOINED(pl_person_key, handle, "p.handle", "handle", PL_C_TEXT, IN | REQ, PL_F_KEY),
+    TEXT(pl_person_key, public_key, "public_key", "public_key", IN | REQ, PL_F_NAME),
+    TEXT(pl_person_key, valid_from, "valid_from", "valid_from", IN | REQ, PL_F_DATE),
+    TEXT(pl_person_key, reason, "reason", "reason", IN | NUL, PL_F_TEXT),
+    RECORDED(pl_person_key),
+};
+
+static const pl_column qualification_cols[] = {
+    ROWID(pl_qualification, "qualification"),
+    INT(pl_qualification, person_id, "person_id", "person", PL_C_ID, 0, PL_F_ANY),
+    JOINED(pl_qualification, handle, "p.handle", "handle", PL_C_TEXT, IN | REQ, PL_F_KEY),
+    WORD(pl_qualification, method, "method", "method", PL_VOCAB_METHOD),
+    WORD(pl_qualification, level, "level", "level", PL_VOCAB_INSPECTOR_LEVEL),
+    TEXT(pl_qualification, valid_from, "valid_from", "valid_from", IN | REQ, PL_F_DATE),
+    TEXT(pl_qualification, valid_until, "valid_until", "valid_until", IN | REQ, PL_F_DATE),
+    TEXT(pl_qualification, certificate, "certificate", "certificate", IN | NUL, PL_F_NAME),
+    RECORDED(pl_qualification),
+};
+
+static const pl_column procedure_cols[] = {
+    ROWID(pl_procedure_levels, "procedure_levels"),
+    TEXT(pl_procedure_levels, procedure, "procedure", "procedure", IN | REQ, PL_F_NAME),
+    TEXT(pl_procedure_levels, procedure_rev, "procedure_rev", "procedure_rev", IN | NUL,
+         PL_F_NAME),
+    TEXT(pl_procedure_levels, levels, "levels", "levels", IN | REQ, PL_F_NAME),
+    RECORDED(pl_procedure_levels),
+};
+
+#define SUPERSEDED(T, table) \
+    JOINED(T, superseded, "EXISTS (SELECT 1 FROM " table " y WHERE y.supersedes = t.id)", \
+           "superseded", PL_C_FLAG, 0, PL_F_ANY)
+
+static const pl_column interpretation_cols[] = {
+    ROWID(pl_interpretation, "interpretation"),
+    INT(pl_interpretation, change_id, "change_id", "change", PL_C_ID, 0, PL_F_ANY),
+    JOINED(pl_interpretation, comparison_id, "x.comparison_id", "comparison", PL_C_ID, 0,
+           PL_F_ANY),
+    JOINED(pl_interpretation, change_number, "x.number", "change_number", PL_C_I64, 0,
+           PL_F_ANY),
+    WORD(pl_interpretation, class_, "class", "class", PL_VOCAB_INTERPRETATION),
+    TEXT(pl_interpretation, note, "note", "note", IN | NUL, PL_F_TEXT),
+    INT(pl_interpretation, supersedes, "supersedes", "supersedes", PL_C_ID, NUL, PL_F_ANY),
+    TEXT(pl_interpretation, reason, "reason", "reason", IN | NUL, PL_F_TEXT),
+    JOINED(pl_interpretation, handle, "p.handle", "signed_by", PL_C_TEXT, IN | REQ, PL_F_KEY),
+    INT(pl_interpretation, person_id, "person_id", "person", PL_C_ID, 0, PL_F_ANY),
+    TEXT(pl_interpretation, signed_on, "signed_on", "signed_on", IN | REQ, PL_F_DATE),
+    SUPERSEDED(pl_interpretation, "interpretation"),
+    SUPPLIED("signature", PL_S_BLOB, 0),
+    RECORDED(pl_interpretation),
+};
+
+static const pl_column disposition_cols[] = {
+    ROWID(pl_disposition, "disposition"),
+    JOINED(pl_disposition, airframe_serial, "a.serial", "airframe", PL_C_TEXT, 0, PL_F_ANY),
+    JOINED(pl_disposition, site_code, "s.code", "site", PL_C_TEXT, 0, PL_F_ANY),
+    INT(pl_disposition, comparison_id, "comparison_id", "comparison", PL_C_ID, 0, PL_F_ANY),
+    TEXT(pl_disposition, changes, "changes_json", "changes", 0, PL_F_ANY),
+    INT(pl_disposition, criteria_id, "criteria_id", "criteria", PL_C_ID, NUL, PL_F_ANY),
+    WORD(pl_disposition, decision, "decision", "decision", PL_VOCAB_DECISION),
+    TEXT(pl_disposition, due_date, "due_date", "due.date", IN | NUL, PL_F_DATE),
+    REAL(pl_disposition, due_hours, "due_hours", "due.hours", IN | NUL, PL_F_POSITIVE),
+    INT(pl_disposition, due_cycles, "due_cycles", "due.cycles", PL_C_I64, NUL, PL_F_ANY),
+    TEXT(pl_disposition, repair_ref, "repair_ref", "repair_ref", IN | NUL, PL_F_NAME),
+    TEXT(pl_disposition, query_ref, "query_ref", "query_ref", IN | NUL, PL_F_NAME),
+    TEXT(pl_disposition, rationale, "rationale", "rationale", IN | NUL, PL_F_TEXT),
+    INT(pl_disposition, supersedes, "supersedes", "supersedes", PL_C_ID, NUL, PL_F_ANY),
+    TEXT(pl_disposition, reason, "reason", "reason", IN | NUL, PL_F_TEXT),
+    JOINED(pl_disposition, handle, "p.handle", "signed_by", PL_C_TEXT, IN | REQ, PL_F_KEY),
+    INT(pl_disposition, person_id, "person_id", "person", PL_C_ID, 0, PL_F_ANY),
+    TEXT(pl_disposition, signed_on, "signed_on", "signed_on", IN | REQ, PL_F_DATE),
+    SUPERSEDED(pl_disposition, "disposition"),
+    SUPPLIED("signature", PL_S_BLOB, 0),
+    RECORDED(pl_disposition),
+};
+
 #define TABLE(id, name, from, cols, T) \
     { id, name, from, cols, sizeof cols / sizeof cols[0], sizeof(T), NULL, NULL }
 static const pl_table_desc tables[PL_TABLE_COUNT] = {
@@ -810,6 +907,23 @@ static const pl_table_desc tables[PL_TABLE_COUNT] = {
           pl_indication_record),
     TABLE(PL_TABLE_CHANGE, "indication_change", "indication_change t", change_cols,
           pl_change_record),
+    TABLE(PL_TABLE_PERSON, "person", "person t", person_cols, pl_person),
+    TABLE(PL_TABLE_PERSON_KEY, "person_key", "person_key t JOIN person p ON p.id = t.person_id",
+          person_key_cols, pl_person_key),
+    TABLE(PL_TABLE_QUALIFICATION, "person_qualification",
+          "person_qualification t JOIN person p ON p.id = t.person_id", qualification_cols,
+          pl_qualification),
+    TABLE(PL_TABLE_PROCEDURE_LEVELS, "procedure_level", "procedure_level t", procedure_cols,
+          pl_procedure_levels),
+    TABLE(PL_TABLE_INTERPRETATION, "interpretation",
+          "interpretation t JOIN indication_change x ON x.id = t.change_id "
+          "JOIN person p ON p.id = t.person_id",
+          interpretation_cols, pl_interpretation),
+    TABLE(PL_TABLE_DISPOSITION, "disposition",
+          "disposition t JOIN person p ON p.id = t.person_id "
+          "JOIN comparison c ON c.id = t.comparison_id JOIN site s ON s.id = c.site_key "
+          "JOIN airframe a ON a.id = s.airframe_key",
+          disposition_cols, pl_disposition),
 };
 
 const pl_table_desc *pl_row__table(pl_table table)
@@ -2046,4 +2160,66 @@ int pl_row__encode(unsigned char **out, size_t *len, const pl_row *row, pl_id id
     *out = e.p;
     *len = e.n;
     return PL_OK;
+}
+
+/* ---- signed content ------------------------------------------------------------------- */
+
+/* The signed-content message (plyledger/disposition.h) of a row's values:
+ * the id, recorded_at and signature entries made null. */
+static int signed_message(const pl_table_desc *t, const pl_value *values,
+                          unsigned char out[PL_SIGNED_MESSAGE_SIZE], const char *label,
+                          pl_err *err)
+{
+    pl_value v[PL_ROW_MAX_COLUMNS];
+    for (size_t i = 0; i < t->ncols; i++) {
+        v[i] = values[i];
+        const char *c = t->cols[i].column;
+        if ((t->cols[i].flags & PL_COL_ROWID) ||
+            (c && (strcmp(c, "recorded_at") == 0 || strcmp(c, "signature") == 0)))
+            v[i] = null_value();
+    }
+    enc e = { 0 };
+    child_source none = { NULL, NULL };
+    int rc = encode(&e, t, v, &none, label, err);
+    if (!rc) {
+        memcpy(out, "PLSG", 4);
+        for (int i = 0; i < 4; i++)
+            out[4 + i] = (unsigned char)(PL_SIGNED_CONTENT_VERSION >> (8 * i));
+        pl_sha256(out + 8, e.p, e.n);
+    }
+    free(e.p);
+    return rc;
+}
+
+int pl_row__signed_message(const pl_row *row, unsigned char out[PL_SIGNED_MESSAGE_SIZE],
+                           const char *label, pl_err *err)
+{
+    return signed_message(row->t, row->v, out, label, err);
+}
+
+int pl_store__signed_message(pl_store *s, pl_table table, pl_id id,
+                             unsigned char out[PL_SIGNED_MESSAGE_SIZE], const void **sig,
+                             size_t *siglen, sqlite3_stmt **keep, pl_err *err)
+{
+    const pl_table_desc *t = pl_row__table(table);
+    char label[STORE_LABEL_SIZE], sql[2048];
+    snprintf(label, sizeof label, "%s: %s %lld", s->path, t->name, (long long)id);
+    content_select(sql, sizeof sql, t, "id", NULL);
+    sqlite3_stmt *st = NULL;
+    int rc = pl_store__row_by_id(s, &st, sql, id, err, label, "no such row");
+    if (rc)
+        return rc;
+    pl_value v[PL_ROW_MAX_COLUMNS];
+    content_values(st, t, v);
+    rc = signed_message(t, v, out, label, err);
+    *sig = NULL;
+    *siglen = 0;
+    for (size_t i = 0; i < t->ncols; i++)
+        if (t->cols[i].column && strcmp(t->cols[i].column, "signature") == 0 &&
+            v[i].type == PL_S_BLOB) {
+            *sig = v[i].p;
+            *siglen = v[i].n;
+        }
+    *keep = st; /* the signature's bytes live in it */
+    return rc;
 }

@@ -177,6 +177,9 @@ typedef enum pl_vocab {
                                            changed-region (pl_change_kind_name()) */
     PL_VOCAB_CHANGE_MATCH = 7,        /**< none, overlap, distance, signal */
     PL_VOCAB_SIZING = 8,              /**< threshold, half-maximum (pl_sizing_name()) */
+    PL_VOCAB_ROLE = 9,                /**< inspector, engineer, reviewer (plyledger/people.h) */
+    PL_VOCAB_INTERPRETATION = 10,     /**< false, nonrelevant, relevant (ASTM E1316) */
+    PL_VOCAB_DECISION = 11,           /**< accept, monitor, repair, refer-to-design-holder */
     PL_VOCAB_COUNT
 } pl_vocab;
 

@@ -73,6 +73,12 @@ typedef enum pl_table {
     PL_TABLE_CRITERIA = 8,      /**< pl_criteria_record (plyledger/criteria.h) */
     PL_TABLE_INDICATION = 9,    /**< pl_indication_record */
     PL_TABLE_CHANGE = 10,       /**< pl_change_record (table indication_change) */
+    PL_TABLE_PERSON = 11,       /**< pl_person (plyledger/people.h) */
+    PL_TABLE_PERSON_KEY = 12,   /**< pl_person_key */
+    PL_TABLE_QUALIFICATION = 13, /**< pl_qualification (table person_qualification) */
+    PL_TABLE_PROCEDURE_LEVELS = 14, /**< pl_procedure_levels (table procedure_level) */
+    PL_TABLE_INTERPRETATION = 15, /**< pl_interpretation (plyledger/disposition.h) */
+    PL_TABLE_DISPOSITION = 16,  /**< pl_disposition */
     PL_TABLE_COUNT
 } pl_table;
 
