@@ -157,7 +157,7 @@ PL_EXPORT int pl_store_list_interpretations(pl_store *s, pl_id comparison_id,
     interpretation_cb cb = { fn, ud };
     pl_value arg = pl_store__arg_id(comparison_id);
     return pl_store__list(s, PL_TABLE_INTERPRETATION,
-                          "WHERE ?1 IS NULL OR x.comparison_id = ?1 "
+                          "WHERE ?1 = 0 OR x.comparison_id = ?1 "
                           "ORDER BY x.comparison_id, x.number, t.id",
                           &arg, 1, call_interpretation, &cb, err, NULL);
 }
@@ -267,6 +267,7 @@ PL_EXPORT int pl_store_add_disposition(pl_store *s, const pl_disposition *d,
         pl_store__col_text(st, 2, date, sizeof date);
         sqlite3_finalize(st);
     }
+    st = NULL;
     if (!rc)
         rc = check_signed_on(s, d->signed_on, date, err, label);
     if (!rc)
@@ -375,7 +376,7 @@ PL_EXPORT int pl_store_list_dispositions(pl_store *s, const char *serial, const 
                           "airframe_current WHERE serial = ?1 COLLATE NOCASE)) AND "
                           "(?2 IS NULL OR coalesce(s.key, s.id) = (SELECT stable_key FROM "
                           "site_current z WHERE z.airframe_key = s.airframe_key AND "
-                          "z.code = ?2 COLLATE NOCASE)) AND (?3 IS NULL OR "
+                          "z.code = ?2 COLLATE NOCASE)) AND (?3 = 0 OR "
                           "t.comparison_id = ?3) ORDER BY t.signed_on, t.id",
                           args, 3, call_disposition, &cb, err, NULL);
 }
