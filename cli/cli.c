@@ -56,6 +56,10 @@ static const struct {
 } help_words[] = {
     { "@KINDS@", PL_VOCAB_INSPECTION_KIND },
     { "@METHODS@", PL_VOCAB_METHOD },
+    { "@LEVELS@", PL_VOCAB_INSPECTOR_LEVEL },
+    { "@ROLES@", PL_VOCAB_ROLE },
+    { "@DECISIONS@", PL_VOCAB_DECISION },
+    { "@INTERPRETATIONS@", PL_VOCAB_INTERPRETATION },
 };
 
 #define WAIT_TOKEN "@WAIT@"
@@ -235,6 +239,14 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags)
         return rc ? cli_fail_err(rc, &err) : cli_fail("cannot read today's date from the clock");
     }
     return CLI_OK;
+}
+
+void cli_today(char *buf, size_t cap)
+{
+    time_t now = time(NULL);
+    struct tm tm;
+    if (!localtime_r(&now, &tm) || !strftime(buf, cap, "%Y-%m-%d", &tm))
+        snprintf(buf, cap, "%s", "");
 }
 
 void cli_remove_store(const char *path)

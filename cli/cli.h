@@ -89,6 +89,9 @@ int cli_open_store(pl_store **out, const cli_common *common, unsigned flags);
  * NULL when it does not fit. */
 const char *cli_seal_key_path(const cli_common *common, char *buf, size_t cap);
 
+/* Today's local calendar date, YYYY-MM-DD ("" when the clock fails). */
+void cli_today(char *buf, size_t cap);
+
 /* Remove a store that a failed command made, with its -wal and -shm. */
 void cli_remove_store(const char *path);
 
@@ -240,6 +243,11 @@ int cmd_register(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
 int cmd_seal(int argc, char **argv);
+int cmd_new_key(int argc, char **argv);
+int cmd_people(int argc, char **argv);
+int cmd_interpret(int argc, char **argv);
+int cmd_dispose(int argc, char **argv);
+int cmd_dispositions(int argc, char **argv);
 int cmd_version(int argc, char **argv);
 int cmd_help(int argc, char **argv);
 

@@ -381,6 +381,18 @@ PL_EXPORT int pl_store_list_dispositions(pl_store *s, const char *serial, const 
                           args, 3, call_disposition, &cb, err, NULL);
 }
 
+PL_EXPORT int pl_store_get_disposition(pl_store *s, pl_id id, pl_disposition *d, pl_err *err)
+{
+    assert(s && d);
+    pl_value arg = pl_store__arg_id(id);
+    int found = 0;
+    int rc = pl_store__get(s, PL_TABLE_DISPOSITION, "WHERE t.id = ?1", &arg, 1, d, &found, err,
+                           NULL);
+    if (!rc && !found)
+        rc = pl__err(err, PL_ENOTFOUND, "disposition %lld: no such disposition", (long long)id);
+    return rc;
+}
+
 int pl_disposition__check_post_repair(pl_store *s, const pl_inspection *in, pl_id site_key,
                                       pl_err *err, const char *label)
 {

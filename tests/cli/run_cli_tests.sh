@@ -465,6 +465,53 @@ expect_out "compare check" "summary of check HC-1 of TST-0002"
 run "compare check unknown task" 1 ply compare --airframe TST-0002 --task NO-SUCH-CHECK --criteria EXAMPLE-CR7-GROWTH \
     && expect_one_line_err "compare check unknown task" "NO-SUCH-CHECK"
 
+# ---- people, interpretation and signed dispositions -------------------------------
+for c in new-key people interpret dispose dispositions seal; do
+    run "$c --help" 0 ply $c --help && expect_out "$c --help" "usage: plyledger $c"
+done
+run "new-key" 0 ply new-key "$WORK/eng.key" && expect_out "new-key" "mode 0600"
+[ "$(stat -c %a "$WORK/eng.key")" = 600 ] || fail "new-key: the key file is not mode 0600"
+run "new-key over a file" 1 ply new-key "$WORK/eng.key"
+run "new-key onto the store" 1 ply new-key "$STORE"
+run "new-key inspector" 0 ply new-key "$WORK/insp.key"
+run "people add engineer" 0 ply people add --handle n.example --name "N. Example" --role engineer --organisation "Test MRO"
+run "people add again" 1 ply people add --handle N.EXAMPLE --name "Other" --role engineer
+run "people add bad role" 1 ply people add --handle x.y --name "X" --role chief \
+    && expect_one_line_err "people add bad role" "role"
+run "people add inspector" 0 ply people add --handle t.inspector --name "T. Inspector" --role inspector
+run "people wrong option" 2 ply people add --handle a.b --name B --role engineer --level 2
+run "people add-key" 0 ply people add-key --handle n.example --key "$WORK/eng.key" --from 2016-01-01
+run "people add-key inspector" 0 ply people add-key --handle t.inspector --key "$WORK/insp.key" --from 2016-01-01
+cp "$WORK/insp.key" "$WORK/open.key" && chmod 644 "$WORK/open.key"
+run "a key file others can read" 1 ply people add-key --handle t.inspector --key "$WORK/open.key" --from 2024-01-01 \
+    && expect_one_line_err "a key file others can read" "chmod 600"
+run "people qualify" 0 ply people qualify --handle t.inspector --method flash-thermography --level 2 --from 2016-01-01 --until 2019-12-31
+run "people qualify free level" 1 ply people qualify --handle t.inspector --method flash-thermography --level senior --from 2016-01-01 --until 2019-12-31
+run "people list" 0 ply people list && expect_out "people list" "flash-thermography level 2"
+CMP=$(sqlite3 "$STORE" "SELECT max(id) FROM comparison WHERE status = 'done'")
+run "dispose before interpreting" 1 ply dispose --comparison "$CMP" --change 1 --decision accept --by n.example --key "$WORK/eng.key" --date 2021-07-01 \
+    && expect_one_line_err "dispose before interpreting" "not interpreted yet"
+run "interpret" 0 ply interpret --comparison "$CMP" --change 1 --as relevant --by t.inspector --key "$WORK/insp.key" --date 2021-07-01 \
+    && expect_out "interpret" "is relevant"
+run "interpret unknown change" 1 ply interpret --comparison "$CMP" --change 99 --as relevant --by t.inspector --key "$WORK/insp.key" --date 2021-07-01
+run "dispose with the wrong key" 1 ply dispose --comparison "$CMP" --change 1 --decision accept --by n.example --key "$WORK/insp.key" --date 2021-07-01 \
+    && expect_one_line_err "dispose with the wrong key" "is not the key n.example holds"
+run "dispose monitor without due" 1 ply dispose --comparison "$CMP" --change 1 --decision monitor --by n.example --key "$WORK/eng.key" --date 2021-07-01
+run "dispose monitor" 0 ply dispose --comparison "$CMP" --change 1 --decision monitor --due-cycles 1500 --by n.example --key "$WORK/eng.key" --date 2021-07-02 \
+    && expect_out "dispose monitor" "does not replace"
+expect_out "dispose monitor" "1500 cycles"
+DSP=$(sqlite3 "$STORE" "SELECT max(id) FROM disposition")
+run "dispose supersedes" 0 ply dispose --comparison "$CMP" --change 1 --decision accept --supersedes "$DSP" --reason "reviewed against the repeatability" --by n.example --key "$WORK/eng.key" --date 2021-07-03 --json
+"$PY" -c 'import json,sys; j=json.load(open(sys.argv[1])); assert "does not replace" in j["caution"] and j["disposition"]["decision"] == "accept", j' "$WORK/out" || fail "dispose --json"
+run "dispositions" 0 ply dispositions --airframe TST-0002 && expect_out "dispositions" "SUPERSEDED"
+expect_out "dispositions" "does not replace"
+run "verify with signatures" 0 ply verify && expect_out "verify with signatures" "3 signatures checked"
+# a lapsed qualification refuses the inspection
+run "lapsed qualification" 1 ply record --airframe TST-0002 --site T04 --kind unscheduled --date 2022-05-05 \
+    --procedure NDT-TEST-01 --procedure-rev A --equipment test-rig --calibration RS-T1 --inspector t.inspector --level 2 \
+    --map "$WORK/t01_noisy.npy" --quantity temperature-contrast \
+    && expect_one_line_err "lapsed qualification" "lapsed" "2019-12-31"
+
 # The record itself refuses changes in place.
 sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"
 grep -q "append-only" "$WORK/err" || fail "UPDATE refusal message"

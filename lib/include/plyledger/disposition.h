@@ -133,6 +133,10 @@ PL_EXPORT int pl_store_list_dispositions(pl_store *store, const char *serial, co
                                          pl_id comparison_id, pl_disposition_fn fn, void *ud,
                                          pl_err *err);
 
+/** Disposition `id` into `d`. @return PL_OK, PL_ENOTFOUND, PL_EDB. */
+PL_EXPORT int pl_store_get_disposition(pl_store *store, pl_id id, pl_disposition *d,
+                                       pl_err *err);
+
 /** The change ids of a disposition's `changes` text into ids (up to cap);
  * returns how many it holds, or -1 when it is not such an array. */
 PL_EXPORT long pl_disposition_change_ids(const char *changes, pl_id *ids, size_t cap);
