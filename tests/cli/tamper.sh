@@ -75,6 +75,13 @@ prep record --airframe TST-0002 --site T02 --kind scheduled --date 2020-03-10 $T
 prep register --airframe TST-0002 --site T02 -q
 prep criteria import "$W/criteria.json"
 prep compare --airframe TST-0002 --site T02 --criteria TEST-LIMITS -q
+# a signed interpretation and disposition of the comparison's first change
+prep new-key "$WORK/eng.key"
+prep people add --handle e.tester --name "E. Tester" --role engineer
+prep people add-key --handle e.tester --key "$WORK/eng.key" --from 2020-01-01
+CMP=$(sqlite3 "$PREP" "SELECT max(id) FROM comparison WHERE status = 'done'")
+prep interpret --comparison "$CMP" --change 1 --as relevant --by e.tester --key "$WORK/eng.key" --date 2020-03-20
+prep dispose --comparison "$CMP" --change 1 --decision accept --by e.tester --key "$WORK/eng.key" --date 2020-03-21
 prep verify --keep-heads "$HEADS"
 unset PLYLEDGER_STORE
 
