@@ -13,7 +13,7 @@
 enum {
     O_COMPARISON = 0x600, O_CHANGE, O_AS, O_BY, O_KEY, O_DATE, O_NOTE, O_SUPERSEDES, O_REASON,
     O_DECISION, O_DUE_DATE, O_DUE_HOURS, O_DUE_CYCLES, O_REPAIR, O_QUERY, O_RATIONALE,
-    O_AIRFRAME, O_SITE
+    O_AIRFRAME, O_SITE, O_TASK
 };
 
 static const struct option opts[] = {
@@ -36,6 +36,7 @@ static const struct option opts[] = {
     { "rationale", required_argument, NULL, O_RATIONALE },
     { "airframe", required_argument, NULL, O_AIRFRAME },
     { "site", required_argument, NULL, O_SITE },
+    { "task", required_argument, NULL, O_TASK },
     { NULL, 0, NULL, 0 },
 };
 
@@ -43,7 +44,7 @@ typedef struct args {
     const char *usage;
     const char *comparison, *change, *as, *by, *key, *date, *note, *supersedes, *reason,
         *decision, *due_date, *due_hours, *due_cycles, *repair, *query, *rationale, *airframe,
-        *site;
+        *site, *task;
 } args;
 
 static int take_opt(void *ctx, int opt, const char *arg)
@@ -68,6 +69,7 @@ static int take_opt(void *ctx, int opt, const char *arg)
     case O_RATIONALE: a->rationale = arg; break;
     case O_AIRFRAME: a->airframe = arg; break;
     case O_SITE: a->site = arg; break;
+    case O_TASK: a->task = arg; break;
     default: return cli_usage_error(a->usage, "unexpected option");
     }
     return 0;
@@ -85,6 +87,7 @@ static int only(const args *a, const char *cmd, const char *allowed)
         { "due-date", a->due_date }, { "due-hours", a->due_hours },
         { "due-cycles", a->due_cycles }, { "repair-ref", a->repair }, { "query-ref", a->query },
         { "rationale", a->rationale }, { "airframe", a->airframe }, { "site", a->site },
+        { "task", a->task },
     };
     for (size_t i = 0; i < sizeof given / sizeof given[0]; i++) {
         char word[32];
@@ -144,6 +147,40 @@ static int resolve(pl_store *store, pl_id comparison, numbers *m)
     return 0;
 }
 
+static int parse_id(const char *opt, const char *text, pl_id *out, const char *usage)
+{
+    long long v;
+    if (cli_count(opt, text, &v, usage))
+        return CLI_USAGE;
+    if (v < 1)
+        return cli_usage_error(usage, "%s: expected an id from 1", opt);
+    *out = v;
+    return 0;
+}
+
+/* The comparison: --comparison ID, or the latest of --airframe/--site
+ * (--task: of that check). Needs the store open; 0 or the exit code. */
+static int which_comparison(pl_store *store, const args *a, pl_id *out)
+{
+    if (a->comparison)
+        return 0; /* parsed already */
+    pl_err err = { 0 };
+    int st = pl_store_find_comparison(store, a->airframe, a->site, a->task, out, &err);
+    return st ? cli_fail_err(st, &err) : 0;
+}
+
+static int comparison_options(const args *a, pl_id *out, const char *usage)
+{
+    if (a->comparison && (a->airframe || a->site || a->task))
+        return cli_usage_error(usage, "give --comparison ID or --airframe and --site, not both");
+    if (a->comparison)
+        return parse_id("--comparison", a->comparison, out, usage);
+    if (!a->airframe || !a->site)
+        return cli_usage_error(usage, "which comparison? give --comparison ID, or --airframe "
+                               "and --site (and --task for a check's)");
+    return 0;
+}
+
 static int load_key(const char *path, pl_sign_key *key)
 {
     pl_err err = { 0 };
@@ -154,9 +191,11 @@ static int load_key(const char *path, pl_sign_key *key)
 /* ---- interpret ---------------------------------------------------------- */
 
 static const char interpret_usage[] =
-    "--comparison ID --change N --as CLASS --by HANDLE --key FILE [options]";
+    "(--comparison ID | --airframe SERIAL --site CODE [--task REF]) --change N --as CLASS "
+    "--by HANDLE --key FILE [options]";
 static const char interpret_help[] =
-    "usage: plyledger interpret --comparison ID --change N --as CLASS --by HANDLE\n"
+    "usage: plyledger interpret (--comparison ID | --airframe SERIAL --site CODE\n"
+    "                           [--task REF]) --change N --as CLASS --by HANDLE\n"
     "                           --key FILE [options]\n"
     "\n"
     "Interpret the indication of change N of a comparison, in the terms of ASTM\n"
@@ -168,7 +207,9 @@ static const char interpret_help[] =
     "the register) holds on the date. It is never edited: a later one supersedes it.\n"
     "\n"
     "Options:\n"
-    "      --comparison ID   the comparison (plyledger compare prints its id)\n"
+    "      --comparison ID   the comparison (plyledger compare and history print it)\n"
+    "      --airframe SERIAL, --site CODE [--task REF]\n"
+    "                        instead: the site's latest comparison (of that check)\n"
     "      --change N        the change's number in it\n"
     "      --as CLASS        @INTERPRETATIONS@\n"
     "      --by HANDLE       who interprets (plyledger people list)\n"
@@ -183,17 +224,6 @@ static const char interpret_help[] =
     "  -q, --quiet           print nothing on success\n"
     "  -h, --help            show this help\n";
 
-static int parse_id(const char *opt, const char *text, pl_id *out, const char *usage)
-{
-    long long v;
-    if (cli_count(opt, text, &v, usage))
-        return CLI_USAGE;
-    if (v < 1)
-        return cli_usage_error(usage, "%s: expected an id from 1", opt);
-    *out = v;
-    return 0;
-}
-
 int cmd_interpret(int argc, char **argv)
 {
     cli_common common;
@@ -205,18 +235,18 @@ int cmd_interpret(int argc, char **argv)
     if (rc >= 0)
         return rc;
     if ((rc = only(&a, "interpret",
-                   " comparison change as by key date note supersedes reason ")))
+                   " comparison airframe site task change as by key date note supersedes "
+                   "reason ")))
         return rc;
-    if (!a.comparison || !a.change || !a.as || !a.by || !a.key)
-        return cli_usage_error(interpret_usage,
-                               "--comparison, --change, --as, --by and --key are required");
+    if (!a.change || !a.as || !a.by || !a.key)
+        return cli_usage_error(interpret_usage, "--change, --as, --by and --key are required");
     pl_interpretation in;
     memset(&in, 0, sizeof in);
     pl_id comparison = 0;
     numbers m;
     char today[PL_DATE_SIZE];
     cli_today(today, sizeof today);
-    if ((rc = parse_id("--comparison", a.comparison, &comparison, interpret_usage)) ||
+    if ((rc = comparison_options(&a, &comparison, interpret_usage)) ||
         (rc = parse_numbers(a.change, &m, interpret_usage)))
         return rc;
     if (m.n != 1)
@@ -238,7 +268,7 @@ int cmd_interpret(int argc, char **argv)
         pl_sign_key_wipe(&key);
         return rc;
     }
-    if ((rc = resolve(store, comparison, &m))) {
+    if ((rc = which_comparison(store, &a, &comparison)) || (rc = resolve(store, comparison, &m))) {
         pl_sign_key_wipe(&key);
         pl_store_close(store);
         return rc;
@@ -274,9 +304,11 @@ int cmd_interpret(int argc, char **argv)
 /* ---- dispose ------------------------------------------------------------ */
 
 static const char dispose_usage[] =
-    "--comparison ID --change N[,N...] --decision DECISION --by HANDLE --key FILE [options]";
+    "(--comparison ID | --airframe SERIAL --site CODE [--task REF]) --change N[,N...] "
+    "--decision DECISION --by HANDLE --key FILE [options]";
 static const char dispose_help[] =
-    "usage: plyledger dispose --comparison ID --change N[,N...] --decision DECISION\n"
+    "usage: plyledger dispose (--comparison ID | --airframe SERIAL --site CODE\n"
+    "                         [--task REF]) --change N[,N...] --decision DECISION\n"
     "                         --by HANDLE --key FILE [options]\n"
     "\n"
     "Record the engineer's disposition of changes of one comparison, each of them\n"
@@ -298,7 +330,9 @@ static const char dispose_help[] =
     "them. Local regulations and the design holder's data govern.\n"
     "\n"
     "Options:\n"
-    "      --comparison ID     the comparison (plyledger compare prints its id)\n"
+    "      --comparison ID     the comparison (plyledger compare and history print it)\n"
+    "      --airframe SERIAL, --site CODE [--task REF]\n"
+    "                          instead: the site's latest comparison (of that check)\n"
     "      --change N[,N...]   the numbers of the changes it covers\n"
     "      --decision WORD     @DECISIONS@\n"
     "      --by HANDLE         who decides (plyledger people list)\n"
@@ -320,7 +354,7 @@ static const char dispose_help[] =
 
 static void print_disposition(const pl_disposition *d)
 {
-    printf("disposition %lld of %s site %s (comparison %lld, changes %s): %s", (long long)d->id,
+    printf("disposition %lld of %s site %s (comparison %lld, change ids %s): %s", (long long)d->id,
            d->airframe_serial, d->site_code, (long long)d->comparison_id, d->changes,
            d->decision);
     if (d->due_date[0] || !isnan(d->due_hours) || d->due_cycles >= 0) {
@@ -341,7 +375,7 @@ static void print_disposition(const pl_disposition *d)
         printf(" (query %s)", d->query_ref);
     printf("\n  signed by %s on %s", d->handle, d->signed_on);
     if (d->criteria_id)
-        printf(", under criteria revision %lld", (long long)d->criteria_id);
+        printf(", under criteria record %lld", (long long)d->criteria_id);
     if (d->supersedes)
         printf("; supersedes disposition %lld: %s", (long long)d->supersedes, d->reason);
     if (d->superseded)
@@ -362,12 +396,12 @@ int cmd_dispose(int argc, char **argv)
     if (rc >= 0)
         return rc;
     if ((rc = only(&a, "dispose",
-                   " comparison change decision by key date due-date due-hours due-cycles "
-                   "repair-ref query-ref rationale supersedes reason ")))
+                   " comparison airframe site task change decision by key date due-date "
+                   "due-hours due-cycles repair-ref query-ref rationale supersedes reason ")))
         return rc;
-    if (!a.comparison || !a.change || !a.decision || !a.by || !a.key)
-        return cli_usage_error(dispose_usage, "--comparison, --change, --decision, --by and "
-                               "--key are required");
+    if (!a.change || !a.decision || !a.by || !a.key)
+        return cli_usage_error(dispose_usage, "--change, --decision, --by and --key are "
+                               "required");
     pl_disposition d;
     memset(&d, 0, sizeof d);
     d.due_hours = NAN;
@@ -375,7 +409,7 @@ int cmd_dispose(int argc, char **argv)
     numbers m;
     char today[PL_DATE_SIZE];
     cli_today(today, sizeof today);
-    if ((rc = parse_id("--comparison", a.comparison, &d.comparison_id, dispose_usage)) ||
+    if ((rc = comparison_options(&a, &d.comparison_id, dispose_usage)) ||
         (rc = parse_numbers(a.change, &m, dispose_usage)))
         return rc;
     if (a.supersedes &&
@@ -415,7 +449,8 @@ int cmd_dispose(int argc, char **argv)
     pl_err err = { 0 };
     pl_id id = 0;
     int st = 0;
-    if (!(rc = resolve(store, d.comparison_id, &m)))
+    if (!(rc = which_comparison(store, &a, &d.comparison_id)) &&
+        !(rc = resolve(store, d.comparison_id, &m)))
         st = pl_store_add_disposition(store, &d, m.id, m.n, &key, &id, &err);
     pl_sign_key_wipe(&key);
     pl_disposition rec;

@@ -381,6 +381,37 @@ PL_EXPORT int pl_store_list_dispositions(pl_store *s, const char *serial, const 
                           args, 3, call_disposition, &cb, err, NULL);
 }
 
+PL_EXPORT int pl_store_find_comparison(pl_store *s, const char *serial, const char *code,
+                                       const char *task, pl_id *id, pl_err *err)
+{
+    assert(s && serial && code && id);
+    sqlite3_stmt *st;
+    int rc = pl_store__prepare(
+        s, &st,
+        "SELECT c.id FROM comparison c JOIN site_current z ON z.stable_key = c.site_key "
+        "JOIN airframe_current a ON a.stable_key = z.airframe_key "
+        "JOIN inspection_current i ON i.stable_key = c.current_inspection "
+        "WHERE a.serial = ?1 COLLATE NOCASE AND z.code = ?2 COLLATE NOCASE "
+        "AND c.status = 'done' AND (?3 IS NULL OR i.task_ref = ?3) "
+        "ORDER BY i.performed_on DESC, c.id DESC LIMIT 1",
+        err);
+    if (rc)
+        return rc;
+    sqlite3_bind_text(st, 1, serial, -1, SQLITE_TRANSIENT);
+    sqlite3_bind_text(st, 2, code, -1, SQLITE_TRANSIENT);
+    pl_store__bind_opt_text(st, 3, task);
+    int r = sqlite3_step(st);
+    if (r == SQLITE_ROW)
+        *id = sqlite3_column_int64(st, 0);
+    else if (r == SQLITE_DONE)
+        rc = pl__err(err, PL_ENOTFOUND, "site %s of %s has no comparison that was done%s%s",
+                     code, serial, task ? " for task " : "", task ? task : "");
+    else
+        rc = pl_store__fail(s, err, NULL);
+    sqlite3_finalize(st);
+    return rc;
+}
+
 PL_EXPORT int pl_store_get_disposition(pl_store *s, pl_id id, pl_disposition *d, pl_err *err)
 {
     assert(s && d);

@@ -133,6 +133,14 @@ PL_EXPORT int pl_store_list_dispositions(pl_store *store, const char *serial, co
                                          pl_id comparison_id, pl_disposition_fn fn, void *ud,
                                          pl_err *err);
 
+/**
+ * The latest done comparison of site `code` of airframe `serial` (any case),
+ * of the inspection with task reference `task` (NULL: any), by the
+ * inspection's date. @return PL_OK, PL_ENOTFOUND (named), PL_EDB.
+ */
+PL_EXPORT int pl_store_find_comparison(pl_store *store, const char *serial, const char *code,
+                                       const char *task, pl_id *id, pl_err *err);
+
 /** Disposition `id` into `d`. @return PL_OK, PL_ENOTFOUND, PL_EDB. */
 PL_EXPORT int pl_store_get_disposition(pl_store *store, pl_id id, pl_disposition *d,
                                        pl_err *err);
