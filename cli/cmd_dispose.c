@@ -366,7 +366,9 @@ static void print_disposition(const pl_disposition *d)
             printf("%s%g flight hours", sep, d->due_hours), sep = " or ";
         if (d->due_cycles >= 0)
             printf("%s%lld cycles", sep, (long long)d->due_cycles);
-        printf(", whichever comes first");
+        int many = (d->due_date[0] != 0) + !isnan(d->due_hours) + (d->due_cycles >= 0);
+        if (many > 1)
+            printf(", whichever comes first");
     }
     if (d->repair_ref[0])
         printf(" under %s; the next inspection is the site's post-repair baseline",

@@ -61,6 +61,9 @@ int cmd_summary(int argc, char **argv)
     printf("indications  %lld, comparisons %lld, dispositions %lld\n", (long long)s.indications,
            (long long)s.comparisons, (long long)s.dispositions);
     printf("ledger       %lld links (plyledger verify checks them)\n", (long long)s.ledger_links);
+    printf("people       %lld in the register\n", (long long)s.people);
+    if (s.received)
+        printf("received     %lld hand-over package(s)\n", (long long)s.received);
     if (s.seal_key[0])
         printf("sealed       with seal key %s\n", s.seal_key);
     else

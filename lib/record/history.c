@@ -484,7 +484,8 @@ PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char 
         { "maps", s->maps }, { "map_bytes", s->map_bytes }, { "corrections", s->corrections },
         { "indications", s->indications }, { "registrations", s->registrations },
         { "comparisons", s->comparisons }, { "dispositions", s->dispositions },
-        { "ledger_links", s->ledger_links },
+        { "ledger_links", s->ledger_links }, { "people", s->people },
+        { "packages_received", s->received },
     };
     for (size_t i = 0; ok && i < sizeof counts / sizeof counts[0]; i++)
         ok = cJSON_AddNumberToObject(o, counts[i].key, (double)counts[i].n) != NULL;
