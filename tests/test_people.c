@@ -254,6 +254,21 @@ static void test_people__an_inspection_needs_a_valid_qualification(void **state)
     snprintf(pr.levels, sizeof pr.levels, "2 expert");
     assert_int_equal(pl_store_set_procedure_levels(f->st, &pr, NULL, &err), PL_EINVAL);
     tu_assert_msg_has(err.msg, "'expert' is not a level");
+    /* a correction naming a lapsed inspector is refused; one of another
+     * field leaves the free-text name of an earlier inspection alone */
+    pl_id first = 1; /* the first inspection recorded, by "someone" (key 1) */
+    pl_inspection cur;
+    TU_OK(pl_store_get_inspection(f->st, first, &cur, &err));
+    pl_inspection fix = cur;
+    fix.parameters_json = NULL;
+    snprintf(fix.notes, sizeof fix.notes, "rig serial noted");
+    TU_OK(pl_store_correct_inspection(f->st, first, &fix, "notes added", NULL, &err));
+    snprintf(fix.inspector, sizeof fix.inspector, "k.ostrova");
+    assert_int_equal(pl_store_correct_inspection(f->st, first, &fix, "inspector named", NULL,
+                                                 &err),
+                     PL_EREFUSED);
+    tu_assert_msg_has(err.msg, "not yet valid");
+    pl_inspection_clear(&cur);
     /* the register's rows are chained and verify */
     pl_verify_result res;
     TU_OK(pl_store_verify(f->st, &res, NULL, &err));

@@ -367,6 +367,14 @@ PL_EXPORT int pl_store_correct_inspection(pl_store *s, pl_id key, const pl_inspe
         rc = check_baseline(s, site, current, err, label);
     if (!rc)
         rc = check_chronology(s, in, af, site, current, cur.kind, err, label);
+    /* a correction of who did it, at what level, when or under which
+     * procedure meets the register as a new inspection would */
+    if (!rc && (strcmp(in->inspector, cur.inspector) || strcmp(in->inspector_level,
+                                                              cur.inspector_level) ||
+                strcmp(in->performed_on, cur.performed_on) ||
+                strcmp(in->procedure, cur.procedure) ||
+                strcmp(in->procedure_rev, cur.procedure_rev)))
+        rc = pl_people__check_inspection(s, in, site, err, label);
     pl_inspection_clear(&cur);
     if (!rc)
         rc = insert_inspection(s, in, site, key, current, reason, &newid, err, label);
