@@ -243,6 +243,7 @@ int cmd_register(int argc, char **argv);
 int cmd_compare(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
 int cmd_seal(int argc, char **argv);
+int cmd_package(int argc, char **argv);
 int cmd_new_key(int argc, char **argv);
 int cmd_people(int argc, char **argv);
 int cmd_interpret(int argc, char **argv);

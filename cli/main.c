@@ -21,6 +21,7 @@ const cli_command cli_commands[] = {
     { "dispose", cmd_dispose, "record a signed disposition of relevant changes of a comparison" },
     { "dispositions", cmd_dispositions, "list dispositions, with who signed and what was decided" },
     { "seal", cmd_seal, "seal an older store: sign every link with a new seal key" },
+    { "package", cmd_package, "hand an airframe's whole record over in one file, check one, receive one" },
     { "verify", cmd_verify, "check that the record is as it was written (hash chain, maps, triggers)" },
     { "correct", cmd_correct, "correct a recorded inspection or site, with a reason" },
     { "airframes", cmd_airframes, "list airframes" },

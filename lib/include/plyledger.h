@@ -31,6 +31,7 @@
 #include "plyledger/change.h"
 #include "plyledger/compare.h"
 #include "plyledger/ledger.h"
+#include "plyledger/package.h"
 #include "plyledger/people.h"
 #include "plyledger/disposition.h"
 

@@ -17,6 +17,7 @@
  */
 #include "record/store_int.h"
 #include "plyledger/ledger.h"
+#include "plyledger/package.h" /* PL_PACKAGE_APPLICATION_ID */
 
 #include "common/common_int.h"
 
@@ -624,6 +625,13 @@ static int identify(pl_store *s, int64_t *user_version, pl_err *err)
         return rc;
     if (app == PL_STORE_APPLICATION_ID)
         return PL_OK;
+    /* a hand-over package is a store that is only ever read */
+    if (app == PL_PACKAGE_APPLICATION_ID && (s->flags & PL_STORE_READONLY))
+        return PL_OK;
+    if (app == PL_PACKAGE_APPLICATION_ID)
+        return pl__err(err, PL_ENOTSTORE,
+                       "%s: a hand-over package, which is only read: check it with plyledger "
+                       "package check, receive it with plyledger package import", s->path);
     if (app == 0 && *user_version == 0 && tables == 0)
         return pl__err(err, PL_ENOTSTORE, "%s: not a plyledger store (an empty database)",
                        s->path);

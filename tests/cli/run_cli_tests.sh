@@ -512,6 +512,33 @@ run "lapsed qualification" 1 ply record --airframe TST-0002 --site T04 --kind un
     --map "$WORK/t01_noisy.npy" --quantity temperature-contrast \
     && expect_one_line_err "lapsed qualification" "lapsed" "2019-12-31"
 
+# ---- the hand-over package -------------------------------------------------------
+run "package --help" 0 ply package --help && expect_out "package --help" "usage: plyledger package"
+run "package export" 0 ply package export --airframe TST-0002 --output "$WORK/tst2.plpkg" \
+    && expect_out "package export" "bytes"
+[ "$(sqlite3 "$WORK/tst2.plpkg" 'PRAGMA journal_mode; PRAGMA application_id')" = "$(printf 'delete\n1349286224')" ] \
+    || fail "package: not a rollback-journal file with its own application id"
+run "package export onto the store" 1 ply package export --airframe TST-0002 --output "$STORE"
+run "package export unknown airframe" 1 ply package export --airframe NOPE-1 --output "$WORK/nope.plpkg"
+[ ! -e "$WORK/nope.plpkg" ] || fail "package export of an unknown airframe left a file"
+run "package check" 0 ply package check "$WORK/tst2.plpkg" && expect_out "package check" "sound"
+run "package create receiver" 0 ply create "$WORK/recv.plyledger" --seal-key "$WORK/recv.key"
+run "package import" 0 ply package import "$WORK/tst2.plpkg" --store "$WORK/recv.plyledger" --seal-key "$WORK/recv.key"
+run "package import again" 0 ply package import "$WORK/tst2.plpkg" --store "$WORK/recv.plyledger" --seal-key "$WORK/recv.key" \
+    && expect_out "package import again" "already received"
+run "package receiver verifies" 0 ply verify --store "$WORK/recv.plyledger" && expect_out "package receiver verifies" "is intact"
+run "package dispositions came along" 0 ply dispositions --store "$WORK/recv.plyledger" && expect_out "package dispositions came along" "signed by n.example"
+cp "$WORK/tst2.plpkg" "$WORK/bad.plpkg"
+sqlite3 "$WORK/bad.plpkg" "DROP TRIGGER inspection_no_update; UPDATE inspection SET inspector = 'someone else'"
+run "package tampered" 1 ply package check "$WORK/bad.plpkg"
+run "package create receiver 2" 0 ply create "$WORK/recv2.plyledger" --seal-key "$WORK/recv2.key"
+run "package tampered import" 1 ply package import "$WORK/bad.plpkg" --store "$WORK/recv2.plyledger" --seal-key "$WORK/recv2.key"
+head -c 40000 "$WORK/tst2.plpkg" >"$WORK/cut.plpkg"
+run "package truncated import" 1 ply package import "$WORK/cut.plpkg" --store "$WORK/recv2.plyledger" --seal-key "$WORK/recv2.key"
+run "package nothing imported" 0 ply summary --store "$WORK/recv2.plyledger" --json
+"$PY" -c 'import json,sys; s=json.load(open(sys.argv[1])); assert s["airframes"] == 0 and s["ledger_links"] == 0, s' "$WORK/out" \
+    || fail "a refused package left rows behind"
+
 # The record itself refuses changes in place.
 sqlite3 "$STORE" "UPDATE inspection SET inspector='x'" 2>"$WORK/err" && fail "UPDATE of an inspection was allowed"
 grep -q "append-only" "$WORK/err" || fail "UPDATE refusal message"
