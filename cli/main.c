@@ -52,6 +52,9 @@ static void print_overview(FILE *out)
     fprintf(out,
             "\n"
             "Every command takes --help. Listing commands take --json.\n"
+            "A store made by create is sealed: every command that records something needs\n"
+            "its seal key file, STORE.seal-key unless --seal-key FILE or\n"
+            "PLYLEDGER_SEAL_KEY names another (verify and the listings do not).\n"
             "Exit status: 0 success, 1 error, 2 usage.\n"
             "\n"
             "plyledger supports qualified NDT personnel and engineering; it does not\n"

@@ -1141,7 +1141,7 @@ static int check_manifest(pl_store *p, const manifest *m, const pl_package_optio
     int rc = manifest_text(p->db, &text, &len, err, p->path);
     if (rc)
         return rc;
-    int ok = 1;
+    int ok = pl_sign_check(sig, text, len, pub);
     free(text);
     if (!ok) {
         fault(res, PL_PACKAGE_FAULT_MANIFEST, "the manifest's signature by seal key %s does not "
@@ -1343,7 +1343,7 @@ static int check_package(const char *path, const char *name, const pl_package_op
     }
     manifest m = { 0 };
     rc = check_integrity(p, res, err);
-    if (!rc && !res->faults)
+    if (!rc && !res->faults && res->bytes < 0)
         rc = check_schema(p, res, err);
     if (!rc && !res->faults)
         rc = read_manifest(p, &m, res, err);
