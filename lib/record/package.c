@@ -1343,7 +1343,7 @@ static int check_package(const char *path, const char *name, const pl_package_op
     }
     manifest m = { 0 };
     rc = check_integrity(p, res, err);
-    if (!rc && !res->faults && res->bytes < 0)
+    if (!rc && !res->faults)
         rc = check_schema(p, res, err);
     if (!rc && !res->faults)
         rc = read_manifest(p, &m, res, err);
