@@ -599,6 +599,18 @@ static void test_package__import_into_a_fresh_store(void **state)
     pl_store *st = sealed_store(f->dst, &f->dst_key);
     pl_store_close(st);
     pl_err err = { 0 };
+    /* inside a caller's transaction, it goes with it */
+    char *empty = store_state(f->dst);
+    st = open_store(f->dst, &f->dst_key);
+    TU_OK(pl_store_begin(st, &err));
+    TU_OK(pl_package_import(st, f->pkg, NULL, &res, &err));
+    assert_int_equal(res.imported_airframe_links, f->af_links);
+    pl_store_rollback(st);
+    pl_store_close(st);
+    char *still = store_state(f->dst);
+    assert_string_equal(empty, still);
+    free(empty);
+    free(still);
     TU_OK(import_package(f, f->pkg, &res, &err));
     assert_int_equal(res.already, 0);
     assert_int_equal(res.imported_airframe_links, f->af_links);

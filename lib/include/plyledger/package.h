@@ -200,8 +200,9 @@ PL_EXPORT int pl_package_check(const char *path, const pl_package_options *opts,
                                pl_package_result *result, pl_err *err);
 
 /**
- * Receive a package into `store`, opened for writing with its seal key,
- * outside any transaction of the caller's (see the introduction).
+ * Receive a package into `store`, opened for writing with its seal key
+ * (see the introduction): one atomic call, inside a caller's transaction
+ * (pl_store_begin()) a part of it.
  * @param opts  NULL for PL_PACKAGE_OPTIONS_INIT
  * @param[out] result  what the package holds and what was imported;
  *                     result->already 1 when nothing was new
@@ -209,7 +210,7 @@ PL_EXPORT int pl_package_check(const char *path, const pl_package_options *opts,
  *         airframe or its own chain with a different history, a row id is
  *         taken, the store is not sealed or lacks its seal key: the
  *         message names it, and nothing was imported); PL_ENOTFOUND (no
- *         such file), PL_EINVAL (inside a transaction), PL_EBUSY, PL_EIO,
+ *         such file), PL_EINVAL (options), PL_EBUSY, PL_EIO,
  *         PL_EDB, PL_ECANCELED, PL_ENOMEM.
  */
 PL_EXPORT int pl_package_import(pl_store *store, const char *path,
