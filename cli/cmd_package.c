@@ -76,9 +76,10 @@ static void print_contents(const pl_package_result *r)
 {
     char size[64];
     printf("  %lld links of its chain and %lld of the store's own chain (criteria sets, "
-           "people), %lld rows, %lld maps, %lld seals; %s\n",
+           "people), %lld rows in all, %lld map%s, %lld seals; %s\n",
            (long long)r->airframe_links, (long long)r->store_links, (long long)r->rows,
-           (long long)r->maps, (long long)r->seals, size_words(size, sizeof size, r->bytes));
+           (long long)r->maps, r->maps == 1 ? "" : "s", (long long)r->seals,
+           size_words(size, sizeof size, r->bytes));
 }
 
 enum { O_AIRFRAME = 0x500, O_OUTPUT, O_SENDER_KEY };
