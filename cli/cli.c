@@ -285,6 +285,23 @@ int cli_open_output(pl_outfile **out, const cli_common *common, const char *path
     return rc ? cli_fail_err(rc, &err) : 0;
 }
 
+int cli_write_text(const cli_common *common, const char *path, const char *text)
+{
+    if (!path) {
+        fputs(text, stdout);
+        return fflush(stdout) == 0 ? CLI_OK : cli_fail("cannot write to standard output");
+    }
+    pl_outfile *of = NULL;
+    if (cli_open_output(&of, common, path))
+        return CLI_ERROR;
+    pl_err err = { 0 };
+    int rc = fputs(text, pl_outfile_stream(of)) < 0 ? PL_EIO : PL_OK;
+    if (rc)
+        snprintf(err.msg, sizeof err.msg, "%s: cannot write", path);
+    rc = pl_outfile_finish(of, rc, &err);
+    return rc ? cli_fail_err(rc, &err) : CLI_OK;
+}
+
 int cli_check_text(const char *src, cli_text_kind kind, const char *opt)
 {
     if (!src)

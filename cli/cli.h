@@ -104,6 +104,11 @@ int cli_guard_output(const cli_common *common, const char *path);
  * failure. A NULL path gives *out NULL. Returns 0 or CLI_ERROR. */
 int cli_open_output(pl_outfile **out, const cli_common *common, const char *path);
 
+/* Write `text` whole to `path` through a pl_outfile (a temporary file
+ * renamed into place, never the store: cli_guard_output()), or to stdout
+ * when path is NULL; prints the failure. Returns CLI_OK or CLI_ERROR. */
+int cli_write_text(const cli_common *common, const char *path, const char *text);
+
 /* What an option's text is, for the library's checks: a name (one line,
  * no control characters), free text (line breaks and tabs allowed) or a
  * key (an airframe serial or site code, pl_key_check()). All are UTF-8. */
@@ -233,6 +238,9 @@ int cmd_airframes(int argc, char **argv);
 int cmd_sites(int argc, char **argv);
 int cmd_inspections(int argc, char **argv);
 int cmd_history(int argc, char **argv);
+int cmd_tracks(int argc, char **argv);
+int cmd_coverage(int argc, char **argv);
+int cmd_report(int argc, char **argv);
 int cmd_criteria(int argc, char **argv);
 int cmd_export_map(int argc, char **argv);
 int cmd_summary(int argc, char **argv);

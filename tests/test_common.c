@@ -128,6 +128,41 @@ static void test_common__basename_names_the_file(void **state)
     assert_string_equal(pl__basename("dir/"), "dir/");
 }
 
+/* Day numbers from Python's datetime (date(y, m, d) - date(1970, 1, 1)).days,
+ * the proleptic Gregorian calendar; every day of years 1..9999 goes and
+ * comes back. */
+static void test_common__dates_count_days_as_the_calendar_does(void **state)
+{
+    (void)state;
+    static const struct { const char *date; long days; } known[] = {
+        { "0001-01-01", -719162 }, { "1900-02-28", -25509 }, { "1900-03-01", -25508 },
+        { "1970-01-01", 0 },       { "2000-02-29", 11016 },  { "2000-03-01", 11017 },
+        { "2009-04-22", 14356 },   { "2026-12-04", 20791 },  { "9999-12-31", 2932896 },
+    };
+    for (size_t i = 0; i < sizeof known / sizeof *known; i++) {
+        long d = 0;
+        assert_int_equal(pl__date_days(&d, known[i].date), PL_OK);
+        assert_int_equal(d, known[i].days);
+    }
+    char buf[16], prev[16] = "";
+    for (long d = -719162; d <= 2932896; d++) {
+        long back = 0;
+        assert_int_equal(pl__days_date(buf, sizeof buf, d), PL_OK);
+        assert_int_equal(pl__date_days(&back, buf), PL_OK);
+        assert_int_equal(back, d);
+        assert_true(strcmp(buf, prev) > 0);
+        memcpy(prev, buf, sizeof buf);
+    }
+    static const char *bad[] = { "1900-02-29", "2021-13-01", "2021-04-31", "0000-01-01",
+                                 "2021-1-01", "2021/01/01", "", "2021-01-01x" };
+    for (size_t i = 0; i < sizeof bad / sizeof *bad; i++) {
+        long d;
+        assert_int_equal(pl__date_days(&d, bad[i]), PL_EINVAL);
+    }
+    assert_int_equal(pl__days_date(buf, sizeof buf, 2932897), PL_EINVAL);
+    assert_int_equal(pl__days_date(buf, sizeof buf, -719163), PL_EINVAL);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -137,6 +172,7 @@ int main(void)
         cmocka_unit_test(test_common__copy_text_refuses_what_does_not_fit),
         cmocka_unit_test(test_common__version_matches_the_build),
         cmocka_unit_test(test_common__basename_names_the_file),
+        cmocka_unit_test(test_common__dates_count_days_as_the_calendar_does),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

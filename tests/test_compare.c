@@ -23,160 +23,8 @@
 #include <string.h>
 
 #include "plyledger.h"
+#include "testsite.h"
 #include "testutil.h"
-
-#define W 128
-#define H 96
-#define PITCH 0.5
-
-typedef struct fixture {
-    char *dir;
-    char *path;
-    pl_store *store;
-    pl_id criteria;
-} fixture;
-
-/* A criteria set: no growth at site C01, written growth limits elsewhere. */
-static const char criteria_text[] =
-    "{ \"format\": \"plyledger-criteria\", \"format_version\": 1, \"name\": \"TEST-LIMITS\",\n"
-    "  \"revision\": \"1\", \"source_document\": \"TEST-DOC-1 (invented)\",\n"
-    "  \"example_values\": true, \"repeatability\": { \"area_mm2\": 8 },\n"
-    "  \"rules\": [\n"
-    "   { \"name\": \"joint\", \"kind\": \"no-growth\", \"method\": \"flash-thermography\",\n"
-    "     \"quantity\": \"temperature-contrast\", \"site\": \"C01\", \"contrast_unit\": \"K\",\n"
-    "     \"repeatability_contrast\": 0.1, \"min_reportable_area_mm2\": 10,\n"
-    "     \"new_reportable_area_mm2\": 10, \"vanished\": \"investigate\" },\n"
-    "   { \"name\": \"skin\", \"kind\": \"growth-limit\", \"method\": \"flash-thermography\",\n"
-    "     \"quantity\": \"temperature-contrast\", \"contrast_unit\": \"K\",\n"
-    "     \"repeatability_contrast\": 0.1, \"min_reportable_area_mm2\": 10,\n"
-    "     \"new_reportable_area_mm2\": 20, \"area_growth_mm2\": 500,\n"
-    "     \"area_growth_percent\": 400, \"vanished\": \"report\" } ] }\n";
-
-static void add_site(pl_store *st, const char *code)
-{
-    pl_err err = { 0 };
-    pl_site s;
-    memset(&s, 0, sizeof s);
-    strcpy(s.airframe_serial, "CMP-0001");
-    strcpy(s.code, code);
-    strcpy(s.zone, "300");
-    strcpy(s.method, "flash-thermography");
-    s.thickness_mm = 4.0;
-    s.diffusivity_mm2_s = NAN;
-    s.map_frame.origin[0] = 5000;
-    s.map_frame.u[0] = 1;
-    s.map_frame.v[2] = -1;
-    strcpy(s.map_frame.system, "STA/BL/WL");
-    strcpy(s.map_frame.unit, "mm");
-    s.pitch_u = s.pitch_v = PITCH;
-    TU_OK(pl_store_add_site(st, &s, NULL, &err));
-}
-
-static int setup(void **state)
-{
-    fixture *f = calloc(1, sizeof *f);
-    assert_non_null(f);
-    f->dir = tu_tmpdir();
-    f->path = tu_path(f->dir, "c.plyledger");
-    pl_err err = { 0 };
-    TU_OK(pl_store_create(&f->store, f->path, &err));
-    pl_airframe af;
-    memset(&af, 0, sizeof af);
-    strcpy(af.serial, "CMP-0001");
-    strcpy(af.aircraft_type, "TX-1");
-    strcpy(af.manufactured, "2010-01-02");
-    TU_OK(pl_store_add_airframe(f->store, &af, NULL, &err));
-    add_site(f->store, "C01");
-    add_site(f->store, "C02");
-    pl_criteria *c = NULL;
-    TU_OK(pl_criteria_parse(&c, criteria_text, strlen(criteria_text), "test", &err));
-    TU_OK(pl_store_add_criteria(f->store, c, &f->criteria, NULL, &err));
-    pl_criteria_free(c);
-    *state = f;
-    return 0;
-}
-
-static int teardown(void **state)
-{
-    fixture *f = *state;
-    pl_store_close(f->store);
-    free(f->path);
-    tu_rmtree(f->dir);
-    free(f);
-    return 0;
-}
-
-/* Deterministic Gaussian noise (Box-Muller on a 64-bit LCG). */
-static double noise(uint64_t *s)
-{
-    *s = *s * 6364136223846793005ull + 1442695040888963407ull;
-    double u1 = ((double)(*s >> 11) + 0.5) / 9007199254740992.0;
-    *s = *s * 6364136223846793005ull + 1442695040888963407ull;
-    double u2 = ((double)(*s >> 11) + 0.5) / 9007199254740992.0;
-    return sqrt(-2.0 * log(u1)) * cos(2.0 * M_PI * u2);
-}
-
-/* The texture of the part (radians), at part position (x, y) in pixels. */
-static double texture(double x, double y)
-{
-    return 0.30 * sin(0.21 * x + 0.4) + 0.25 * cos(0.17 * y - 0.3) +
-           0.20 * sin(0.09 * x + 0.13 * y) + 0.15 * cos(0.31 * x - 0.23 * y + 1.0);
-}
-
-/* A disc defect: centre (cx, cy) px, radius r_mm (0: none), contrast k K,
- * its edge smoothed over about a pixel. */
-typedef struct disc {
-    double cx, cy, r_mm, k;
-} disc;
-
-/* One inspection of `code` with a map of the part seen shifted by (sx, sy)
- * px: pixel (i, j) shows part position (i + sx, j + sy). */
-static pl_id inspect(pl_store *st, const char *code, const char *kind, const char *date,
-                     const char *task, int simulated, double sx, double sy, const disc *d,
-                     size_t nd, uint64_t seed)
-{
-    pl_inspection in;
-    memset(&in, 0, sizeof in);
-    in.simulated = simulated;
-    in.aircraft_hours = NAN;
-    in.aircraft_cycles = -1;
-    strcpy(in.airframe_serial, "CMP-0001");
-    strcpy(in.site_code, code);
-    strcpy(in.kind, kind);
-    strcpy(in.performed_on, date);
-    if (task)
-        strcpy(in.task_ref, task);
-    strcpy(in.procedure, "P");
-    strcpy(in.procedure_rev, "A");
-    strcpy(in.equipment, "E");
-    strcpy(in.calibration_ref, "C");
-    strcpy(in.inspector, "I. Nspector");
-    strcpy(in.inspector_level, "2");
-    pl_map *m;
-    pl_err err = { 0 };
-    TU_OK(pl_map_new(&m, W, H, 2, &err));
-    TU_OK(pl_map_set_channel(m, 0, "phase", "rad", &err));
-    TU_OK(pl_map_set_channel(m, 1, "temperature-contrast", "K", &err));
-    uint64_t s = seed;
-    for (uint32_t j = 0; j < H; j++)
-        for (uint32_t i = 0; i < W; i++) {
-            double x = i + sx, y = j + sy, c = 0.0;
-            for (size_t k = 0; k < nd; k++) {
-                if (d[k].r_mm <= 0)
-                    continue;
-                double r = hypot(x - d[k].cx, y - d[k].cy) * PITCH;
-                c += d[k].k * 0.5 * (1.0 - tanh((r - d[k].r_mm) / (0.5 * PITCH)));
-            }
-            m->data[(size_t)j * W + i] = (float)(texture(x, y) + 0.01 * noise(&s));
-            m->data[(size_t)W * H + (size_t)j * W + i] = (float)(c + 0.02 * noise(&s));
-        }
-    m->pitch_u = m->pitch_v = NAN;
-    pl_id key = 0, map = 0;
-    TU_OK(pl_record_map_inspection(st, &in, m, "reduce", "seq.json", "{\"k\":1}", &key, &map,
-                                   &err));
-    pl_map_free(m);
-    return key;
-}
 
 static int64_t comparisons(pl_store *st)
 {
@@ -184,13 +32,6 @@ static int64_t comparisons(pl_store *st)
     pl_err err = { 0 };
     TU_OK(pl_store_summarize(st, &sum, &err));
     return (int64_t)sum.comparisons;
-}
-
-static pl_compare_options options(void)
-{
-    pl_compare_options o = PL_COMPARE_OPTIONS_INIT;
-    o.criteria_name = "TEST-LIMITS";
-    return o;
 }
 
 typedef struct recorded_json {
@@ -257,22 +98,22 @@ static int keep_change(void *ud, const pl_change_record *x)
     return 0;
 }
 
-/* A disc growing from 6 to 9 mm radius at a no-growth site, seen 2.3 and
+/* A ts_disc growing from 6 to 9 mm radius at a no-growth site, seen 2.3 and
  * -1.7 px off: one change, grown, its area change within 20 % of
  * pi (9^2 - 6^2) mm^2, beyond the no-growth limit; recorded with its
  * registration and the criteria revision. */
 static void test_compare__a_growing_disc_is_grown_by_its_analytic_area(void **state)
 {
-    fixture *f = *state;
-    disc d0 = { 64, 48, 6.0, 1.0 }, d1 = { 64, 48, 9.0, 1.0 };
-    pl_id base = inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 1);
-    pl_id cur = inspect(f->store, "C01", "scheduled", "2016-03-01", "HC-1", 0, 2.3, -1.7, &d1,
+    ts_fixture *f = *state;
+    ts_disc d0 = { 64, 48, 6.0, 1.0 }, d1 = { 64, 48, 9.0, 1.0 };
+    pl_id base = ts_inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 1);
+    pl_id cur = ts_inspect(f->store, "C01", "scheduled", "2016-03-01", "HC-1", 0, 2.3, -1.7, &d1,
                         1, 2);
     int64_t before = comparisons(f->store);
-    pl_compare_options o = options();
+    pl_compare_options o = ts_options();
     pl_site_comparison *sc = NULL;
     pl_err err = { 0 };
-    TU_OK(pl_compare_site(&sc, f->store, "CMP-0001", "C01", 0, &o, &err));
+    TU_OK(pl_compare_site(&sc, f->store, TS_SERIAL, "C01", 0, &o, &err));
     assert_int_equal(sc->reference.key, base);
     assert_int_equal(sc->current.key, cur);
     assert_true(sc->done);
@@ -332,7 +173,7 @@ static void test_compare__a_growing_disc_is_grown_by_its_analytic_area(void **st
     }
     cJSON_Delete(j);
     free(rj.json);
-    /* and as rows of their own: each side's disc with its map and outline,
+    /* and as rows of their own: each side's ts_disc with its map and outline,
      * and each change with its class, deltas, limit and margin */
     rows r = { 0 };
     TU_OK(pl_store_list_indications(f->store, sc->comparison_id, keep_indication, &r, &err));
@@ -363,22 +204,22 @@ static void test_compare__a_growing_disc_is_grown_by_its_analytic_area(void **st
     pl_site_comparison_free(sc);
 }
 
-/* A disc where the baseline had none is new; the same part seen again
+/* A ts_disc where the baseline had none is new; the same part seen again
  * with other noise shows no reportable change; against the previous
- * inspection the new disc is stable. */
+ * inspection the new ts_disc is stable. */
 static void test_compare__new_stable_and_the_previous_inspection(void **state)
 {
-    fixture *f = *state;
-    disc none = { 64, 48, 0, 0 }, d = { 50, 40, 5.0, 0.8 };
-    inspect(f->store, "C02", "baseline", "2011-03-01", NULL, 0, 0, 0, &none, 1, 3);
-    pl_id hc1 = inspect(f->store, "C02", "scheduled", "2016-03-01", "HC-1", 0, 1.2, 0.8, &d, 1, 4);
-    pl_id hc2 = inspect(f->store, "C02", "scheduled", "2021-03-01", "HC-2", 0, -0.7, 1.1, &d, 1, 5);
-    pl_compare_options o = options();
+    ts_fixture *f = *state;
+    ts_disc none = { 64, 48, 0, 0 }, d = { 50, 40, 5.0, 0.8 };
+    ts_inspect(f->store, "C02", "baseline", "2011-03-01", NULL, 0, 0, 0, &none, 1, 3);
+    pl_id hc1 = ts_inspect(f->store, "C02", "scheduled", "2016-03-01", "HC-1", 0, 1.2, 0.8, &d, 1, 4);
+    pl_id hc2 = ts_inspect(f->store, "C02", "scheduled", "2021-03-01", "HC-2", 0, -0.7, 1.1, &d, 1, 5);
+    pl_compare_options o = ts_options();
     o.dry_run = 1;
     int64_t before = comparisons(f->store);
     pl_site_comparison *sc = NULL;
     pl_err err = { 0 };
-    TU_OK(pl_compare_site(&sc, f->store, "CMP-0001", "C02", hc1, &o, &err));
+    TU_OK(pl_compare_site(&sc, f->store, TS_SERIAL, "C02", hc1, &o, &err));
     assert_string_equal(sc->limits.rule_name, "skin");
     assert_int_equal(sc->cmp->counts[PL_CHANGE_NEW], 1);
     assert_int_equal(sc->cmp->counts[PL_CHANGE_GROWN], 0);
@@ -388,7 +229,7 @@ static void test_compare__new_stable_and_the_previous_inspection(void **state)
     assert_int_equal(comparisons(f->store), before); /* a dry run records nothing */
 
     o.against = PL_AGAINST_PREVIOUS;
-    TU_OK(pl_compare_site(&sc, f->store, "CMP-0001", "C02", hc2, &o, &err));
+    TU_OK(pl_compare_site(&sc, f->store, TS_SERIAL, "C02", hc2, &o, &err));
     assert_int_equal(sc->reference.key, hc1);
     assert_int_equal(sc->cmp->counts[PL_CHANGE_NEW], 0);
     assert_int_equal(sc->cmp->counts[PL_CHANGE_STABLE], 1);
@@ -397,9 +238,9 @@ static void test_compare__new_stable_and_the_previous_inspection(void **state)
 
     /* a map compared with a re-acquisition of the same truth */
     o.against = PL_AGAINST_BASELINE;
-    pl_id again = inspect(f->store, "C02", "unscheduled", "2021-04-01", NULL, 0, 0, 0, &none, 1,
+    pl_id again = ts_inspect(f->store, "C02", "unscheduled", "2021-04-01", NULL, 0, 0, 0, &none, 1,
                           6);
-    TU_OK(pl_compare_site(&sc, f->store, "CMP-0001", "C02", again, &o, &err));
+    TU_OK(pl_compare_site(&sc, f->store, TS_SERIAL, "C02", again, &o, &err));
     size_t reportable = 0;
     for (size_t i = 0; i < sc->cmp->count; i++)
         reportable += (size_t)sc->cmp->changes[i].reportable;
@@ -413,25 +254,25 @@ static void test_compare__new_stable_and_the_previous_inspection(void **state)
  * inspection after it: the store refuses to record one.) */
 static void test_compare__refusals_record_nothing(void **state)
 {
-    fixture *f = *state;
-    disc d = { 64, 48, 4.0, 1.0 };
-    pl_compare_options o = options();
+    ts_fixture *f = *state;
+    ts_disc d = { 64, 48, 4.0, 1.0 };
+    pl_compare_options o = ts_options();
     pl_site_comparison *sc = NULL;
     pl_err err = { 0 };
     int64_t before = comparisons(f->store);
-    assert_int_equal(pl_compare_site(&sc, f->store, "CMP-0001", "C01", 0, &o, &err),
+    assert_int_equal(pl_compare_site(&sc, f->store, TS_SERIAL, "C01", 0, &o, &err),
                      PL_ENOTFOUND);
     tu_assert_msg_has(err.msg, "C01");
     assert_null(sc);
-    inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d, 1, 7);
-    pl_id cur = inspect(f->store, "C01", "scheduled", "2016-03-01", NULL, 0, 0, 0, &d, 1, 8);
+    ts_inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d, 1, 7);
+    pl_id cur = ts_inspect(f->store, "C01", "scheduled", "2016-03-01", NULL, 0, 0, 0, &d, 1, 8);
     o.quantity = "phase-contrast";
-    assert_int_equal(pl_compare_site(&sc, f->store, "CMP-0001", "C01", cur, &o, &err),
+    assert_int_equal(pl_compare_site(&sc, f->store, TS_SERIAL, "C01", cur, &o, &err),
                      PL_ENOMATCH);
     tu_assert_msg_has(err.msg, "phase-contrast");
-    o = options();
+    o = ts_options();
     o.criteria_name = "NO-SUCH-SET";
-    assert_int_equal(pl_compare_site(&sc, f->store, "CMP-0001", "C01", cur, &o, &err),
+    assert_int_equal(pl_compare_site(&sc, f->store, TS_SERIAL, "C01", cur, &o, &err),
                      PL_ENOTFOUND);
     tu_assert_msg_has(err.msg, "NO-SUCH-SET");
     assert_int_equal(comparisons(f->store), before);
@@ -442,15 +283,16 @@ static void test_compare__refusals_record_nothing(void **state)
  * while the other is compared. */
 static void test_compare__a_check_goes_site_by_site(void **state)
 {
-    fixture *f = *state;
-    disc d0 = { 64, 48, 5.0, 1.0 }, d1 = { 64, 48, 5.0, 1.0 };
-    inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 9);
-    inspect(f->store, "C01", "scheduled", "2016-03-01", "HC-1", 0, 1.0, 1.0, &d1, 1, 10);
-    inspect(f->store, "C02", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 12);
-    inspect(f->store, "C02", "scheduled", "2016-03-02", "hc-1", 0, 0, 0, &d1, 1, 11);
+    ts_fixture *f = *state;
+    ts_disc d0 = { 64, 48, 5.0, 1.0 }, d1 = { 64, 48, 5.0, 1.0 };
+    ts_inspect(f->store, "C01", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 9);
+    ts_inspect(f->store, "C01", "scheduled", "2016-03-01", "HC-1", 0, 1.0, 1.0, &d1, 1, 10);
+    ts_inspect(f->store, "C02", "baseline", "2011-03-01", NULL, 0, 0, 0, &d0, 1, 12);
+    ts_inspect(f->store, "C02", "scheduled", "2016-03-02", "hc-1", 0, 0, 0, &d1, 1, 11);
     /* a set whose only rule is for C01 */
-    char text[sizeof criteria_text];
-    snprintf(text, sizeof text, "%s", criteria_text);
+    char text[4096];
+    assert_true(strlen(ts_criteria_text) < sizeof text);
+    snprintf(text, sizeof text, "%s", ts_criteria_text);
     char *skin = strstr(text, ",\n   { \"name\": \"skin\"");
     assert_non_null(skin);
     strcpy(skin, " ] }\n");
@@ -460,10 +302,10 @@ static void test_compare__a_check_goes_site_by_site(void **state)
     TU_OK(pl_criteria_parse(&c, text, strlen(text), "test", &err));
     TU_OK(pl_store_add_criteria(f->store, c, NULL, NULL, &err));
     pl_criteria_free(c);
-    pl_compare_options o = options();
+    pl_compare_options o = ts_options();
     o.criteria_name = "TEST-C01ONL";
     pl_check_comparison *cc = NULL;
-    TU_OK(pl_compare_check(&cc, f->store, "CMP-0001", "HC-1", &o, NULL, NULL, &err));
+    TU_OK(pl_compare_check(&cc, f->store, TS_SERIAL, "HC-1", &o, NULL, NULL, &err));
     assert_int_equal(cc->nsites, 2);
     assert_string_equal(cc->sites[0].code, "C01");
     assert_int_equal(cc->sites[0].status, PL_OK);
@@ -480,7 +322,7 @@ static void test_compare__a_check_goes_site_by_site(void **state)
     assert_non_null(strstr(json, "\"refused\""));
     free(json);
     pl_check_comparison_free(cc);
-    assert_int_equal(pl_compare_check(&cc, f->store, "CMP-0001", "HC-9", &o, NULL, NULL, &err),
+    assert_int_equal(pl_compare_check(&cc, f->store, TS_SERIAL, "HC-9", &o, NULL, NULL, &err),
                      PL_ENOTFOUND);
 }
 
@@ -488,12 +330,12 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_compare__a_growing_disc_is_grown_by_its_analytic_area,
-                                        setup, teardown),
+                                        ts_setup, ts_teardown),
         cmocka_unit_test_setup_teardown(test_compare__new_stable_and_the_previous_inspection,
-                                        setup, teardown),
-        cmocka_unit_test_setup_teardown(test_compare__refusals_record_nothing, setup, teardown),
-        cmocka_unit_test_setup_teardown(test_compare__a_check_goes_site_by_site, setup,
-                                        teardown),
+                                        ts_setup, ts_teardown),
+        cmocka_unit_test_setup_teardown(test_compare__refusals_record_nothing, ts_setup, ts_teardown),
+        cmocka_unit_test_setup_teardown(test_compare__a_check_goes_site_by_site, ts_setup,
+                                        ts_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -136,3 +136,49 @@ int pl__read_text(char **out, size_t *len, const char *path, size_t max, pl_err 
         *len = n;
     return PL_OK;
 }
+
+/* Hinnant's days_from_civil: March-based years, so that the leap day ends
+ * the year; era = 400-year cycle of 146097 days. */
+int pl__date_days(long *days, const char *ymd)
+{
+    static const int mdays[12] = { 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31 };
+    if (!ymd || strlen(ymd) != 10 || ymd[4] != '-' || ymd[7] != '-')
+        return PL_EINVAL;
+    for (int i = 0; i < 10; i++)
+        if (i != 4 && i != 7 && (ymd[i] < '0' || ymd[i] > '9'))
+            return PL_EINVAL;
+    long y = (ymd[0] - '0') * 1000 + (ymd[1] - '0') * 100 + (ymd[2] - '0') * 10 + (ymd[3] - '0');
+    int m = (ymd[5] - '0') * 10 + (ymd[6] - '0');
+    int d = (ymd[8] - '0') * 10 + (ymd[9] - '0');
+    if (y < 1 || m < 1 || m > 12 || d < 1)
+        return PL_EINVAL;
+    int leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
+    if (d > mdays[m - 1] + (m == 2 && leap))
+        return PL_EINVAL;
+    y -= m <= 2;
+    long era = y / 400;
+    long yoe = y - era * 400;
+    long doy = (153L * (m > 2 ? m - 3 : m + 9) + 2) / 5 + d - 1;
+    long doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    *days = era * 146097 + doe - 719468;
+    return PL_OK;
+}
+
+int pl__days_date(char *out, size_t size, long days)
+{
+    /* 0001-01-01 is day -719162, 9999-12-31 day 2932896 */
+    if (days < -719162 || days > 2932896 || size < 11)
+        return PL_EINVAL;
+    long z = days + 719468;
+    long era = z / 146097;
+    long doe = z - era * 146097;
+    long yoe = (doe - doe / 1460 + doe / 36524 - doe / 146096) / 365;
+    long y = yoe + era * 400;
+    long doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    long mp = (5 * doy + 2) / 153;
+    long d = doy - (153 * mp + 2) / 5 + 1;
+    long m = mp < 10 ? mp + 3 : mp - 9;
+    y += m <= 2;
+    snprintf(out, size, "%04ld-%02ld-%02ld", y, m, d);
+    return PL_OK;
+}

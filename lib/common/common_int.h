@@ -10,6 +10,16 @@
 #define PL_PRINTF(a, b) __attribute__((format(printf, a, b)))
 #else
 #define PL_PRINTF(a, b)
+/* Days from 1970-01-01 to the date `ymd` (YYYY-MM-DD, checked: a calendar
+ * date of years 1..9999) into *days: PL_OK, or PL_EINVAL without a message.
+ * The civil-calendar arithmetic of H. Hinnant, "chrono-Compatible Low-Level
+ * Date Algorithms" (days_from_civil / civil_from_days). */
+int pl__date_days(long *days, const char *ymd);
+
+/* The date `days` after 1970-01-01 as YYYY-MM-DD into out (11 bytes at
+ * least); PL_EINVAL when it falls outside years 1..9999. */
+int pl__days_date(char *out, size_t size, long days);
+
 #endif
 
 /*
@@ -37,5 +47,15 @@ int pl__read_text(char **out, size_t *len, const char *path, size_t max, pl_err 
  * when it does not fit. NULL src gives an empty string. */
 int pl__copy_text(char *dst, size_t cap, const char *src, const char *what,
                   pl_err *err);
+
+/* Days from 1970-01-01 to the date `ymd` (YYYY-MM-DD, checked: a calendar
+ * date of years 1..9999) into *days: PL_OK, or PL_EINVAL without a message.
+ * The civil-calendar arithmetic of H. Hinnant, "chrono-Compatible Low-Level
+ * Date Algorithms" (days_from_civil / civil_from_days). */
+int pl__date_days(long *days, const char *ymd);
+
+/* The date `days` after 1970-01-01 as YYYY-MM-DD into out (11 bytes at
+ * least); PL_EINVAL when it falls outside years 1..9999. */
+int pl__days_date(char *out, size_t size, long days);
 
 #endif

@@ -3,6 +3,9 @@
  */
 #include "common/strbuf_int.h"
 
+#include <csv.h>
+#include <math.h>
+
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -132,4 +135,29 @@ void pl_strbuf__release(pl_strbuf *b)
 {
     free(b->s);
     pl_strbuf__init(b);
+}
+
+/* ---- CSV fields (RFC 4180, quoted by libcsv) ---- */
+
+void pl__csv_field(pl_strbuf *s, const char *text, int last)
+{
+    size_t n = strlen(text);
+    size_t need = csv_write(NULL, 0, text, n);
+    char *q = malloc(need + 1);
+    if (!q) {
+        s->failed = 1;
+        return;
+    }
+    csv_write(q, need, text, n);
+    pl_strbuf__append_n(s, q, need);
+    free(q);
+    pl_strbuf__append(s, last ? "\r\n" : ",");
+}
+
+void pl__csv_number(pl_strbuf *s, double v, int last)
+{
+    char b[40] = "";
+    if (isfinite(v))
+        snprintf(b, sizeof b, "%.17g", v);
+    pl__csv_field(s, b, last);
 }

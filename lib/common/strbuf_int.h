@@ -57,4 +57,11 @@ char *pl_strbuf__detach(pl_strbuf *b);
 /* Free the text; b is empty again (and no longer failed). */
 void pl_strbuf__release(pl_strbuf *b);
 
+/* Append `text` as one CSV field, quoted the RFC 4180 way by libcsv's
+ * csv_write(), then "," or, when `last`, the record's "\r\n". */
+void pl__csv_field(pl_strbuf *b, const char *text, int last);
+
+/* A number as a CSV field: %.17g (full precision), empty when not finite. */
+void pl__csv_number(pl_strbuf *b, double v, int last);
+
 #endif

@@ -558,7 +558,7 @@ static int look_across(pl_change *ch, const work *wk, const float *d)
 }
 
 /* The area growth limit for a baseline area a0 (see the header). */
-static double area_limit(const pl_change_limits *l, double a0)
+double pl_change_area_limit(const pl_change_limits *l, double a0)
 {
     if (l->kind == PL_LIMITS_NO_GROWTH)
         return l->area_repeatability_mm2;
@@ -604,7 +604,7 @@ static void classify(pl_change *ch, const work *wk)
     double biggest = fmax(ch->area_baseline_mm2[r], ch->area_current_mm2[r]);
     ch->reportable = biggest >= l->min_reportable_mm2;
     if ((ch->nbaseline && ch->ncurrent) || ch->match == PL_MATCH_SIGNAL) {
-        ch->area_limit_mm2 = area_limit(l, ch->area_baseline_mm2[r]);
+        ch->area_limit_mm2 = pl_change_area_limit(l, ch->area_baseline_mm2[r]);
         ch->area_measured_mm2 = ch->area_delta_mm2[r];
         judge_growth(ch->area_limit_mm2, ch->area_measured_mm2, &ch->area_margin_mm2,
                      &ch->area_exceeds);
@@ -756,7 +756,7 @@ static int add_region(pl_comparison *cmp, const work *wk, uint32_t label, uint64
     ch->reportable = area >= l->min_reportable_mm2;
     const pl_change *t = touches >= 0 ? &cmp->changes[touches] : NULL;
     if (t && t->nbaseline) {
-        ch->area_limit_mm2 = area_limit(l, t->area_baseline_mm2[r]);
+        ch->area_limit_mm2 = pl_change_area_limit(l, t->area_baseline_mm2[r]);
         judge_growth(ch->area_limit_mm2, area, &ch->area_margin_mm2, &ch->area_exceeds);
     } else {
         ch->area_limit_mm2 = l->new_reportable_mm2;

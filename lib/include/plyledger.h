@@ -34,5 +34,6 @@
 #include "plyledger/package.h"
 #include "plyledger/people.h"
 #include "plyledger/disposition.h"
+#include "plyledger/track.h"
 
 #endif

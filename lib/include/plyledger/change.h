@@ -288,6 +288,16 @@ PL_EXPORT int pl_change_compare(pl_comparison **out, const pl_change_input *in,
 /** Release a comparison; NULL is accepted. */
 PL_EXPORT void pl_comparison_free(pl_comparison *cmp);
 
+/**
+ * The area growth an indication of baseline area `a0` (mm^2) may show
+ * before it has grown under `limits`: a no-growth rule's area
+ * repeatability; a growth rule's smaller of area_growth_mm2 and
+ * area_growth_percent of a0 (those given), never below the repeatability;
+ * NaN when the rule gives no area limit. The classification uses exactly
+ * this; the growth forecast (plyledger/track.h) projects onto it.
+ */
+PL_EXPORT double pl_change_area_limit(const pl_change_limits *limits, double a0);
+
 /** The name of a kind: "new", "grown", "stable", "vanished", "not-compared",
  * "changed-region"; NULL when unknown. */
 PL_EXPORT const char *pl_change_kind_name(pl_change_kind kind);
