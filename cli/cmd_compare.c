@@ -54,7 +54,9 @@ static const char help[] =
     "  0  every site compared, no change beyond its limit\n"
     "  3  at least one change beyond its limit (a finding for the engineer)\n"
     "  4  no change beyond a limit, but a site could not be compared (its\n"
-    "     registration was refused, or it was refused before: see the message)\n"
+    "     registration was refused, or it was refused before: see the message),\n"
+    "     or a site of the airframe's plan was not inspected under --task (the\n"
+    "     output names it first: plyledger coverage gives the whole picture)\n"
     "  1  the command failed (nothing recorded); 2  the command line is wrong\n"
     "A script learns that a limit was exceeded from status 3, or from\n"
     "\"counts\".\"exceeding\" in --json.\n";
@@ -358,6 +360,8 @@ static int compare_check(cmp_args *a, cli_common *common)
         char *text = NULL;
         rc = cli_print_json_text(pl_check_comparison_json(&text, cc, &err), &text, &err);
     } else if (!common->quiet) {
+        if (cc->missed)
+            printf("%s\n\n", cc->missed_warning);
         printf("check %s of %s against %s: %zu site(s)%s\n", cc->task, cc->serial,
                pl_compare_against_name(cc->against), cc->nsites,
                a->o.dry_run ? " (dry run: nothing recorded)" : "");
@@ -396,14 +400,20 @@ static int compare_check(cmp_args *a, cli_common *common)
         printf("\nsummary of check %s of %s (%.2f s, %.3f s a site)\n", cc->task, cc->serial,
                cc->seconds, cc->nsites ? cc->seconds / (double)cc->nsites : 0.0);
         print_counts(&cc->counts);
+        if (cc->missed)
+            printf("%s\n", cc->missed_warning);
         cli_print_caution();
         rc = CLI_OK;
     }
+    if (cc->missed && (common->json || common->quiet))
+        fprintf(stderr, "plyledger: %s\n", cc->missed_warning);
     for (size_t i = 0; i < cc->nsites; i++)
         if (!cc->sites[i].sc)
             fprintf(stderr, "plyledger: %s site %s: refused: %s\n", cc->serial,
                     cc->sites[i].code, cc->sites[i].refusal);
     int status = status_of(&cc->counts);
+    if (status == CLI_OK && cc->missed)
+        status = EXIT_NOT_COMPARED;
     pl_check_comparison_free(cc);
     return rc ? rc : status;
 }

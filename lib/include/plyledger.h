@@ -35,5 +35,6 @@
 #include "plyledger/people.h"
 #include "plyledger/disposition.h"
 #include "plyledger/track.h"
+#include "plyledger/coverage.h"
 
 #endif

@@ -3,6 +3,7 @@
  * plyledger/compare.h).
  */
 #include "plyledger/compare.h"
+#include "plyledger/coverage.h"
 #include "plyledger/history.h"
 
 #include "common/common_int.h"
@@ -1145,6 +1146,18 @@ PL_EXPORT int pl_compare_check(pl_check_comparison **out, pl_store *store, const
             rc = pl__err(err, PL_ECANCELED, "comparison canceled after %zu of %zu sites", i + 1,
                          cc->nsites);
     }
+    if (!rc) {
+        /* the sites of the plan that the check did not inspect */
+        pl_coverage *cov = NULL;
+        pl_err e = { 0 };
+        int cr = pl_coverage_load(&cov, store, af.serial, task, &e);
+        if (cr == PL_OK)
+            cc->missed = pl_coverage_missed_line(cc->missed_warning, sizeof cc->missed_warning,
+                                                 cov);
+        else if (cr != PL_ENOTFOUND)
+            rc = pl__err(err, cr, "%s", e.msg);
+        pl_coverage_free(cov);
+    }
     cc->seconds = now_s() - t0;
     if (rc) {
         pl_check_comparison_free(cc);
@@ -1161,6 +1174,11 @@ PL_EXPORT int pl_check_comparison_json(char **out, const pl_check_comparison *cc
     cJSON_AddStringToObject(o, "airframe", cc->serial);
     cJSON_AddStringToObject(o, "task", cc->task);
     cJSON_AddStringToObject(o, "against", pl_compare_against_name(cc->against));
+    if (cc->missed)
+        cJSON_AddStringToObject(o, "missed_warning", cc->missed_warning);
+    else
+        cJSON_AddNullToObject(o, "missed_warning");
+    cJSON_AddNumberToObject(o, "missed", (double)cc->missed);
     cJSON_AddItemToObject(o, "counts", counts_json(&cc->counts));
     add_num(o, "seconds", cc->seconds);
     cJSON *a = cJSON_AddArrayToObject(o, "sites");

@@ -30,7 +30,8 @@
  *
  * A check comparison (pl_compare_check()) does that for every inspection of
  * an airframe carrying the check's task reference, site by site, keeping
- * each site's refusal as that site's result (the others go on).
+ * each site's refusal as that site's result (the others go on), and names
+ * the sites of the airframe's plan that the check did not inspect.
  *
  * The comparison supports qualified NDT personnel; the design holder's
  * approved data and the inspection procedure govern any disposition.
@@ -188,6 +189,10 @@ typedef struct pl_check_comparison {
     pl_check_site *sites;            /**< by site code */
     pl_compare_counts counts;
     double seconds;                  /**< wall time of the whole check */
+    size_t missed;                   /**< sites of the airframe's plan not inspected under
+                                          the task (plyledger/coverage.h) */
+    char missed_warning[PL_ERR_MSG_SIZE]; /**< pl_coverage_missed_line(), "" when none:
+                                          every output of the check shows it first */
 } pl_check_comparison;
 
 /**
@@ -206,7 +211,8 @@ PL_EXPORT void pl_check_comparison_free(pl_check_comparison *cc);
 /** The counts of one site comparison. */
 PL_EXPORT void pl_compare_counts_of(pl_compare_counts *out, const pl_site_comparison *sc);
 
-/** A check as JSON: serial, task, counts, each site's comparison or refusal. */
+/** A check as JSON: serial, task, "missed_warning" (null when none),
+ * "missed" (the count), counts, each site's comparison or refusal. */
 PL_EXPORT int pl_check_comparison_json(char **out, const pl_check_comparison *cc, pl_err *err);
 
 /**
