@@ -17,6 +17,7 @@
 #include "plyledger/npy.h"
 #include "plyledger/map.h"
 #include "plyledger/render.h"
+#include "plyledger/plot.h"
 #include "plyledger/store.h"
 #include "plyledger/store_row.h"
 #include "plyledger/plan.h"
