@@ -30,6 +30,7 @@ const cli_command cli_commands[] = {
     { "criteria", cmd_criteria, "import, list and show criteria sets for indication growth" },
     { "history", cmd_history, "show every inspection of one site, oldest first" },
     { "coverage", cmd_coverage, "which sites of the plan a check inspected and compared, and the area covered" },
+    { "report", cmd_report, "the disposition report of a site comparison or a whole check, as one HTML file" },
     { "tracks", cmd_tracks, "follow each indication of a site through its inspections; growth and forecast" },
     { "export-map", cmd_export_map, "write a stored map as PNG, .npy or a colour rendering" },
     { "summary", cmd_summary, "show what the store holds" },

@@ -1214,6 +1214,40 @@ PL_EXPORT int pl_image_write_png(const pl_image *img, pl_outfile *of, pl_err *er
     return PL_OK;
 }
 
+PL_EXPORT int pl_image_encode_png(unsigned char **out, size_t *len, const pl_image *img,
+                                  pl_err *err)
+{
+    assert(out && len && img && img->rgb && img->width > 0 && img->height > 0);
+    *out = NULL;
+    *len = 0;
+    char *buf = NULL;
+    size_t n = 0;
+    FILE *fp = open_memstream(&buf, &n);
+    if (!fp)
+        return pl__err(err, PL_ENOMEM, "out of memory for a PNG in memory");
+    png_job job;
+    memset(&job, 0, sizeof job);
+    int rc;
+    if (pl_png__create(&job.png, &job.info, 1, job.msg)) {
+        snprintf(job.msg, sizeof job.msg, "out of memory for the PNG writer");
+        rc = -1;
+    } else {
+        rc = write_rgb_png(&job, fp, img);
+    }
+    pl_png__destroy(&job.png, &job.info, 1);
+    if (fclose(fp) != 0 && !rc) {
+        snprintf(job.msg, sizeof job.msg, "out of memory");
+        rc = -1;
+    }
+    if (rc) {
+        free(buf);
+        return pl__err(err, PL_ENOMEM, "cannot make a PNG in memory: %s", job.msg);
+    }
+    *out = (unsigned char *)buf;
+    *len = n;
+    return PL_OK;
+}
+
 PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *err)
 {
     assert(img && img->rgb && img->width > 0 && img->height > 0 && path);

@@ -37,5 +37,6 @@
 #include "plyledger/disposition.h"
 #include "plyledger/track.h"
 #include "plyledger/coverage.h"
+#include "plyledger/report.h"
 
 #endif

@@ -192,6 +192,15 @@ PL_EXPORT int pl_image_save_png(const pl_image *img, const char *path, pl_err *e
 PL_EXPORT int pl_image_write_png(const pl_image *img, pl_outfile *of, pl_err *err);
 
 /**
+ * The PNG that pl_image_write_png() writes, in memory (for embedding).
+ * @param[out] out  malloc'd bytes; free with free()
+ * @param[out] len  their number
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_image_encode_png(unsigned char **out, size_t *len, const pl_image *img,
+                                  pl_err *err);
+
+/**
  * Allocate a black image without a title.
  * @param[out] out  the image; free with pl_image_free()
  * @return PL_OK, PL_EINVAL (a side of 0 or above PL_IMAGE_MAX_SIDE, more
