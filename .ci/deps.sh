@@ -9,7 +9,7 @@
 PL_BUILD_PACKAGES="gcc libc6-dev pkg-config meson ninja-build python3 \
 libsqlite3-dev libpng-dev zlib1g-dev libsodium-dev libcjson-dev libcsv-dev libkissfft-dev"
 PL_TEST_PACKAGES="libcmocka-dev valgrind sqlite3 python3-numpy python3-scipy \
-python3-skimage python3-png openssl xxd"
+python3-skimage python3-png openssl xxd chromium python3-html5lib"
 
 pl_need_packages() {
     _pkgs="$PL_BUILD_PACKAGES"

@@ -460,7 +460,8 @@ run "compare recorded" 0 ply summary --json
 run "compare in history" 0 ply history --airframe TST-0002 --site T04 \
     && expect_out "compare in history" "criteria EXAMPLE-CR7-GROWTH rev A" \
     && expect_out "compare in history" "beyond their limits"
-run "compare check" 0 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run
+# TST-0002's other sites were not inspected under HC-1: status 4, and said
+run "compare check" 4 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run
 expect_out "compare check" "summary of check HC-1 of TST-0002"
 run "compare check unknown task" 1 ply compare --airframe TST-0002 --task NO-SUCH-CHECK --criteria EXAMPLE-CR7-GROWTH \
     && expect_one_line_err "compare check unknown task" "NO-SUCH-CHECK"
@@ -511,6 +512,99 @@ run "lapsed qualification" 1 ply record --airframe TST-0002 --site T04 --kind un
     --procedure NDT-TEST-01 --procedure-rev A --equipment test-rig --calibration RS-T1 --inspector t.inspector --level 2 \
     --map "$WORK/t01_noisy.npy" --quantity temperature-contrast \
     && expect_one_line_err "lapsed qualification" "lapsed" "2019-12-31"
+
+# ---- tracks, coverage and the disposition report -----------------------------------
+for c in tracks coverage report; do
+    run "$c --help" 0 ply $c --help && expect_out "$c --help" "usage: plyledger $c"
+done
+run "tracks" 0 ply tracks --airframe TST-0002 --site T04 \
+    && expect_out "tracks" "present at the baseline"
+expect_out "tracks" "linearly"
+expect_out "tracks" "does not replace"
+expect_out "tracks" "EXAMPLE VALUES, NOT APPROVED DATA"
+run "tracks json" 0 ply tracks --airframe TST-0002 --site T04 --json
+"$PY" - "$WORK/out" <<'PY' || fail "tracks --json"
+import json, sys
+t = json.load(open(sys.argv[1]))
+assert "does not replace" in t["caution"] and "linearly" in t["assumptions"], t.keys()
+assert t["quantity"] and t["criteria"]["marking"] == "EXAMPLE VALUES, NOT APPROVED DATA", t["criteria"]
+tr = [x for x in t["tracks"] if x["reportable"]]
+assert tr, "no reportable track"
+for x in tr:
+    # the baseline's point and the scheduled inspection's, in date order
+    d = [p["date"] for p in x["points"]]
+    assert d == sorted(d) and d[0] == "2015-06-01", d
+    assert x["growth"]["cycles"]["state"] in ("too few points", "not growing", "growing", "limit reached"), x["growth"]
+PY
+run "tracks csv" 0 ply tracks --airframe TST-0002 --site T04 --csv points --output "$WORK/tracks.csv" -q
+"$PY" - "$WORK/tracks.csv" "$WORK/out" <<'PY' || fail "tracks --csv points"
+import csv, sys
+rows = list(csv.DictReader(open(sys.argv[1], newline="")))
+assert rows and {"track", "date", "cycles", "area_mm2", "event"} <= set(rows[0]), rows[:1]
+assert all(r["site"] == "T04" for r in rows)
+assert open(sys.argv[2]).read() == "", "the rows went to standard output too"
+PY
+run "tracks csv growth" 0 ply tracks --airframe TST-0002 --site T04 --csv growth \
+    && expect_out "tracks csv growth" "cycles_state"
+run "tracks csv unknown table" 2 ply tracks --airframe TST-0002 --site T04 --csv spreadsheet
+run "tracks csv and json" 2 ply tracks --airframe TST-0002 --site T04 --csv points --json
+run "tracks unknown site" 1 ply tracks --airframe TST-0002 --site T99 \
+    && expect_one_line_err "tracks unknown site" "T99"
+run "tracks onto the store" 1 ply tracks --airframe TST-0002 --site T04 --output "$STORE"
+run "coverage" 4 ply coverage --airframe TST-0002 --task hc-1 \
+    && expect_out "coverage" "NOT INSPECTED in check hc-1 of TST-0002"
+head -1 "$WORK/out" | grep -q "^NOT INSPECTED" || fail "coverage: the missed sites are not the first line"
+expect_out "coverage" "compared"
+run "coverage json" 4 ply coverage --airframe TST-0002 --task HC-1 --json
+"$PY" - "$WORK/out" <<'PY' || fail "coverage --json"
+import json, sys
+c = json.load(open(sys.argv[1]))
+assert c["missed_warning"].startswith("NOT INSPECTED"), c["missed_warning"]
+assert "T04" not in c["missed"] and c["counts"]["missed"] == len(c["missed"]) > 0, c["counts"]
+t04 = [s for s in c["sites"] if s["site"] == "T04"][0]
+assert t04["state"] == "compared" and 0.8 < t04["compared_fraction"] <= 1, t04
+assert abs(t04["area_mm2"] - 96 * 72) < 1e-6, t04
+PY
+run "coverage csv" 4 ply coverage --airframe TST-0002 --task HC-1 --csv --output "$WORK/coverage.csv"
+grep -q "NOT INSPECTED" "$WORK/err" || fail "coverage --csv --output: the missed sites are not said on stderr"
+head -1 "$WORK/coverage.csv" | grep -q '"airframe","task","site"' || fail "coverage --csv: header"
+run "coverage unknown task" 1 ply coverage --airframe TST-0002 --task NO-SUCH \
+    && expect_one_line_err "coverage unknown task" "NO-SUCH"
+run "compare check says what it missed" 4 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run \
+    && expect_out "compare check says what it missed" "NOT INSPECTED"
+head -1 "$WORK/out" | grep -q "^NOT INSPECTED" || fail "compare --task: the missed sites are not the first line"
+run "report site" 0 ply report --comparison "$CMP" --output "$WORK/site.html" \
+    && expect_out "report site" "report written to"
+run "report by site" 0 ply report --airframe TST-0002 --site T04 --output "$WORK/site2.html" --no-verify -q
+run "report check" 0 ply report --airframe TST-0002 --task HC-1 --output "$WORK/check.html" --json
+"$PY" -c 'import json,sys; j=json.load(open(sys.argv[1])); assert j["bytes"] > 1000 and j["comparison"] is None, j' "$WORK/out" \
+    || fail "report --json"
+grep -q "NOT INSPECTED in check HC-1 of TST-0002" "$WORK/check.html" || fail "report check: the missed sites are not said"
+grep -q "Record not verified" "$WORK/site2.html" || fail "report --no-verify: does not say so"
+grep -q "Record verified" "$WORK/site.html" || fail "report: the verify result is not shown"
+run "report onto the store" 1 ply report --comparison "$CMP" --output "$STORE"
+run "report unknown comparison" 1 ply report --comparison 99999 --output "$WORK/none.html" \
+    && expect_one_line_err "report unknown comparison" "99999"
+[ ! -e "$WORK/none.html" ] || fail "a refused report left a file"
+run "report without output" 2 ply report --comparison "$CMP"
+run "report comparison and site" 2 ply report --comparison "$CMP" --airframe TST-0002 --site T04 --output "$WORK/x.html"
+run "report bad comparison" 2 ply report --comparison 12abc --output "$WORK/x.html"
+# The report in a real browser (Debian's chromium, headless) and through a
+# strict HTML5 parser: not under valgrind, which does not run the browser.
+if [ -z "$WRAP" ]; then
+    # the check report of a check whose one compared site is stable holds no
+    # site section, so no pictures: its coverage table and its warning
+    for r in site:4 check:0; do
+        n=${r#*:}; r=${r%:*}
+        "$PY" "$HERE/check_report.py" "$WORK/$r.html" --screenshot "$WORK/$r.png" \
+            --min-images "$n" --expect "TST-0002" --expect "does not replace" >"$WORK/browser.out" 2>&1 \
+            || { cat "$WORK/browser.out"; fail "report $r: the browser or HTML check"; }
+        grep "^result:\|^screenshot:" "$WORK/browser.out"
+    done
+    if [ -n "${PL_ARTEFACT_DIR:-}" ]; then
+        mkdir -p "$PL_ARTEFACT_DIR" && cp "$WORK/check.png" "$PL_ARTEFACT_DIR/report-check-screenshot.png"
+    fi
+fi
 
 # ---- the hand-over package -------------------------------------------------------
 run "package --help" 0 ply package --help && expect_out "package --help" "usage: plyledger package"
