@@ -287,15 +287,20 @@ int cli_open_output(pl_outfile **out, const cli_common *common, const char *path
 
 int cli_write_text(const cli_common *common, const char *path, const char *text)
 {
+    /* text ends with a line end (JSON from cJSON has none) */
+    size_t n = strlen(text);
+    const char *end = n && text[n - 1] == '\n' ? "" : "\n";
     if (!path) {
         fputs(text, stdout);
+        fputs(end, stdout);
         return fflush(stdout) == 0 ? CLI_OK : cli_fail("cannot write to standard output");
     }
     pl_outfile *of = NULL;
     if (cli_open_output(&of, common, path))
         return CLI_ERROR;
     pl_err err = { 0 };
-    int rc = fputs(text, pl_outfile_stream(of)) < 0 ? PL_EIO : PL_OK;
+    FILE *fp = pl_outfile_stream(of);
+    int rc = fputs(text, fp) < 0 || fputs(end, fp) < 0 ? PL_EIO : PL_OK;
     if (rc)
         snprintf(err.msg, sizeof err.msg, "%s: cannot write", path);
     rc = pl_outfile_finish(of, rc, &err);

@@ -104,9 +104,10 @@ int cli_guard_output(const cli_common *common, const char *path);
  * failure. A NULL path gives *out NULL. Returns 0 or CLI_ERROR. */
 int cli_open_output(pl_outfile **out, const cli_common *common, const char *path);
 
-/* Write `text` whole to `path` through a pl_outfile (a temporary file
- * renamed into place, never the store: cli_guard_output()), or to stdout
- * when path is NULL; prints the failure. Returns CLI_OK or CLI_ERROR. */
+/* Write `text` whole, and a line end when it has none, to `path` through a
+ * pl_outfile (a temporary file renamed into place, never the store:
+ * cli_guard_output()), or to stdout when path is NULL; prints the failure.
+ * Returns CLI_OK or CLI_ERROR. */
 int cli_write_text(const cli_common *common, const char *path, const char *text);
 
 /* What an option's text is, for the library's checks: a name (one line,

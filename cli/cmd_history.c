@@ -7,42 +7,52 @@
 #include <stdlib.h>
 #include <string.h>
 
-static const char usage[] = "--airframe SERIAL --site CODE [--json]";
+static const char usage[] = "--airframe SERIAL --site CODE [--json | --csv] [--output FILE]";
 static const char help[] =
-    "usage: plyledger history --airframe SERIAL --site CODE [--json]\n"
+    "usage: plyledger history --airframe SERIAL --site CODE [--json | --csv]\n"
+    "                         [--output FILE]\n"
     "\n"
     "Show a site's whole record: where it is on the airframe, then every\n"
     "inspection of it, oldest first, with who did it, how, the maps it produced\n"
     "(size, pitch, quantities and content digest), each map's registrations onto\n"
     "the baseline and the inspection's comparisons. An inspection of simulated data\n"
     "says SIMULATED DATA. --json gives the same record, each registration in the\n"
-    "shape 'plyledger register --json' prints.\n"
+    "shape 'plyledger register --json' prints. --csv gives one row per inspection\n"
+    "with its latest comparison's counts (README.md, \"Tables\", names the\n"
+    "columns).\n"
     "\n"
     "Options:\n"
     "      --airframe SERIAL  the airframe (required)\n"
     "      --site CODE        the site (required)\n"
     "  -s, --store PATH       the store (default $PLYLEDGER_STORE)\n"
     "      --json             print JSON\n"
+    "      --csv              print CSV\n"
+    "  -o, --output FILE      write there (a temporary file renamed into place)\n"
     "  -h, --help             show this help\n";
 
-enum { O_AIRFRAME = 0x100, O_SITE };
+enum { O_AIRFRAME = 0x100, O_SITE, O_CSV };
 static const struct option opts[] = {
     { "airframe", required_argument, NULL, O_AIRFRAME },
     { "site", required_argument, NULL, O_SITE },
+    { "csv", no_argument, NULL, O_CSV },
+    { "output", required_argument, NULL, 'o' },
     { NULL, 0, NULL, 0 },
 };
 
 typedef struct hist_args {
-    const char *airframe, *site;
+    const char *airframe, *site, *output;
+    int csv;
 } hist_args;
 
 static int take_opt(void *ctx, int opt, const char *arg)
 {
     hist_args *a = ctx;
-    if (opt == O_AIRFRAME)
-        a->airframe = arg;
-    else
-        a->site = arg;
+    switch (opt) {
+    case O_AIRFRAME: a->airframe = arg; break;
+    case O_SITE: a->site = arg; break;
+    case O_CSV: a->csv = 1; break;
+    default: a->output = arg; break;
+    }
     return 0;
 }
 
@@ -144,11 +154,15 @@ int cmd_history(int argc, char **argv)
 {
     cli_common common;
     hist_args a = { 0 };
-    int rc = cli_parse(argc, argv, "", opts, &common, take_opt, &a, usage, help, NULL);
+    int rc = cli_parse(argc, argv, "o:", opts, &common, take_opt, &a, usage, help, NULL);
     if (rc >= 0)
         return rc;
     if (!a.airframe || !a.site)
         return cli_usage_error(usage, "--airframe and --site are required");
+    if (a.csv && common.json)
+        return cli_usage_error(usage, "--csv and --json: choose one");
+    if (a.output && !a.csv && !common.json)
+        return cli_usage_error(usage, "--output writes --json or --csv");
     pl_store *store;
     if ((rc = cli_open_store(&store, &common, PL_STORE_READONLY)))
         return rc;
@@ -158,11 +172,15 @@ int cmd_history(int argc, char **argv)
     pl_store_close(store);
     if (st)
         return cli_fail_err(st, &err);
-    if (common.json) {
+    if (common.json || a.csv) {
         char *text = NULL;
-        st = pl_history_json(&text, h, &err);
+        st = common.json ? pl_history_json(&text, h, &err) : pl_history_csv(&text, h, &err);
         pl_history_free(h);
-        return cli_print_json_text(st, &text, &err);
+        if (st)
+            return cli_fail_err(st, &err);
+        rc = cli_write_text(&common, a.output, text);
+        free(text);
+        return rc;
     }
     print_site(&h->site);
     if (!h->ninspections)

@@ -495,6 +495,75 @@ static void test_history__summary_json(void **state)
     free(text);
 }
 
+/*
+ * The history as a table: one row per inspection, oldest first, each with
+ * its latest comparison's counts as recorded and a refusal's reason whole
+ * (a comma and a quote in it), read back by Python's csv module (RFC 4180,
+ * tests/ref/csv_ref.py).
+ */
+static void test_history__csv_has_a_row_per_inspection(void **state)
+{
+    fixture *f = *state;
+    pl_err err = { 0 };
+    pl_id m0 = 0, m1 = 0, m2 = 0;
+    pl_id k0 = inspect(f->store, "baseline", "2030-02-01", 1.0f, &m0);
+    pl_id k1 = inspect(f->store, "scheduled", "2033-02-01", 2.0f, &m1);
+    pl_record_pair pair = { 0 };
+    TU_OK(pl_record_find_pair(f->store, "HIS-0001", "H01", &pair, &err));
+    pl_register_result res;
+    memset(&res, 0, sizeof res);
+    res.refused = 1;
+    snprintf(res.reason, sizeof res.reason, "correlation 0.2, below \"0.6\"");
+    res.ncc = 0.2;
+    res.psr = NAN;
+    pl_id rid = 0, cid1 = 0;
+    TU_OK(pl_record_registration(f->store, &pair, &res, 0, "phase-correlation", NULL, NULL,
+                                 NULL, &rid, &cid1, &err));
+    pl_id k2 = inspect(f->store, "scheduled", "2036-02-01", 3.0f, &m2);
+    pl_comparison_record c;
+    memset(&c, 0, sizeof c);
+    c.baseline_inspection = k0;
+    c.current_inspection = k2;
+    strcpy(c.status, "done");
+    c.uncompared_mm2 = 12.5;
+    c.uncompared_fraction = 0.01;
+    char params[] = "{\"criteria\":{\"name\":\"C-SET\",\"revision\":\"3\"},"
+                    "\"counts\":{\"new\":1,\"grown\":2,\"stable\":3,\"vanished\":0,"
+                    "\"not-compared\":0,\"changed-region\":4,\"exceeding\":2}}";
+    c.parameters_json = params;
+    pl_id cid2 = 0;
+    TU_OK(pl_store_add_comparison(f->store, &c, &cid2, &err));
+
+    pl_history *h = NULL;
+    TU_OK(pl_history_load(&h, f->store, "HIS-0001", "H01", &err));
+    char *csv = NULL;
+    TU_OK(pl_history_csv(&csv, h, &err));
+    pl_history_free(h);
+    char *file = tu_path(f->dir, "history.csv");
+    assert_int_equal(tu_write_file(file, csv, strlen(csv)), 0);
+    char c0[64], c1[64], c2[64], ins1[64], mp[64], id2[64];
+    snprintf(c0, sizeof c0, "0:inspection=%lld", (long long)k0);
+    snprintf(ins1, sizeof ins1, "1:inspection=%lld", (long long)k1);
+    snprintf(c1, sizeof c1, "1:comparison=%lld", (long long)cid1);
+    snprintf(c2, sizeof c2, "2:comparison=%lld", (long long)cid2);
+    snprintf(id2, sizeof id2, "2:against_inspection=%lld", (long long)k0);
+    snprintf(mp, sizeof mp, "2:maps=%lld", (long long)m2);
+    assert_int_equal(tu_python("csv_ref.py", file, "3", c0, "0:kind=baseline", "0:comparison=",
+                               "0:comparisons=0", "0:flight_cycles=", "0:simulated=real",
+                               "0:inspector=I. Nspector", ins1, c1,
+                               "1:comparison_status=not-done",
+                               "1:not_done_reason=registration refused: correlation 0.2, below \"0.6\"", "1:new=",
+                               c2, id2, mp, "2:performed_on=2036-02-01",
+                               "2:criteria=C-SET rev 3", "2:new=1", "2:grown=2", "2:stable=3",
+                               "2:vanished=0", "2:changed_regions=4", "2:exceeding=2",
+                               "2:not_compared_mm2=12.5", "2:comparisons=1", NULL),
+                     0);
+    /* the same table with the python check made to fail: a wrong cell */
+    assert_int_not_equal(tu_python("csv_ref.py", file, "3", "2:grown=3", NULL), 0);
+    free(file);
+    free(csv);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -507,6 +576,7 @@ int main(void)
         T(test_history__registration_summary_has_the_history_shape),
         T(test_history__reduction_json),
         T(test_history__summary_json),
+        T(test_history__csv_has_a_row_per_inspection),
 #undef T
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -6,11 +6,13 @@
 #include "record/store_int.h"
 
 #include "common/common_int.h"
+#include "common/strbuf_int.h"
 #include "plyledger/history.h"
 #include "plyledger/render.h"
 
 #include <assert.h>
 #include <cjson/cJSON.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -508,4 +510,85 @@ PL_EXPORT int pl_summary_json(char **out, const pl_store_summary *s, const char 
         o = NULL;
     }
     return pl_row__print_json(out, o, err);
+}
+
+/* ---- a site's history as a table -------------------------------------------------- */
+
+/* The counts a done comparison recorded in its parameters ("counts"). */
+static double count_at(const cJSON *counts, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(counts, key);
+    return cJSON_IsNumber(v) ? v->valuedouble : NAN;
+}
+
+PL_EXPORT int pl_history_csv(char **out, const pl_history *h, pl_err *err)
+{
+    assert(out && h);
+    static const char *const cols[] = {
+        "airframe", "site", "inspection", "version", "performed_on", "kind", "task",
+        "flight_hours", "flight_cycles", "simulated", "procedure", "procedure_rev",
+        "inspector", "inspector_level", "equipment", "calibration", "software", "maps",
+        "comparison", "against_inspection", "comparison_status", "criteria", "new", "grown",
+        "stable", "vanished", "not_compared", "changed_regions", "exceeding",
+        "not_compared_mm2", "not_done_reason", "comparisons"
+    };
+    const size_t nc = sizeof cols / sizeof *cols;
+    pl_strbuf s = PL_STRBUF_INIT;
+    for (size_t i = 0; i < nc; i++)
+        pl__csv_field(&s, cols[i], i + 1 == nc);
+    for (size_t i = 0; i < h->ninspections; i++) {
+        const pl_history_inspection *hi = &h->inspections[i];
+        const pl_inspection *in = &hi->inspection;
+        pl__csv_field(&s, in->airframe_serial, 0);
+        pl__csv_field(&s, in->site_code, 0);
+        pl__csv_number(&s, (double)in->key, 0);
+        pl__csv_number(&s, (double)in->id, 0);
+        pl__csv_field(&s, in->performed_on, 0);
+        pl__csv_field(&s, in->kind, 0);
+        pl__csv_field(&s, in->task_ref, 0);
+        pl__csv_number(&s, in->aircraft_hours, 0);
+        pl__csv_number(&s, in->aircraft_cycles >= 0 ? (double)in->aircraft_cycles : NAN, 0);
+        pl__csv_field(&s, pl_history_data_word(in->simulated), 0);
+        pl__csv_field(&s, in->procedure, 0);
+        pl__csv_field(&s, in->procedure_rev, 0);
+        pl__csv_field(&s, in->inspector, 0);
+        pl__csv_field(&s, in->inspector_level, 0);
+        pl__csv_field(&s, in->equipment, 0);
+        pl__csv_field(&s, in->calibration_ref, 0);
+        pl__csv_field(&s, in->software_version, 0);
+        /* the maps' ids, space-separated */
+        pl_strbuf ids = PL_STRBUF_INIT;
+        for (size_t j = 0; j < hi->nmaps; j++)
+            pl_strbuf__printf(&ids, "%s%lld", j ? " " : "", (long long)hi->maps[j].map.id);
+        if (pl_strbuf__failed(&ids))
+            s.failed = 1;
+        pl__csv_field(&s, pl_strbuf__str(&ids), 0);
+        pl_strbuf__release(&ids);
+        /* the latest comparison of the inspection (the record keeps them all;
+         * "comparisons" says how many) */
+        const pl_comparison_record *c = hi->ncomparisons ? &hi->comparisons[hi->ncomparisons - 1]
+                                                         : NULL;
+        cJSON *j = c && c->parameters_json ? cJSON_Parse(c->parameters_json) : NULL;
+        const cJSON *k = cJSON_GetObjectItemCaseSensitive(j, "counts");
+        const cJSON *cr = cJSON_GetObjectItemCaseSensitive(j, "criteria");
+        pl__csv_number(&s, c ? (double)c->id : NAN, 0);
+        pl__csv_number(&s, c ? (double)c->baseline_inspection : NAN, 0);
+        pl__csv_field(&s, c ? c->status : "", 0);
+        char crit[2 * PL_NAME_SIZE] = "";
+        const cJSON *cn = cJSON_GetObjectItemCaseSensitive(cr, "name");
+        const cJSON *cv = cJSON_GetObjectItemCaseSensitive(cr, "revision");
+        if (cJSON_IsString(cn) && cJSON_IsString(cv))
+            snprintf(crit, sizeof crit, "%s rev %s", cn->valuestring, cv->valuestring);
+        pl__csv_field(&s, crit, 0);
+        static const char *const kinds[] = { "new", "grown", "stable", "vanished",
+                                             "not-compared", "changed-region", "exceeding" };
+        for (size_t q = 0; q < sizeof kinds / sizeof *kinds; q++)
+            pl__csv_number(&s, count_at(k, kinds[q]), 0);
+        cJSON_Delete(j);
+        pl__csv_number(&s, c ? c->uncompared_mm2 : NAN, 0);
+        pl__csv_field(&s, c ? c->not_done_reason : "", 0);
+        pl__csv_number(&s, (double)hi->ncomparisons, 1);
+    }
+    *out = pl_strbuf__detach(&s);
+    return *out ? PL_OK : pl__err(err, PL_ENOMEM, "history: out of memory");
 }

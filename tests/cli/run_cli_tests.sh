@@ -568,6 +568,22 @@ PY
 run "coverage csv" 4 ply coverage --airframe TST-0002 --task HC-1 --csv --output "$WORK/coverage.csv"
 grep -q "NOT INSPECTED" "$WORK/err" || fail "coverage --csv --output: the missed sites are not said on stderr"
 head -1 "$WORK/coverage.csv" | grep -q '"airframe","task","site"' || fail "coverage --csv: header"
+run "history csv" 0 ply history --airframe TST-0002 --site T04 --csv --output "$WORK/history.csv"
+"$PY" - "$WORK/history.csv" <<'PY' || fail "history --csv"
+import csv, sys
+rows = list(csv.DictReader(open(sys.argv[1], newline="")))
+assert [r["kind"] for r in rows][0] == "baseline" and len(rows) >= 2, rows
+assert [r["performed_on"] for r in rows] == sorted(r["performed_on"] for r in rows)
+done = [r for r in rows if r["comparison_status"] == "done"]
+assert done and done[-1]["criteria"].startswith("EXAMPLE-CR7-GROWTH rev "), done
+assert int(done[-1]["stable"]) >= 0 and done[-1]["against_inspection"] == rows[0]["inspection"], done[-1]
+PY
+run "history json to a file" 0 ply history --airframe TST-0002 --site T04 --json -o "$WORK/history.json"
+"$PY" -c 'import json,sys; j=json.load(open(sys.argv[1])); assert j["site"]["site"] == "T04"' "$WORK/history.json" \
+    || fail "history --json --output"
+run "history csv and json" 2 ply history --airframe TST-0002 --site T04 --csv --json
+run "history text to a file" 2 ply history --airframe TST-0002 --site T04 -o "$WORK/history.txt"
+run "history csv onto the store" 1 ply history --airframe TST-0002 --site T04 --csv -o "$STORE"
 run "coverage unknown task" 1 ply coverage --airframe TST-0002 --task NO-SUCH \
     && expect_one_line_err "coverage unknown task" "NO-SUCH"
 run "compare check says what it missed" 4 ply compare --airframe TST-0002 --task HC-1 --criteria EXAMPLE-CR7-GROWTH --dry-run \

@@ -103,6 +103,21 @@ PL_EXPORT void pl_history_free(pl_history *history);
 PL_EXPORT int pl_history_json(char **out, const pl_history *history, pl_err *err);
 
 /**
+ * A history as CSV (RFC 4180, every field quoted by libcsv, CRLF line ends):
+ * a header row, then one row per inspection, oldest first, with the
+ * inspection's traceability, its maps' ids (space-separated), and its latest
+ * comparison with a baseline: id, the inspection compared against, status,
+ * criteria ("NAME rev R"), the counts of new, grown, stable, vanished, not
+ * compared, changed regions and changes beyond their limits, the area not
+ * compared, the reason when not done, and how many comparisons it has.
+ * Empty fields are unknown or not applicable. README.md ("Tables") names
+ * every column.
+ * @param[out] out  free with free()
+ * @return PL_OK, PL_ENOMEM.
+ */
+PL_EXPORT int pl_history_csv(char **out, const pl_history *history, pl_err *err);
+
+/**
  * The operator history of an airframe as JSON: { "airframe": serial,
  * "operators": [ {"operator", "since", "recorded_at"}, ... ] }, oldest first.
  * @param[out] out  free with free()
