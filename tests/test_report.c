@@ -83,18 +83,23 @@ static void test_report__site_and_check_reports_hold_the_record(void **state)
     pl_site s;
     TU_OK(pl_store_get_site(f->store, TS_SERIAL, "C01", &s, &err));
     ts_add_site(f->store, "C03");
+    /* C01: a disc that grows and one that does not, so that the site has
+     * several changes (their listing grows the report's vectors) */
     ts_disc d0 = { 64, 48, 4.0, 1.0 }, d1 = { 64, 48, 6.0, 1.0 }, d2 = { 64, 48, 7.5, 1.0 };
-    ts_inspect_at(f->store, "C01", "baseline", "2011-03-01", NULL, 10, 5, 0, 0, 0, &d0, 1, 1);
+    ts_disc c01[3][2] = { { d0, { 24, 20, 3.0, 1.0 } },
+                          { d1, { 24, 20, 3.0, 1.0 } },
+                          { d2, { 24, 20, 3.0, 1.0 } } };
+    ts_inspect_at(f->store, "C01", "baseline", "2011-03-01", NULL, 10, 5, 0, 0, 0, c01[0], 2, 1);
     ts_inspect_at(f->store, "C02", "baseline", "2011-03-01", NULL, 10, 5, 0, 0, 0, &d0, 1, 2);
     ts_inspect_at(f->store, "C03", "baseline", "2011-03-01", NULL, 10, 5, 0, 0, 0, &d0, 1, 3);
     pl_compare_options o = ts_options();
     pl_site_comparison *sc = NULL;
     ts_inspect_at(f->store, "C01", "scheduled", "2015-03-01", "HC-1", 9000, 6000, 0, 1.2, -0.7,
-                  &d1, 1, 4);
+                  c01[1], 2, 4);
     TU_OK(pl_compare_site(&sc, f->store, TS_SERIAL, "C01", 0, &o, &err));
     pl_site_comparison_free(sc);
     ts_inspect_at(f->store, "C01", "scheduled", "2019-03-01", "HC-2", 18000, 12000, 0, -0.9,
-                  0.5, &d2, 1, 5);
+                  0.5, c01[2], 2, 5);
     ts_inspect_at(f->store, "C02", "scheduled", "2019-03-02", "HC-2", 18000, 12000, 0, 0.4,
                   0.3, &d0, 1, 6);
     pl_check_comparison *cc = NULL;
@@ -110,8 +115,9 @@ static void test_report__site_and_check_reports_hold_the_record(void **state)
     size_t len = 0;
     TU_OK(pl_report_site(&html, &len, f->store, cid, &ro, &err));
     check_document(html, len);
-    /* the four maps and the track's plot */
-    assert_int_equal(check_images(html), 5);
+    /* the four maps and the two tracks' plots */
+    assert_int_equal(check_images(html), 6);
+    assert_non_null(strstr(html, "Track 2"));
     assert_non_null(strstr(html, "CMP-0001 site C01: scheduled of 2019-03-01 against the "
                                  "baseline of 2011-03-01"));
     assert_non_null(strstr(html, "EXCEEDS"));
@@ -140,7 +146,7 @@ static void test_report__site_and_check_reports_hold_the_record(void **state)
     assert_true(missed < strstr(html, "Coverage of the check"));
     assert_int_equal(count(html, "<section class=\"site\""), 1);
     assert_non_null(strstr(html, "id=\"site-C01\""));
-    assert_int_equal(check_images(html), 5);
+    assert_int_equal(check_images(html), 6);
     free(html);
 
     /* refusals */

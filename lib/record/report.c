@@ -258,9 +258,20 @@ static int chg_cb(void *ud, const pl_change_record *c)
     d->r = *c;
     snprintf(d->blabels, sizeof d->blabels, "%s", c->baseline_labels ? c->baseline_labels : "[]");
     snprintf(d->clabels, sizeof d->clabels, "%s", c->current_labels ? c->current_labels : "[]");
-    d->r.baseline_labels = d->blabels;
-    d->r.current_labels = d->clabels;
+    /* the labels point into the element once the listing is over
+     * (chg_fix()): the vector may still move */
+    d->r.baseline_labels = d->r.current_labels = NULL;
     return PL_OK;
+}
+
+/* Point each listed change's labels at its own copies. */
+static void chg_fix(vec *a)
+{
+    chg_rec *c = a->v;
+    for (size_t i = 0; i < a->n; i++) {
+        c[i].r.baseline_labels = c[i].blabels;
+        c[i].r.current_labels = c[i].clabels;
+    }
 }
 
 typedef struct ind_rec {
@@ -960,8 +971,10 @@ static int site_section(rep *r, pl_id cid, pl_err *err)
         corners = 1;
     }
     pl_map_free(tmp);
+    bm.channels = cm.channels = NULL; /* they pointed into the maps */
     if (!rc)
         rc = pl_store_list_changes(r->store, cid, chg_cb, &chgs, err);
+    chg_fix(&chgs);
     if (!rc)
         rc = pl_store_list_indications(r->store, cid, ind_cb, &inds, err);
     if (!rc)
@@ -1137,6 +1150,8 @@ out:
     pictures_free(&pics);
     pl_inspection_clear(&bi);
     pl_inspection_clear(&ci);
+    free(bm.parameters_json);
+    free(cm.parameters_json);
     free(chgs.v);
     vec_free_inds(&inds);
     free(interps.v);
