@@ -5,7 +5,8 @@
 #
 # Usage: tamper.sh PLYLEDGER_BINARY TESTS_CLI_DIR
 # Environment: PL_PYTHON (Debian's python3), PL_WRAP (optional prefix for
-# the verify runs, e.g. valgrind), TMPDIR.
+# the verify runs, e.g. valgrind), PL_EVERY=N (only every N-th attack, the
+# first included), TMPDIR.
 #
 # The table, tamper.tsv: one case a line, fields separated by a tab, '#'
 # starts a comment line.
@@ -31,6 +32,9 @@ TABLE=$HERE/tamper.tsv
 REF=$HERE/../ref
 PY=${PL_PYTHON:-/usr/bin/python3}
 WRAP=${PL_WRAP:-}
+EVERY=${PL_EVERY:-1}
+case "$EVERY" in ''|*[!0-9]*|0) echo "FAIL: PL_EVERY=$EVERY is not a whole number above 0" >&2; exit 1 ;; esac
+SEEN=0 SKIPPED=0
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/plyledger-tamper-XXXXXX")
 trap 'rm -rf "$WORK"' EXIT
 W="$WORK/in"
@@ -128,6 +132,9 @@ while IFS="$tab" read -r name want words edit vargs; do
     case "$name" in '#'* | '') continue ;; esac
     case "$NAMES" in *"|$name|"*) fail "$TABLE:$line: case '$name' named twice"; continue ;; esac
     NAMES="$NAMES|$name|"
+    SEEN=$((SEEN + 1))
+    # PL_EVERY=N: only every N-th case (the first, the N+1-th, ...)
+    if [ $(( (SEEN - 1) % EVERY )) -ne 0 ]; then SKIPPED=$((SKIPPED + 1)); continue; fi
     COUNT=$((COUNT + 1))
     cp "$PREP" "$T"
     rm -f "$T-wal" "$T-shm" "$T-journal"
@@ -157,5 +164,5 @@ while IFS="$tab" read -r name want words edit vargs; do
     [ "$want" -eq 1 ] && printf '%-58s %s\n' "$name" "$(head -1 "$WORK/err" | cut -c1-150)"
 done <"$TABLE"
 
-echo "$COUNT attacks of $(basename "$TABLE"), $FAILS failure(s)"
+echo "$COUNT attacks of $(basename "$TABLE") made ($SKIPPED left out by PL_EVERY=$EVERY), $FAILS failure(s)"
 [ "$COUNT" -gt 0 ] && [ "$FAILS" -eq 0 ]
